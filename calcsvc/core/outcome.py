@@ -1,0 +1,106 @@
+"""Result types shared by every calculation.
+
+Conventions:
+- Every per-row input and result is a float64 (or bool) array of shape ``(n,)``; a sweep result is ``(n, k)``.
+- In an input array NaN means "not given" (the value is optional); in a result NaN means "does not apply".
+- A check compares ``value`` with ``limit`` per row; ``sense`` says which side passes.
+"""
+
+from __future__ import annotations
+
+import dataclasses
+from dataclasses import dataclass, field
+from typing import Any, Literal, TypeVar
+
+import numpy as np
+import numpy.typing as npt
+
+FloatArray = npt.NDArray[np.float64]
+BoolArray = npt.NDArray[np.bool_]
+T = TypeVar("T")
+
+
+@dataclass(frozen=True)
+class Violation:
+    """An input that makes the calculation physically meaningless, on the rows in ``rows``."""
+
+    field: str
+    message: str
+    rows: BoolArray
+
+
+class DomainError(ValueError):
+    """Raised when any row violates the calculation's physical preconditions."""
+
+    def __init__(self, violations: list[Violation]) -> None:
+        self.violations = violations
+        super().__init__("; ".join(f"{v.field}: {v.message}" for v in violations))
+
+
+@dataclass(frozen=True)
+class Check:
+    name: str
+    ok: BoolArray
+    value: FloatArray
+    limit: FloatArray
+    sense: Literal["max", "min"]  # "max": value must not exceed limit; "min": value must reach limit
+    detail: str
+
+    def margin(self) -> FloatArray:
+        """How far inside the limit the value is, as a fraction of the limit (negative when failing)."""
+        with np.errstate(divide="ignore", invalid="ignore"):
+            slack = self.limit - self.value if self.sense == "max" else self.value - self.limit
+            return slack / np.abs(self.limit)
+
+
+@dataclass(frozen=True)
+class Notice:
+    """A warning or caution that applies on the rows in ``rows``."""
+
+    rows: BoolArray
+    message: str
+
+
+@dataclass(frozen=True)
+class Outcome:
+    results: dict[str, np.ndarray]
+    checks: list[Check] = field(default_factory=list)
+    warnings: list[Notice] = field(default_factory=list)
+    cautions: list[Notice] = field(default_factory=list)
+
+
+def rows(n: int, value: Any) -> FloatArray:
+    """Broadcast a scalar or array to a float64 row array of length ``n``."""
+    return np.broadcast_to(np.asarray(value, dtype=np.float64), (n,)).copy()
+
+
+def row_count(inputs: object) -> int:
+    """The number of rows of an inputs dataclass (the length of its array fields)."""
+    for f in dataclasses.fields(inputs):  # type: ignore[arg-type]
+        value = getattr(inputs, f.name)
+        if isinstance(value, np.ndarray) and value.ndim >= 1:
+            return int(value.shape[0])
+    raise ValueError("inputs have no array field")
+
+
+def take(inputs: T, mask: BoolArray) -> T:
+    """The rows of an inputs dataclass selected by ``mask`` (array fields only; scalars are kept)."""
+    changes = {}
+    for f in dataclasses.fields(inputs):  # type: ignore[arg-type]
+        value = getattr(inputs, f.name)
+        if isinstance(value, np.ndarray) and value.ndim >= 1:
+            changes[f.name] = value[mask]
+    return dataclasses.replace(inputs, **changes)  # type: ignore[type-var]
+
+
+def raise_violations(violations: list[Violation]) -> None:
+    found = [v for v in violations if bool(np.any(v.rows))]
+    if found:
+        raise DomainError(found)
+
+
+def require(violations: list[Violation], rows_bad: BoolArray, name: str, message: str) -> None:
+    """Record a violation when any row is bad; NaN comparisons count as not bad, so test finiteness first."""
+    bad = np.asarray(rows_bad, dtype=bool)
+    if bad.any():
+        violations.append(Violation(name, message, bad))

@@ -1,0 +1,1 @@
+"""Parts and token storage (SQLAlchemy 2). Imports the core's nothing and the web layer's nothing."""

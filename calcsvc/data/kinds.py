@@ -1,0 +1,135 @@
+"""Part kinds: their parameters (SI units, unit in the name) and the rules a stored part must satisfy."""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass
+from typing import Any
+
+
+@dataclass(frozen=True)
+class Param:
+    name: str
+    unit: str  # pint spelling of the SI unit, "" for text and choices
+    description: str
+    optional: bool = False
+    positive: bool = True  # strictly greater than zero
+    fraction: bool = False  # 0 <= value < 1
+    choices: tuple[str, ...] = ()
+    text: bool = False
+    integer: bool = False
+
+    @property
+    def numeric(self) -> bool:
+        return not (self.choices or self.text)
+
+
+KINDS: dict[str, tuple[Param, ...]] = {
+    "opamp": (
+        Param("gbw_hz", "Hz", "gain-bandwidth product"),
+        Param("slew_rate_v_per_s", "V/s", "output slew rate"),
+        Param("open_loop_gain", "dimensionless", "DC open-loop gain, V/V"),
+        Param("supply_min_v", "V", "lowest total supply span"),
+        Param("supply_max_v", "V", "highest total supply span"),
+        Param("output_headroom_v", "V", "how close the output swings to each rail", positive=False),
+        Param("input_offset_v", "V", "input offset voltage (magnitude)", optional=True, positive=False),
+    ),
+    "bjt": (
+        Param("polarity", "", "npn or pnp", choices=("npn", "pnp")),
+        Param("hfe_min", "dimensionless", "lowest DC current gain over the datasheet range"),
+        Param("hfe_typ", "dimensionless", "typical DC current gain"),
+        Param("vbe_sat_v", "V", "base-emitter voltage in saturation"),
+        Param("vce_sat_v", "V", "collector-emitter voltage in saturation", positive=False),
+        Param("ic_max_a", "A", "continuous collector current rating"),
+        Param("vceo_max_v", "V", "collector-emitter breakdown with open base"),
+        Param("power_max_w", "W", "total dissipation rating at 25 °C ambient"),
+    ),
+    "led": (
+        Param("color", "", "emitted colour, free text", text=True),
+        Param("vf_typ_v", "V", "typical forward voltage at the test current"),
+        Param("vf_min_v", "V", "lowest forward voltage at the test current"),
+        Param("vf_max_v", "V", "highest forward voltage at the test current"),
+        Param("if_test_a", "A", "current at which the forward voltages are specified"),
+        Param("if_max_a", "A", "continuous forward current rating"),
+    ),
+    "supply": (
+        Param("supply_v", "V", "nominal output voltage"),
+        Param(
+            "supply_tolerance",
+            "dimensionless",
+            "output tolerance as a fraction",
+            positive=False,
+            fraction=True,
+        ),
+        Param("current_max_a", "A", "continuous current rating"),
+        Param("capacity_ah", "A*h", "battery capacity", optional=True),
+    ),
+    "driver": (
+        Param("voh_v", "V", "output high voltage at the rated source current"),
+        Param("vol_v", "V", "output low voltage", positive=False),
+        Param("source_current_max_a", "A", "largest current the pin may source"),
+    ),
+}
+
+# Cross-field rules: (lower, higher, strict).
+ORDERED: dict[str, tuple[tuple[str, str, bool], ...]] = {
+    "opamp": (("supply_min_v", "supply_max_v", True),),
+    "bjt": (("hfe_min", "hfe_typ", False), ("vce_sat_v", "vceo_max_v", True)),
+    "led": (
+        ("vf_min_v", "vf_typ_v", False),
+        ("vf_typ_v", "vf_max_v", False),
+        ("if_test_a", "if_max_a", False),
+    ),
+    "driver": (("vol_v", "voh_v", True),),
+    "supply": (),
+}
+
+
+def params_of(kind: str) -> dict[str, Param]:
+    return {p.name: p for p in KINDS[kind]}
+
+
+def validate_parameters(kind: str, parameters: dict[str, Any]) -> dict[str, str]:
+    """Field errors of a part's parameters, keyed by parameter name (empty when the part is sound).
+
+    Values must already be SI floats (or strings for choices and text).
+    """
+    if kind not in KINDS:
+        return {"kind": f"unknown kind '{kind}'; one of {', '.join(KINDS)}"}
+    spec = params_of(kind)
+    errors: dict[str, str] = {}
+    for name in parameters:
+        if name not in spec:
+            errors[name] = f"not a parameter of kind '{kind}'; expected {', '.join(spec)}"
+    for name, param in spec.items():
+        value = parameters.get(name)
+        if value is None:
+            if not param.optional:
+                errors[name] = "required"
+            continue
+        if param.choices:
+            if value not in param.choices:
+                errors[name] = f"must be one of {', '.join(param.choices)}"
+        elif param.text:
+            if not isinstance(value, str) or not value.strip():
+                errors[name] = "must be a non-empty string"
+        elif isinstance(value, bool) or not isinstance(value, int | float) or not math.isfinite(value):
+            errors[name] = "must be a finite number"
+        elif param.fraction and not 0 <= value < 1:
+            errors[name] = "must be a fraction from 0 up to (not including) 1"
+        elif param.positive and value <= 0:
+            errors[name] = "must be greater than zero"
+        elif value < 0:
+            errors[name] = "must not be negative"
+    for low, high, strict in ORDERED[kind]:
+        a, b = parameters.get(low), parameters.get(high)
+        if (
+            low in errors
+            or high in errors
+            or not isinstance(a, int | float)
+            or not isinstance(b, int | float)
+        ):
+            continue
+        if (a >= b) if strict else (a > b):
+            errors[high] = f"{high} ({b:g}) must be {'greater than' if strict else 'at least'} {low} ({a:g})"
+    return errors

@@ -1,0 +1,308 @@
+"""The revisioned parts table: every edit adds a revision, approval stamps the revision it names,
+retiring hides a part from new designs. Nothing is ever deleted.
+
+Concurrent writers are serialised by conditional UPDATEs (``WHERE revision = expected``), which both
+SQLite and PostgreSQL evaluate atomically, so of several editors holding the same ETag exactly one wins.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+from datetime import UTC, datetime
+from typing import Any
+
+from sqlalchemy import func, select, update
+from sqlalchemy.exc import IntegrityError
+from sqlalchemy.orm import Session
+
+from calcsvc.data.kinds import validate_parameters
+from calcsvc.data.models import Part, PartRevision
+
+STATUSES = ("draft", "approved", "retired")
+
+
+class StoreError(Exception):
+    """Base of the store's refusals; ``field`` names the input at fault where there is one."""
+
+    def __init__(self, message: str, field: str | None = None) -> None:
+        super().__init__(message)
+        self.field = field
+
+
+class PartNotFound(StoreError):
+    pass
+
+
+class PartExists(StoreError):
+    pass
+
+
+class StaleRevision(StoreError):
+    pass
+
+
+class SelfApproval(StoreError):
+    pass
+
+
+class PartRetired(StoreError):
+    pass
+
+
+class InvalidPart(StoreError):
+    def __init__(self, errors: dict[str, str]) -> None:
+        super().__init__("the part's parameters are not valid", next(iter(errors), None))
+        self.errors = errors
+
+
+@dataclass(frozen=True)
+class PartView:
+    """A part as it is read: the current row, or one revision of it."""
+
+    part_id: str
+    kind: str
+    description: str
+    parameters: dict[str, Any]
+    status: str
+    revision: int
+    updated_at: datetime
+    updated_by: str
+    approved_by: str | None
+
+    @property
+    def etag(self) -> str:
+        return f'"{self.part_id}-r{self.revision}"'
+
+
+@dataclass(frozen=True)
+class RevisionView:
+    """One stored revision, as the history lists it."""
+
+    part_id: str
+    revision: int
+    kind: str
+    description: str
+    parameters: dict[str, Any]
+    author: str
+    created_at: datetime
+    approved_by: str | None
+    approved_at: datetime | None
+
+
+def _now() -> datetime:
+    return datetime.now(UTC)
+
+
+def _view(part: Part) -> PartView:
+    return PartView(
+        part.part_id,
+        part.kind,
+        part.description,
+        dict(part.parameters),
+        part.status,
+        part.revision,
+        part.updated_at,
+        part.updated_by,
+        part.approved_by,
+    )
+
+
+def revision_view(row: PartRevision, current: Part) -> PartView:
+    """A past revision seen as a part; its status is what it was given when approved, else draft."""
+    if row.revision == current.revision:
+        status = current.status
+    else:
+        status = "approved" if row.approved_by else "draft"
+    return PartView(
+        row.part_id,
+        row.kind,
+        row.description,
+        dict(row.parameters),
+        status,
+        row.revision,
+        row.created_at,
+        row.author,
+        row.approved_by,
+    )
+
+
+class PartStore:
+    def __init__(self, session: Session) -> None:
+        self.session = session
+
+    def _row(self, part_id: str) -> Part:
+        part = self.session.get(Part, part_id)
+        if part is None:
+            raise PartNotFound(f"no part '{part_id}'", "part_id")
+        return part
+
+    def get(self, part_id: str) -> PartView:
+        return _view(self._row(part_id))
+
+    def get_revision(self, part_id: str, revision: int) -> PartView:
+        current = self._row(part_id)
+        row = self.session.get(PartRevision, (part_id, revision))
+        if row is None:
+            raise PartNotFound(f"part '{part_id}' has no revision {revision}", "revision")
+        return revision_view(row, current)
+
+    def get_many(self, part_ids: list[str]) -> dict[str, PartView]:
+        rows = self.session.scalars(select(Part).where(Part.part_id.in_(part_ids)))
+        return {row.part_id: _view(row) for row in rows}
+
+    def list(
+        self, kind: str | None = None, status: str | None = None, offset: int = 0, limit: int = 50
+    ) -> tuple[list[PartView], int]:
+        query = select(Part)
+        if kind:
+            query = query.where(Part.kind == kind)
+        if status:
+            query = query.where(Part.status == status)
+        total = self.session.scalar(select(func.count()).select_from(query.subquery())) or 0
+        rows = self.session.scalars(query.order_by(Part.part_id).offset(offset).limit(limit))
+        return [_view(row) for row in rows], total
+
+    def revisions(self, part_id: str) -> list[RevisionView]:
+        self._row(part_id)
+        rows = self.session.scalars(
+            select(PartRevision).where(PartRevision.part_id == part_id).order_by(PartRevision.revision)
+        )
+        return [
+            RevisionView(
+                row.part_id,
+                row.revision,
+                row.kind,
+                row.description,
+                dict(row.parameters),
+                row.author,
+                row.created_at,
+                row.approved_by,
+                row.approved_at,
+            )
+            for row in rows
+        ]
+
+    def create(
+        self,
+        part_id: str,
+        kind: str,
+        description: str,
+        parameters: dict[str, Any],
+        author: str,
+        approve: bool = False,
+    ) -> PartView:
+        """Add a part as revision 1 (draft, or approved by its author when seeding)."""
+        errors = validate_parameters(kind, parameters)
+        if errors:
+            raise InvalidPart(errors)
+        now = _now()
+        self.session.add(
+            Part(
+                part_id=part_id,
+                kind=kind,
+                description=description,
+                parameters=parameters,
+                status="approved" if approve else "draft",
+                revision=1,
+                updated_at=now,
+                updated_by=author,
+                approved_by=author if approve else None,
+            )
+        )
+        try:
+            self.session.flush()
+        except IntegrityError as exc:
+            raise PartExists(f"a part '{part_id}' already exists", "part_id") from exc
+        self.session.add(
+            PartRevision(
+                part_id=part_id,
+                revision=1,
+                kind=kind,
+                description=description,
+                parameters=parameters,
+                author=author,
+                created_at=now,
+                approved_by=author if approve else None,
+                approved_at=now if approve else None,
+            )
+        )
+        self.session.flush()
+        return self.get(part_id)
+
+    def update(
+        self, part_id: str, expected_revision: int, description: str, parameters: dict[str, Any], author: str
+    ) -> PartView:
+        """Store a new revision if the part is still at ``expected_revision``; it returns to draft."""
+        current = self._row(part_id)
+        errors = validate_parameters(current.kind, parameters)
+        if errors:
+            raise InvalidPart(errors)
+        new_revision = expected_revision + 1
+        now = _now()
+        result = self.session.execute(
+            update(Part)
+            .where(Part.part_id == part_id, Part.revision == expected_revision)
+            .values(
+                description=description,
+                parameters=parameters,
+                status="draft",
+                revision=new_revision,
+                updated_at=now,
+                updated_by=author,
+                approved_by=None,
+            )
+            .execution_options(synchronize_session=False)
+        )
+        if result.rowcount != 1:
+            raise StaleRevision(f"part '{part_id}' is no longer at revision {expected_revision}", "If-Match")
+        self.session.add(
+            PartRevision(
+                part_id=part_id,
+                revision=new_revision,
+                kind=current.kind,
+                description=description,
+                parameters=parameters,
+                author=author,
+                created_at=now,
+            )
+        )
+        self.session.flush()
+        self.session.expire_all()
+        return self.get(part_id)
+
+    def approve(self, part_id: str, revision: int, reviewer: str) -> PartView:
+        """Approve ``revision`` if it is still the current one and was written by someone else."""
+        current = self._row(part_id)
+        row = self.session.get(PartRevision, (part_id, revision))
+        if row is None or current.revision != revision:
+            raise StaleRevision(f"revision {revision} of '{part_id}' is not the current revision", "revision")
+        if current.status == "retired":
+            raise PartRetired(f"part '{part_id}' is retired", "part_id")
+        if row.author == reviewer:
+            raise SelfApproval("a revision cannot be approved by its own author", "revision")
+        now = _now()
+        result = self.session.execute(
+            update(Part)
+            .where(Part.part_id == part_id, Part.revision == revision, Part.status != "retired")
+            .values(status="approved", approved_by=reviewer)
+            .execution_options(synchronize_session=False)
+        )
+        if result.rowcount != 1:
+            raise StaleRevision(f"revision {revision} of '{part_id}' is not the current revision", "revision")
+        row.approved_by = reviewer
+        row.approved_at = now
+        self.session.flush()
+        self.session.expire_all()
+        return self.get(part_id)
+
+    def retire(self, part_id: str, author: str) -> PartView:
+        """Withdraw a part from new designs; its revisions stay readable and pinnable."""
+        self._row(part_id)
+        self.session.execute(
+            update(Part)
+            .where(Part.part_id == part_id)
+            .values(status="retired", updated_at=_now(), updated_by=author)
+            .execution_options(synchronize_session=False)
+        )
+        self.session.expire_all()
+        return self.get(part_id)

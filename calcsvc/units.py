@@ -1,0 +1,76 @@
+"""Strict parsing of quantities written as strings, such as ``"4.7 kohm"`` or ``"0.5 V/us"``.
+
+User text never reaches pint's expression evaluator (it can be made to hang and accepts oddities such as
+``"1,5 V"``): a regular expression takes a plain decimal number and a unit name, ``float()`` reads the
+number and ``parse_units`` reads only the unit, then the dimension is checked against the field's unit.
+"""
+
+from __future__ import annotations
+
+import math
+import re
+from functools import lru_cache
+
+import pint
+
+UREG = pint.UnitRegistry()
+
+_QUANTITY = re.compile(
+    r"\s*(?P<number>[+-]?(?:\d+\.?\d*|\.\d+)(?:[eE][+-]?\d+)?)\s*(?P<unit>[A-Za-zµμΩ%/*^0-9 .·-]*?)\s*"
+)
+# Unit text: names, products and quotients of names with optional integer powers; nothing that evaluates.
+_UNIT_TEXT = re.compile(
+    r"[A-Za-zµμΩ]+(?:\s*(?:\*\*|\^)\s*-?\d)?(?:\s*[*/·]\s*[A-Za-zµμΩ]+(?:\s*(?:\*\*|\^)\s*-?\d)?)*"
+)
+_ALIASES = {"Ω": "ohm", "µ": "u", "μ": "u", "·": "*", "^": "**"}
+
+
+class UnitError(ValueError):
+    """The text is not a number with a unit of the expected dimension."""
+
+
+@lru_cache(maxsize=256)
+def _unit(unit_text: str) -> pint.Unit:
+    text = unit_text
+    for alias, plain in _ALIASES.items():
+        text = text.replace(alias, plain)
+    if text == "%":
+        return UREG.percent
+    try:
+        return UREG.parse_units(text)
+    except Exception as exc:  # pint raises several unrelated types for unknown names
+        raise UnitError(f"unknown unit '{unit_text}'") from exc
+
+
+@lru_cache(maxsize=64)
+def _si(unit: str) -> pint.Unit:
+    return UREG.parse_units(unit)
+
+
+def parse_quantity(text: str, si_unit: str) -> float:
+    """Convert ``text`` (a decimal number, optionally followed by a unit) to ``si_unit``.
+
+    ``si_unit`` is the pint spelling of the field's SI unit ("V", "A", "ohm", "Hz", "V/s", "s", "W", "A*h",
+    "dimensionless"). A bare number is taken as already in that unit.
+    """
+    match = _QUANTITY.fullmatch(text)
+    if match is None:
+        raise UnitError(f"'{text}' is not a number followed by a unit")
+    number = float(match["number"])
+    if not math.isfinite(number):
+        raise UnitError(f"'{text}' is not a finite number")
+    unit_text = match["unit"].strip()
+    if not unit_text:
+        return number
+    if unit_text != "%" and _UNIT_TEXT.fullmatch(unit_text) is None:
+        raise UnitError(f"'{unit_text}' is not a unit name")
+    unit = _unit(unit_text)
+    target = _si(si_unit)
+    if unit.dimensionality != target.dimensionality:
+        expected = "dimensionless" if not target.dimensionality else f"{target:~}"
+        raise UnitError(f"'{text}' has the wrong dimension: expected a value in {expected}")
+    # 15 significant digits remove conversion noise ("10 us" gives 1e-05, not 9.999999999999999e-06).
+    value = float(f"{UREG.Quantity(number, unit).to(target).magnitude:.15g}")
+    if not math.isfinite(value):
+        raise UnitError(f"'{text}' is out of range")
+    return value

@@ -1,0 +1,1 @@
+"""The thin HTTP layer: Flask app, flask-smorest blueprints, marshmallow schemas."""

@@ -1,0 +1,167 @@
+"""The Flask application factory."""
+
+from __future__ import annotations
+
+import logging
+from collections.abc import Mapping
+from http import HTTPStatus
+from pathlib import Path
+from typing import Any
+
+from flask import Flask, Response, current_app, request
+from flask_smorest import Api
+from flask_smorest.utils import prepare_response
+from werkzeug.exceptions import HTTPException, RequestEntityTooLarge
+
+from calcsvc.config import load_config
+from calcsvc.core.outcome import DomainError
+from calcsvc.data.database import Database
+from calcsvc.data.store import (
+    InvalidPart,
+    PartExists,
+    PartNotFound,
+    PartRetired,
+    SelfApproval,
+    StaleRevision,
+    StoreError,
+)
+from calcsvc.web import health, parts_api
+from calcsvc.web.problems import (
+    PROBLEM_MIMETYPE,
+    Problem,
+    ProblemSchema,
+    from_http_exception,
+    problem_response,
+)
+
+log = logging.getLogger("calcsvc")
+
+API_VERSION = "1.0.0"
+BODY_MIMETYPES = {"application/json", "text/csv"}
+
+_STORE_STATUS: dict[type[StoreError], tuple[int, str]] = {
+    PartNotFound: (404, "part-not-found"),
+    PartExists: (409, "part-exists"),
+    StaleRevision: (412, "stale-revision"),
+    SelfApproval: (403, "self-approval"),
+    PartRetired: (409, "part-retired"),
+}
+
+
+class ProblemApi(Api):
+    """flask-smorest Api whose every error is an RFC 9457 problem document."""
+
+    ERROR_SCHEMA = ProblemSchema
+
+    def handle_http_exception(self, error: HTTPException) -> Response:  # type: ignore[override]
+        return problem_response(from_http_exception(error))
+
+    def _register_responses(self) -> None:
+        # As flask-smorest's own, but documenting errors as application/problem+json, which they are.
+        for status in HTTPStatus:
+            response: dict[str, Any] = {"description": status.phrase}
+            if status >= 400:
+                response["schema"] = self.ERROR_SCHEMA
+            prepare_response(response, self.spec, PROBLEM_MIMETYPE)
+            self.spec.components.response(status.name, response, lazy=True)
+        response = {"description": "Any other error, as a problem document", "schema": self.ERROR_SCHEMA}
+        prepare_response(response, self.spec, PROBLEM_MIMETYPE)
+        self.spec.components.response(self.DEFAULT_ERROR_RESPONSE_NAME, response, lazy=True)
+
+
+def _store_problem(error: StoreError) -> Response:
+    if isinstance(error, InvalidPart):
+        errors = {f"parameters.{k}" if k != "kind" else k: [v] for k, v in error.errors.items()}
+        return problem_response(Problem(422, "the part's parameters are not valid", "invalid-part", errors))
+    status, slug = _STORE_STATUS.get(type(error), (400, "store"))
+    errors = {error.field: [str(error)]} if error.field else None
+    return problem_response(Problem(status, str(error), slug, errors))
+
+
+def _domain_problem(error: DomainError) -> Response:
+    errors: dict[str, list[str]] = {}
+    for violation in error.violations:
+        errors.setdefault(violation.field, []).append(violation.message)
+    detail = "; ".join(f"{field}: {' '.join(messages)}" for field, messages in errors.items())
+    return problem_response(
+        Problem(422, detail, "physically-impossible", errors, title="Physically impossible input")
+    )
+
+
+def _unexpected(error: Exception) -> Response:
+    if isinstance(error, HTTPException):
+        return problem_response(from_http_exception(error))
+    if isinstance(error, RecursionError):
+        return problem_response(Problem(400, "the request body is nested too deeply", "malformed-body"))
+    log.exception("unhandled error on %s %s", request.method, request.path)
+    return problem_response(
+        Problem(500, "the server failed to answer this request; the failure has been logged", "internal")
+    )
+
+
+def _check_body() -> Response | None:
+    """Refuse oversized or non-JSON bodies before anything reads them (or asks who sent them)."""
+    limit = current_app.config["MAX_CONTENT_LENGTH"]
+    if request.content_length is not None and request.content_length > limit:
+        return problem_response(from_http_exception(RequestEntityTooLarge()))
+    if request.method in {"POST", "PUT", "PATCH"} and request.content_length:
+        if request.mimetype not in BODY_MIMETYPES:
+            return problem_response(
+                Problem(
+                    415,
+                    f"send the body as application/json, not {request.mimetype or 'untyped'}",
+                    "media-type",
+                )
+            )
+    return None
+
+
+def _cors(response: Response, origins: list[str]) -> Response:
+    origin = request.headers.get("Origin")
+    if origin and origin in origins:
+        response.headers["Access-Control-Allow-Origin"] = origin
+        response.headers["Access-Control-Allow-Headers"] = "Authorization, Content-Type, If-Match"
+        response.headers["Access-Control-Allow-Methods"] = "GET, POST, PUT, DELETE"
+        response.headers["Access-Control-Expose-Headers"] = "ETag, Location"
+        response.vary.add("Origin")
+    return response
+
+
+def create_app(config: Mapping[str, Any] | None = None) -> Flask:
+    app = Flask("calcsvc", instance_relative_config=True)
+    app.config.update(load_config(config))
+    if not app.config["DATABASE_URL"]:
+        app.config["DATABASE_URL"] = f"sqlite:///{Path(app.instance_path) / 'calcsvc.sqlite'}"
+    app.config.update(
+        API_TITLE="calcsvc",
+        API_VERSION=API_VERSION,
+        OPENAPI_VERSION="3.1.0",
+        OPENAPI_URL_PREFIX="/",
+        OPENAPI_JSON_PATH="openapi.json",
+        API_SPEC_OPTIONS={
+            "info": {
+                "description": "Vetted design calculations for op-amp stages, BJT LED switches and supply "
+                "budgets, over a shared, reviewed, revisioned parts table. Numbers are SI base units; "
+                "every field name carries its unit. Errors are RFC 9457 problem documents.",
+            },
+            "components": {
+                "securitySchemes": {"bearer": {"type": "http", "scheme": "bearer"}},
+            },
+        },
+    )
+    logging.getLogger("calcsvc").setLevel(app.config["LOG_LEVEL"])
+    app.extensions["calcsvc.db"] = Database(app.config["DATABASE_URL"], app.config["DB_POOL_SIZE"])
+
+    api = ProblemApi(app)
+    app.extensions["calcsvc.api"] = api
+    api.register_blueprint(health.blp)
+    api.register_blueprint(parts_api.blp)
+
+    app.register_error_handler(Problem, problem_response)
+    app.register_error_handler(StoreError, _store_problem)
+    app.register_error_handler(DomainError, _domain_problem)
+    app.register_error_handler(Exception, _unexpected)
+    app.before_request(_check_body)
+    origins = app.config["CORS_ORIGINS"]
+    app.after_request(lambda response: _cors(response, origins))
+    return app

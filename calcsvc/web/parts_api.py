@@ -1,0 +1,271 @@
+"""``/v1/parts``: the shared, reviewed, revisioned parts table."""
+
+from __future__ import annotations
+
+import re
+from dataclasses import asdict
+from typing import Any
+
+from flask import current_app, g, request, url_for
+from flask.views import MethodView
+from flask_smorest import Blueprint
+from marshmallow import Schema, fields, validate
+
+from calcsvc.data.kinds import KINDS, params_of
+from calcsvc.data.store import STATUSES, PartStore, PartView
+from calcsvc.units import UnitError, parse_quantity
+from calcsvc.web.auth import reads, requires
+from calcsvc.web.problems import Problem, error_response
+
+blp = Blueprint("parts", __name__, url_prefix="/v1/parts", description="The shared parts table")
+
+PART_ID = r"^[a-z0-9][a-z0-9-]{0,63}$"
+_ETAG = re.compile(r'^(?:W/)?"(?P<part>[a-z0-9-]+)-r(?P<revision>\d+)"$')
+_KIND_DOC = "; ".join(
+    f"{kind}: " + ", ".join(p.name + (" (optional)" if p.optional else "") for p in params)
+    for kind, params in KINDS.items()
+)
+
+
+class ParametersField(fields.Dict):
+    def __init__(self, **kwargs: Any) -> None:
+        super().__init__(
+            keys=fields.String(),
+            values=fields.Raw(),
+            metadata={
+                "description": "Parameters in SI units (numbers) or as strings with units ('4.7 kohm'). "
+                f"By kind: {_KIND_DOC}",
+                "additionalProperties": {"oneOf": [{"type": "number"}, {"type": "string", "maxLength": 64}]},
+            },
+            **kwargs,
+        )
+
+
+class PartCreateSchema(Schema):
+    part_id = fields.String(required=True, validate=validate.Regexp(PART_ID), metadata={"pattern": PART_ID})
+    kind = fields.String(required=True, validate=validate.OneOf(list(KINDS)))
+    description = fields.String(load_default="", validate=validate.Length(max=500))
+    parameters = ParametersField(required=True)
+
+
+class PartUpdateSchema(Schema):
+    description = fields.String(load_default=None, validate=validate.Length(max=500))
+    parameters = ParametersField(required=True)
+
+
+class ApproveSchema(Schema):
+    revision = fields.Integer(
+        load_default=None,
+        validate=validate.Range(min=1),
+        metadata={
+            "description": "the revision being approved; default: the one named by If-Match, else current"
+        },
+    )
+
+
+class PartSchema(Schema):
+    part_id = fields.String(required=True)
+    kind = fields.String(required=True)
+    description = fields.String(required=True)
+    parameters = fields.Dict(required=True)
+    status = fields.String(required=True, validate=validate.OneOf(STATUSES))
+    revision = fields.Integer(required=True)
+    updated_at = fields.DateTime(required=True)
+    updated_by = fields.String(required=True)
+    approved_by = fields.String(allow_none=True, required=True)
+
+
+class PartListSchema(Schema):
+    items = fields.List(fields.Nested(PartSchema), required=True)
+    total = fields.Integer(required=True)
+    offset = fields.Integer(required=True)
+    limit = fields.Integer(required=True)
+
+
+class PartQuerySchema(Schema):
+    kind = fields.String(validate=validate.OneOf(list(KINDS)))
+    status = fields.String(validate=validate.OneOf(STATUSES))
+    offset = fields.Integer(load_default=0, validate=validate.Range(min=0, max=1_000_000))
+    limit = fields.Integer(load_default=50, validate=validate.Range(min=1, max=500))
+
+
+class RevisionSchema(Schema):
+    revision = fields.Integer(required=True)
+    kind = fields.String(required=True)
+    description = fields.String(required=True)
+    parameters = fields.Dict(required=True)
+    author = fields.String(required=True)
+    created_at = fields.DateTime(required=True)
+    approved_by = fields.String(allow_none=True, required=True)
+    approved_at = fields.DateTime(allow_none=True, required=True)
+
+
+class RevisionListSchema(Schema):
+    part_id = fields.String(required=True)
+    revisions = fields.List(fields.Nested(RevisionSchema), required=True)
+
+
+class IfMatchSchema(Schema):
+    if_match = fields.String(
+        data_key="If-Match", metadata={"description": "the ETag of the revision you read"}
+    )
+
+
+def convert_parameters(kind: str, raw: dict[str, Any]) -> dict[str, Any]:
+    """Parameters in SI floats; strings with units are converted, a wrong dimension names the field."""
+    spec = params_of(kind)
+    converted: dict[str, Any] = {}
+    errors: dict[str, list[str]] = {}
+    for name, value in raw.items():
+        param = spec.get(name)
+        if param is None or not param.numeric:
+            converted[name] = value  # unknown names and text are judged by the kind's rules
+            continue
+        if isinstance(value, str):
+            try:
+                converted[name] = parse_quantity(value, param.unit)
+            except UnitError as exc:
+                errors[f"parameters.{name}"] = [str(exc)]
+        else:
+            converted[name] = value
+    if errors:
+        raise Problem(422, "invalid parameters: " + ", ".join(errors), "validation", errors)
+    return converted
+
+
+def part_response(view: PartView, status: int = 200) -> tuple[dict[str, Any], int, dict[str, str]]:
+    return asdict(view), status, {"ETag": view.etag}
+
+
+def expected_revision(part_id: str, required: bool) -> int | None:
+    header = request.headers.get("If-Match")
+    if header is None:
+        if required:
+            raise Problem(
+                428,
+                "send If-Match with the ETag you read, so no one else's edit is overwritten",
+                "if-match-missing",
+            )
+        return None
+    match = _ETAG.match(header.strip())
+    if match is None or match["part"] != part_id:
+        raise Problem(412, f"If-Match {header!r} does not name a revision of '{part_id}'", "stale-revision")
+    return int(match["revision"])
+
+
+def _store() -> Any:
+    return current_app.extensions["calcsvc.db"].transaction()
+
+
+@blp.route("")
+class Parts(MethodView):
+    @reads
+    @blp.arguments(PartQuerySchema, location="query")
+    @blp.response(200, PartListSchema)
+    def get(self, query: dict[str, Any]) -> dict[str, Any]:
+        """List parts, filtered by kind and status, in pages."""
+        with _store() as session:
+            views, total = PartStore(session).list(
+                query.get("kind"), query.get("status"), query["offset"], query["limit"]
+            )
+        return {
+            "items": [asdict(v) for v in views],
+            "total": total,
+            "offset": query["offset"],
+            "limit": query["limit"],
+        }
+
+    @requires("editor")
+    @blp.arguments(PartCreateSchema)
+    @blp.response(201, PartSchema, headers={"Location": {"schema": {"type": "string"}}})
+    @error_response(blp, 401, "no valid token")
+    @error_response(blp, 403, "the token's role may not create parts")
+    @error_response(blp, 409, "a part with this id exists")
+    def post(self, body: dict[str, Any]) -> tuple[dict[str, Any], int, dict[str, str]]:
+        """Add a part as a draft at revision 1 (editor)."""
+        parameters = convert_parameters(body["kind"], body["parameters"])
+        with _store() as session:
+            view = PartStore(session).create(
+                body["part_id"], body["kind"], body["description"], parameters, g.identity.name
+            )
+        data, _, headers = part_response(view)
+        headers["Location"] = url_for("parts.Part", part_id=view.part_id)
+        return data, 201, headers
+
+
+@blp.route("/<string:part_id>")
+class Part(MethodView):
+    @reads
+    @blp.response(200, PartSchema, headers={"ETag": {"schema": {"type": "string"}}})
+    @error_response(blp, 404, "no such part")
+    def get(self, part_id: str) -> tuple[dict[str, Any], int, dict[str, str]]:
+        """One part at its current revision, with the revision's ETag."""
+        with _store() as session:
+            return part_response(PartStore(session).get(part_id))
+
+    @requires("editor")
+    @blp.arguments(IfMatchSchema, location="headers")
+    @blp.arguments(PartUpdateSchema)
+    @blp.response(200, PartSchema, headers={"ETag": {"schema": {"type": "string"}}})
+    @error_response(blp, 401, "no valid token")
+    @error_response(blp, 403, "the token's role may not edit parts")
+    @error_response(blp, 404, "no such part")
+    @error_response(blp, 412, "the part changed since the ETag was read")
+    @error_response(blp, 428, "If-Match is missing")
+    def put(
+        self, _headers: dict[str, Any], body: dict[str, Any], part_id: str
+    ) -> tuple[dict[str, Any], int, dict[str, str]]:
+        """Store a new revision (editor); needs If-Match; the part returns to draft until approved."""
+        expected = expected_revision(part_id, required=True)
+        assert expected is not None
+        with _store() as session:
+            store = PartStore(session)
+            current = store.get(part_id)
+            parameters = convert_parameters(current.kind, body["parameters"])
+            description = current.description if body["description"] is None else body["description"]
+            return part_response(store.update(part_id, expected, description, parameters, g.identity.name))
+
+    @requires("editor")
+    @blp.response(200, PartSchema)
+    @error_response(blp, 401, "no valid token")
+    @error_response(blp, 403, "the token's role may not retire parts")
+    @error_response(blp, 404, "no such part")
+    def delete(self, part_id: str) -> tuple[dict[str, Any], int, dict[str, str]]:
+        """Retire a part (editor): refused in new calculations unless pinned by revision; history stays."""
+        with _store() as session:
+            return part_response(PartStore(session).retire(part_id, g.identity.name))
+
+
+@blp.route("/<string:part_id>/approve")
+class Approve(MethodView):
+    @requires("reviewer")
+    @blp.arguments(IfMatchSchema, location="headers")
+    @blp.arguments(ApproveSchema, required=False)
+    @blp.response(200, PartSchema, headers={"ETag": {"schema": {"type": "string"}}})
+    @error_response(blp, 401, "no valid token")
+    @error_response(blp, 403, "not a reviewer, or the reviewer wrote this revision")
+    @error_response(blp, 404, "no such part")
+    @error_response(blp, 409, "the part is retired")
+    @error_response(blp, 412, "the named revision is no longer current")
+    def post(
+        self, _headers: dict[str, Any], body: dict[str, Any], part_id: str
+    ) -> tuple[dict[str, Any], int, dict[str, str]]:
+        """Approve the current revision (reviewer; not its author)."""
+        revision = (body or {}).get("revision") or expected_revision(part_id, required=False)
+        with _store() as session:
+            store = PartStore(session)
+            if revision is None:
+                revision = store.get(part_id).revision
+            return part_response(store.approve(part_id, revision, g.identity.name))
+
+
+@blp.route("/<string:part_id>/revisions")
+class Revisions(MethodView):
+    @reads
+    @blp.response(200, RevisionListSchema)
+    @error_response(blp, 404, "no such part")
+    def get(self, part_id: str) -> dict[str, Any]:
+        """Every revision of a part, oldest first, with its parameters, author and approval."""
+        with _store() as session:
+            revisions = PartStore(session).revisions(part_id)
+        return {"part_id": part_id, "revisions": [asdict(r) for r in revisions]}

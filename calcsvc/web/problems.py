@@ -1,0 +1,138 @@
+"""RFC 9457 problem documents for every error the service answers, stack traces never included."""
+
+from __future__ import annotations
+
+import logging
+from typing import Any
+
+from flask import Response, json, request
+from marshmallow import Schema, fields
+from werkzeug.exceptions import HTTPException
+
+PROBLEM_MIMETYPE = "application/problem+json"
+log = logging.getLogger("calcsvc")
+
+
+class ProblemSchema(Schema):
+    """The documented shape of every error response."""
+
+    type = fields.String(required=True, metadata={"description": "URI identifying the kind of problem"})
+    title = fields.String(required=True)
+    status = fields.Integer(required=True)
+    detail = fields.String(required=True)
+    instance = fields.String(metadata={"description": "the request path"})
+    errors = fields.Dict(
+        keys=fields.String(),
+        values=fields.List(fields.String()),
+        metadata={"description": "messages keyed by the offending field (dotted path for nested fields)"},
+    )
+
+
+def error_response(blp: Any, status: int, description: str) -> Any:
+    """Document an error status of an operation as a problem document."""
+    return blp.alt_response(
+        status, schema=ProblemSchema, content_type=PROBLEM_MIMETYPE, description=description
+    )
+
+
+class Problem(Exception):
+    """An error raised anywhere in the HTTP layer and answered as a problem document."""
+
+    def __init__(
+        self,
+        status: int,
+        detail: str,
+        slug: str | None = None,
+        errors: dict[str, list[str]] | None = None,
+        headers: dict[str, str] | None = None,
+        title: str | None = None,
+    ) -> None:
+        super().__init__(detail)
+        self.status = status
+        self.detail = detail
+        self.slug = slug
+        self.errors = errors
+        self.headers = headers or {}
+        self.title = title
+
+
+_TITLES = {
+    400: "Bad request",
+    401: "Authentication required",
+    403: "Forbidden",
+    404: "Not found",
+    405: "Method not allowed",
+    409: "Conflict",
+    412: "Precondition failed",
+    413: "Content too large",
+    415: "Unsupported media type",
+    422: "Unprocessable content",
+    428: "Precondition required",
+    500: "Internal server error",
+    503: "Service unavailable",
+}
+
+
+def problem_response(problem: Problem) -> Response:
+    body: dict[str, Any] = {
+        "type": f"urn:calcsvc:problem:{problem.slug}" if problem.slug else "about:blank",
+        "title": problem.title or _TITLES.get(problem.status, "Error"),
+        "status": problem.status,
+        "detail": problem.detail,
+        "instance": request.path,
+    }
+    if problem.errors:
+        body["errors"] = problem.errors
+    response = Response(json.dumps(body), status=problem.status, mimetype=PROBLEM_MIMETYPE)
+    for name, value in problem.headers.items():
+        response.headers[name] = value
+    return response
+
+
+def _flatten(messages: Any, prefix: str = "") -> dict[str, list[str]]:
+    """webargs/marshmallow nest messages by location and field; clients want one level keyed by field."""
+    if isinstance(messages, dict):
+        flat: dict[str, list[str]] = {}
+        for key, value in messages.items():
+            name = f"{prefix}.{key}" if prefix else str(key)
+            if key == "_schema":
+                name = prefix or "body"
+            flat.update(_flatten(value, name))
+        return flat
+    if isinstance(messages, list) and all(isinstance(m, str) for m in messages):
+        return {prefix or "body": list(messages)}
+    if isinstance(messages, list):
+        flat = {}
+        for index, value in enumerate(messages):
+            flat.update(_flatten(value, f"{prefix}.{index}"))
+        return flat
+    return {prefix or "body": [str(messages)]}
+
+
+def from_http_exception(error: HTTPException) -> Problem:
+    code = error.code or 500
+    headers = {k: v for k, v in error.get_headers() if k.lower() != "content-type"}
+    data = getattr(error, "data", None) or {}
+    messages = data.get("errors") or data.get("messages")
+    if code == 422 and messages:
+        # Strip the location level ("json", "query", "headers") so errors are keyed by field name.
+        per_location = messages if isinstance(messages, dict) else {"body": messages}
+        errors: dict[str, list[str]] = {}
+        for location_messages in per_location.values():
+            errors.update(_flatten(location_messages))
+        fields_named = ", ".join(sorted(errors))
+        return Problem(422, f"invalid input: {fields_named}", "validation", errors, headers)
+    if code == 400 and messages:
+        return Problem(
+            400, "the request body is not valid JSON", "malformed-body", _flatten(messages), headers
+        )
+    detail = data.get("message") or (error.description or "").strip() or _TITLES.get(code, "Error")
+    if code == 413:
+        detail = "the request body is larger than this server accepts (MAX_CONTENT_LENGTH)"
+    elif code == 404:
+        detail = f"no resource at {request.path}"
+    elif code == 405:
+        detail = f"{request.method} is not allowed on {request.path}"
+    elif code >= 500:
+        detail = "the server failed to answer this request; the failure has been logged"
+    return Problem(code, detail, headers=headers)

@@ -1,0 +1,91 @@
+"""A marshmallow field for physical quantities: a JSON number in SI units, or a string with a unit."""
+
+from __future__ import annotations
+
+import math
+from typing import Any
+
+from marshmallow import ValidationError, fields
+
+from calcsvc.units import UnitError, parse_quantity
+
+# A decimal number followed by a unit made of letters and operators; mirrors the parser's first stage so
+# the published schema and the server agree on which strings are worth sending.
+QUANTITY_PATTERN = r"^\s*[+-]?(\d+\.?\d*|\.\d+)([eE][+-]?\d+)?\s*[A-Za-zµμΩ%/*^0-9 .·-]*$"
+
+
+class Quantity(fields.Field):
+    """Float in ``unit`` (SI), or a string such as ``"4.7 kohm"`` converted to it.
+
+    ``minimum``/``exclusive_minimum``/``maximum`` are enforced after conversion and published in the spec.
+    """
+
+    def __init__(
+        self,
+        unit: str,
+        *,
+        minimum: float | None = None,
+        exclusive_minimum: bool = False,
+        maximum: float | None = None,
+        exclusive_maximum: bool = False,
+        integer: bool = False,
+        description: str = "",
+        **kwargs: Any,
+    ) -> None:
+        self.unit = unit
+        self.minimum = minimum
+        self.exclusive_minimum = exclusive_minimum
+        self.maximum = maximum
+        self.exclusive_maximum = exclusive_maximum
+        self.integer = integer
+        number: dict[str, Any] = {"type": "integer" if integer else "number"}
+        if minimum is not None:
+            number["exclusiveMinimum" if exclusive_minimum else "minimum"] = minimum
+        if maximum is not None:
+            number["exclusiveMaximum" if exclusive_maximum else "maximum"] = maximum
+        unit_text = "V/V" if unit == "dimensionless" else unit
+        metadata = dict(kwargs.pop("metadata", {}))
+        metadata.setdefault("description", f"{description} [{unit_text}]".strip())
+        metadata["x-unit"] = unit_text
+        if integer:
+            metadata["oneOf"] = [number]
+        else:
+            metadata["oneOf"] = [number, {"type": "string", "pattern": QUANTITY_PATTERN}]
+        super().__init__(metadata=metadata, **kwargs)
+
+    def _deserialize(self, value: Any, attr: str | None, data: Any, **kwargs: Any) -> float:
+        if isinstance(value, bool):
+            raise ValidationError("must be a number, not a boolean")
+        if isinstance(value, int | float):
+            try:
+                number = float(value)
+            except OverflowError as exc:
+                raise ValidationError("number is too large") from exc
+        elif isinstance(value, str) and not self.integer:
+            try:
+                number = parse_quantity(value, self.unit)
+            except UnitError as exc:
+                raise ValidationError(str(exc)) from exc
+        else:
+            raise ValidationError("must be a number" + ("" if self.integer else " or a string with a unit"))
+        if not math.isfinite(number):
+            raise ValidationError("must be a finite number")
+        if self.integer and number != int(number):
+            raise ValidationError("must be a whole number")
+        if self.minimum is not None and (
+            number <= self.minimum if self.exclusive_minimum else number < self.minimum
+        ):
+            relation = "greater than" if self.exclusive_minimum else "at least"
+            raise ValidationError(f"must be {relation} {self.minimum:g} {self._unit_text()}".rstrip())
+        if self.maximum is not None and (
+            number >= self.maximum if self.exclusive_maximum else number > self.maximum
+        ):
+            relation = "less than" if self.exclusive_maximum else "at most"
+            raise ValidationError(f"must be {relation} {self.maximum:g} {self._unit_text()}".rstrip())
+        return number
+
+    def _serialize(self, value: Any, attr: str | None, obj: Any, **kwargs: Any) -> float | None:
+        return None if value is None else float(value)
+
+    def _unit_text(self) -> str:
+        return "" if self.unit == "dimensionless" else self.unit
