@@ -99,6 +99,11 @@ def raise_violations(violations: list[Violation]) -> None:
         raise DomainError(found)
 
 
+def first_bad(values: np.ndarray, bad: BoolArray) -> str:
+    """The value on the first bad row, formatted for a message ("" when no row is bad)."""
+    return f"{float(np.asarray(values)[bad][0]):g}" if bad.any() else ""
+
+
 def require(violations: list[Violation], rows_bad: BoolArray, name: str, message: str) -> None:
     """Record a violation when any row is bad; NaN comparisons count as not bad, so test finiteness first."""
     bad = np.asarray(rows_bad, dtype=bool)

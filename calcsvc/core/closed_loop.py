@@ -1,0 +1,355 @@
+"""Closed-loop gain and bandwidth of op-amp gain stages (single-pole op-amp model).
+
+Model
+-----
+The op-amp's open-loop gain has one pole: ``A(s) = A0 / (1 + s/ωa)`` with ``ωa = 2π·GBW/A0``, so above
+the pole ``|A|·f = GBW``. The feedback network sets the feedback factor ``β = 1/NG`` (NG = noise gain) and
+the loop gain ``T = A·β``. For both configurations the stage gain is the ideal gain times ``T/(1 + T)``::
+
+    H(s) = G_ideal · T/(1 + T) = G_dc / (1 + s/ω1)
+    ω1   = 2π·f1,   f1 = GBW/NG + GBW/A0          (exact -3 dB frequency of one stage)
+    G_dc = G_ideal / (1 + NG/A0)                  (DC gain with finite open-loop gain)
+
+Non-inverting: ``NG = G_ideal = G`` (or ``1 + Rf/Rg``). Inverting: ``G_ideal = -G`` (or ``-Rf/Rg``) and
+``NG = 1 + G``. Without ``open_loop_gain`` the op-amp is ideal at DC (``A0 → ∞``): ``A(s) = ωt/s`` with
+``ωt = 2π·GBW``, so ``G_dc = G_ideal`` and ``f1 = GBW/NG``.
+
+``stages`` identical stages in cascade multiply: ``H(s)^n``. The cascade's -3 dB frequency solves
+``(1 + (f/f1)²)^n = 2``, i.e. ``f1·√(2^(1/n) - 1)``. Rise times (10-90 %) use ``0.35/bandwidth``: exact to
+0.1 % for one pole (``ln 9 / 2π``), the usual approximation for the cascade.
+
+Assumptions: small signals (no slew-rate or output-swing limit, see the slew-limit calculation), a single
+dominant pole (no second pole, so no peaking), ideal resistors, no source or load impedance, stages that do
+not load each other. Units: SI (Hz, Ω, s, V/V); gains in dB are 20·log10 of a voltage ratio.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+import numpy as np
+
+from calcsvc.core.outcome import (
+    BoolArray,
+    Check,
+    FloatArray,
+    Notice,
+    Outcome,
+    Violation,
+    first_bad,
+    raise_violations,
+    require,
+)
+
+NAME = "closed-loop-bandwidth"
+VERSION = "1"
+
+MAX_STAGES = 20
+MAX_SWEEP_POINTS = 2000
+# At least 20 dB of loop gain at DC (NG ≤ A0/10) keeps the gain set by the resistors (common practice).
+MIN_DC_LOOP_GAIN = 10.0
+GAIN_ERROR_WARN_PCT = 1.0
+# Above a tenth of the bandwidth the response is measurably below its DC value.
+IN_BAND_FRACTION = 0.1
+RISE_TIME_CONSTANT = 0.35
+
+
+@dataclass(frozen=True)
+class ClosedLoopInputs:
+    """Per-row inputs (arrays of shape ``(n,)``) plus the sweep size shared by every row.
+
+    ``inverting``: True for the inverting configuration, False for non-inverting. Give either ``gain``
+    (magnitude, V/V) or both ``rf_ohm`` and ``rg_ohm``; the others are NaN. ``open_loop_gain`` (V/V) NaN means
+    ideal at DC. ``stages`` holds whole numbers. ``signal_hz`` NaN means no signal frequency. A sweep needs
+    ``sweep_start_hz`` and ``sweep_stop_hz`` on a row and ``sweep_points`` (2..2000); 0 points means no sweep.
+    """
+
+    inverting: BoolArray
+    gain: FloatArray
+    rf_ohm: FloatArray
+    rg_ohm: FloatArray
+    gbw_hz: FloatArray
+    open_loop_gain: FloatArray
+    stages: FloatArray
+    signal_hz: FloatArray
+    sweep_start_hz: FloatArray
+    sweep_stop_hz: FloatArray
+    sweep_points: int = 0
+
+
+def _sweep_points_valid(points: object) -> bool:
+    return isinstance(points, int | np.integer) and not isinstance(points, bool)
+
+
+def validate(inputs: ClosedLoopInputs) -> list[Violation]:
+    """Every physical precondition, per row; never raises."""
+    v: list[Violation] = []
+    n = inputs.gbw_hz.shape[0]
+    inv = np.asarray(inputs.inverting, dtype=bool)
+
+    # Optional values: NaN is "not given", but ±inf never makes sense.
+    for name in (
+        "gain",
+        "rf_ohm",
+        "rg_ohm",
+        "open_loop_gain",
+        "signal_hz",
+        "sweep_start_hz",
+        "sweep_stop_hz",
+    ):
+        values = getattr(inputs, name)
+        bad = np.isinf(values)
+        require(v, bad, name, f"{name} ({first_bad(values, bad)}) must be a finite number when given")
+
+    # Required values.
+    for name in ("gbw_hz", "stages"):
+        values = getattr(inputs, name)
+        bad = ~np.isfinite(values)
+        require(v, bad, name, f"{name} is required and must be a finite number")
+
+    gain_given = ~np.isnan(inputs.gain)
+    rf_given = ~np.isnan(inputs.rf_ohm)
+    rg_given = ~np.isnan(inputs.rg_ohm)
+    require(
+        v,
+        gain_given & (rf_given | rg_given),
+        "gain",
+        "give either gain or rf_ohm and rg_ohm, not both: the two would set the gain twice",
+    )
+    require(
+        v,
+        ~gain_given & ~rf_given & ~rg_given,
+        "gain",
+        "give gain, or rf_ohm and rg_ohm, to set the stage gain",
+    )
+    require(
+        v,
+        ~gain_given & (rf_given ^ rg_given),
+        "gain",
+        "rf_ohm and rg_ohm must be given together (or give gain instead): one resistor alone sets no gain",
+    )
+
+    gain = inputs.gain
+    finite_gain = np.isfinite(gain)
+    bad = finite_gain & ~inv & (gain < 1.0)
+    require(
+        v,
+        bad,
+        "gain",
+        f"gain ({first_bad(gain, bad)} V/V) is below 1 V/V: a non-inverting stage cannot "
+        "have gain below 1 V/V (its gain is 1 + Rf/Rg)",
+    )
+    bad = finite_gain & inv & (gain <= 0.0)
+    require(
+        v,
+        bad,
+        "gain",
+        f"gain ({first_bad(gain, bad)} V/V) of an inverting stage must be above 0 "
+        "(give the magnitude; the inversion comes from the configuration)",
+    )
+    for name in ("rf_ohm", "rg_ohm"):
+        values = getattr(inputs, name)
+        bad = np.isfinite(values) & (values <= 0.0)
+        require(v, bad, name, f"{name} ({first_bad(values, bad)} Ω) must be above 0 Ω")
+
+    gbw = inputs.gbw_hz
+    bad = np.isfinite(gbw) & (gbw <= 0.0)
+    require(v, bad, "gbw_hz", f"gbw_hz ({first_bad(gbw, bad)} Hz) must be above 0 Hz")
+
+    a0 = inputs.open_loop_gain
+    bad = np.isfinite(a0) & (a0 <= 1.0)
+    require(
+        v,
+        bad,
+        "open_loop_gain",
+        f"open_loop_gain ({first_bad(a0, bad)} V/V) must be above 1 V/V when given "
+        "(leave it out for an op-amp that is ideal at DC)",
+    )
+
+    stages = inputs.stages
+    bad = np.isfinite(stages) & ((stages != np.round(stages)) | (stages < 1) | (stages > MAX_STAGES))
+    require(
+        v,
+        bad,
+        "stages",
+        f"stages ({first_bad(stages, bad)}) must be a whole number from 1 to {MAX_STAGES} "
+        f"({MAX_STAGES} is this service's cap on identical cascaded stages)",
+    )
+
+    sig = inputs.signal_hz
+    bad = np.isfinite(sig) & (sig <= 0.0)
+    require(v, bad, "signal_hz", f"signal_hz ({first_bad(sig, bad)} Hz) must be above 0 Hz")
+
+    v.extend(_validate_sweep(inputs, n))
+    return v
+
+
+def _validate_sweep(inputs: ClosedLoopInputs, n: int) -> list[Violation]:
+    v: list[Violation] = []
+    all_rows = np.ones(n, dtype=bool)
+    points = inputs.sweep_points
+    if not _sweep_points_valid(points):
+        require(v, all_rows, "sweep_points", f"sweep_points ({points!r}) must be a whole number")
+        return v
+    points = int(points)
+    if points != 0 and not 2 <= points <= MAX_SWEEP_POINTS:
+        require(
+            v,
+            all_rows,
+            "sweep_points",
+            f"sweep_points ({points}) must be 0 (no sweep) or from 2 to {MAX_SWEEP_POINTS}",
+        )
+
+    start, stop = inputs.sweep_start_hz, inputs.sweep_stop_hz
+    start_given, stop_given = ~np.isnan(start), ~np.isnan(stop)
+    require(v, start_given & ~stop_given, "sweep_stop_hz", "sweep_stop_hz is needed with sweep_start_hz")
+    require(v, stop_given & ~start_given, "sweep_start_hz", "sweep_start_hz is needed with sweep_stop_hz")
+    bad = np.isfinite(start) & (start <= 0.0)
+    require(
+        v,
+        bad,
+        "sweep_start_hz",
+        f"sweep_start_hz ({first_bad(start, bad)} Hz) must be above 0 Hz (the sweep is log-spaced)",
+    )
+    bad = np.isfinite(start) & np.isfinite(stop) & (start > 0.0) & (stop <= start)
+    require(
+        v,
+        bad,
+        "sweep_stop_hz",
+        f"sweep_stop_hz ({first_bad(stop, bad)} Hz) must be above sweep_start_hz ({first_bad(start, bad)} Hz)",
+    )
+    sweeping = start_given & stop_given
+    if points == 0:
+        require(
+            v,
+            sweeping,
+            "sweep_points",
+            f"sweep_points must be from 2 to {MAX_SWEEP_POINTS} when sweep_start_hz and sweep_stop_hz "
+            "are given",
+        )
+    elif not sweeping.any():
+        require(
+            v,
+            all_rows,
+            "sweep_start_hz",
+            f"sweep_points is {points} but no row gives sweep_start_hz and sweep_stop_hz",
+        )
+    return v
+
+
+def _stage_response(
+    frequency_hz: np.ndarray, dc_gain: np.ndarray, f1: np.ndarray, stages: np.ndarray
+) -> tuple[np.ndarray, np.ndarray]:
+    """Gain (dB) and added phase lag (degrees) of ``stages`` cascaded single-pole stages; broadcasts."""
+    x2 = np.square(frequency_hz / f1)
+    gain_db = stages * (20.0 * np.log10(np.abs(dc_gain)) - 10.0 * np.log1p(x2) / np.log(10.0))
+    phase_deg = -stages * np.degrees(np.arctan(frequency_hz / f1))
+    return gain_db, phase_deg
+
+
+def compute(inputs: ClosedLoopInputs) -> Outcome:
+    """Gains, bandwidths, rise times, response at ``signal_hz`` and the optional sweep (model: module doc).
+
+    The sweep results ``sweep_frequency_hz``, ``sweep_gain_db``, ``sweep_phase_deg`` (shape ``(n, points)``)
+    are present only when ``sweep_points > 0``; rows without a sweep hold NaN there.
+    """
+    raise_violations(validate(inputs))
+
+    inv = np.asarray(inputs.inverting, dtype=bool)
+    by_gain = ~np.isnan(inputs.gain)
+    # Magnitude of the configured ratio: G, or Rf/Rg.
+    ratio = np.where(by_gain, inputs.gain, inputs.rf_ohm / inputs.rg_ohm)
+    noise_gain = np.where(inv, 1.0 + ratio, np.where(by_gain, inputs.gain, 1.0 + ratio))
+    signal_gain = np.where(inv, -ratio, noise_gain)
+
+    a0_given = ~np.isnan(inputs.open_loop_gain)
+    a0 = np.where(a0_given, inputs.open_loop_gain, np.inf)
+    loss = noise_gain / a0  # NG/A0, 0 for the ideal op-amp
+    closed_loop_gain = signal_gain / (1.0 + loss)
+    # (closed - ideal)/ideal written without the cancelling subtraction.
+    gain_error_pct = np.where(loss > 0.0, -100.0 * loss / (1.0 + loss), 0.0)  # no -0.0 for the ideal op-amp
+
+    gbw = inputs.gbw_hz
+    stages = inputs.stages
+    bandwidth = gbw / noise_gain + gbw / a0
+    # √(2^(1/n) - 1) via expm1 stays accurate for large n.
+    cascade_bandwidth = bandwidth * np.sqrt(np.expm1(np.log(2.0) / stages))
+    rise_time = RISE_TIME_CONSTANT / bandwidth
+    cascade_rise_time = RISE_TIME_CONSTANT / cascade_bandwidth
+
+    gain_at_signal_db, phase_at_signal_deg = _stage_response(
+        inputs.signal_hz, closed_loop_gain, bandwidth, stages
+    )
+
+    results: dict[str, np.ndarray] = {
+        "noise_gain": noise_gain,
+        "signal_gain": signal_gain,
+        "closed_loop_gain": closed_loop_gain,
+        "gain_error_pct": gain_error_pct,
+        "bandwidth_hz": bandwidth,
+        "cascade_bandwidth_hz": cascade_bandwidth,
+        "rise_time_s": rise_time,
+        "cascade_rise_time_s": cascade_rise_time,
+        "gain_at_signal_db": gain_at_signal_db,
+        "phase_at_signal_deg": phase_at_signal_deg,
+    }
+
+    if inputs.sweep_points > 0:
+        sweeping = np.isfinite(inputs.sweep_start_hz) & np.isfinite(inputs.sweep_stop_hz)
+        # Placeholder 1..10 Hz on rows without a sweep keeps geomspace valid; those rows become NaN below.
+        start = np.where(sweeping, inputs.sweep_start_hz, 1.0)
+        stop = np.where(sweeping, inputs.sweep_stop_hz, 10.0)
+        freq = np.geomspace(start, stop, int(inputs.sweep_points), axis=1)
+        freq[~sweeping] = np.nan
+        sweep_gain, sweep_phase = _stage_response(
+            freq, closed_loop_gain[:, None], bandwidth[:, None], stages[:, None]
+        )
+        results["sweep_frequency_hz"] = freq
+        results["sweep_gain_db"] = sweep_gain
+        results["sweep_phase_deg"] = sweep_phase
+
+    loop_limit = np.where(a0_given, inputs.open_loop_gain / MIN_DC_LOOP_GAIN, np.nan)
+    signal_given = ~np.isnan(inputs.signal_hz)
+    band_limit = np.where(signal_given, cascade_bandwidth, np.nan)
+    checks = [
+        Check(
+            "gain_achievable",
+            ~(noise_gain > loop_limit),
+            noise_gain,
+            loop_limit,
+            "max",
+            "noise gain must not exceed open_loop_gain/10, leaving at least 20 dB of loop gain at DC so "
+            "the resistors, not the op-amp, set the gain (common practice); does not apply without "
+            "open_loop_gain",
+        ),
+        Check(
+            "signal_in_band",
+            ~(inputs.signal_hz > band_limit),
+            inputs.signal_hz,
+            band_limit,
+            "max",
+            "signal_hz must not exceed the cascade's -3 dB bandwidth; does not apply without signal_hz",
+        ),
+    ]
+
+    warnings: list[Notice] = []
+    mask = np.abs(gain_error_pct) > GAIN_ERROR_WARN_PCT
+    if mask.any():
+        warnings.append(
+            Notice(
+                mask,
+                f"the finite open_loop_gain costs more than {GAIN_ERROR_WARN_PCT:g} % of the ideal gain per "
+                "stage (see gain_error_pct): use an op-amp with more open-loop gain or a lower stage gain",
+            )
+        )
+    mask = signal_given & (inputs.signal_hz > IN_BAND_FRACTION * cascade_bandwidth)
+    if mask.any():
+        warnings.append(
+            Notice(
+                mask,
+                "signal_hz is above a tenth of the cascade bandwidth: the gain there is already below its DC "
+                "value and the phase lag is appreciable (see gain_at_signal_db and phase_at_signal_deg)",
+            )
+        )
+
+    return Outcome(results=results, checks=checks, warnings=warnings)

@@ -1,0 +1,416 @@
+"""Supply current and power budget of duty-cycled loads (LEDs, motors, radios) on one supply.
+
+Model
+-----
+Each load draws a periodic current. A rectangular load is ``peak_current_a`` for a fraction ``duty_cycle`` of
+the period and 0 otherwise, so ``I_avg = I·D`` and ``I_rms = I·√D`` (definitions of mean and RMS). A load with
+any other waveform carries its own average and RMS, computed from samples of one period by
+:func:`waveform_stats`. A supply row sums its loads, each ``count`` times:
+
+- average current and power: ``Σ count·I_avg`` and ``V·Σ count·I_avg``
+- peak current, as if every load were on at once: ``Σ count·I_peak`` (the worst case; loads that never
+  overlap draw less)
+- utilization ``I_avg/current_max_a``; runtime ``capacity_ah / I_avg`` (hours)
+- the largest duty cycle ``D`` all loads could share with ``Σ count·I_peak·D ≤ current_max_a``, capped at 1.
+
+Assumptions: a constant supply voltage (no droop, no converter efficiency), loads independent of each other,
+an ideal battery whose capacity does not depend on the drain rate. Units: SI (V, A, W), capacity in Ah,
+runtime in hours.
+
+Batches: ``supply_v``, ``current_max_a`` and ``capacity_ah`` have one entry per supply row (shape ``(n,)``);
+the load fields are flattened across all rows (shape ``(m,)``) and ``load_row`` says which row each load
+belongs to. (``outcome.take`` selects rows of same-length fields only, so it does not apply to these inputs.)
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+import numpy as np
+import numpy.typing as npt
+
+from calcsvc.core.outcome import (
+    BoolArray,
+    Check,
+    DomainError,
+    FloatArray,
+    Notice,
+    Outcome,
+    Violation,
+    first_bad,
+    raise_violations,
+    require,
+)
+
+NAME = "duty-cycle-power"
+VERSION = "1"
+
+# Rounding slack when checking a waveform's own average ≤ rms ≤ peak.
+_STATS_RTOL = 1e-9
+
+
+@dataclass(frozen=True)
+class DutyPowerInputs:
+    """Supply rows (shape ``(n,)``) and loads flattened across rows (shape ``(m,)``).
+
+    Per supply row: ``supply_v``; ``current_max_a`` (the supply's continuous rating) and ``capacity_ah``
+    (battery capacity) are NaN when unknown.
+
+    Per load: ``load_row`` (index of its supply row), ``peak_current_a``, ``count`` (identical units, whole
+    number ≥ 1) and either ``duty_cycle`` (rectangular load; ``average_current_a`` and ``rms_current_a`` NaN)
+    or ``average_current_a`` and ``rms_current_a`` (sampled waveform, see :func:`waveform_stats`;
+    ``duty_cycle`` NaN).
+    """
+
+    supply_v: FloatArray
+    current_max_a: FloatArray
+    capacity_ah: FloatArray
+    load_row: npt.NDArray[np.int64]
+    peak_current_a: FloatArray
+    duty_cycle: FloatArray
+    average_current_a: FloatArray
+    rms_current_a: FloatArray
+    count: FloatArray
+
+
+_LOAD_FIELDS = ("load_row", "peak_current_a", "duty_cycle", "average_current_a", "rms_current_a", "count")
+_ROW_FIELDS = ("supply_v", "current_max_a", "capacity_ah")
+
+
+def rectangular_load(
+    peak_current_a: npt.ArrayLike, duty_cycle: npt.ArrayLike
+) -> tuple[FloatArray, FloatArray]:
+    """Average and RMS current (A) of a rectangular pulse train: ``I·D`` and ``I·√D``.
+
+    Inputs are assumed valid (``I ≥ 0``, ``0 ≤ D ≤ 1``); broadcasts.
+    """
+    peak = np.asarray(peak_current_a, dtype=np.float64)
+    duty = np.asarray(duty_cycle, dtype=np.float64)
+    return peak * duty, peak * np.sqrt(duty)
+
+
+def waveform_stats(time_s: npt.ArrayLike, current_a: npt.ArrayLike) -> tuple[float, float, float, float]:
+    """Average, RMS, peak current (A) and effective duty cycle (average/peak) of one sampled period.
+
+    The samples span exactly one period, from ``time_s[0]`` to ``time_s[-1]``; the waveform between samples is
+    taken as linear (trapezoid rule for the mean of ``i`` and of ``i²``). An all-zero waveform has duty 0.
+    Raises :class:`DomainError` (field ``waveform``) unless there are at least 2 samples of equal-length 1-D
+    arrays, time strictly increases, every value is finite and no current is negative.
+    """
+
+    def fail(message: str) -> DomainError:
+        return DomainError([Violation("waveform", message, np.ones(1, dtype=bool))])
+
+    t = np.asarray(time_s, dtype=np.float64)
+    i = np.asarray(current_a, dtype=np.float64)
+    if t.ndim != 1 or i.ndim != 1 or t.shape != i.shape:
+        raise fail("time_s and current_a must be 1-D lists of the same length")
+    if t.size < 2:
+        raise fail("a waveform needs at least 2 samples to span a period")
+    if not (np.all(np.isfinite(t)) and np.all(np.isfinite(i))):
+        raise fail("every waveform time and current must be a finite number")
+    if np.any(np.diff(t) <= 0.0):
+        raise fail("waveform times must strictly increase")
+    if np.any(i < 0.0):
+        raise fail(f"waveform currents must not be negative (got {float(i.min()):g} A): loads draw current")
+    period = float(t[-1] - t[0])
+    if not period > 0.0:  # underflow of the span despite increasing samples
+        raise fail("the waveform's period (last time minus first) must be above 0 s")
+
+    average = float(np.trapezoid(i, t)) / period
+    rms = float(np.sqrt(np.trapezoid(i * i, t) / period))
+    peak = float(i.max())
+    duty = average / peak if peak > 0.0 else 0.0
+    return average, rms, peak, duty
+
+
+def on_time_duty(on_time_s: npt.ArrayLike, period_s: npt.ArrayLike) -> FloatArray:
+    """Duty cycle ``on_time / period`` (broadcasts; the result is at least 1-D).
+
+    Raises :class:`DomainError` (fields ``period_s``, ``on_time_s``) unless both are finite, the period is
+    above 0 and ``0 ≤ on_time ≤ period``.
+    """
+    on, period = np.broadcast_arrays(
+        np.atleast_1d(np.asarray(on_time_s, dtype=np.float64)),
+        np.atleast_1d(np.asarray(period_s, dtype=np.float64)),
+    )
+    v: list[Violation] = []
+    require(v, ~np.isfinite(period), "period_s", "period_s is required and must be a finite number")
+    require(v, ~np.isfinite(on), "on_time_s", "on_time_s is required and must be a finite number")
+    bad = np.isfinite(period) & (period <= 0.0)
+    require(v, bad, "period_s", f"period_s ({first_bad(period, bad)} s) must be above 0 s")
+    bad = np.isfinite(on) & (on < 0.0)
+    require(v, bad, "on_time_s", f"on_time_s ({first_bad(on, bad)} s) cannot be negative")
+    bad = np.isfinite(on) & np.isfinite(period) & (period > 0.0) & (on > period)
+    require(
+        v,
+        bad,
+        "on_time_s",
+        f"on_time_s ({first_bad(on, bad)} s) cannot exceed period_s ({first_bad(period, bad)} s): "
+        "a load cannot be on for longer than the period",
+    )
+    raise_violations(v)
+    return on / period
+
+
+def _first_load(bad: BoolArray) -> str:
+    return str(int(np.flatnonzero(bad)[0])) if bad.any() else ""
+
+
+def validate(inputs: DutyPowerInputs) -> list[Violation]:
+    """Every physical precondition; never raises. A bad load marks the row it belongs to."""
+    v: list[Violation] = []
+    n = np.shape(inputs.supply_v)[0]
+    all_rows = np.ones(n, dtype=bool)
+
+    row_shapes = {np.shape(getattr(inputs, name)) for name in _ROW_FIELDS}
+    load_shapes = {np.shape(getattr(inputs, name)) for name in _LOAD_FIELDS}
+    if len(row_shapes) != 1 or len(load_shapes) != 1 or len(next(iter(load_shapes))) != 1:
+        require(
+            v,
+            all_rows,
+            "loads",
+            "supply fields must share one length and load fields another (one entry per load)",
+        )
+        return v
+
+    load_row = np.asarray(inputs.load_row, dtype=np.float64)
+    valid_row = np.isfinite(load_row) & (load_row == np.round(load_row)) & (load_row >= 0) & (load_row < n)
+    row_index = np.where(valid_row, load_row, 0).astype(np.intp)
+
+    def rows_of(bad_load: BoolArray) -> BoolArray:
+        """Supply rows owning the bad loads; every row when a bad load has no valid row."""
+        if np.any(bad_load & ~valid_row):
+            return all_rows.copy()
+        mask = np.zeros(n, dtype=bool)
+        mask[row_index[bad_load]] = True
+        return mask
+
+    bad = ~valid_row
+    if bad.any():
+        # A load without a valid row cannot be attributed to one, so every row is marked.
+        require(
+            v,
+            all_rows,
+            "load_row",
+            f"load_row ({first_bad(load_row, bad)}) of load {_first_load(bad)} must be the index of a supply "
+            f"row (0 to {n - 1})",
+        )
+
+    # Supply rows.
+    sv = inputs.supply_v
+    require(v, ~np.isfinite(sv), "supply_v", "supply_v is required and must be a finite number")
+    bad = np.isfinite(sv) & (sv <= 0.0)
+    require(v, bad, "supply_v", f"supply_v ({first_bad(sv, bad)} V) must be above 0 V")
+    for name, unit in (("current_max_a", "A"), ("capacity_ah", "Ah")):
+        values = getattr(inputs, name)
+        bad = np.isinf(values)
+        require(v, bad, name, f"{name} ({first_bad(values, bad)}) must be a finite number when given")
+        bad = np.isfinite(values) & (values <= 0.0)
+        require(v, bad, name, f"{name} ({first_bad(values, bad)} {unit}) must be above 0 {unit} when given")
+
+    loads_per_row = np.bincount(row_index[valid_row], minlength=n)
+    require(v, loads_per_row == 0, "loads", "every supply row needs at least one load")
+
+    # Loads.
+    peak, duty = inputs.peak_current_a, inputs.duty_cycle
+    avg, rms, count = inputs.average_current_a, inputs.rms_current_a, inputs.count
+
+    bad = ~np.isfinite(peak)
+    require(
+        v,
+        rows_of(bad),
+        "peak_current_a",
+        f"peak_current_a of load {_first_load(bad)} is required and must be a finite number",
+    )
+    bad = np.isfinite(peak) & (peak < 0.0)
+    require(
+        v,
+        rows_of(bad),
+        "peak_current_a",
+        f"peak_current_a ({first_bad(peak, bad)} A) of load {_first_load(bad)} cannot be negative",
+    )
+    bad = ~np.isfinite(count)
+    require(
+        v, rows_of(bad), "count", f"count of load {_first_load(bad)} is required and must be a finite number"
+    )
+    bad = np.isfinite(count) & ((count != np.round(count)) | (count < 1))
+    require(
+        v,
+        rows_of(bad),
+        "count",
+        f"count ({first_bad(count, bad)}) of load {_first_load(bad)} must be a whole number of at least 1",
+    )
+
+    for name in ("duty_cycle", "average_current_a", "rms_current_a"):
+        values = getattr(inputs, name)
+        bad = np.isinf(values)
+        require(
+            v,
+            rows_of(bad),
+            name,
+            f"{name} ({first_bad(values, bad)}) of load {_first_load(bad)} must be a finite number when given",
+        )
+
+    duty_given = ~np.isnan(duty)
+    avg_given, rms_given = ~np.isnan(avg), ~np.isnan(rms)
+    bad = duty_given & (avg_given | rms_given)
+    require(
+        v,
+        rows_of(bad),
+        "duty_cycle",
+        f"load {_first_load(bad)}: give either duty_cycle (rectangular load) or average_current_a and "
+        "rms_current_a (sampled waveform), not both",
+    )
+    bad = ~duty_given & ~(avg_given & rms_given)
+    require(
+        v,
+        rows_of(bad),
+        "duty_cycle",
+        f"load {_first_load(bad)} needs duty_cycle (rectangular load) or both average_current_a and "
+        "rms_current_a (sampled waveform)",
+    )
+    bad = np.isfinite(duty) & ((duty < 0.0) | (duty > 1.0))
+    require(
+        v,
+        rows_of(bad),
+        "duty_cycle",
+        f"duty_cycle ({first_bad(duty, bad)}) of load {_first_load(bad)} must be between 0 and 1 "
+        "(the fraction of each period the load is on)",
+    )
+
+    for name, values in (("average_current_a", avg), ("rms_current_a", rms)):
+        bad = np.isfinite(values) & (values < 0.0)
+        require(
+            v,
+            rows_of(bad),
+            name,
+            f"{name} ({first_bad(values, bad)} A) of load {_first_load(bad)} cannot be negative",
+        )
+    # A non-negative waveform always has mean ≤ RMS ≤ peak; anything else is not one waveform.
+    slack = 1.0 + _STATS_RTOL
+    bad = np.isfinite(avg) & np.isfinite(rms) & (avg >= 0.0) & (avg > rms * slack)
+    require(
+        v,
+        rows_of(bad),
+        "average_current_a",
+        f"average_current_a ({first_bad(avg, bad)} A) of load {_first_load(bad)} cannot exceed its "
+        f"rms_current_a ({first_bad(rms, bad)} A)",
+    )
+    bad = np.isfinite(rms) & np.isfinite(peak) & (rms >= 0.0) & (peak >= 0.0) & (rms > peak * slack)
+    require(
+        v,
+        rows_of(bad),
+        "rms_current_a",
+        f"rms_current_a ({first_bad(rms, bad)} A) of load {_first_load(bad)} cannot exceed its "
+        f"peak_current_a ({first_bad(peak, bad)} A)",
+    )
+    return v
+
+
+def compute(inputs: DutyPowerInputs) -> Outcome:
+    """Per-load and per-row currents, powers, runtime and supply checks (model: module docstring).
+
+    Per-load results (shape ``(m,)``) are for one unit of the load; per-row results (shape ``(n,)``) include
+    ``count``.
+    """
+    raise_violations(validate(inputs))
+
+    n = inputs.supply_v.shape[0]
+    row = np.asarray(inputs.load_row).astype(np.intp)
+    rectangular = ~np.isnan(inputs.duty_cycle)
+    rect_avg, rect_rms = rectangular_load(
+        inputs.peak_current_a, np.where(rectangular, inputs.duty_cycle, 0.0)
+    )
+    load_avg = np.where(rectangular, rect_avg, inputs.average_current_a)
+    load_rms = np.where(rectangular, rect_rms, inputs.rms_current_a)
+    load_v = inputs.supply_v[row]
+    count = inputs.count
+
+    average_current = np.bincount(row, weights=load_avg * count, minlength=n)
+    peak_current = np.bincount(row, weights=inputs.peak_current_a * count, minlength=n)
+    rating = inputs.current_max_a
+    rating_known = ~np.isnan(rating)
+    with np.errstate(divide="ignore", invalid="ignore"):
+        utilization = average_current / rating
+        # No drain, no finite runtime: give "does not apply" (NaN) and say so in a warning.
+        runtime = np.where(average_current > 0.0, inputs.capacity_ah / average_current, np.nan)
+        common_duty = np.where(peak_current > 0.0, np.minimum(1.0, rating / peak_current), 1.0)
+    common_duty = np.where(rating_known, common_duty, np.nan)
+
+    results: dict[str, np.ndarray] = {
+        "load_average_current_a": load_avg,
+        "load_rms_current_a": load_rms,
+        "load_average_power_w": load_v * load_avg,
+        "load_peak_power_w": load_v * inputs.peak_current_a,
+        "average_current_a": average_current,
+        "average_power_w": inputs.supply_v * average_current,
+        "peak_current_a": peak_current,
+        "supply_utilization": utilization,
+        "runtime_h": runtime,
+        "max_common_duty_cycle": common_duty,
+    }
+
+    checks = [
+        Check(
+            "supply_average_current",
+            ~(average_current > rating),
+            average_current,
+            rating,
+            "max",
+            "average current of all loads must not exceed current_max_a; does not apply when the rating is "
+            "unknown",
+        ),
+        Check(
+            "supply_peak_current",
+            ~(peak_current > rating),
+            peak_current,
+            rating,
+            "max",
+            "peak current with every load on at once must not exceed current_max_a; a supply with enough "
+            "bulk capacitance may tolerate short peaks above its rating, so a failure here calls for "
+            "checking the supply's pulse capability rather than always for a larger supply; does not apply "
+            "when the rating is unknown",
+        ),
+    ]
+
+    warnings: list[Notice] = []
+    capacity_known = ~np.isnan(inputs.capacity_ah)
+    mask = capacity_known & (average_current > 0.0)
+    if mask.any():
+        warnings.append(
+            Notice(
+                mask,
+                "real battery capacity falls at high drain; treat runtime_h as an upper bound",
+            )
+        )
+    mask = capacity_known & ~(average_current > 0.0)
+    if mask.any():
+        warnings.append(
+            Notice(
+                mask, "the loads draw no average current, so runtime_h does not apply (it would be unbounded)"
+            )
+        )
+
+    cautions: list[Notice] = []
+    mask = average_current > rating
+    if mask.any():
+        cautions.append(
+            Notice(
+                mask,
+                "average current exceeds current_max_a: the supply will overheat or shut down; a battery "
+                "pack that is overloaded or shorted can overheat and catch fire. Reduce the load or use a "
+                "supply rated for it",
+            )
+        )
+    mask = peak_current > rating
+    if mask.any():
+        cautions.append(
+            Notice(
+                mask,
+                "peak current with every load on at once exceeds current_max_a: the supply may "
+                "current-limit, droop or reset during the peaks and run hot; stagger the loads or confirm "
+                "the supply's pulse rating and bulk capacitance",
+            )
+        )
+    return Outcome(results=results, checks=checks, warnings=warnings, cautions=cautions)

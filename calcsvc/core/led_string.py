@@ -1,0 +1,309 @@
+"""LED string series resistor ("led-string").
+
+Model
+    Each string is ``leds_in_series`` (N) LEDs in series with its own resistor R, fed from the supply
+    through a switch that drops ``switch_drop_v``. The LEDs are modelled as constant voltage drops, so by
+    Kirchhoff's voltage law and Ohm's law the resistor carries
+
+        V_R = Vs − N·Vf − Vsw,        I = V_R / R.
+
+    The nominal design uses the typical forward voltage; R is the smallest standard value (of the row's
+    IEC 60063 series) at or above V_R/I_target, so the nominal current never exceeds the target.
+
+Worst case
+    The supply varies by ±``supply_tolerance`` (fraction), the LED drop between ``vf_min_v`` and
+    ``vf_max_v``, the resistor by ±``resistor_tolerance`` (default: the series' customary tolerance).
+    The current is monotonic in each, so its extremes lie at the corners:
+
+        I_min = (Vs(1−ts) − N·Vf_max − Vsw) / (R(1+tr))   (clamped at 0: the string may stay dark)
+        I_max = (Vs(1+ts) − N·Vf_min − Vsw) / (R(1−tr))
+
+    and the resistor's highest dissipation is (Vs(1+ts) − N·Vf_min − Vsw)² / (R(1−tr)).
+
+Assumptions
+    Constant-voltage LED model (adequate once the LED conducts; the tests compare it with the Shockley
+    diode equation); the switch is a constant drop; strings are identical and independent; resistor
+    derating to twice the worst-case dissipation (common practice). Units: volts, amperes, ohms, watts.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+import numpy as np
+
+from calcsvc.core import eseries
+from calcsvc.core.outcome import (
+    BoolArray,
+    Check,
+    FloatArray,
+    Notice,
+    Outcome,
+    Violation,
+    first_bad,
+    raise_violations,
+    require,
+    rows,
+)
+
+NAME = "led-string"
+VERSION = "1"
+
+# Common resistor power ratings, watts (common practice).
+POWER_RATINGS_W = np.array([0.125, 0.25, 0.5, 1.0, 2.0, 3.0, 5.0])
+DERATING_FACTOR = 2.0  # choose a rating at least twice the worst-case dissipation (common practice)
+HEADROOM_FRACTION = 0.1  # at least 10 % of the supply across the resistor to regulate (common practice)
+HOT_RESISTOR_W = 0.5  # a resistor dissipating this much runs noticeably hot (common practice)
+HIGH_POWER_LED_A = 0.35  # LEDs rated for this much current are "high-power" parts (common practice)
+
+
+@dataclass(frozen=True)
+class LedStringInputs:
+    supply_v: FloatArray
+    supply_tolerance: FloatArray  # fraction, e.g. 0.05 for ±5 %
+    vf_typ_v: FloatArray
+    vf_min_v: FloatArray
+    vf_max_v: FloatArray
+    if_max_a: FloatArray  # LED maximum continuous forward current
+    leds_in_series: FloatArray  # integers ≥ 1 held as floats
+    strings: FloatArray  # integers ≥ 1 held as floats
+    current_a: FloatArray  # target current per string
+    switch_drop_v: FloatArray
+    e_series: np.ndarray  # numpy str array, e.g. "E24"
+    resistor_tolerance: FloatArray  # fraction; NaN → the series' default
+
+
+def _string_drop(inputs: LedStringInputs) -> FloatArray:
+    """Nominal forward voltage of one string plus the switch drop (V)."""
+    return inputs.leds_in_series * inputs.vf_typ_v + inputs.switch_drop_v
+
+
+def validate(inputs: LedStringInputs) -> list[Violation]:
+    """Every physical precondition, per row; never raises."""
+    v: list[Violation] = []
+    i = inputs
+    with np.errstate(invalid="ignore", over="ignore", divide="ignore"):
+        required = {
+            "supply_v": i.supply_v,
+            "supply_tolerance": i.supply_tolerance,
+            "vf_typ_v": i.vf_typ_v,
+            "vf_min_v": i.vf_min_v,
+            "vf_max_v": i.vf_max_v,
+            "if_max_a": i.if_max_a,
+            "leds_in_series": i.leds_in_series,
+            "strings": i.strings,
+            "current_a": i.current_a,
+            "switch_drop_v": i.switch_drop_v,
+        }
+        for name, x in required.items():
+            bad = ~np.isfinite(x)
+            require(v, bad, name, f"{name} must be a finite number (got {first_bad(x, bad)})")
+        bad = np.isinf(i.resistor_tolerance)
+        require(v, bad, "resistor_tolerance", "resistor_tolerance must be finite when given")
+
+        bad = i.supply_v <= 0
+        require(v, bad, "supply_v", f"supply_v ({first_bad(i.supply_v, bad)} V) must be positive")
+        bad = (i.supply_tolerance < 0) | (i.supply_tolerance >= 1)
+        require(
+            v,
+            bad,
+            "supply_tolerance",
+            f"supply_tolerance ({first_bad(i.supply_tolerance, bad)}) must be a fraction in [0, 1)",
+        )
+        bad = i.vf_min_v <= 0
+        require(v, bad, "vf_min_v", f"vf_min_v ({first_bad(i.vf_min_v, bad)} V) must be positive")
+        bad = (i.vf_typ_v < i.vf_min_v) | (i.vf_typ_v > i.vf_max_v)
+        if bad.any():
+            k = int(np.argmax(bad))
+            require(
+                v,
+                bad,
+                "vf_typ_v",
+                f"vf_typ_v ({i.vf_typ_v[k]:g} V) must lie between vf_min_v ({i.vf_min_v[k]:g} V) "
+                f"and vf_max_v ({i.vf_max_v[k]:g} V)",
+            )
+        bad = i.if_max_a <= 0
+        require(v, bad, "if_max_a", f"if_max_a ({first_bad(i.if_max_a, bad)} A) must be positive")
+        bad = i.current_a <= 0
+        require(v, bad, "current_a", f"current_a ({first_bad(i.current_a, bad)} A) must be positive")
+        for name, x in (("leds_in_series", i.leds_in_series), ("strings", i.strings)):
+            bad = np.isfinite(x) & ((x < 1) | (x != np.floor(x)))
+            require(v, bad, name, f"{name} ({first_bad(x, bad)}) must be a whole number of at least 1")
+        bad = i.switch_drop_v < 0
+        require(
+            v,
+            bad,
+            "switch_drop_v",
+            f"switch_drop_v ({first_bad(i.switch_drop_v, bad)} V) must not be negative",
+        )
+        rt = i.resistor_tolerance
+        bad = ~np.isnan(rt) & ((rt < 0) | (rt >= 1))
+        require(
+            v,
+            bad,
+            "resistor_tolerance",
+            f"resistor_tolerance ({first_bad(rt, bad)}) must be a fraction in [0, 1) when given",
+        )
+        known = eseries.known_series(i.e_series)
+        if not known.all():
+            bad_name = str(np.asarray(i.e_series)[~known][0])
+            require(
+                v,
+                ~known,
+                "e_series",
+                f"e_series {bad_name!r} is not a known series; use one of {', '.join(eseries.SERIES_NAMES)}",
+            )
+
+        # The key rule: with the supply at or below the string's drop there is nothing left for the resistor.
+        drop = _string_drop(i)
+        bad = i.supply_v <= drop
+        if bad.any():
+            k = int(np.argmax(bad))
+            require(
+                v,
+                bad,
+                "supply_v",
+                f"supply_v ({i.supply_v[k]:g} V) must exceed the string's forward voltage plus switch drop "
+                f"({drop[k]:g} V = {i.leds_in_series[k]:g} × {i.vf_typ_v[k]:g} V + {i.switch_drop_v[k]:g} V)",
+            )
+        if not v:
+            # Only when everything else holds: the exact resistor must lie where standard values are defined.
+            r_exact = (i.supply_v - drop) / i.current_a
+            bad = (r_exact < eseries.MIN_VALUE) | (r_exact > eseries.MAX_VALUE)  # inf counts as too large
+            require(
+                v,
+                bad,
+                "current_a",
+                f"current_a ({first_bad(i.current_a, bad)} A) gives a resistor of {first_bad(r_exact, bad)} Ω, "
+                "outside any practical range",
+            )
+    return v
+
+
+def _rating_for(need_w: FloatArray) -> FloatArray:
+    """Smallest standard power rating ≥ need_w per row; NaN when none is large enough."""
+    fits = POWER_RATINGS_W[None, :] >= need_w[:, None]
+    return np.where(fits.any(axis=1), POWER_RATINGS_W[np.argmax(fits, axis=1)], np.nan)
+
+
+def compute(inputs: LedStringInputs) -> Outcome:
+    """Choose each string's resistor and give nominal and worst-case current and dissipation.
+
+    Raises DomainError when any row violates ``validate``.
+    """
+    raise_violations(validate(inputs))
+    i = inputs
+    n = i.supply_v.shape[0]
+    vs, ts, nl = i.supply_v, i.supply_tolerance, i.leds_in_series
+    tr = np.where(
+        np.isnan(i.resistor_tolerance), eseries.default_tolerance_rows(i.e_series), i.resistor_tolerance
+    )
+
+    v_r = vs - _string_drop(i)
+    r_exact = v_r / i.current_a
+    r = eseries.pick_at_or_above_rows(r_exact, i.e_series)
+    current = v_r / r
+
+    v_r_low = vs * (1.0 - ts) - nl * i.vf_max_v - i.switch_drop_v
+    v_r_high = (
+        vs * (1.0 + ts) - nl * i.vf_min_v - i.switch_drop_v
+    )  # > 0: Vs > N·Vf_typ + Vsw ≥ N·Vf_min + Vsw
+    r_low, r_high = r * (1.0 - tr), r * (1.0 + tr)
+    current_min = np.maximum(v_r_low / r_high, 0.0)
+    current_max = v_r_high / r_low
+    power = current**2 * r
+    power_max = v_r_high**2 / r_low
+    need_w = DERATING_FACTOR * power_max
+    rating = _rating_for(need_w)
+    led_power = nl * i.vf_typ_v * current
+
+    results: dict[str, np.ndarray] = {
+        "resistor_exact_ohm": r_exact,
+        "resistor_ohm": r,
+        "current_a": current,
+        "current_min_a": current_min,
+        "current_max_a": current_max,
+        "resistor_power_w": power,
+        "resistor_power_max_w": power_max,
+        "resistor_rating_w": rating,
+        "led_power_w": led_power,
+        "total_current_a": i.strings * current,
+        "efficiency": nl * i.vf_typ_v / vs,
+        "headroom_v": v_r,
+    }
+
+    headroom_limit = HEADROOM_FRACTION * vs
+    max_rating = rows(n, POWER_RATINGS_W[-1])
+    checks = [
+        Check(
+            "led_current_rating",
+            current_max <= i.if_max_a,
+            current_max,
+            i.if_max_a.astype(np.float64),
+            "max",
+            "Worst-case string current (high supply, low forward voltage, low resistor) must not exceed the "
+            "LED's maximum forward current.",
+        ),
+        Check(
+            "headroom",
+            v_r >= headroom_limit,
+            v_r,
+            headroom_limit,
+            "min",
+            "At least 10 % of the supply should fall across the resistor so it can regulate the current "
+            "(common practice).",
+        ),
+        Check(
+            "resistor_rating",
+            need_w <= max_rating,
+            need_w,
+            max_rating,
+            "max",
+            "Twice the resistor's worst-case dissipation (common-practice derating) must fit a standard "
+            "rating up to 5 W.",
+        ),
+    ]
+
+    warnings: list[Notice] = []
+    cautions: list[Notice] = []
+
+    def add(target: list[Notice], mask: BoolArray, message: str) -> None:
+        if mask.any():
+            target.append(Notice(mask, message))
+
+    add(
+        warnings,
+        v_r < headroom_limit,
+        "Less than 10 % of the supply is across the resistor: the current will vary widely with supply "
+        "voltage and LED forward voltage.",
+    )
+    add(
+        warnings,
+        current_min <= 0.0,
+        "At low supply and high forward voltage the worst-case current is zero: the string may not light.",
+    )
+    add(
+        cautions,
+        power_max >= HOT_RESISTOR_W,
+        "The resistor dissipates 0.5 W or more in the worst case and runs hot: keep it clear of plastics, "
+        "wiring and fingers.",
+    )
+    add(
+        cautions,
+        i.if_max_a >= HIGH_POWER_LED_A,
+        "High-power LEDs: provide heat-sinking for the LEDs, and do not look into them at close range "
+        "(eye safety).",
+    )
+    add(
+        cautions,
+        current_max > i.if_max_a,
+        "The worst-case current exceeds the LED's maximum forward current: the LEDs can overheat and fail "
+        "early.",
+    )
+    add(
+        cautions,
+        need_w > max_rating,
+        "No standard resistor rating up to 5 W is adequate: the resistor would overheat; use a different "
+        "supply voltage, more LEDs per string, or a constant-current driver.",
+    )
+    return Outcome(results=results, checks=checks, warnings=warnings, cautions=cautions)

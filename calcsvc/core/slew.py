@@ -1,0 +1,191 @@
+"""Slew-rate and output-swing limits of an op-amp output (large-signal limits).
+
+Model
+-----
+An output can change no faster than its slew rate SR (V/s). The steepest slope of a waveform of peak amplitude
+Vp and frequency f is ``k·f·Vp`` with ``k = 2π`` for a sine (slope of ``Vp·sin 2πft`` at the zero crossing)
+and ``k = 4`` for a symmetric triangle (it travels ``2·Vp`` in half a period). Hence:
+
+- slew-limited amplitude at f:          ``SR / (k·f)``
+- full-power bandwidth for Vp:           ``SR / (k·Vp)`` (highest undistorted frequency at that amplitude)
+- slew rate the waveform needs:          ``k·f·Vp``
+- time to slew a step ΔV:                ``|ΔV| / SR``
+
+The output swing is limited by the rails: with a total rail-to-rail span ``supply_v`` and an output that stops
+``output_headroom_v`` short of each rail, a signal centred between the rails reaches at most
+``supply_v/2 - headroom`` peak. An unknown headroom counts as 0 (a rail-to-rail output), so that limit is then
+an upper bound.
+
+Assumptions: a symmetric slew rate (same rising and falling), a signal centred between the rails, no
+small-signal bandwidth limit (see the closed-loop-bandwidth calculation). Units: SI (V, Hz, s, V/s);
+amplitudes are peak values, ``max_amplitude_vpp`` is peak-to-peak.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+import numpy as np
+
+from calcsvc.core.outcome import (
+    BoolArray,
+    Check,
+    FloatArray,
+    Notice,
+    Outcome,
+    Violation,
+    first_bad,
+    raise_violations,
+    require,
+)
+
+NAME = "slew-limit"
+VERSION = "1"
+
+SINE_SLOPE_FACTOR = 2.0 * np.pi
+TRIANGLE_SLOPE_FACTOR = 4.0
+
+
+@dataclass(frozen=True)
+class SlewInputs:
+    """Per-row inputs, arrays of shape ``(n,)``; NaN marks an optional value as not given.
+
+    ``triangle``: True for a symmetric triangle wave, False for a sine. ``amplitude_v`` is the peak amplitude.
+    ``supply_v`` is the total rail-to-rail span (e.g. 30 V for ±15 V rails). ``step_v`` is a step size of
+    either sign.
+    """
+
+    slew_rate_v_per_s: FloatArray
+    output_headroom_v: FloatArray
+    frequency_hz: FloatArray
+    amplitude_v: FloatArray
+    triangle: BoolArray
+    supply_v: FloatArray
+    step_v: FloatArray
+
+
+def validate(inputs: SlewInputs) -> list[Violation]:
+    """Every physical precondition, per row; never raises."""
+    v: list[Violation] = []
+
+    sr = inputs.slew_rate_v_per_s
+    require(
+        v, ~np.isfinite(sr), "slew_rate_v_per_s", "slew_rate_v_per_s is required and must be a finite number"
+    )
+    bad = np.isfinite(sr) & (sr <= 0.0)
+    require(v, bad, "slew_rate_v_per_s", f"slew_rate_v_per_s ({first_bad(sr, bad)} V/s) must be above 0 V/s")
+
+    for name in ("output_headroom_v", "frequency_hz", "amplitude_v", "supply_v", "step_v"):
+        values = getattr(inputs, name)
+        bad = np.isinf(values)
+        require(v, bad, name, f"{name} ({first_bad(values, bad)}) must be a finite number when given")
+
+    require(
+        v,
+        np.isnan(inputs.frequency_hz) & np.isnan(inputs.amplitude_v),
+        "frequency_hz",
+        "give frequency_hz, amplitude_v or both: without either there is nothing to limit",
+    )
+    for name, unit in (("frequency_hz", "Hz"), ("amplitude_v", "V"), ("supply_v", "V")):
+        values = getattr(inputs, name)
+        bad = np.isfinite(values) & (values <= 0.0)
+        require(v, bad, name, f"{name} ({first_bad(values, bad)} {unit}) must be above 0 {unit} when given")
+
+    headroom = inputs.output_headroom_v
+    bad = np.isfinite(headroom) & (headroom < 0.0)
+    require(
+        v,
+        bad,
+        "output_headroom_v",
+        f"output_headroom_v ({first_bad(headroom, bad)} V) cannot be negative: an output cannot swing past "
+        "its rails",
+    )
+
+    step = inputs.step_v
+    bad = step == 0.0
+    require(v, bad, "step_v", "step_v must not be 0 V when given (leave it out instead)")
+
+    supply = inputs.supply_v
+    bad = (
+        np.isfinite(supply)
+        & (supply > 0.0)
+        & np.isfinite(headroom)
+        & (headroom >= 0.0)
+        & (supply <= 2.0 * headroom)
+    )
+    require(
+        v,
+        bad,
+        "supply_v",
+        f"supply_v ({first_bad(supply, bad)} V) must exceed twice output_headroom_v "
+        f"({first_bad(2.0 * headroom, bad)} V): otherwise the output has no room to swing",
+    )
+    return v
+
+
+def compute(inputs: SlewInputs) -> Outcome:
+    """Slew and swing limits (model: module docstring); NaN results where an input they need is not given."""
+    raise_violations(validate(inputs))
+
+    sr = inputs.slew_rate_v_per_s
+    f = inputs.frequency_hz
+    vp = inputs.amplitude_v
+    k = np.where(inputs.triangle, TRIANGLE_SLOPE_FACTOR, SINE_SLOPE_FACTOR)
+
+    slew_limited_amplitude = sr / (k * f)
+    headroom_known = ~np.isnan(inputs.output_headroom_v)
+    headroom = np.where(headroom_known, inputs.output_headroom_v, 0.0)
+    swing_limited_amplitude = inputs.supply_v / 2.0 - headroom
+    # fmin skips a NaN (a limit that does not apply); NaN only when neither applies.
+    max_amplitude = np.fmin(slew_limited_amplitude, swing_limited_amplitude)
+    full_power_bandwidth = sr / (k * vp)
+    required_slew_rate = k * f * vp
+    slew_limited = required_slew_rate > sr  # NaN compares False: not both given
+    step_slew_time = np.abs(inputs.step_v) / sr
+
+    results: dict[str, np.ndarray] = {
+        "slew_limited_amplitude_v": slew_limited_amplitude,
+        "swing_limited_amplitude_v": swing_limited_amplitude,
+        "max_amplitude_v": max_amplitude,
+        "max_amplitude_vpp": 2.0 * max_amplitude,
+        "full_power_bandwidth_hz": full_power_bandwidth,
+        "required_slew_rate_v_per_s": required_slew_rate,
+        "slew_limited": slew_limited,
+        "step_slew_time_s": step_slew_time,
+    }
+
+    slew_limit = np.where(np.isnan(required_slew_rate), np.nan, sr)
+    swing_limit = np.where(np.isnan(vp), np.nan, swing_limited_amplitude)
+    checks = [
+        Check(
+            "slew_rate",
+            ~(required_slew_rate > slew_limit),
+            required_slew_rate,
+            slew_limit,
+            "max",
+            "the slew rate the waveform needs at frequency_hz and amplitude_v must not exceed "
+            "slew_rate_v_per_s, or the output distorts (a sine turns toward a triangle and loses amplitude); "
+            "does not apply unless both are given",
+        ),
+        Check(
+            "output_swing",
+            ~(vp > swing_limit),
+            vp,
+            swing_limit,
+            "max",
+            "amplitude_v must not exceed supply_v/2 - output_headroom_v, or the output clips at the rails; "
+            "does not apply unless amplitude_v and supply_v are given",
+        ),
+    ]
+
+    warnings: list[Notice] = []
+    mask = ~np.isnan(inputs.supply_v) & ~headroom_known
+    if mask.any():
+        warnings.append(
+            Notice(
+                mask,
+                "output_headroom_v not given: swing_limited_amplitude_v assumes the output reaches the rails "
+                "(0 V headroom), so it is an upper bound",
+            )
+        )
+    return Outcome(results=results, checks=checks, warnings=warnings)

@@ -1,0 +1,366 @@
+"""Tests for the NPN low-side switch base-resistor calculation."""
+
+from __future__ import annotations
+
+import dataclasses
+import math
+from typing import Any
+
+import numpy as np
+import pytest
+from hypothesis import given, settings
+from hypothesis import strategies as st
+from scipy.optimize import brentq
+
+from calcsvc.core import eseries
+from calcsvc.core.bjt_switch import BjtSwitchInputs, compute, validate
+from calcsvc.core.outcome import DomainError, Outcome
+
+# Thermal voltage kT/q at 300 K from the exact SI 2019 values of k and q.
+VT_300K = 1.380649e-23 * 300.0 / 1.602176634e-19  # ≈ 25.85 mV
+
+# Hand example: 150 mA load, forced beta 10 (common practice for hard saturation), 3.3 V logic drive,
+# Vbe_sat 0.75 V and Vce_sat 0.2 V (from memory, typical small-signal class), hfe_min 100 (from memory).
+DEFAULTS: dict[str, Any] = {
+    "hfe_min": 100.0,
+    "vbe_sat_v": 0.75,
+    "vce_sat_v": 0.2,
+    "ic_max_a": 0.5,
+    "power_max_w": 0.5,
+    "collector_current_a": 0.15,
+    "drive_high_v": 3.3,
+    "drive_low_v": 0.0,
+    "forced_beta": 10.0,
+    "e_series": "E24",
+    "rbe_ohm": math.nan,
+    "driver_current_max_a": math.nan,
+    "duty_cycle": 1.0,
+}
+
+
+def make(**overrides: Any) -> BjtSwitchInputs:
+    """Inputs from DEFAULTS; each value a scalar (one row) or a list (several rows)."""
+    values = {**DEFAULTS, **overrides}
+    n = max((len(v) for v in values.values() if isinstance(v, list)), default=1)
+    arrays: dict[str, np.ndarray] = {}
+    for name, value in values.items():
+        dtype = str if name == "e_series" else np.float64
+        arrays[name] = np.broadcast_to(np.asarray(value, dtype=dtype), (n,)).copy()
+    return BjtSwitchInputs(**arrays)
+
+
+def checks(out: Outcome) -> dict[str, Any]:
+    return {c.name: c for c in out.checks}
+
+
+def messages(notices: list[Any]) -> str:
+    return " | ".join(n.message for n in notices)
+
+
+# ---- independent numerical model: Ebers–Moll -------------------------------------------------------------
+
+
+@dataclasses.dataclass(frozen=True)
+class EbersMoll:
+    """NPN transport model (Ebers & Moll, "Large-signal behavior of junction transistors", Proc. IRE 1954;
+    see also Sedra & Smith, "Microelectronic Circuits"), without series resistances or Early effect."""
+
+    i_s: float
+    beta_f: float
+    beta_r: float = 1.0  # reverse gain of order 1 (from memory)
+
+    def currents(self, vbe: float, vbc: float) -> tuple[float, float]:
+        """(Ic, Ib) for junction voltages vbe, vbc."""
+        ef, er = math.expm1(vbe / VT_300K), math.expm1(vbc / VT_300K)
+        ic = self.i_s * (ef - er) - self.i_s / self.beta_r * er
+        ib = self.i_s / self.beta_f * ef + self.i_s / self.beta_r * er
+        return ic, ib
+
+
+def solve_switch(
+    model: EbersMoll, v_high: float, rb: float, rbe: float, v_cc: float, rc: float
+) -> dict[str, float]:
+    """Solve the circuit V_high–Rb–base (Rbe base to emitter), emitter grounded, Rc from V_cc to collector.
+
+    Nested brentq: for a base voltage, the collector node (Vcc − Vc)/Rc = Ic(Vb, Vb − Vc) has one root
+    (the left side falls and Ic rises with Vc); the base node current balance then falls monotonically
+    in Vb.
+    """
+
+    def collector_voltage(vb: float) -> float:
+        def node(vc: float) -> float:
+            return (v_cc - vc) / rc - model.currents(vb, vb - vc)[0]
+
+        return brentq(node, min(vb, 0.0) - 1.0, v_cc, xtol=1e-14, rtol=1e-14)
+
+    def base_node(vb: float) -> float:
+        vc = collector_voltage(vb)
+        return (v_high - vb) / rb - vb / rbe - model.currents(vb, vb - vc)[1]
+
+    vb = brentq(base_node, 0.0, v_high, xtol=1e-14, rtol=1e-14)
+    vc = collector_voltage(vb)
+    ic, ib = model.currents(vb, vb - vc)
+    return {"vbe": vb, "vce": vc, "vbc": vb - vc, "ic": ic, "ib": ib}
+
+
+def fitted_model(hfe_min: float, vbe: float, ib: float) -> EbersMoll:
+    """Is chosen so the forward-active base current is ``ib`` at ``vbe``, with βF = hfe_min."""
+    return EbersMoll(i_s=hfe_min * ib / math.expm1(vbe / VT_300K), beta_f=hfe_min)
+
+
+V_CC = 12.0
+
+
+def load_resistor(ic: float, vce_sat: float) -> float:
+    """Collector load that draws ``ic`` from V_CC with the transistor saturated (Ohm's law)."""
+    return (V_CC - vce_sat) / ic
+
+
+# ---- worked example --------------------------------------------------------------------------------------
+
+
+def test_hand_example() -> None:
+    # By hand: Ib = 150 mA / 10 = 15 mA; Rb = (3.3 − 0.75) V / 15 mA = 170 Ω → E24 (from memory) 160 Ω;
+    # drive = 2.55 V / 160 Ω = 15.94 mA; β_actual = 150 / 15.94 = 9.41; margin = 100 / 9.41 = 10.6;
+    # P = 0.2 V × 150 mA + 0.75 V × 15.94 mA = 42.0 mW.
+    out = compute(make())
+    r = out.results
+    assert r["base_current_required_a"][0] == pytest.approx(0.015, rel=1e-12)
+    assert r["rb_exact_ohm"][0] == pytest.approx(170.0, rel=1e-12)
+    assert r["rb_ohm"][0] == 160.0
+    assert r["drive_current_a"][0] == pytest.approx(2.55 / 160.0, rel=1e-12)
+    assert r["base_current_a"][0] == pytest.approx(2.55 / 160.0, rel=1e-12)
+    assert r["forced_beta_actual"][0] == pytest.approx(0.15 * 160.0 / 2.55, rel=1e-12)
+    assert r["saturation_margin"][0] == pytest.approx(100.0 * 2.55 / (0.15 * 160.0), rel=1e-12)
+    assert r["transistor_power_w"][0] == pytest.approx(0.2 * 0.15 + 0.75 * 2.55 / 160.0, rel=1e-12)
+    assert all(bool(c.ok[0]) for c in out.checks)
+    assert out.warnings == [] and out.cautions == []
+
+
+def test_exact_value_with_float_noise_keeps_the_standard_value() -> None:
+    # Vh chosen so Rb_exact = 160 Ω up to float noise (2.4 V / 15 mA): must give 160 Ω, not 150 Ω.
+    out = compute(make(drive_high_v=[0.75 + 2.4, 0.75 + 2.4 * (1 - 1e-12)]))
+    assert out.results["rb_ohm"].tolist() == [160.0, 160.0]
+
+
+def test_base_emitter_pulldown_steals_drive() -> None:
+    # By hand with Rbe = 1 kΩ: it takes 0.75 V / 1 kΩ = 0.75 mA; Rb_exact = 2.55 V / 15.75 mA = 161.9 Ω
+    # → E24 160 Ω; base current = 2.55/160 − 0.75/1000 = 15.19 mA (Kirchhoff's current law at the base).
+    out = compute(make(rbe_ohm=1000.0))
+    r = out.results
+    assert r["rb_exact_ohm"][0] == pytest.approx(2.55 / 0.01575, rel=1e-12)
+    assert r["rb_ohm"][0] == 160.0
+    assert r["drive_current_a"][0] == pytest.approx(2.55 / 160.0, rel=1e-12)
+    assert r["base_current_a"][0] == pytest.approx(2.55 / 160.0 - 0.75 / 1000.0, rel=1e-12)
+    assert r["forced_beta_actual"][0] == pytest.approx(0.15 / (2.55 / 160.0 - 0.00075), rel=1e-12)
+    assert r["forced_beta_actual"][0] <= 10.0
+
+
+# ---- Ebers–Moll cross-checks -----------------------------------------------------------------------------
+
+
+@pytest.mark.parametrize(
+    ("overrides", "rbe"),
+    [
+        ({}, math.inf),
+        ({"rbe_ohm": 1000.0}, 1000.0),
+        ({"collector_current_a": 0.02, "drive_high_v": 5.0, "e_series": "E12"}, math.inf),
+        ({"collector_current_a": 0.5, "hfe_min": 50.0, "vbe_sat_v": 0.9, "e_series": "E6"}, math.inf),
+        ({"collector_current_a": 0.1, "forced_beta": 20.0, "rbe_ohm": 4700.0, "e_series": "E96"}, 4700.0),
+    ],
+)
+def test_chosen_rb_saturates_the_ebers_moll_transistor(overrides: dict[str, Any], rbe: float) -> None:
+    # Independent numerical solution with scipy of the Ebers–Moll transport model (Ebers & Moll 1954;
+    # Sedra & Smith), βF = hfe_min (worst case), βR = 1 (from memory), Is fitted so Vbe = vbe_sat at the
+    # required base current; load Rc = (12 V − Vce_sat)/Ic.
+    inputs = make(**overrides)
+    out = compute(inputs)
+    ic_design = float(inputs.collector_current_a[0])
+    hfe_min = float(inputs.hfe_min[0])
+    model = fitted_model(hfe_min, float(inputs.vbe_sat_v[0]), out.results["base_current_required_a"][0])
+    rc = load_resistor(ic_design, float(inputs.vce_sat_v[0]))
+    sol = solve_switch(model, float(inputs.drive_high_v[0]), out.results["rb_ohm"][0], rbe, V_CC, rc)
+    assert sol["ic"] / sol["ib"] < hfe_min  # forced beta below the worst-case gain: saturated
+    assert sol["vce"] < 0.3  # saturation region (textbook Vce_sat of a few tenths of a volt)
+    assert sol["vbc"] > 0  # collector-base junction forward biased
+    # The core's base current agrees with the device model (Vbe within tens of mV of vbe_sat).
+    assert out.results["base_current_a"][0] == pytest.approx(sol["ib"], rel=0.05)
+    assert ic_design == pytest.approx(sol["ic"], rel=0.03)
+
+
+def test_under_driven_switch_fails_saturation_and_ebers_moll_agrees() -> None:
+    # Forced beta 150 ≥ hfe_min 100: Rb_exact = 2.55 V / 1 mA = 2550 Ω → E24 2.4 kΩ; β_actual ≈ 141.
+    inputs = make(forced_beta=150.0)
+    out = compute(inputs)
+    check = checks(out)["saturation"]
+    assert not check.ok[0] and check.value[0] == pytest.approx(0.15 * 2400 / 2.55) and check.limit[0] == 100.0
+    assert out.results["saturation_margin"][0] < 1
+    assert "does not saturate" in messages(out.warnings)
+    # Ebers–Moll (same device as the hand example: Is fitted at 15 mA, 0.75 V): Ic ≈ βF·Ib ≈ 106 mA, so
+    # the load drops only about 8.4 V and Vce sits several volts above saturation.
+    model = fitted_model(100.0, 0.75, 0.015)
+    sol = solve_switch(model, 3.3, out.results["rb_ohm"][0], math.inf, V_CC, load_resistor(0.15, 0.2))
+    assert sol["vce"] > 1.0
+    assert sol["vbc"] < 0  # forward-active, not saturated
+    assert sol["ic"] / sol["ib"] == pytest.approx(100.0, rel=0.01)  # limited by βF
+
+
+# ---- violations ------------------------------------------------------------------------------------------
+
+
+@pytest.mark.parametrize(
+    ("overrides", "field"),
+    [
+        ({"hfe_min": math.nan}, "hfe_min"),
+        ({"duty_cycle": math.inf}, "duty_cycle"),
+        ({"rbe_ohm": math.inf}, "rbe_ohm"),
+        ({"driver_current_max_a": math.inf}, "driver_current_max_a"),
+        ({"hfe_min": 0.0}, "hfe_min"),
+        ({"vbe_sat_v": 0.0}, "vbe_sat_v"),
+        ({"vce_sat_v": -0.1}, "vce_sat_v"),
+        ({"ic_max_a": 0.0}, "ic_max_a"),
+        ({"power_max_w": -1.0}, "power_max_w"),
+        ({"collector_current_a": 0.0}, "collector_current_a"),
+        ({"collector_current_a": 1e-303}, "collector_current_a"),  # Rb beyond any standard value
+        ({"forced_beta": 0.0}, "forced_beta"),
+        ({"forced_beta": 0.5}, "forced_beta"),
+        ({"rbe_ohm": 0.0}, "rbe_ohm"),
+        ({"driver_current_max_a": 0.0}, "driver_current_max_a"),
+        ({"duty_cycle": 1.5}, "duty_cycle"),
+        ({"duty_cycle": -0.1}, "duty_cycle"),
+        ({"drive_high_v": 0.7}, "drive_high_v"),
+        ({"drive_high_v": 0.75}, "drive_high_v"),
+        ({"drive_low_v": 3.3}, "drive_low_v"),
+        ({"e_series": "E3"}, "e_series"),
+    ],
+)
+def test_violations(overrides: dict[str, Any], field: str) -> None:
+    inputs = make(**overrides)
+    found = validate(inputs)  # never raises
+    assert field in [v.field for v in found]
+    with pytest.raises(DomainError) as err:
+        compute(inputs)
+    assert field in [v.field for v in err.value.violations]
+
+
+def test_drive_high_message_has_the_numbers() -> None:
+    (violation,) = validate(make(drive_high_v=[3.3, 0.6]))
+    assert violation.field == "drive_high_v"
+    assert "0.6 V" in violation.message and "0.75 V" in violation.message
+    assert violation.rows.tolist() == [False, True]
+
+
+def test_unknown_series_message_lists_valid_names() -> None:
+    (violation,) = validate(make(e_series="E5"))
+    assert "'E5'" in violation.message and "E6, E12, E24, E48, E96, E192" in violation.message
+
+
+def test_optional_inputs_not_given_are_fine() -> None:
+    assert validate(make(rbe_ohm=math.nan, driver_current_max_a=math.nan, drive_low_v=-5.0)) == []
+
+
+# ---- checks, warnings, cautions --------------------------------------------------------------------------
+
+
+def test_driver_current_check_and_caution() -> None:
+    out = compute(make(driver_current_max_a=[math.nan, 0.02, 0.01]))
+    check = checks(out)["driver_current"]
+    assert check.ok.tolist() == [True, True, False]  # 15.9 mA vs unknown, 20 mA, 10 mA
+    assert np.isnan(check.limit[0])
+    (caution,) = out.cautions
+    assert caution.rows.tolist() == [False, False, True] and "microcontroller" in caution.message
+
+
+def test_collector_and_power_over_rating() -> None:
+    # 150 mA against a 100 mA rating; 42 mW (hand example) against a 30 mW rating.
+    out = compute(make(ic_max_a=[0.5, 0.1, 0.5], power_max_w=[0.5, 0.5, 0.03]))
+    c = checks(out)
+    assert c["collector_current_rating"].ok.tolist() == [True, False, True]
+    assert c["power_rating"].ok.tolist() == [True, True, False]
+    text = messages(out.cautions)
+    assert "collector current exceeds" in text and "overheat" in text
+
+
+def test_off_state_check() -> None:
+    # 0.4 V limit: 0.2 V below a ~0.6 V base-emitter turn-on (common practice).
+    out = compute(make(drive_low_v=[0.0, 0.4, 0.5]))
+    check = checks(out)["off_state"]
+    assert check.ok.tolist() == [True, True, False]
+    assert check.limit.tolist() == [0.4, 0.4, 0.4]
+
+
+def test_duty_cycle_averages_power_and_warns() -> None:
+    out = compute(make(duty_cycle=[1.0, 0.25]))
+    p = out.results["transistor_power_w"]
+    assert p[1] == pytest.approx(0.25 * p[0], rel=1e-12)
+    (warning,) = out.warnings
+    assert warning.rows.tolist() == [False, True] and "averaged" in warning.message
+
+
+def test_little_saturation_margin_warns() -> None:
+    # hfe_min 15 against β_actual 9.41: margin 1.6 < 2 (common practice) but still saturating.
+    out = compute(make(hfe_min=15.0))
+    assert checks(out)["saturation"].ok[0]
+    assert 1 < out.results["saturation_margin"][0] < 2
+    assert "little margin" in messages(out.warnings)
+
+
+# ---- properties ------------------------------------------------------------------------------------------
+
+
+@st.composite
+def valid_inputs(draw: st.DrawFn) -> BjtSwitchInputs:
+    n = draw(st.integers(min_value=1, max_value=6))
+    cols: dict[str, list[Any]] = {name: [] for name in DEFAULTS}
+    for _ in range(n):
+        vbe = draw(st.floats(min_value=0.5, max_value=1.2))
+        vh = vbe + draw(st.floats(min_value=0.05, max_value=20.0))
+        ic = draw(st.floats(min_value=1e-4, max_value=5.0))
+        fb = draw(st.floats(min_value=1.0, max_value=50.0))
+        cols["hfe_min"].append(draw(st.floats(min_value=5.0, max_value=800.0)))
+        cols["vbe_sat_v"].append(vbe)
+        cols["vce_sat_v"].append(draw(st.floats(min_value=0.0, max_value=1.0)))
+        cols["ic_max_a"].append(draw(st.floats(min_value=1e-3, max_value=10.0)))
+        cols["power_max_w"].append(draw(st.floats(min_value=1e-3, max_value=50.0)))
+        cols["collector_current_a"].append(ic)
+        cols["drive_high_v"].append(vh)
+        cols["drive_low_v"].append(vh - draw(st.floats(min_value=0.01, max_value=25.0)))
+        cols["forced_beta"].append(fb)
+        cols["e_series"].append(draw(st.sampled_from(list(eseries.SERIES))))
+        # Pull-down current up to 10× the required base current: realistic, and keeps cancellation mild.
+        rbe_min = vbe / (10 * ic / fb)
+        cols["rbe_ohm"].append(draw(st.one_of(st.just(math.nan), st.floats(rbe_min, rbe_min * 1e4))))
+        cols["driver_current_max_a"].append(draw(st.one_of(st.just(math.nan), st.floats(1e-4, 1.0))))
+        cols["duty_cycle"].append(draw(st.floats(min_value=0.0, max_value=1.0)))
+    return make(**cols)
+
+
+@settings(max_examples=200, deadline=None, derandomize=True)
+@given(inputs=valid_inputs())
+def test_property_results_are_sound(inputs: BjtSwitchInputs) -> None:
+    assert validate(inputs) == []
+    out = compute(inputs)
+    r = out.results
+    for name, value in r.items():
+        assert np.all(np.isfinite(value)), name  # no NaN for valid input
+    # Rb is a standard value at or below the exact one (1e-9 noise allowance).
+    assert np.all(r["rb_ohm"] <= r["rb_exact_ohm"] * (1 + 1e-9))
+    for k, name in enumerate(inputs.e_series):
+        assert eseries.is_standard(r["rb_ohm"][k], str(name))
+    # Saturation kept: the actual forced beta never exceeds the requested one. The 1e-9 picking allowance
+    # is amplified by (Ib_req + I_rbe)/Ib_req where the pull-down takes part of the drive.
+    i_rbe = np.where(np.isnan(inputs.rbe_ohm), 0.0, inputs.vbe_sat_v / inputs.rbe_ohm)
+    amplification = 1 + i_rbe / r["base_current_required_a"]
+    assert np.all(r["forced_beta_actual"] <= inputs.forced_beta * (1 + 1e-9 * amplification))
+    assert np.all(r["base_current_a"] > 0)
+    assert np.all(r["transistor_power_w"] >= 0)
+    # Kirchhoff's current law at the base.
+    np.testing.assert_allclose(r["drive_current_a"] - i_rbe, r["base_current_a"], rtol=1e-12)
+    # Check bookkeeping: each check's ok agrees with its value, limit and sense.
+    for check in out.checks:
+        known = ~np.isnan(check.limit)
+        assert np.all(check.ok[~known])
+        if check.name == "saturation":
+            np.testing.assert_array_equal(check.ok, check.value < check.limit)
+        elif check.sense == "max":
+            np.testing.assert_array_equal(check.ok[known], check.value[known] <= check.limit[known])
