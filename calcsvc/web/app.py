@@ -25,7 +25,7 @@ from calcsvc.data.store import (
     StaleRevision,
     StoreError,
 )
-from calcsvc.web import health, parts_api
+from calcsvc.web import calc_api, health, parts_api
 from calcsvc.web.problems import (
     PROBLEM_MIMETYPE,
     Problem,
@@ -83,9 +83,7 @@ def _domain_problem(error: DomainError) -> Response:
     for violation in error.violations:
         errors.setdefault(violation.field, []).append(violation.message)
     detail = "; ".join(f"{field}: {' '.join(messages)}" for field, messages in errors.items())
-    return problem_response(
-        Problem(422, detail, "physically-impossible", errors, title="Physically impossible input")
-    )
+    return problem_response(Problem(422, detail, "physically-impossible", errors, title="Physically impossible input"))
 
 
 def _unexpected(error: Exception) -> Response:
@@ -156,6 +154,7 @@ def create_app(config: Mapping[str, Any] | None = None) -> Flask:
     app.extensions["calcsvc.api"] = api
     api.register_blueprint(health.blp)
     api.register_blueprint(parts_api.blp)
+    api.register_blueprint(calc_api.blp)
 
     app.register_error_handler(Problem, problem_response)
     app.register_error_handler(StoreError, _store_problem)

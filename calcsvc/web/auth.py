@@ -34,9 +34,7 @@ def require_role(role: str) -> Identity:
     if identity is None:
         raise Problem(401, "the bearer token is not valid (revoked or mistyped)", headers=_CHALLENGE)
     if not identity.may(role):
-        raise Problem(
-            403, f"this action needs the '{role}' role; token '{identity.name}' is '{identity.role}'"
-        )
+        raise Problem(403, f"this action needs the '{role}' role; token '{identity.name}' is '{identity.role}'")
     return identity
 
 

@@ -57,9 +57,7 @@ class ApproveSchema(Schema):
     revision = fields.Integer(
         load_default=None,
         validate=validate.Range(min=1),
-        metadata={
-            "description": "the revision being approved; default: the one named by If-Match, else current"
-        },
+        metadata={"description": "the revision being approved; default: the one named by If-Match, else current"},
     )
 
 
@@ -106,9 +104,7 @@ class RevisionListSchema(Schema):
 
 
 class IfMatchSchema(Schema):
-    if_match = fields.String(
-        data_key="If-Match", metadata={"description": "the ETag of the revision you read"}
-    )
+    if_match = fields.String(data_key="If-Match", metadata={"description": "the ETag of the revision you read"})
 
 
 def convert_parameters(kind: str, raw: dict[str, Any]) -> dict[str, Any]:

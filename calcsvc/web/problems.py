@@ -30,9 +30,7 @@ class ProblemSchema(Schema):
 
 def error_response(blp: Any, status: int, description: str) -> Any:
     """Document an error status of an operation as a problem document."""
-    return blp.alt_response(
-        status, schema=ProblemSchema, content_type=PROBLEM_MIMETYPE, description=description
-    )
+    return blp.alt_response(status, schema=ProblemSchema, content_type=PROBLEM_MIMETYPE, description=description)
 
 
 class Problem(Exception):
@@ -123,9 +121,7 @@ def from_http_exception(error: HTTPException) -> Problem:
         fields_named = ", ".join(sorted(errors))
         return Problem(422, f"invalid input: {fields_named}", "validation", errors, headers)
     if code == 400 and messages:
-        return Problem(
-            400, "the request body is not valid JSON", "malformed-body", _flatten(messages), headers
-        )
+        return Problem(400, "the request body is not valid JSON", "malformed-body", _flatten(messages), headers)
     detail = data.get("message") or (error.description or "").strip() or _TITLES.get(code, "Error")
     if code == 413:
         detail = "the request body is larger than this server accepts (MAX_CONTENT_LENGTH)"

@@ -72,14 +72,10 @@ class Quantity(fields.Field):
             raise ValidationError("must be a finite number")
         if self.integer and number != int(number):
             raise ValidationError("must be a whole number")
-        if self.minimum is not None and (
-            number <= self.minimum if self.exclusive_minimum else number < self.minimum
-        ):
+        if self.minimum is not None and (number <= self.minimum if self.exclusive_minimum else number < self.minimum):
             relation = "greater than" if self.exclusive_minimum else "at least"
             raise ValidationError(f"must be {relation} {self.minimum:g} {self._unit_text()}".rstrip())
-        if self.maximum is not None and (
-            number >= self.maximum if self.exclusive_maximum else number > self.maximum
-        ):
+        if self.maximum is not None and (number >= self.maximum if self.exclusive_maximum else number > self.maximum):
             relation = "less than" if self.exclusive_maximum else "at most"
             raise ValidationError(f"must be {relation} {self.maximum:g} {self._unit_text()}".rstrip())
         return number

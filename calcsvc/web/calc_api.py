@@ -1,0 +1,258 @@
+"""``/v1/calc/<name>``: the design calculations, one JSON body in, one envelope out."""
+
+from __future__ import annotations
+
+import math
+from collections.abc import Mapping
+from typing import Any
+
+import numpy as np
+from flask import current_app
+from flask.views import MethodView
+from flask_smorest import Blueprint
+from marshmallow import Schema, ValidationError, fields, validate, validates_schema
+
+from calcsvc.core import duty_power
+from calcsvc.core.outcome import Outcome
+from calcsvc.web.calc_schemas import camel, request_schema, response_schema, role_fields
+from calcsvc.web.calculations import FLAT_CALCULATIONS, Calculation, Columns, Role
+from calcsvc.web.envelope import envelope, plain, row_results
+from calcsvc.web.problems import Problem, error_response
+from calcsvc.web.quantity import Quantity
+from calcsvc.web.resolve import PartResolver, Resolved, resolve
+
+blp = Blueprint(
+    "calculations",
+    __name__,
+    url_prefix="/v1/calc",
+    description="Design calculations. Numbers are SI; strings with units are converted. Any input a part "
+    "provides may be given as a part reference instead (role name = part_id, <role>_revision pins a revision).",
+)
+
+MAX_WAVEFORM_SAMPLES = 100_000
+
+
+def resolve_parts(roles: tuple[Role, ...], body: Mapping[str, Any]) -> Resolved:
+    with current_app.extensions["calcsvc.db"].transaction() as session:
+        return resolve(roles, body, PartResolver(session))
+
+
+def complete(calc: Calculation, values: dict[str, Any]) -> dict[str, Any]:
+    """Fill defaults; a required input neither given nor supplied by a part is a 422 naming it."""
+    missing = {
+        spec.name: [f"required: give {spec.name} or reference a part that provides it"]
+        for spec in calc.inputs
+        if spec.required and spec.name not in values
+    }
+    if missing:
+        raise Problem(422, "missing inputs: " + ", ".join(missing), "validation", missing)
+    filled = {spec.name: spec.default for spec in calc.inputs if spec.default is not None}
+    filled.update({k: v for k, v in values.items() if k in {spec.name for spec in calc.inputs}})
+    for spec in calc.inputs:
+        if spec.integer and spec.name in filled:
+            filled[spec.name] = int(filled[spec.name])
+    return filled
+
+
+def columns_of(calc: Calculation, rows: list[dict[str, Any]]) -> Columns:
+    """Input columns for the core: floats with NaN for absent optional inputs, strings for choices."""
+    columns: Columns = {}
+    for spec in calc.inputs:
+        if spec.choices:
+            columns[spec.name] = np.array([row[spec.name] for row in rows], dtype=str)
+        else:
+            columns[spec.name] = np.array([row.get(spec.name, math.nan) for row in rows], dtype=np.float64)
+    return columns
+
+
+def flat_results(calc: Calculation, outcome: Outcome, row: int) -> dict[str, Any]:
+    names = [name for name, _ in calc.results]
+    results = row_results(outcome, row, names)
+    if "sweep_frequency_hz" in outcome.results:
+        results["sweep"] = {
+            key: plain(outcome.results[f"sweep_{key}"][row]) for key in ("frequency_hz", "gain_db", "phase_deg")
+        }
+    return results
+
+
+def run_flat(calc: Calculation, body: Mapping[str, Any]) -> dict[str, Any]:
+    resolved = resolve_parts(calc.roles, body)
+    values = complete(calc, resolved.values)
+    outcome = calc.compute(calc.make_inputs(columns_of(calc, [values])))
+    return envelope(
+        calc.name, calc.version, values, resolved.parts, flat_results(calc, outcome, 0), outcome, 0, resolved.warnings
+    )
+
+
+def _register_flat(calc: Calculation) -> None:
+    request = request_schema(calc)
+    response = response_schema(calc.name, calc.results)
+
+    class CalculationView(MethodView):
+        @blp.arguments(request)
+        @blp.response(200, response)
+        @error_response(blp, 404, "a referenced part does not exist")
+        @blp.doc(summary=calc.summary)
+        def post(self, body: dict[str, Any]) -> dict[str, Any]:
+            return run_flat(calc, body)
+
+    CalculationView.__name__ = f"{camel(calc.name)}View"
+    blp.route(f"/{calc.name}", endpoint=calc.name)(CalculationView)
+
+
+for _calc in FLAT_CALCULATIONS.values():
+    _register_flat(_calc)
+
+
+# --- duty-cycle power: a list of loads per supply -------------------------------------------------------------
+
+SUPPLY_ROLE = Role(
+    "supply",
+    "supply",
+    (("supply_v", "supply_v"), ("current_max_a", "current_max_a"), ("capacity_ah", "capacity_ah")),
+)
+
+
+class WaveformSchema(Schema):
+    time_s = fields.List(
+        fields.Float(),
+        required=True,
+        validate=validate.Length(min=2, max=MAX_WAVEFORM_SAMPLES),
+        metadata={"x-unit": "s"},
+    )
+    current_a = fields.List(
+        fields.Float(),
+        required=True,
+        validate=validate.Length(min=2, max=MAX_WAVEFORM_SAMPLES),
+        metadata={"x-unit": "A"},
+    )
+
+    @validates_schema
+    def same_length(self, data: dict[str, Any], **_kwargs: Any) -> None:
+        if len(data["time_s"]) != len(data["current_a"]):
+            raise ValidationError("time_s and current_a must have the same length", "current_a")
+
+
+class LoadSchema(Schema):
+    name = fields.String(load_default="", validate=validate.Length(max=100))
+    peak_current_a = Quantity("A", minimum=0, description="current while on (rectangular load)")
+    duty_cycle = Quantity("dimensionless", minimum=0, maximum=1, description="fraction of time on")
+    on_time_s = Quantity("s", minimum=0, description="on time per period (instead of duty_cycle)")
+    period_s = Quantity("s", minimum=0, exclusive_minimum=True, description="PWM period (with on_time_s)")
+    count = Quantity("dimensionless", minimum=1, maximum=100_000, integer=True, description="identical units")
+    waveform = fields.Nested(WaveformSchema, metadata={"description": "samples over exactly one period"})
+
+    @validates_schema
+    def one_description(self, data: dict[str, Any], **_kwargs: Any) -> None:
+        if "waveform" in data:
+            extra = [k for k in ("peak_current_a", "duty_cycle", "on_time_s", "period_s") if k in data]
+            if extra:
+                raise ValidationError(f"a load with a waveform takes its currents from it; drop {extra[0]}", extra[0])
+            return
+        if "peak_current_a" not in data:
+            raise ValidationError("give peak_current_a with a duty cycle, or a waveform", "peak_current_a")
+        timed = "on_time_s" in data or "period_s" in data
+        if "duty_cycle" in data and timed:
+            raise ValidationError("give duty_cycle or on_time_s with period_s, not both", "duty_cycle")
+        if timed and not ("on_time_s" in data and "period_s" in data):
+            raise ValidationError("on_time_s and period_s go together", "period_s")
+        if "duty_cycle" not in data and not timed:
+            raise ValidationError("give duty_cycle, or on_time_s with period_s", "duty_cycle")
+        if timed and data["on_time_s"] > data["period_s"]:
+            raise ValidationError("on_time_s cannot exceed period_s", "on_time_s")
+
+
+DutyRequest = Schema.from_dict(
+    {
+        "supply_v": Quantity("V", minimum=0, exclusive_minimum=True, description="supply voltage"),
+        "current_max_a": Quantity("A", minimum=0, exclusive_minimum=True, description="supply current rating"),
+        "capacity_ah": Quantity("A*h", minimum=0, exclusive_minimum=True, description="battery capacity"),
+        **role_fields(SUPPLY_ROLE),
+        "loads": fields.List(fields.Nested(LoadSchema), required=True, validate=validate.Length(min=1, max=1000)),
+    },
+    name="DutyCyclePowerRequest",
+)
+DUTY_RESULTS = (
+    ("loads", "per load, for one unit: average_current_a, rms_current_a, average_power_w, peak_power_w"),
+    ("average_current_a", "average supply current of all loads [A]"),
+    ("average_power_w", "average supply power [W]"),
+    ("peak_current_a", "supply current with every load on at once [A]"),
+    ("supply_utilization", "average current / supply rating"),
+    ("runtime_h", "battery capacity / average current [h]"),
+    ("max_common_duty_cycle", "largest duty cycle all loads could share within the supply rating"),
+)
+DutyResponse = response_schema(duty_power.NAME, DUTY_RESULTS)
+
+
+def _load_currents(load: dict[str, Any]) -> dict[str, Any]:
+    """Peak, duty, average and RMS of one load, from its duty cycle or its sampled waveform."""
+    if "waveform" in load:
+        average, rms, peak, duty = duty_power.waveform_stats(load["waveform"]["time_s"], load["waveform"]["current_a"])
+        return {"peak_current_a": peak, "duty_cycle": duty, "average_current_a": average, "rms_current_a": rms}
+    duty = load["duty_cycle"] if "duty_cycle" in load else load["on_time_s"] / load["period_s"]
+    return {"peak_current_a": load["peak_current_a"], "duty_cycle": duty}
+
+
+def run_duty(body: Mapping[str, Any]) -> dict[str, Any]:
+    resolved = resolve_parts((SUPPLY_ROLE,), body)
+    values = resolved.values
+    if "supply_v" not in values:
+        message = "required: give supply_v or reference a supply part"
+        raise Problem(422, message, "validation", {"supply_v": [message]})
+    loads = []
+    for index, load in enumerate(values["loads"]):
+        try:
+            currents = _load_currents(load)
+        except duty_power.DomainError as exc:
+            errors = {f"loads.{index}.{v.field}": [v.message] for v in exc.violations}
+            raise Problem(422, "; ".join(m[0] for m in errors.values()), "physically-impossible", errors) from exc
+        loads.append({"name": load["name"], "count": load.get("count", 1), **currents})
+    m = len(loads)
+    column = {
+        key: np.array([ld.get(key, math.nan) for ld in loads], dtype=np.float64)
+        for key in ("peak_current_a", "duty_cycle", "average_current_a", "rms_current_a", "count")
+    }
+    waveform = ~np.isnan(column["average_current_a"])
+    inputs = duty_power.DutyPowerInputs(
+        supply_v=np.array([values["supply_v"]]),
+        current_max_a=np.array([values.get("current_max_a", math.nan)]),
+        capacity_ah=np.array([values.get("capacity_ah", math.nan)]),
+        load_row=np.zeros(m, dtype=np.int64),
+        peak_current_a=column["peak_current_a"],
+        duty_cycle=np.where(waveform, math.nan, column["duty_cycle"]),
+        average_current_a=column["average_current_a"],
+        rms_current_a=column["rms_current_a"],
+        count=column["count"],
+    )
+    outcome = duty_power.compute(inputs)
+    per_load = [
+        {
+            "name": load["name"],
+            "count": load["count"],
+            "duty_cycle": plain(load["duty_cycle"]),
+            "peak_current_a": plain(load["peak_current_a"]),
+            "average_current_a": plain(outcome.results["load_average_current_a"][k]),
+            "rms_current_a": plain(outcome.results["load_rms_current_a"][k]),
+            "average_power_w": plain(outcome.results["load_average_power_w"][k]),
+            "peak_power_w": plain(outcome.results["load_peak_power_w"][k]),
+        }
+        for k, load in enumerate(loads)
+    ]
+    results = {"loads": per_load, **row_results(outcome, 0, [name for name, _ in DUTY_RESULTS[1:]])}
+    resolved_inputs = {k: values[k] for k in ("supply_v", "current_max_a", "capacity_ah") if k in values}
+    resolved_inputs["loads"] = [
+        {k: load[k] for k in ("name", "count", "peak_current_a", "duty_cycle")} for load in loads
+    ]
+    return envelope(
+        duty_power.NAME, duty_power.VERSION, resolved_inputs, resolved.parts, results, outcome, 0, resolved.warnings
+    )
+
+
+@blp.route(f"/{duty_power.NAME}", endpoint=duty_power.NAME)
+class DutyCyclePower(MethodView):
+    @blp.arguments(DutyRequest)
+    @blp.response(200, DutyResponse)
+    @error_response(blp, 404, "a referenced part does not exist")
+    def post(self, body: dict[str, Any]) -> dict[str, Any]:
+        """Average and peak supply current and power of duty-cycled loads, with runtime and duty headroom."""
+        return run_duty(body)

@@ -1,0 +1,108 @@
+"""marshmallow schemas generated from the calculation table, so the spec and the server never drift."""
+
+from __future__ import annotations
+
+from typing import Any
+
+from marshmallow import Schema, fields, validate
+
+from calcsvc.data.kinds import KINDS
+from calcsvc.web.calculations import Calculation, Input, Role
+from calcsvc.web.parts_api import PART_ID
+from calcsvc.web.quantity import Quantity
+
+
+def camel(name: str) -> str:
+    return "".join(part.capitalize() for part in name.replace("_", "-").split("-"))
+
+
+def input_field(spec: Input) -> fields.Field:
+    if spec.choices:
+        return fields.String(
+            validate=validate.OneOf(spec.choices), metadata={"description": spec.description, "default": spec.default}
+        )
+    default = "" if spec.default is None else f" (default {spec.default:g})"
+    return Quantity(
+        spec.unit,
+        minimum=spec.minimum,
+        exclusive_minimum=spec.exclusive_minimum,
+        maximum=spec.maximum,
+        integer=spec.integer,
+        description=spec.description + default,
+    )
+
+
+def role_fields(role: Role) -> dict[str, fields.Field]:
+    given = ", ".join(f"{parameter} as {name}" if parameter != name else name for parameter, name in role.provides)
+    return {
+        role.name: fields.String(
+            validate=validate.Regexp(PART_ID),
+            metadata={"description": f"part_id of a {role.kind} part; supplies {given} unless given explicitly"},
+        ),
+        f"{role.name}_revision": fields.Integer(
+            validate=validate.Range(min=1),
+            metadata={"description": f"pin a revision of the {role.name} part (default: current)"},
+        ),
+    }
+
+
+def request_schema(calc: Calculation) -> type[Schema]:
+    attributes: dict[str, Any] = {spec.name: input_field(spec) for spec in calc.inputs}
+    for role in calc.roles:
+        attributes.update(role_fields(role))
+    return Schema.from_dict(attributes, name=f"{camel(calc.name)}Request")
+
+
+class PartUsedSchema(Schema):
+    role = fields.String(required=True)
+    part_id = fields.String(required=True)
+    revision = fields.Integer(required=True)
+    status = fields.String(required=True, validate=validate.OneOf(("draft", "approved", "retired")))
+
+
+class CheckSchema(Schema):
+    name = fields.String(required=True)
+    ok = fields.Boolean(required=True)
+    value = fields.Float(required=True, allow_none=True)
+    limit = fields.Float(required=True)
+    margin = fields.Float(
+        required=True, allow_none=True, metadata={"description": "how far inside the limit, as a fraction of it"}
+    )
+    detail = fields.String(required=True)
+
+
+def result_field(name: str, description: str) -> fields.Field:
+    if name == "slew_limited":
+        return fields.Boolean(metadata={"description": description})
+    if name == "sweep":
+        return fields.Dict(
+            keys=fields.String(), values=fields.List(fields.Float()), metadata={"description": description}
+        )
+    if name == "loads":
+        return fields.List(fields.Dict(), metadata={"description": description})
+    return fields.Float(allow_none=True, metadata={"description": description + " (null: does not apply)"})
+
+
+def response_schema(calc_name: str, results: tuple[tuple[str, str], ...]) -> type[Schema]:
+    prefix = camel(calc_name)
+    results_schema = Schema.from_dict(
+        {name: result_field(name, description) for name, description in results}, name=f"{prefix}Results"
+    )
+    return Schema.from_dict(
+        {
+            "calculation": fields.String(required=True),
+            "inputs": fields.Dict(required=True, metadata={"description": "every resolved input, in SI units"}),
+            "parts": fields.List(fields.Nested(PartUsedSchema), required=True),
+            "results": fields.Nested(results_schema, required=True),
+            "checks": fields.List(fields.Nested(CheckSchema), required=True),
+            "warnings": fields.List(fields.String(), required=True),
+            "cautions": fields.List(fields.String(), required=True),
+            "fingerprint": fields.String(
+                required=True, metadata={"description": "SHA-256 of the inputs, part revisions and version"}
+            ),
+        },
+        name=f"{prefix}Response",
+    )
+
+
+KIND_NAMES = tuple(KINDS)

@@ -1,0 +1,91 @@
+"""The response every calculation shares: inputs, parts, results, checks, notices and a fingerprint."""
+
+from __future__ import annotations
+
+import hashlib
+import json
+import math
+from typing import Any
+
+import numpy as np
+
+from calcsvc.core.outcome import Outcome
+
+
+def plain(value: Any) -> Any:
+    """JSON-ready: numpy scalars to Python, NaN (does not apply) to null, arrays to lists."""
+    if isinstance(value, np.ndarray):
+        return [plain(v) for v in value.tolist()]
+    if isinstance(value, list | tuple):
+        return [plain(v) for v in value]
+    if isinstance(value, np.generic):
+        value = value.item()
+    if isinstance(value, float) and not math.isfinite(value):
+        return None
+    return value
+
+
+def fingerprint(calculation: str, version: str, inputs: dict[str, Any], parts: list[dict[str, Any]]) -> str:
+    """Stable over key order: the same inputs, part revisions and calculation version give the same hash."""
+    canonical = json.dumps(
+        {
+            "calculation": calculation,
+            "version": version,
+            "inputs": inputs,
+            "parts": sorted((p["role"], p["part_id"], p["revision"]) for p in parts),
+        },
+        sort_keys=True,
+        separators=(",", ":"),
+    )
+    return hashlib.sha256(canonical.encode()).hexdigest()
+
+
+def row_results(outcome: Outcome, row: int, names: list[str]) -> dict[str, Any]:
+    return {name: plain(outcome.results[name][row]) for name in names if name in outcome.results}
+
+
+def row_checks(outcome: Outcome, row: int) -> list[dict[str, Any]]:
+    """The checks that apply on ``row`` (a check whose limit is unknown there is left out)."""
+    checks = []
+    for check in outcome.checks:
+        limit = float(check.limit[row])
+        if math.isnan(limit):
+            continue
+        checks.append(
+            {
+                "name": check.name,
+                "ok": bool(check.ok[row]),
+                "value": plain(float(check.value[row])),
+                "limit": limit,
+                "margin": plain(float(check.margin()[row])),
+                "detail": check.detail,
+            }
+        )
+    return checks
+
+
+def row_notices(notices: list[Any], row: int) -> list[str]:
+    return [notice.message for notice in notices if bool(notice.rows[row])]
+
+
+def envelope(
+    calculation: str,
+    version: str,
+    inputs: dict[str, Any],
+    parts: list[dict[str, Any]],
+    results: dict[str, Any],
+    outcome: Outcome,
+    row: int,
+    warnings: list[str],
+) -> dict[str, Any]:
+    inputs = {k: plain(v) for k, v in inputs.items()}
+    return {
+        "calculation": calculation,
+        "inputs": inputs,
+        "parts": parts,
+        "results": results,
+        "checks": row_checks(outcome, row),
+        "warnings": warnings + row_notices(outcome.warnings, row),
+        "cautions": row_notices(outcome.cautions, row),
+        "fingerprint": fingerprint(calculation, version, inputs, parts),
+    }

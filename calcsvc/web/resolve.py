@@ -1,0 +1,74 @@
+"""Turning part references in a request into input values, with the review rules of the parts table."""
+
+from __future__ import annotations
+
+from collections.abc import Mapping
+from dataclasses import dataclass, field
+from typing import Any
+
+from sqlalchemy.orm import Session
+
+from calcsvc.data.store import PartNotFound, PartStore, PartView
+from calcsvc.web.calculations import Role
+from calcsvc.web.problems import Problem
+
+
+@dataclass
+class PartResolver:
+    """Looks each distinct (part, revision) up once, however many rows or roles name it."""
+
+    session: Session
+    cache: dict[tuple[str, int | None], PartView] = field(default_factory=dict)
+
+    def part(self, role: str, part_id: str, revision: int | None) -> PartView:
+        key = (part_id, revision)
+        if key not in self.cache:
+            store = PartStore(self.session)
+            try:
+                self.cache[key] = store.get(part_id) if revision is None else store.get_revision(part_id, revision)
+            except PartNotFound as exc:
+                field_name = role if revision is None or "revision" not in str(exc) else f"{role}_revision"
+                raise Problem(404, str(exc), "part-not-found", {field_name: [str(exc)]}) from exc
+        return self.cache[key]
+
+
+@dataclass
+class Resolved:
+    values: dict[str, Any]
+    parts: list[dict[str, Any]]
+    warnings: list[str]
+
+
+def resolve(roles: tuple[Role, ...], body: Mapping[str, Any], resolver: PartResolver) -> Resolved:
+    """Explicit values win over a part's; each referenced part is checked against its role."""
+    values = {k: v for k, v in body.items() if v is not None}
+    parts: list[dict[str, Any]] = []
+    warnings: list[str] = []
+    for role in roles:
+        part_id = body.get(role.name)
+        revision = body.get(f"{role.name}_revision")
+        if part_id is None:
+            if revision is not None:
+                message = f"{role.name}_revision needs {role.name} (the part_id)"
+                raise Problem(422, message, "validation", {f"{role.name}_revision": [message]})
+            continue
+        values.pop(role.name, None)
+        values.pop(f"{role.name}_revision", None)
+        part = resolver.part(role.name, part_id, revision)
+        if part.kind != role.kind:
+            message = f"part '{part_id}' is a {part.kind}; {role.name} needs a {role.kind}"
+            raise Problem(422, message, "wrong-part-kind", {role.name: [message]})
+        for parameter, wanted in role.must_have:
+            if part.parameters.get(parameter) != wanted:
+                message = f"part '{part_id}' has {parameter} {part.parameters.get(parameter)!r}; {wanted!r} is needed"
+                raise Problem(422, message, "wrong-part-kind", {role.name: [message]})
+        if part.status == "retired" and revision is None:
+            message = f"part '{part_id}' is retired; pin {role.name}_revision to re-run an old design"
+            raise Problem(422, message, "part-retired", {role.name: [message]})
+        if part.status != "approved":
+            warnings.append(f"{role.name} '{part_id}' revision {part.revision} is {part.status}, not approved")
+        for parameter, input_name in role.provides:
+            if input_name not in values and part.parameters.get(parameter) is not None:
+                values[input_name] = part.parameters[parameter]
+        parts.append({"role": role.name, "part_id": part.part_id, "revision": part.revision, "status": part.status})
+    return Resolved(values, parts, warnings)
