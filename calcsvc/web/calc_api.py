@@ -2,12 +2,14 @@
 
 from __future__ import annotations
 
+import csv
+import io
 import math
 from collections.abc import Mapping
 from typing import Any
 
 import numpy as np
-from flask import current_app
+from flask import Response, current_app, g, request
 from flask.views import MethodView
 from flask_smorest import Blueprint
 from marshmallow import Schema, ValidationError, fields, validate, validates_schema
@@ -84,9 +86,54 @@ def run_flat(calc: Calculation, body: Mapping[str, Any]) -> dict[str, Any]:
     )
 
 
+def scalar_results(calc: Calculation) -> list[str]:
+    return [name for name, _ in calc.results if name != "sweep"]
+
+
+def query_schema(calc: Calculation) -> type[Schema]:
+    """The POST inputs as query parameters, plus the spreadsheet-friendly output choices."""
+    return Schema.from_dict(
+        {
+            **request_schema(calc)._declared_fields,
+            "pick": fields.String(
+                validate=validate.OneOf(scalar_results(calc)),
+                metadata={"description": "answer only this result, as text/plain (a bare number, true or false)"},
+            ),
+            "format": fields.String(
+                validate=validate.OneOf(("json", "csv")),
+                metadata={"description": "csv: a header row and one data row of every result"},
+            ),
+        },
+        name=f"{camel(calc.name)}Query",
+    )
+
+
+def text_answer(calc: Calculation, envelope_: dict[str, Any], pick: str | None, fmt: str | None) -> Response | None:
+    results = envelope_["results"]
+    if pick:
+        value = results.get(pick)
+        text = "n/a" if value is None else ("true" if value is True else "false" if value is False else repr(value))
+        return Response(text, mimetype="text/plain")
+    if fmt == "csv":
+        names = scalar_results(calc)
+        out = io.StringIO()
+        writer = csv.writer(out, lineterminator="\n")
+        writer.writerow(names)
+        writer.writerow(["" if results.get(name) is None else results[name] for name in names])
+        return Response(out.getvalue(), mimetype="text/csv")
+    return None
+
+
+_TEXT_RESPONSES = {
+    "text/plain": {"schema": {"type": "string"}, "example": "300.0"},
+    "text/csv": {"schema": {"type": "string"}},
+}
+
+
 def _register_flat(calc: Calculation) -> None:
     request = request_schema(calc)
     response = response_schema(calc.name, calc.results)
+    query = query_schema(calc)
 
     class CalculationView(MethodView):
         @blp.arguments(request)
@@ -96,12 +143,41 @@ def _register_flat(calc: Calculation) -> None:
         def post(self, body: dict[str, Any]) -> dict[str, Any]:
             return run_flat(calc, body)
 
+        @blp.arguments(query, location="query")
+        @blp.response(200, response)
+        @error_response(blp, 404, "a referenced part does not exist")
+        @blp.doc(
+            summary=f"{calc.summary} (query-string form for spreadsheets)",
+            description="The same inputs as the POST, as query parameters. With pick=<result> the answer is "
+            "text/plain, and so is any error (one line, with the 4xx status), so a spreadsheet's web-fetch "
+            "function can put it straight into a cell. With format=csv: a header row and one data row.",
+            responses={
+                "200": {
+                    "description": "the envelope, or text with pick or format=csv",
+                    "content": {
+                        "application/json": {"schema": {"$ref": f"#/components/schemas/{camel(calc.name)}Response"}},
+                        **_TEXT_RESPONSES,
+                    },
+                }
+            },
+        )
+        def get(self, args: dict[str, Any]) -> Any:
+            pick, fmt = args.pop("pick", None), args.pop("format", None)
+            answer = run_flat(calc, args)
+            return text_answer(calc, answer, pick, fmt) or answer
+
     CalculationView.__name__ = f"{camel(calc.name)}View"
     blp.route(f"/{calc.name}", endpoint=calc.name)(CalculationView)
 
 
 for _calc in FLAT_CALCULATIONS.values():
     _register_flat(_calc)
+
+
+@blp.before_request
+def _plain_errors_for_cells() -> None:
+    if request.method == "GET" and "pick" in request.args:
+        g.plain_errors = True
 
 
 # --- duty-cycle power: a list of loads per supply -------------------------------------------------------------

@@ -15,7 +15,12 @@ from calcsvc.core.outcome import Outcome
 def plain(value: Any) -> Any:
     """JSON-ready: numpy scalars to Python, NaN (does not apply) to null, arrays to lists."""
     if isinstance(value, np.ndarray):
-        return [plain(v) for v in value.tolist()]
+        if value.dtype.kind == "f":
+            # Object arrays hold Python floats; NaN becomes None in one vectorized step.
+            boxed = value.astype(object)
+            boxed[np.isnan(value)] = None
+            return boxed.tolist()
+        return value.tolist()
     if isinstance(value, list | tuple):
         return [plain(v) for v in value]
     if isinstance(value, np.generic):

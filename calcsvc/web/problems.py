@@ -5,7 +5,7 @@ from __future__ import annotations
 import logging
 from typing import Any
 
-from flask import Response, json, request
+from flask import Response, g, json, request
 from marshmallow import Schema, fields
 from werkzeug.exceptions import HTTPException
 
@@ -72,6 +72,11 @@ _TITLES = {
 
 
 def problem_response(problem: Problem) -> Response:
+    if g.get("plain_errors"):
+        # A spreadsheet cell cannot show a JSON document: one short line, same status.
+        detail = "; ".join(f"{k}: {v[0]}" for k, v in problem.errors.items()) if problem.errors else problem.detail
+        line = f"error: {detail}".replace("\n", " ")[:300]
+        return Response(line, status=problem.status, mimetype="text/plain", headers=problem.headers)
     body: dict[str, Any] = {
         "type": f"urn:calcsvc:problem:{problem.slug}" if problem.slug else "about:blank",
         "title": problem.title or _TITLES.get(problem.status, "Error"),

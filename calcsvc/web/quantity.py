@@ -61,13 +61,13 @@ class Quantity(fields.Field):
                 number = float(value)
             except OverflowError as exc:
                 raise ValidationError("number is too large") from exc
-        elif isinstance(value, str) and not self.integer:
+        elif isinstance(value, str):
             try:
                 number = parse_quantity(value, self.unit)
             except UnitError as exc:
                 raise ValidationError(str(exc)) from exc
         else:
-            raise ValidationError("must be a number" + ("" if self.integer else " or a string with a unit"))
+            raise ValidationError("must be a number or a string with a unit")
         if not math.isfinite(number):
             raise ValidationError("must be a finite number")
         if self.integer and number != int(number):

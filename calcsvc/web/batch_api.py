@@ -1,0 +1,194 @@
+"""``/v1/batch/<name>``: many rows of one calculation through the vectorized core in one pass."""
+
+from __future__ import annotations
+
+import csv
+import io
+from typing import Any
+
+import numpy as np
+import orjson
+from flask import Response, current_app, request
+from flask.views import MethodView
+from flask_smorest import Blueprint
+
+from calcsvc.core.outcome import take
+from calcsvc.web.calc_schemas import request_schema
+from calcsvc.web.calculations import FLAT_CALCULATIONS, Calculation
+from calcsvc.web.columns import ParsedRows, parse_rows
+from calcsvc.web.envelope import plain
+from calcsvc.web.problems import Problem, error_response
+from calcsvc.web.resolve import PartResolver
+
+blp = Blueprint(
+    "batch",
+    __name__,
+    url_prefix="/v1/batch",
+    description="Many rows of one calculation in one request: a JSON array of input objects or a CSV table "
+    "(header row = input names; cells may carry units such as '9 V'). A bad row does not fail the batch.",
+)
+
+CSV = "text/csv"
+
+
+def read_records() -> tuple[list[Any], bool]:
+    """The rows of the body, and whether blank cells mean "not given" (CSV)."""
+    if request.mimetype == CSV:
+        text = request.get_data(as_text=True)
+        reader = csv.DictReader(io.StringIO(text), skipinitialspace=True)
+        records = [{k.strip(): v.strip() for k, v in row.items() if k is not None} for row in reader]
+        return records, True
+    try:
+        data = orjson.loads(request.get_data())
+    except orjson.JSONDecodeError as exc:
+        raise Problem(400, f"the request body is not valid JSON: {exc}", "malformed-body") from exc
+    if not isinstance(data, list):
+        message = "the body must be a JSON array of input objects (or a CSV table with Content-Type: text/csv)"
+        raise Problem(422, message, "validation", {"body": [message]})
+    return data, False
+
+
+def evaluate(calc: Calculation, parsed: ParsedRows) -> tuple[dict[str, Any], np.ndarray, Any]:
+    """Run the core once over every row that parsed; physical violations become errors on their rows."""
+    n = len(parsed.parts)
+    candidates = np.flatnonzero(~parsed.errors.mask(n))
+    inputs = calc.make_inputs({name: column[candidates] for name, column in parsed.columns.items()})
+    for violation in calc.validate(inputs):
+        parsed.errors.add_rows(np.isin(np.arange(n), candidates[violation.rows]), violation.field, violation.message)
+    ok_rows = np.flatnonzero(~parsed.errors.mask(n))
+    outcome = calc.compute(take(inputs, np.isin(candidates, ok_rows)))
+    return outcome.results, ok_rows, outcome
+
+
+def _row_problem(errors: dict[str, list[str]]) -> dict[str, Any]:
+    detail = "; ".join(f"{name}: {' '.join(messages)}" for name, messages in errors.items())
+    return {"type": "urn:calcsvc:problem:validation", "title": "Unprocessable content", "status": 422,
+            "detail": detail, "errors": errors}  # fmt: skip
+
+
+def json_rows(calc: Calculation, parsed: ParsedRows, ok_rows: np.ndarray, outcome: Any) -> list[dict[str, Any]]:
+    n = len(parsed.parts)
+    names = [name for name, _ in calc.results if name in outcome.results]
+    results = [plain(outcome.results[name]) for name in names]
+    sweep = "sweep_frequency_hz" in outcome.results
+    if sweep:
+        sweep_keys = ("frequency_hz", "gain_db", "phase_deg")
+        sweep_columns = [plain(outcome.results[f"sweep_{k}"]) for k in sweep_keys]
+    checks = [(c.name, c.ok.tolist(), plain(c.value), plain(c.limit), plain(c.margin())) for c in outcome.checks]
+    notices: dict[str, list[list[str]]] = {"warnings": [[] for _ in ok_rows], "cautions": [[] for _ in ok_rows]}
+    for kind, found in (("warnings", outcome.warnings), ("cautions", outcome.cautions)):
+        for notice in found:
+            for k in np.flatnonzero(notice.rows):
+                notices[kind][k].append(notice.message)
+    rows: list[dict[str, Any]] = [{}] * n
+    for k, row in enumerate(ok_rows.tolist()):
+        row_results = dict(zip(names, (column[k] for column in results), strict=True))
+        if sweep:
+            row_results["sweep"] = dict(zip(sweep_keys, (column[k] for column in sweep_columns), strict=True))
+        rows[row] = {
+            "row": row,
+            "ok": True,
+            "results": row_results,
+            "checks": [
+                {"name": name, "ok": ok[k], "value": value[k], "limit": limit[k], "margin": margin[k]}
+                for name, ok, value, limit, margin in checks
+                if limit[k] is not None  # a check whose limit is unknown on this row does not apply
+            ],
+            "warnings": parsed.warnings[row] + notices["warnings"][k],
+            "cautions": notices["cautions"][k],
+            "parts": parsed.parts[row],
+        }
+    for row, errors in parsed.errors.by_row.items():
+        rows[row] = {"row": row, "ok": False, "problem": _row_problem(errors)}
+    return rows
+
+
+def csv_body(calc: Calculation, parsed: ParsedRows, ok_rows: np.ndarray, outcome: Any) -> str:
+    """One line per row: every scalar result, the failing checks, and the problem of a bad row."""
+    names = [name for name, _ in calc.results if name in outcome.results and outcome.results[name].ndim == 1]
+    n = len(parsed.parts)
+    table: list[list[Any]] = [[row, "false"] + [""] * len(names) + ["", ""] for row in range(n)]
+    columns = [outcome.results[name].tolist() for name in names]
+    failing = [(c.name, (~c.ok).tolist()) for c in outcome.checks]
+    for k, row in enumerate(ok_rows.tolist()):
+        cells = [("" if value != value else value) for value in (column[k] for column in columns)]
+        table[row] = [row, "true", *cells, ";".join(name for name, bad in failing if bad[k]), ""]
+    for row, errors in parsed.errors.by_row.items():
+        table[row][-1] = _row_problem(errors)["detail"]
+    out = io.StringIO()
+    writer = csv.writer(out, lineterminator="\n")
+    writer.writerow(["row", "ok", *names, "failing_checks", "problem"])
+    writer.writerows(table)
+    return out.getvalue()
+
+
+def run_batch(calc: Calculation) -> Response:
+    records, blank_is_absent = read_records()
+    limit = current_app.config["BATCH_MAX_ROWS"]
+    if len(records) > limit:
+        raise Problem(413, f"{len(records)} rows is more than this server takes in one batch ({limit})", "batch-size")
+    if not records:
+        raise Problem(422, "the batch holds no rows", "validation", {"body": ["the batch holds no rows"]})
+    with current_app.extensions["calcsvc.db"].transaction() as session:
+        parsed = parse_rows(calc, records, PartResolver(session), blank_is_absent)
+    _results, ok_rows, outcome = evaluate(calc, parsed)
+    if (
+        CSV in request.accept_mimetypes.values()
+        and request.accept_mimetypes.best_match(["application/json", CSV]) == CSV
+    ):
+        return Response(csv_body(calc, parsed, ok_rows, outcome), mimetype=CSV)
+    body = {
+        "calculation": calc.name,
+        "version": calc.version,
+        "count": len(records),
+        "ok_count": int(ok_rows.size),
+        "check_details": {check.name: check.detail for check in outcome.checks},
+        "rows": json_rows(calc, parsed, ok_rows, outcome),
+    }
+    return Response(orjson.dumps(body), mimetype="application/json")
+
+
+def _batch_doc(calc: Calculation) -> dict[str, Any]:
+    schema_name = request_schema(calc).__name__
+    return {
+        "requestBody": {
+            "required": True,
+            "content": {
+                "application/json": {
+                    "schema": {
+                        "type": "array",
+                        "items": {"$ref": f"#/components/schemas/{schema_name.removesuffix('Schema')}"},
+                    }
+                },
+                CSV: {
+                    "schema": {"type": "string"},
+                    "example": "supply_v,led,leds_in_series,current_a\n12 V,led-red-5mm,3,20 mA\n",
+                },
+            },
+        },
+        "responses": {
+            "200": {
+                "description": "one entry per row, in order; a bad row has ok false and its problem",
+                "content": {
+                    "application/json": {"schema": {"type": "object"}},
+                    CSV: {"schema": {"type": "string"}},
+                },
+            }
+        },
+    }
+
+
+def _register(calc: Calculation) -> None:
+    class BatchView(MethodView):
+        @blp.doc(summary=f"{calc.name} over many rows", **_batch_doc(calc))
+        @error_response(blp, 413, "more rows than BATCH_MAX_ROWS")
+        @error_response(blp, 422, "the body is not an array of rows")
+        def post(self) -> Response:
+            return run_batch(calc)
+
+    BatchView.__name__ = f"Batch{calc.name.title().replace('-', '')}View"
+    blp.route(f"/{calc.name}", endpoint=calc.name)(BatchView)
+
+
+for _calc in FLAT_CALCULATIONS.values():
+    _register(_calc)

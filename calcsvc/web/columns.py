@@ -1,0 +1,219 @@
+"""Many rows of calculation inputs as typed columns, checked column by column.
+
+A batch is parsed without a per-row schema: each input becomes one numpy column, unit strings are
+converted once per distinct string, and every bad cell becomes an error on its own row, so one bad row
+never fails the batch. The checks mirror those the single-request schema applies.
+"""
+
+from __future__ import annotations
+
+import math
+import re
+from dataclasses import dataclass, field
+from typing import Any
+
+import numpy as np
+
+from calcsvc.units import UnitError, parse_quantity
+from calcsvc.web.calculations import Calculation, Columns, Input, Role
+from calcsvc.web.parts_api import PART_ID
+from calcsvc.web.problems import Problem
+from calcsvc.web.resolve import PartResolver, resolve
+
+_PART_ID = re.compile(PART_ID)
+
+
+@dataclass
+class RowErrors:
+    """Field errors per row number; a row with any error is not computed."""
+
+    by_row: dict[int, dict[str, list[str]]] = field(default_factory=dict)
+
+    def add(self, row: int, name: str, message: str) -> None:
+        self.by_row.setdefault(row, {}).setdefault(name, []).append(message)
+
+    def add_rows(self, rows: np.ndarray, name: str, message: str) -> None:
+        for row in np.flatnonzero(rows):
+            self.add(int(row), name, message)
+
+    def mask(self, n: int) -> np.ndarray:
+        bad = np.zeros(n, dtype=bool)
+        bad[list(self.by_row)] = True
+        return bad
+
+
+@dataclass
+class ParsedRows:
+    columns: Columns
+    present: dict[str, np.ndarray]  # which rows gave each input (explicitly or through a part)
+    parts: list[list[dict[str, Any]]]
+    warnings: list[list[str]]
+    errors: RowErrors
+
+
+def _number_column(spec: Input, raw: list[Any], errors: RowErrors, blank_is_absent: bool) -> np.ndarray:
+    if None not in raw and not any(type(v) is bool for v in raw):
+        try:
+            # Fast path: every cell a number or a bare numeric string ("" never converts), so a NaN here was
+            # written as NaN by the caller, which is an error, not "absent".
+            column = np.array(raw, dtype=np.float64)
+        except (TypeError, ValueError, OverflowError):
+            pass
+        else:
+            errors.add_rows(np.isnan(column), spec.name, "must be a finite number")
+            return column
+    cache: dict[str, float | str] = {}
+    column = np.full(len(raw), math.nan)
+    for row, value in enumerate(raw):
+        if value is None or (blank_is_absent and value == ""):
+            continue
+        if isinstance(value, bool):
+            errors.add(row, spec.name, "must be a number, not a boolean")
+        elif isinstance(value, int | float):
+            try:
+                column[row] = float(value)
+            except OverflowError:
+                errors.add(row, spec.name, "number is too large")
+            if math.isnan(column[row]):
+                errors.add(row, spec.name, "must be a finite number")
+        elif isinstance(value, str):
+            if value not in cache:
+                try:
+                    cache[value] = parse_quantity(value, spec.unit if not spec.integer else "dimensionless")
+                except UnitError as exc:
+                    cache[value] = str(exc)
+            parsed = cache[value]
+            if isinstance(parsed, str):
+                errors.add(row, spec.name, parsed)
+            else:
+                column[row] = parsed
+        else:
+            errors.add(row, spec.name, "must be a number or a string with a unit")
+    return column
+
+
+def _check_range(spec: Input, column: np.ndarray, errors: RowErrors) -> None:
+    given = ~np.isnan(column)
+    with np.errstate(invalid="ignore"):
+        errors.add_rows(given & ~np.isfinite(column), spec.name, "must be a finite number")
+        finite = given & np.isfinite(column)
+        if spec.minimum is not None:
+            low = column <= spec.minimum if spec.exclusive_minimum else column < spec.minimum
+            relation = "greater than" if spec.exclusive_minimum else "at least"
+            errors.add_rows(finite & low, spec.name, f"must be {relation} {spec.minimum:g}")
+        if spec.maximum is not None:
+            errors.add_rows(finite & (column > spec.maximum), spec.name, f"must be at most {spec.maximum:g}")
+        if spec.integer:
+            errors.add_rows(finite & (column != np.round(column)), spec.name, "must be a whole number")
+
+
+def parse_rows(
+    calc: Calculation, records: list[dict[str, Any]], resolver: PartResolver, blank_is_absent: bool = False
+) -> ParsedRows:
+    """Typed columns of every input, parts resolved once per distinct reference, errors per row."""
+    n = len(records)
+    errors = RowErrors()
+    allowed = {spec.name for spec in calc.inputs}
+    for role in calc.roles:
+        allowed |= {role.name, f"{role.name}_revision"}
+    if not all(isinstance(record, dict) for record in records):
+        for row, record in enumerate(records):
+            if not isinstance(record, dict):
+                errors.add(row, "row", "each row must be an object of input names and values")
+        records = [r if isinstance(r, dict) else {} for r in records]
+    # Inputs no row mentions are filled without visiting the rows; most batches use a few columns.
+    seen: set[str] = set().union(*records)
+    if not seen <= allowed:
+        for row, record in enumerate(records):
+            for name in record.keys() - allowed:
+                errors.add(row, name, "Unknown field.")
+
+    columns: Columns = {}
+    for spec in calc.inputs:
+        if spec.name not in seen:
+            columns[spec.name] = np.full(n, "", dtype=object) if spec.choices else np.full(n, math.nan)
+            continue
+        raw = [record.get(spec.name) for record in records]
+        if spec.choices:
+            values = np.array([("" if v is None else str(v)) for v in raw], dtype=object)
+            bad = np.array([v not in spec.choices and v not in ("", None) for v in raw])
+            errors.add_rows(bad, spec.name, f"Must be one of: {', '.join(spec.choices)}.")
+            columns[spec.name] = values
+        else:
+            column = _number_column(spec, raw, errors, blank_is_absent)
+            _check_range(spec, column, errors)
+            columns[spec.name] = column
+
+    parts: list[list[dict[str, Any]]] = [[] for _ in range(n)]
+    warnings: list[list[str]] = [[] for _ in range(n)]
+    for role in calc.roles:
+        if role.name in seen or f"{role.name}_revision" in seen:
+            _resolve_role(role, records, columns, parts, warnings, errors, resolver, blank_is_absent)
+
+    present = {
+        name: (column != "") if column.dtype == object else ~np.isnan(column) for name, column in columns.items()
+    }
+    for spec in calc.inputs:
+        missing = ~present[spec.name]
+        if spec.required:
+            errors.add_rows(missing, spec.name, f"required: give {spec.name} or reference a part that provides it")
+        elif spec.default is not None:
+            columns[spec.name][missing] = spec.default
+    for spec in calc.inputs:
+        if spec.choices:
+            columns[spec.name] = columns[spec.name].astype(str)
+    return ParsedRows(columns, present, parts, warnings, errors)
+
+
+def _resolve_role(
+    role: Role,
+    records: list[dict[str, Any]],
+    columns: Columns,
+    parts: list[list[dict[str, Any]]],
+    warnings: list[list[str]],
+    errors: RowErrors,
+    resolver: PartResolver,
+    blank_is_absent: bool,
+) -> None:
+    """Fill the inputs a part provides on the rows that name it, looking each distinct part up once."""
+    groups: dict[tuple[str, int | None], list[int]] = {}
+    for row, record in enumerate(records):
+        part_id = record.get(role.name)
+        revision = record.get(f"{role.name}_revision")
+        if blank_is_absent:
+            part_id = part_id or None
+            revision = revision or None
+        if part_id is None:
+            if revision is not None:
+                errors.add(row, f"{role.name}_revision", f"{role.name}_revision needs {role.name} (the part_id)")
+            continue
+        if not isinstance(part_id, str) or not _PART_ID.match(part_id):
+            errors.add(row, role.name, "must be a part_id")
+            continue
+        try:
+            revision = None if revision is None else int(revision)
+            if revision is not None and revision < 1:
+                raise ValueError
+        except (TypeError, ValueError):
+            errors.add(row, f"{role.name}_revision", "must be a whole number of at least 1")
+            continue
+        groups.setdefault((part_id, revision), []).append(row)
+    for (part_id, revision), rows in groups.items():
+        body: dict[str, Any] = {role.name: part_id, f"{role.name}_revision": revision}
+        try:
+            resolved = resolve((role,), body, resolver)
+        except Problem as problem:
+            for row in rows:
+                for name, messages in (problem.errors or {role.name: [problem.detail]}).items():
+                    for message in messages:
+                        errors.add(row, name, message)
+            continue
+        index = np.array(rows)
+        for _parameter, input_name in role.provides:
+            if input_name in resolved.values:
+                column = columns[input_name]
+                take = index[np.isnan(column[index])]
+                column[take] = float(resolved.values[input_name])
+        for row in rows:
+            parts[row].extend(resolved.parts)
+            warnings[row].extend(resolved.warnings)
