@@ -216,8 +216,7 @@ def compute(inputs: BjtSwitchInputs) -> Outcome:
             beta_actual,
             i.hfe_min,
             "max",
-            "The actual forced beta (Ic/Ib) must stay below the worst-case gain hfe_min so the transistor "
-            "saturates.",
+            "The actual forced beta (Ic/Ib) must stay below the worst-case gain hfe_min so the transistor saturates.",
         ),
         Check(
             "driver_current",

@@ -224,8 +224,7 @@ def _validate_sweep(inputs: ClosedLoopInputs, n: int) -> list[Violation]:
             v,
             sweeping,
             "sweep_points",
-            f"sweep_points must be from 2 to {MAX_SWEEP_POINTS} when sweep_start_hz and sweep_stop_hz "
-            "are given",
+            f"sweep_points must be from 2 to {MAX_SWEEP_POINTS} when sweep_start_hz and sweep_stop_hz are given",
         )
     elif not sweeping.any():
         require(
@@ -277,9 +276,7 @@ def compute(inputs: ClosedLoopInputs) -> Outcome:
     rise_time = RISE_TIME_CONSTANT / bandwidth
     cascade_rise_time = RISE_TIME_CONSTANT / cascade_bandwidth
 
-    gain_at_signal_db, phase_at_signal_deg = _stage_response(
-        inputs.signal_hz, closed_loop_gain, bandwidth, stages
-    )
+    gain_at_signal_db, phase_at_signal_deg = _stage_response(inputs.signal_hz, closed_loop_gain, bandwidth, stages)
 
     results: dict[str, np.ndarray] = {
         "noise_gain": noise_gain,
@@ -301,9 +298,7 @@ def compute(inputs: ClosedLoopInputs) -> Outcome:
         stop = np.where(sweeping, inputs.sweep_stop_hz, 10.0)
         freq = np.geomspace(start, stop, int(inputs.sweep_points), axis=1)
         freq[~sweeping] = np.nan
-        sweep_gain, sweep_phase = _stage_response(
-            freq, closed_loop_gain[:, None], bandwidth[:, None], stages[:, None]
-        )
+        sweep_gain, sweep_phase = _stage_response(freq, closed_loop_gain[:, None], bandwidth[:, None], stages[:, None])
         results["sweep_frequency_hz"] = freq
         results["sweep_gain_db"] = sweep_gain
         results["sweep_phase_deg"] = sweep_phase

@@ -77,9 +77,7 @@ _LOAD_FIELDS = ("load_row", "peak_current_a", "duty_cycle", "average_current_a",
 _ROW_FIELDS = ("supply_v", "current_max_a", "capacity_ah")
 
 
-def rectangular_load(
-    peak_current_a: npt.ArrayLike, duty_cycle: npt.ArrayLike
-) -> tuple[FloatArray, FloatArray]:
+def rectangular_load(peak_current_a: npt.ArrayLike, duty_cycle: npt.ArrayLike) -> tuple[FloatArray, FloatArray]:
     """Average and RMS current (A) of a rectangular pulse train: ``I·D`` and ``I·√D``.
 
     Inputs are assumed valid (``I ≥ 0``, ``0 ≤ D ≤ 1``); broadcasts.
@@ -231,9 +229,7 @@ def validate(inputs: DutyPowerInputs) -> list[Violation]:
         f"peak_current_a ({first_bad(peak, bad)} A) of load {_first_load(bad)} cannot be negative",
     )
     bad = ~np.isfinite(count)
-    require(
-        v, rows_of(bad), "count", f"count of load {_first_load(bad)} is required and must be a finite number"
-    )
+    require(v, rows_of(bad), "count", f"count of load {_first_load(bad)} is required and must be a finite number")
     bad = np.isfinite(count) & ((count != np.round(count)) | (count < 1))
     require(
         v,
@@ -319,9 +315,7 @@ def compute(inputs: DutyPowerInputs) -> Outcome:
     n = inputs.supply_v.shape[0]
     row = np.asarray(inputs.load_row).astype(np.intp)
     rectangular = ~np.isnan(inputs.duty_cycle)
-    rect_avg, rect_rms = rectangular_load(
-        inputs.peak_current_a, np.where(rectangular, inputs.duty_cycle, 0.0)
-    )
+    rect_avg, rect_rms = rectangular_load(inputs.peak_current_a, np.where(rectangular, inputs.duty_cycle, 0.0))
     load_avg = np.where(rectangular, rect_avg, inputs.average_current_a)
     load_rms = np.where(rectangular, rect_rms, inputs.rms_current_a)
     load_v = inputs.supply_v[row]
@@ -358,8 +352,7 @@ def compute(inputs: DutyPowerInputs) -> Outcome:
             average_current,
             rating,
             "max",
-            "average current of all loads must not exceed current_max_a; does not apply when the rating is "
-            "unknown",
+            "average current of all loads must not exceed current_max_a; does not apply when the rating is unknown",
         ),
         Check(
             "supply_peak_current",
@@ -387,9 +380,7 @@ def compute(inputs: DutyPowerInputs) -> Outcome:
     mask = capacity_known & ~(average_current > 0.0)
     if mask.any():
         warnings.append(
-            Notice(
-                mask, "the loads draw no average current, so runtime_h does not apply (it would be unbounded)"
-            )
+            Notice(mask, "the loads draw no average current, so runtime_h does not apply (it would be unbounded)")
         )
 
     cautions: list[Notice] = []

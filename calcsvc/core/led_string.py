@@ -195,9 +195,7 @@ def compute(inputs: LedStringInputs) -> Outcome:
     i = inputs
     n = i.supply_v.shape[0]
     vs, ts, nl = i.supply_v, i.supply_tolerance, i.leds_in_series
-    tr = np.where(
-        np.isnan(i.resistor_tolerance), eseries.default_tolerance_rows(i.e_series), i.resistor_tolerance
-    )
+    tr = np.where(np.isnan(i.resistor_tolerance), eseries.default_tolerance_rows(i.e_series), i.resistor_tolerance)
 
     v_r = vs - _string_drop(i)
     r_exact = v_r / i.current_a
@@ -205,9 +203,7 @@ def compute(inputs: LedStringInputs) -> Outcome:
     current = v_r / r
 
     v_r_low = vs * (1.0 - ts) - nl * i.vf_max_v - i.switch_drop_v
-    v_r_high = (
-        vs * (1.0 + ts) - nl * i.vf_min_v - i.switch_drop_v
-    )  # > 0: Vs > N·Vf_typ + Vsw ≥ N·Vf_min + Vsw
+    v_r_high = vs * (1.0 + ts) - nl * i.vf_min_v - i.switch_drop_v  # > 0: Vs > N·Vf_typ + Vsw ≥ N·Vf_min + Vsw
     r_low, r_high = r * (1.0 - tr), r * (1.0 + tr)
     current_min = np.maximum(v_r_low / r_high, 0.0)
     current_max = v_r_high / r_low
@@ -291,14 +287,12 @@ def compute(inputs: LedStringInputs) -> Outcome:
     add(
         cautions,
         i.if_max_a >= HIGH_POWER_LED_A,
-        "High-power LEDs: provide heat-sinking for the LEDs, and do not look into them at close range "
-        "(eye safety).",
+        "High-power LEDs: provide heat-sinking for the LEDs, and do not look into them at close range (eye safety).",
     )
     add(
         cautions,
         current_max > i.if_max_a,
-        "The worst-case current exceeds the LED's maximum forward current: the LEDs can overheat and fail "
-        "early.",
+        "The worst-case current exceeds the LED's maximum forward current: the LEDs can overheat and fail early.",
     )
     add(
         cautions,

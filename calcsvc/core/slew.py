@@ -69,9 +69,7 @@ def validate(inputs: SlewInputs) -> list[Violation]:
     v: list[Violation] = []
 
     sr = inputs.slew_rate_v_per_s
-    require(
-        v, ~np.isfinite(sr), "slew_rate_v_per_s", "slew_rate_v_per_s is required and must be a finite number"
-    )
+    require(v, ~np.isfinite(sr), "slew_rate_v_per_s", "slew_rate_v_per_s is required and must be a finite number")
     bad = np.isfinite(sr) & (sr <= 0.0)
     require(v, bad, "slew_rate_v_per_s", f"slew_rate_v_per_s ({first_bad(sr, bad)} V/s) must be above 0 V/s")
 
@@ -97,8 +95,7 @@ def validate(inputs: SlewInputs) -> list[Violation]:
         v,
         bad,
         "output_headroom_v",
-        f"output_headroom_v ({first_bad(headroom, bad)} V) cannot be negative: an output cannot swing past "
-        "its rails",
+        f"output_headroom_v ({first_bad(headroom, bad)} V) cannot be negative: an output cannot swing past its rails",
     )
 
     step = inputs.step_v
@@ -106,13 +103,7 @@ def validate(inputs: SlewInputs) -> list[Violation]:
     require(v, bad, "step_v", "step_v must not be 0 V when given (leave it out instead)")
 
     supply = inputs.supply_v
-    bad = (
-        np.isfinite(supply)
-        & (supply > 0.0)
-        & np.isfinite(headroom)
-        & (headroom >= 0.0)
-        & (supply <= 2.0 * headroom)
-    )
+    bad = np.isfinite(supply) & (supply > 0.0) & np.isfinite(headroom) & (headroom >= 0.0) & (supply <= 2.0 * headroom)
     require(
         v,
         bad,
