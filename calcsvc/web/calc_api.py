@@ -17,9 +17,9 @@ from marshmallow import Schema, ValidationError, fields, validate, validates_sch
 from calcsvc.core import duty_power
 from calcsvc.core.outcome import Outcome
 from calcsvc.web.calc_schemas import camel, request_schema, response_schema, role_fields
-from calcsvc.web.calculations import FLAT_CALCULATIONS, Calculation, Columns, Role
+from calcsvc.web.calculations import FLAT_CALCULATIONS, Calculation, Columns, Form, Role
 from calcsvc.web.envelope import envelope, plain, row_results
-from calcsvc.web.problems import Problem, error_response
+from calcsvc.web.problems import PROBLEM_MIMETYPE, Problem, error_response
 from calcsvc.web.quantity import Quantity
 from calcsvc.web.resolve import PartResolver, Resolved, resolve
 
@@ -39,7 +39,7 @@ def resolve_parts(roles: tuple[Role, ...], body: Mapping[str, Any]) -> Resolved:
         return resolve(roles, body, PartResolver(session))
 
 
-def complete(calc: Calculation, values: dict[str, Any]) -> dict[str, Any]:
+def complete(calc: Form, values: dict[str, Any]) -> dict[str, Any]:
     """Fill defaults; a required input neither given nor supplied by a part is a 422 naming it."""
     missing = {
         spec.name: [f"required: give {spec.name} or reference a part that provides it"]
@@ -56,7 +56,7 @@ def complete(calc: Calculation, values: dict[str, Any]) -> dict[str, Any]:
     return filled
 
 
-def columns_of(calc: Calculation, rows: list[dict[str, Any]]) -> Columns:
+def columns_of(calc: Form, rows: list[dict[str, Any]]) -> Columns:
     """Input columns for the core: floats with NaN for absent optional inputs, strings for choices."""
     columns: Columns = {}
     for spec in calc.inputs:
@@ -130,6 +130,17 @@ _TEXT_RESPONSES = {
 }
 
 
+def _cell_error(description: str) -> dict[str, Any]:
+    """An error of the query-string form: a problem document, or with pick= one line of text/plain."""
+    return {
+        "description": description,
+        "content": {
+            PROBLEM_MIMETYPE: {"schema": {"$ref": "#/components/schemas/Problem"}},
+            "text/plain": {"schema": {"type": "string"}, "example": "error: current_a: must be greater than 0 A"},
+        },
+    }
+
+
 def _register_flat(calc: Calculation) -> None:
     request = request_schema(calc)
     response = response_schema(calc.name, calc.results)
@@ -158,7 +169,10 @@ def _register_flat(calc: Calculation) -> None:
                         "application/json": {"schema": {"$ref": f"#/components/schemas/{camel(calc.name)}Response"}},
                         **_TEXT_RESPONSES,
                     },
-                }
+                },
+                "404": _cell_error("a referenced part does not exist"),
+                "422": _cell_error("the inputs are not valid or not physically possible"),
+                "default": _cell_error("any other error"),
             },
         )
         def get(self, args: dict[str, Any]) -> Any:

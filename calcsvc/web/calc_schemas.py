@@ -7,8 +7,8 @@ from typing import Any
 from marshmallow import Schema, fields, validate
 
 from calcsvc.data.kinds import KINDS
-from calcsvc.web.calculations import Calculation, Input, Role
-from calcsvc.web.parts_api import PART_ID
+from calcsvc.web.calculations import Form, Input, Role
+from calcsvc.web.parts_api import MAX_REVISION, PART_ID
 from calcsvc.web.quantity import Quantity
 
 
@@ -40,13 +40,13 @@ def role_fields(role: Role) -> dict[str, fields.Field]:
             metadata={"description": f"part_id of a {role.kind} part; supplies {given} unless given explicitly"},
         ),
         f"{role.name}_revision": fields.Integer(
-            validate=validate.Range(min=1),
+            validate=validate.Range(min=1, max=MAX_REVISION),
             metadata={"description": f"pin a revision of the {role.name} part (default: current)"},
         ),
     }
 
 
-def request_schema(calc: Calculation) -> type[Schema]:
+def request_schema(calc: Form) -> type[Schema]:
     attributes: dict[str, Any] = {spec.name: input_field(spec) for spec in calc.inputs}
     for role in calc.roles:
         attributes.update(role_fields(role))

@@ -47,12 +47,18 @@ class Role:
 
 
 @dataclass(frozen=True)
-class Calculation:
+class Form:
+    """The inputs of an endpoint and the part roles that may supply them."""
+
     name: str
     summary: str
     version: str
     inputs: tuple[Input, ...]
     roles: tuple[Role, ...]
+
+
+@dataclass(frozen=True)
+class Calculation(Form):
     results: tuple[tuple[str, str], ...]  # (name, description with unit)
     make_inputs: Callable[[Columns], Any]
     validate: Callable[[Any], list[Violation]]

@@ -1,0 +1,455 @@
+"""Whole-channel design review: drive pin → NPN low-side switch → LED strings → shared supply ("channel-review").
+
+Circuit
+    A logic pin (``drive_high_v``/``drive_low_v``, sourcing at most ``source_current_max_a``) drives an NPN
+    low-side switch through a base resistor Rb. The collector switches ``strings`` parallel strings of
+    ``leds_in_series`` LEDs, each string with its own series resistor, from a supply of ``supply_v``
+    (±``supply_tolerance``, rated ``current_max_a``). ``channels`` identical channels share that supply, each
+    PWM-switched at ``duty_cycle``. Optionally (per row: ``gbw_hz`` given) an op-amp front stage, powered
+    from the same supply, amplifies a sine of ``amplitude_v`` peak at ``signal_hz``.
+
+Chain (each step is an existing core calculation; this module only wires them together)
+    1. ``led_string`` with the transistor's ``vce_sat_v`` as the switch drop: string resistor, nominal and
+       worst-case string current. Nominal collector current Ic = strings × nominal string current;
+       worst-case Ic_max = strings × worst-case maximum string current.
+    2. ``bjt_switch`` with collector current **Ic_max**: base resistor, saturation, pin current, ratings.
+       The base is sized for the worst-case maximum collector current, not the nominal one: the base
+       resistor's job is to guarantee saturation, and a base sized for the nominal current runs short of
+       drive exactly when the LED current is highest (high supply, low Vf, low resistor), which is also when
+       a transistor dropping out of saturation would dissipate most. The price is a little more pin current
+       (in the greenhouse demo 5.3 mA instead of 4.0 mA), which the ``driver_current`` check verifies.
+       Consequently the switch's ``collector_current_rating`` and ``power_rating`` checks use Ic_max too.
+    3. ``duty_power`` with one rectangular load per row: ``channels`` units of peak current Ic (nominal) at
+       ``duty_cycle``: average and peak supply current, utilization, and ``max_duty_cycle``, the largest
+       duty cycle all channels can share within ``current_max_a``. (The tolerance analysis in
+       ``calcsvc.core.tolerance`` checks the supply at the worst-case current.)
+    4. Front stage, where given: ``closed_loop`` (one stage; ``signal_in_band``, ``gain_achievable``) and
+       ``slew`` for a sine at ``signal_hz`` and ``amplitude_v`` with the supply as the output's rail span
+       (``slew_rate``, ``output_swing``).
+
+Assumptions
+    Those of the four calculations; no base-emitter pull-down; the base current comes from the logic supply,
+    not from ``supply_v``; the LED supply feeds nothing but the channels. Units: SI (V, A, Ω, W, Hz, V/s).
+"""
+
+from __future__ import annotations
+
+import re
+from dataclasses import dataclass
+
+import numpy as np
+
+from calcsvc.core import bjt_switch, closed_loop, duty_power, eseries, led_string, slew
+from calcsvc.core.outcome import (
+    BoolArray,
+    Check,
+    FloatArray,
+    Notice,
+    Outcome,
+    Violation,
+    first_bad,
+    raise_violations,
+    require,
+    row_count,
+    take,
+)
+
+NAME = "channel-review"
+VERSION = "1"
+
+# Front-stage inputs besides gbw_hz, whose presence (non-NaN) marks a row as having a front stage.
+FRONT_STAGE_FIELDS = ("gain", "open_loop_gain", "slew_rate_v_per_s", "output_headroom_v", "signal_hz", "amplitude_v")
+
+
+@dataclass(frozen=True)
+class ChannelInputs:
+    """Per-row inputs, arrays of shape ``(n,)``; field names are the flat JSON input names.
+
+    NaN marks an optional value as not given: ``capacity_ah``, ``source_current_max_a`` (pin rating unknown:
+    ``driver_current`` does not apply), ``resistor_tolerance`` (the series' default, for both resistors),
+    and the front stage (NaN ``gbw_hz``: no front stage on that row; then every other front-stage field must
+    be NaN too). With a front stage, ``gain`` (magnitude, V/V) and ``slew_rate_v_per_s`` are required and
+    ``signal_hz`` or ``amplitude_v`` (peak) must be given; ``open_loop_gain`` and ``output_headroom_v`` stay
+    optional. ``leds_in_series``, ``strings`` and ``channels`` hold whole numbers as floats; ``e_series`` is
+    a numpy str array, ``inverting`` a bool array.
+    """
+
+    supply_v: FloatArray
+    supply_tolerance: FloatArray
+    current_max_a: FloatArray
+    capacity_ah: FloatArray
+    drive_high_v: FloatArray
+    drive_low_v: FloatArray
+    source_current_max_a: FloatArray
+    hfe_min: FloatArray
+    hfe_typ: FloatArray
+    vbe_sat_v: FloatArray
+    vce_sat_v: FloatArray
+    ic_max_a: FloatArray
+    power_max_w: FloatArray
+    vf_typ_v: FloatArray
+    vf_min_v: FloatArray
+    vf_max_v: FloatArray
+    if_max_a: FloatArray
+    leds_in_series: FloatArray
+    strings: FloatArray
+    current_a: FloatArray
+    duty_cycle: FloatArray
+    channels: FloatArray
+    e_series: np.ndarray
+    forced_beta: FloatArray
+    resistor_tolerance: FloatArray
+    inverting: BoolArray
+    gain: FloatArray
+    gbw_hz: FloatArray
+    open_loop_gain: FloatArray
+    slew_rate_v_per_s: FloatArray
+    output_headroom_v: FloatArray
+    signal_hz: FloatArray
+    amplitude_v: FloatArray
+
+
+@dataclass(frozen=True)
+class ChannelReview:
+    """Nominal review of every row. Sections are the underlying calculations' outcomes; ``front_stage``
+    merges the closed-loop and slew outcomes and holds NaN results (checks ok, not applicable) on rows
+    without a front stage. ``checks`` lists every section's checks in chain order; names are unique."""
+
+    led_string: Outcome
+    switch: Outcome
+    supply: Outcome
+    front_stage: Outcome
+    has_front_stage: BoolArray
+    collector_current_a: FloatArray  # nominal: strings × nominal string current
+    collector_current_max_a: FloatArray  # worst case; the base resistor is sized for this
+    max_duty_cycle: FloatArray
+    checks: list[Check]
+    ok: BoolArray  # every check passes
+    warnings: list[Notice]
+    cautions: list[Notice]
+
+    def check(self, name: str) -> Check:
+        return next(c for c in self.checks if c.name == name)
+
+    def failing(self) -> list[list[str]]:
+        """Names of the failing checks, per row."""
+        return failing_names(self.checks)
+
+
+def failing_names(checks: list[Check]) -> list[list[str]]:
+    """Per row, the names of the checks in ``checks`` that fail there."""
+    if not checks:
+        return []
+    failed = ~np.stack([c.ok for c in checks], axis=1)
+    names = [c.name for c in checks]
+    return [[names[j] for j in np.flatnonzero(row)] for row in failed]
+
+
+# ---- the stages' inputs ----------------------------------------------------------------------------------
+
+
+def resistor_tolerance(inputs: ChannelInputs) -> FloatArray:
+    """The tolerance of both resistors per row: as given, or the series' default."""
+    return np.where(
+        np.isnan(inputs.resistor_tolerance),
+        eseries.default_tolerance_rows(inputs.e_series),
+        inputs.resistor_tolerance,
+    )
+
+
+def led_inputs(i: ChannelInputs) -> led_string.LedStringInputs:
+    return led_string.LedStringInputs(
+        supply_v=i.supply_v,
+        supply_tolerance=i.supply_tolerance,
+        vf_typ_v=i.vf_typ_v,
+        vf_min_v=i.vf_min_v,
+        vf_max_v=i.vf_max_v,
+        if_max_a=i.if_max_a,
+        leds_in_series=i.leds_in_series,
+        strings=i.strings,
+        current_a=i.current_a,
+        switch_drop_v=i.vce_sat_v,
+        e_series=i.e_series,
+        resistor_tolerance=i.resistor_tolerance,
+    )
+
+
+def switch_inputs(i: ChannelInputs, collector_current_a: FloatArray) -> bjt_switch.BjtSwitchInputs:
+    return bjt_switch.BjtSwitchInputs(
+        hfe_min=i.hfe_min,
+        vbe_sat_v=i.vbe_sat_v,
+        vce_sat_v=i.vce_sat_v,
+        ic_max_a=i.ic_max_a,
+        power_max_w=i.power_max_w,
+        collector_current_a=collector_current_a,
+        drive_high_v=i.drive_high_v,
+        drive_low_v=i.drive_low_v,
+        forced_beta=i.forced_beta,
+        e_series=i.e_series,
+        rbe_ohm=np.full(i.supply_v.shape, np.nan),
+        driver_current_max_a=i.source_current_max_a,
+        duty_cycle=i.duty_cycle,
+    )
+
+
+def supply_inputs(i: ChannelInputs, collector_current_a: FloatArray) -> duty_power.DutyPowerInputs:
+    n = i.supply_v.shape[0]
+    nan = np.full(n, np.nan)
+    return duty_power.DutyPowerInputs(
+        supply_v=i.supply_v,
+        current_max_a=i.current_max_a,
+        capacity_ah=i.capacity_ah,
+        load_row=np.arange(n, dtype=np.int64),
+        peak_current_a=collector_current_a,
+        duty_cycle=i.duty_cycle,
+        average_current_a=nan,
+        rms_current_a=nan,
+        count=i.channels,
+    )
+
+
+def closed_loop_inputs(i: ChannelInputs) -> closed_loop.ClosedLoopInputs:
+    n = i.supply_v.shape[0]
+    nan = np.full(n, np.nan)
+    return closed_loop.ClosedLoopInputs(
+        inverting=np.asarray(i.inverting, dtype=bool),
+        gain=i.gain,
+        rf_ohm=nan,
+        rg_ohm=nan,
+        gbw_hz=i.gbw_hz,
+        open_loop_gain=i.open_loop_gain,
+        stages=np.ones(n),
+        signal_hz=i.signal_hz,
+        sweep_start_hz=nan,
+        sweep_stop_hz=nan,
+    )
+
+
+def slew_inputs(i: ChannelInputs, supply_v: FloatArray) -> slew.SlewInputs:
+    """The front stage's output for a sine at ``signal_hz``; ``supply_v`` is its rail span."""
+    return slew.SlewInputs(
+        slew_rate_v_per_s=i.slew_rate_v_per_s,
+        output_headroom_v=i.output_headroom_v,
+        frequency_hz=i.signal_hz,
+        amplitude_v=i.amplitude_v,
+        triangle=np.zeros(supply_v.shape, dtype=bool),
+        supply_v=supply_v,
+        step_v=np.full(supply_v.shape, np.nan),
+    )
+
+
+def has_front_stage(inputs: ChannelInputs) -> BoolArray:
+    return ~np.isnan(inputs.gbw_hz)
+
+
+# ---- validation ------------------------------------------------------------------------------------------
+
+
+class _Collector:
+    """Violations under the flat input names, at most one message per field and row: several stages check
+    the same input (e.g. supply_v, e_series), and the first stage to object speaks for it."""
+
+    def __init__(self, n: int) -> None:
+        self.n = n
+        self.found: list[Violation] = []
+        self.seen: dict[str, BoolArray] = {}
+
+    def add(self, violation: Violation) -> None:
+        seen = self.seen.setdefault(violation.field, np.zeros(self.n, dtype=bool))
+        fresh = violation.rows & ~seen
+        if fresh.any():
+            self.found.append(Violation(violation.field, violation.message, fresh))
+            seen |= fresh
+
+    def stage(
+        self,
+        violations: list[Violation],
+        fields: dict[str, str] | None = None,
+        words: dict[str, str] | None = None,
+        subset: BoolArray | None = None,
+    ) -> None:
+        """Add a stage's violations: ``fields`` renames fields, ``words`` rewrites names in messages, and
+        ``subset`` maps rows of a stage run on some rows only back to all rows."""
+        for v in violations:
+            message = v.message
+            for old, new in (words or {}).items():
+                message = re.sub(rf"\b{old}\b", new, message)
+            rows = v.rows
+            if subset is not None:
+                rows = np.zeros(self.n, dtype=bool)
+                rows[subset] = v.rows
+            self.add(Violation((fields or {}).get(v.field, v.field), message, rows))
+
+
+def _rows_of(violations: list[Violation], n: int) -> BoolArray:
+    bad = np.zeros(n, dtype=bool)
+    for v in violations:
+        bad |= v.rows
+    return bad
+
+
+def _own_violations(i: ChannelInputs) -> list[Violation]:
+    """Preconditions on inputs that no stage calculation checks (or checks under another name)."""
+    v: list[Violation] = []
+    with np.errstate(invalid="ignore"):
+        for name in ("hfe_typ", "channels", "current_max_a"):
+            x = getattr(i, name)
+            bad = ~np.isfinite(x)
+            require(v, bad, name, f"{name} is required and must be a finite number (got {first_bad(x, bad)})")
+        bad = i.hfe_typ < i.hfe_min
+        if bad.any():
+            k = int(np.argmax(bad))
+            require(
+                v,
+                bad,
+                "hfe_typ",
+                f"hfe_typ ({i.hfe_typ[k]:g}) must not be below hfe_min ({i.hfe_min[k]:g})",
+            )
+        bad = np.isfinite(i.channels) & ((i.channels < 1) | (i.channels != np.floor(i.channels)))
+        require(v, bad, "channels", f"channels ({first_bad(i.channels, bad)}) must be a whole number of at least 1")
+        bad = i.current_max_a <= 0
+        require(v, bad, "current_max_a", f"current_max_a ({first_bad(i.current_max_a, bad)} A) must be positive")
+
+        front = has_front_stage(i)
+        stray = np.zeros(front.shape, dtype=bool)
+        for name in FRONT_STAGE_FIELDS:
+            stray |= ~np.isnan(getattr(i, name)) & ~front
+        require(
+            v,
+            stray,
+            "gbw_hz",
+            "gbw_hz is required for a front stage: give it, or leave out every front-stage value "
+            f"({', '.join(FRONT_STAGE_FIELDS)})",
+        )
+        require(v, front & np.isnan(i.gain), "gain", "gain is required for a front stage (give the magnitude, V/V)")
+    return v
+
+
+def validate(inputs: ChannelInputs) -> list[Violation]:
+    """Every physical precondition of every stage, per row, under the flat input names; never raises."""
+    i = inputs
+    n = row_count(i)
+    found = _Collector(n)
+    found.stage(_own_violations(i))
+
+    led_in = led_inputs(i)
+    drop = {"switch_drop_v": "vce_sat_v"}
+    led_found = led_string.validate(led_in)
+    found.stage(led_found, drop, drop)
+    led_ok = ~_rows_of(led_found, n)
+    if led_found and led_ok.any():
+        # The resistor-range rule runs only when nothing else is wrong: run it on the clean rows.
+        extra = led_string.validate(take(led_in, led_ok))
+        found.stage(extra, drop, drop, subset=led_ok)
+        led_ok[led_ok] = ~_rows_of(extra, int(led_ok.sum()))
+
+    # The switch and supply stages need the LED stage's currents; rows it rejects get a harmless 1 A.
+    ic_nominal, ic_max = np.ones(n), np.ones(n)
+    if led_ok.any():
+        out = led_string.compute(take(led_in, led_ok))
+        ic_nominal[led_ok] = out.results["total_current_a"]
+        ic_max[led_ok] = i.strings[led_ok] * out.results["current_max_a"]
+    switch_found = bjt_switch.validate(switch_inputs(i, ic_max))
+    for v in switch_found:
+        if v.field == "collector_current_a":  # derived from current_a; meaningless where that was replaced
+            v = Violation(v.field, v.message, v.rows & led_ok)
+        found.stage(
+            [v],
+            {"collector_current_a": "current_a", "driver_current_max_a": "source_current_max_a"},
+            {"collector_current_a": "collector current", "driver_current_max_a": "source_current_max_a"},
+        )
+    found.stage(
+        duty_power.validate(supply_inputs(i, ic_nominal)),
+        {"count": "channels", "peak_current_a": "current_a"},
+        {"count": "channels"},
+    )
+
+    front = has_front_stage(i)
+    if front.any():
+        found.stage(closed_loop.validate(take(closed_loop_inputs(i), front)), subset=front)
+        found.stage(
+            slew.validate(take(slew_inputs(i, i.supply_v), front)),
+            {"frequency_hz": "signal_hz"},
+            {"frequency_hz": "signal_hz"},
+            subset=front,
+        )
+    return found.found
+
+
+# ---- review ----------------------------------------------------------------------------------------------
+
+
+def _expand(outcome: Outcome, mask: BoolArray) -> Outcome:
+    """An outcome computed on the rows in ``mask``, spread over all rows: NaN (or False) results, and
+    checks that pass without a value or limit (do not apply), elsewhere."""
+    n = mask.shape[0]
+
+    def spread(x: np.ndarray, fill: float | bool) -> np.ndarray:
+        out = np.full((n, *x.shape[1:]), fill, dtype=x.dtype)
+        out[mask] = x
+        return out
+
+    def fill_for(x: np.ndarray) -> float | bool:
+        return False if x.dtype == np.bool_ else np.nan
+
+    def notices(items: list[Notice]) -> list[Notice]:
+        return [Notice(spread(note.rows, False), note.message) for note in items]
+
+    return Outcome(
+        results={k: spread(x, fill_for(x)) for k, x in outcome.results.items()},
+        checks=[
+            Check(c.name, spread(c.ok, True), spread(c.value, np.nan), spread(c.limit, np.nan), c.sense, c.detail)
+            for c in outcome.checks
+        ],
+        warnings=notices(outcome.warnings),
+        cautions=notices(outcome.cautions),
+    )
+
+
+def front_stage(inputs: ChannelInputs) -> Outcome:
+    """Closed-loop and slew outcomes of the rows with a front stage, merged and spread over all rows."""
+    front = has_front_stage(inputs)
+    bandwidth = closed_loop.compute(take(closed_loop_inputs(inputs), front))
+    swing = slew.compute(take(slew_inputs(inputs, inputs.supply_v), front))
+    merged = Outcome(
+        results={**bandwidth.results, **swing.results},
+        checks=bandwidth.checks + swing.checks,
+        warnings=bandwidth.warnings + swing.warnings,
+        cautions=bandwidth.cautions + swing.cautions,
+    )
+    return _expand(merged, front)
+
+
+def review(inputs: ChannelInputs) -> ChannelReview:
+    """Review every row's channel at nominal values (chain: module docstring).
+
+    Raises DomainError when any row violates ``validate``.
+    """
+    raise_violations(validate(inputs))
+    i = inputs
+    led = led_string.compute(led_inputs(i))
+    ic_nominal = led.results["total_current_a"]
+    ic_max = i.strings * led.results["current_max_a"]
+    switch = bjt_switch.compute(switch_inputs(i, ic_max))
+    supply = duty_power.compute(supply_inputs(i, ic_nominal))
+    front = front_stage(i)
+
+    sections = (led, switch, supply, front)
+    checks = [c for s in sections for c in s.checks]
+    ok = np.ones(i.supply_v.shape[0], dtype=bool)
+    for c in checks:
+        ok &= c.ok
+    return ChannelReview(
+        led_string=led,
+        switch=switch,
+        supply=supply,
+        front_stage=front,
+        has_front_stage=has_front_stage(i),
+        collector_current_a=ic_nominal,
+        collector_current_max_a=ic_max,
+        max_duty_cycle=supply.results["max_common_duty_cycle"],
+        checks=checks,
+        ok=ok,
+        warnings=[note for s in sections for note in s.warnings],
+        cautions=[note for s in sections for note in s.cautions],
+    )

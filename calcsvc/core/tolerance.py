@@ -1,0 +1,439 @@
+"""Tolerance analysis of a reviewed LED channel: worst case over tolerance corners, and Monte Carlo yield.
+
+The resistors are chosen once, at nominal values, by ``channel.review``; a built channel then has actual
+values within the tolerances, and every check is re-evaluated with the chosen resistors held fixed:
+
+    string current  I  = max(Vs − ΣVf − Vce_sat, 0) / R_led       (the string stays dark below its drop)
+    collector       Ic = Σ over strings of I                     (the switch saturated)
+    base current    Ib = (V_drive − Vbe_sat) / Rb                (no base-emitter pull-down)
+    saturation      Ic/Ib < hfe                                  (the actual gain, not hfe_min)
+    transistor      P  = (Vce_sat·Ic + Vbe_sat·Ib)·D;  supply: channels·Ic peak, channels·Ic·D average
+
+and the LED-stage rules per string: I ≤ if_max (``led_current_rating``), Vs − ΣVf − Vce_sat ≥ 10 % of Vs
+(``headroom``), 2·I²·R_led within the largest standard rating (``resistor_rating``); the front stage's
+``output_swing`` with Vs as its rail span. Checks that depend on no toleranced value keep their nominal
+result. ``DEPENDS_ON`` lists what each check depends on.
+
+Toleranced quantities
+    supply ±supply_tolerance; LED forward voltage within [vf_min_v, vf_max_v]; both resistors
+    ±resistor_tolerance (NaN: the series' default); transistor gain between hfe_min and
+    hfe_max = hfe_typ + (hfe_typ − hfe_min), the same spread above typical as below (datasheets rarely give
+    a maximum). Drive and saturation voltages are taken as the worst-case constants given.
+
+Worst case
+    Every check's margin is monotonic in each toleranced quantity, so its extreme over the tolerance box
+    lies at one of the 32 corners (supply × Vf × LED resistor × base resistor × hfe, each at either end),
+    with every string at the same corner. All rows × corners are evaluated in one pass; per check the
+    corner of least margin is reported (ties: the first corner in ``CORNERS`` order, low/min before
+    high/max), with the settings of the quantities that check depends on.
+
+Monte Carlo
+    ``np.random.default_rng(seed)`` draws, per sample: the supply uniform within its tolerance; every LED's
+    forward voltage independently uniform in [vf_min_v, vf_max_v] (each string's drop is the sum of its own
+    LEDs' draws — more realistic than one draw per string, whose spread would be √N times too wide); each
+    string's resistor and the base resistor independently uniform within their tolerance; the gain
+    log-uniform between hfe_min and hfe_max (gain spreads are multiplicative). The other channels on the
+    supply are taken as copies of the sampled one, which overstates the spread of the total supply current
+    (conservative). Each sample stays inside the corners' box, so a design that passes the worst case
+    yields exactly 1. The passing fraction carries a Wilson score interval (Wilson 1927).
+    Samples are drawn in chunks of about a million LED draws, so the same seed, inputs and sample count
+    always give the same result.
+"""
+
+from __future__ import annotations
+
+import dataclasses
+import itertools
+from dataclasses import dataclass
+
+import numpy as np
+import numpy.typing as npt
+
+from calcsvc.core import duty_power, led_string, slew
+from calcsvc.core.channel import (
+    ChannelInputs,
+    ChannelReview,
+    failing_names,
+    has_front_stage,
+    resistor_tolerance,
+    review,
+    slew_inputs,
+    validate,
+)
+from calcsvc.core.outcome import (
+    BoolArray,
+    Check,
+    FloatArray,
+    Violation,
+    raise_violations,
+    require,
+    row_count,
+    take,
+)
+
+IntArray = npt.NDArray[np.intp]
+
+QUANTITIES = ("supply", "vf", "led_resistor", "base_resistor", "hfe")
+SETTINGS: dict[str, tuple[str, str]] = {
+    "supply": ("low", "high"),
+    "vf": ("min", "max"),
+    "led_resistor": ("low", "high"),
+    "base_resistor": ("low", "high"),
+    "hfe": ("min", "max"),
+}
+CORNERS: tuple[dict[str, str], ...] = tuple(
+    dict(zip(QUANTITIES, combo, strict=True)) for combo in itertools.product(*(SETTINGS[q] for q in QUANTITIES))
+)
+# Per quantity, +1 where a corner takes its upper setting and −1 where it takes its lower one.
+_SIGN = {q: np.array([1.0 if c[q] == SETTINGS[q][1] else -1.0 for c in CORNERS]) for q in QUANTITIES}
+
+_LED = ("supply", "vf", "led_resistor")
+DEPENDS_ON: dict[str, tuple[str, ...]] = {
+    "led_current_rating": _LED,
+    "headroom": ("supply", "vf"),
+    "resistor_rating": _LED,
+    "saturation": QUANTITIES,
+    "driver_current": ("base_resistor",),
+    "collector_current_rating": _LED,
+    "power_rating": (*_LED, "base_resistor"),
+    "off_state": (),
+    "supply_average_current": _LED,
+    "supply_peak_current": _LED,
+    "gain_achievable": (),
+    "signal_in_band": (),
+    "slew_rate": (),
+    "output_swing": ("supply",),
+}
+"""The toleranced quantities each check depends on; checks depending on none keep their nominal result."""
+
+Z_95 = 1.959963984540054  # standard normal quantile for a two-sided 95 % interval
+DEFAULT_SAMPLES = 10_000
+MAX_SAMPLES = 1_000_000
+MAX_LED_DRAWS = 100_000_000  # samples × strings × leds_in_series: bounds the run time (≈2 s measured at the cap)
+_CHUNK_DRAWS = 1 << 20  # LED draws per chunk: bounds memory
+
+
+def hfe_max(inputs: ChannelInputs) -> FloatArray:
+    """The highest gain considered: as far above hfe_typ as hfe_min is below it."""
+    return inputs.hfe_typ + (inputs.hfe_typ - inputs.hfe_min)
+
+
+def wilson_interval(successes: npt.ArrayLike, trials: npt.ArrayLike, z: float = Z_95) -> tuple[FloatArray, FloatArray]:
+    """Wilson score interval for a binomial proportion (E. B. Wilson, JASA 22, 1927), without continuity
+    correction; broadcasts. The exact interval always contains successes/trials; the bounds are kept there
+    against rounding at 0 and 1."""
+    k = np.asarray(successes, dtype=np.float64)
+    n = np.asarray(trials, dtype=np.float64)
+    p = k / n
+    z2n = z * z / n
+    centre = (p + z2n / 2.0) / (1.0 + z2n)
+    half = z / (1.0 + z2n) * np.sqrt(p * (1.0 - p) / n + z2n / (4.0 * n))
+    return np.clip(np.minimum(centre - half, p), 0.0, 1.0), np.clip(np.maximum(centre + half, p), 0.0, 1.0)
+
+
+# ---- evaluation with the chosen resistors held fixed -----------------------------------------------------
+
+
+@dataclass(frozen=True)
+class _Point:
+    """Actual values at k points (corners or samples) of each of n rows: ``(n, k)``; per string ``(n, k, s)``
+    where s is 1 when every string is alike (corners) or the row's number of strings (samples)."""
+
+    supply_levels_v: FloatArray  # (n, m): the distinct supply voltages
+    supply_index: IntArray  # (k,): which level each point takes
+    string_vf_v: FloatArray  # sum of the string's forward voltages
+    led_resistor_ohm: FloatArray
+    base_resistor_ohm: FloatArray
+    hfe: FloatArray
+
+    @property
+    def supply_v(self) -> FloatArray:
+        return self.supply_levels_v[:, self.supply_index]
+
+
+def _col(x: np.ndarray) -> np.ndarray:
+    return x[:, None]
+
+
+def _evaluate(inputs: ChannelInputs, nominal: ChannelReview, at: _Point) -> list[Check]:
+    """Every check of ``nominal`` at the given points, shapes ``(n, k)``, in the review's order."""
+    i = inputs
+    shape = at.supply_v.shape
+    per_string = _col(_col(i.vce_sat_v))
+    v_r = at.supply_v[..., None] - at.string_vf_v - per_string
+    current = np.maximum(v_r, 0.0) / at.led_resistor_ohm
+    # Each of the s evaluated strings stands for strings/s real ones.
+    ic = _col(i.strings / at.string_vf_v.shape[-1]) * current.sum(axis=-1)
+    ib = _col(i.drive_high_v - i.vbe_sat_v) / at.base_resistor_ohm
+    beta = ic / ib
+    duty = _col(i.duty_cycle)
+    power = (_col(i.vce_sat_v) * ic + _col(i.vbe_sat_v) * ib) * duty
+    channel_average, _ = duty_power.rectangular_load(ic, duty)
+    supply_average = _col(i.channels) * channel_average
+    supply_peak = _col(i.channels) * ic
+
+    def full(x: np.ndarray) -> FloatArray:
+        return np.broadcast_to(np.asarray(x, dtype=np.float64), shape)
+
+    worst_current = current.max(axis=-1)
+    headroom = v_r.min(axis=-1)
+    headroom_limit = led_string.HEADROOM_FRACTION * at.supply_v
+    resistor_need = led_string.DERATING_FACTOR * (current**2 * at.led_resistor_ohm).max(axis=-1)
+    max_rating = led_string.POWER_RATINGS_W[-1]
+    rating = {
+        "if_max_a": full(_col(i.if_max_a)),
+        "hfe": full(at.hfe),
+        "source": full(_col(i.source_current_max_a)),
+        "ic_max": full(_col(i.ic_max_a)),
+        "power_max": full(_col(i.power_max_w)),
+        "supply": full(_col(i.current_max_a)),
+    }
+    varying: dict[str, tuple[np.ndarray, np.ndarray, np.ndarray]] = {  # value, limit, ok
+        "led_current_rating": (worst_current, rating["if_max_a"], worst_current <= rating["if_max_a"]),
+        "headroom": (headroom, headroom_limit, headroom >= headroom_limit),
+        "resistor_rating": (resistor_need, full(max_rating), resistor_need <= max_rating),
+        "saturation": (beta, rating["hfe"], beta < rating["hfe"]),
+        "driver_current": (full(ib), rating["source"], ~(ib > rating["source"])),
+        "collector_current_rating": (ic, rating["ic_max"], ic <= rating["ic_max"]),
+        "power_rating": (power, rating["power_max"], power <= rating["power_max"]),
+        "supply_average_current": (supply_average, rating["supply"], ~(supply_average > rating["supply"])),
+        "supply_peak_current": (supply_peak, rating["supply"], ~(supply_peak > rating["supply"])),
+        "output_swing": tuple(x[:, at.supply_index] for x in _output_swing(inputs, nominal, at.supply_levels_v)),
+    }
+    checks = []
+    for c in nominal.checks:
+        if DEPENDS_ON[c.name]:
+            value, limit, ok = varying[c.name]
+            checks.append(Check(c.name, np.broadcast_to(ok, shape), full(value), full(limit), c.sense, c.detail))
+        else:
+            checks.append(
+                Check(
+                    c.name,
+                    np.broadcast_to(_col(c.ok), shape),
+                    full(_col(c.value)),
+                    full(_col(c.limit)),
+                    c.sense,
+                    c.detail,
+                )
+            )
+    return checks
+
+
+def _output_swing(
+    inputs: ChannelInputs, nominal: ChannelReview, supply_v: FloatArray
+) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """The front stage's output-swing check with ``supply_v`` (n, m) as its rail span (slew calculation)."""
+    nominal_check = nominal.check("output_swing")
+    value = np.broadcast_to(_col(nominal_check.value), supply_v.shape).copy()
+    limit = np.full(supply_v.shape, np.nan)
+    ok = np.ones(supply_v.shape, dtype=bool)
+    front = has_front_stage(inputs)
+    if front.any():
+        k = supply_v.shape[1]
+        stage = take(slew_inputs(take(inputs, front), inputs.supply_v[front]), np.repeat(np.arange(front.sum()), k))
+        swing = slew.compute(dataclasses.replace(stage, supply_v=supply_v[front].ravel()))
+        check = next(c for c in swing.checks if c.name == "output_swing")
+        value[front] = check.value.reshape(-1, k)
+        limit[front] = check.limit.reshape(-1, k)
+        ok[front] = check.ok.reshape(-1, k)
+    return value, limit, ok
+
+
+# ---- worst case ------------------------------------------------------------------------------------------
+
+
+@dataclass(frozen=True)
+class WorstCheck:
+    """One check at its worst corner, per row. ``check`` holds the value and limit there; ``check.ok`` is
+    True where the check passes at every corner. ``corner_index`` indexes ``CORNERS``."""
+
+    check: Check
+    corner_index: IntArray
+    depends_on: tuple[str, ...]
+
+    @property
+    def name(self) -> str:
+        return self.check.name
+
+    def margin(self) -> FloatArray:
+        return self.check.margin()
+
+    def corner(self, row: int) -> dict[str, str]:
+        """The settings, at the worst corner of ``row``, of the quantities this check depends on."""
+        settings = CORNERS[int(self.corner_index[row])]
+        return {q: settings[q] for q in self.depends_on}
+
+
+@dataclass(frozen=True)
+class WorstCase:
+    nominal: ChannelReview  # the design whose resistors were chosen and held fixed
+    checks: list[WorstCheck]  # in the review's check order
+    ok: BoolArray  # every check passes at every corner
+
+    def check(self, name: str) -> WorstCheck:
+        return next(c for c in self.checks if c.name == name)
+
+    def failing(self) -> list[list[str]]:
+        """Names of the checks failing at some corner, per row."""
+        return failing_names([c.check for c in self.checks])
+
+
+def _corners(inputs: ChannelInputs, nominal: ChannelReview) -> _Point:
+    i = inputs
+    tol = _col(resistor_tolerance(i))
+    vf = np.where(_SIGN["vf"] > 0, _col(i.vf_max_v), _col(i.vf_min_v))
+    return _Point(
+        supply_levels_v=_col(i.supply_v) * (1.0 + _col(i.supply_tolerance) * np.array([-1.0, 1.0])),
+        supply_index=(_SIGN["supply"] > 0).astype(np.intp),
+        string_vf_v=(_col(i.leds_in_series) * vf)[..., None],
+        led_resistor_ohm=(_col(nominal.led_string.results["resistor_ohm"]) * (1.0 + tol * _SIGN["led_resistor"]))[
+            ..., None
+        ],
+        base_resistor_ohm=_col(nominal.switch.results["rb_ohm"]) * (1.0 + tol * _SIGN["base_resistor"]),
+        hfe=np.where(_SIGN["hfe"] > 0, _col(hfe_max(i)), _col(i.hfe_min)),
+    )
+
+
+def _worst(check: Check) -> WorstCheck:
+    """Reduce a check over corners (axis 1) to its corner of least margin."""
+    margin = check.margin()
+    # 0/0 (value on a zero limit) is on the edge; without a limit rank by the value itself.
+    applies = ~np.isnan(check.limit)
+    toward_failing = -check.value if check.sense == "max" else check.value
+    key = np.where(applies, np.where(np.isnan(margin), 0.0, margin), toward_failing)
+    index = np.argmin(key, axis=1)
+    pick = index[:, None]
+    worst = Check(
+        check.name,
+        check.ok.all(axis=1),
+        np.take_along_axis(check.value, pick, axis=1)[:, 0],
+        np.take_along_axis(check.limit, pick, axis=1)[:, 0],
+        check.sense,
+        check.detail,
+    )
+    return WorstCheck(worst, index, DEPENDS_ON[check.name])
+
+
+def worst_case(inputs: ChannelInputs) -> WorstCase:
+    """Every check at its worst tolerance corner, for every row (model: module docstring).
+
+    Raises DomainError when any row violates ``channel.validate``.
+    """
+    nominal = review(inputs)
+    checks = [_worst(c) for c in _evaluate(inputs, nominal, _corners(inputs, nominal))]
+    ok = np.ones(row_count(inputs), dtype=bool)
+    for c in checks:
+        ok &= c.check.ok
+    return WorstCase(nominal=nominal, checks=checks, ok=ok)
+
+
+# ---- Monte Carlo -----------------------------------------------------------------------------------------
+
+
+@dataclass(frozen=True)
+class Yield:
+    """Monte Carlo result for one row. ``failures`` counts the failing samples per check (every check, in
+    the review's order). The per-sample values and limits of the most-failing check (most failures; ties:
+    the first in order) are kept for plotting; all three are None when every sample passes."""
+
+    samples: int
+    seed: int
+    passed: int
+    fraction: float
+    ci_low: float
+    ci_high: float
+    failures: dict[str, int]
+    most_failing_check: str | None
+    most_failing_values: FloatArray | None
+    most_failing_limits: FloatArray | None
+
+
+def _whole(x: object) -> bool:
+    return isinstance(x, int | np.integer) and not isinstance(x, bool)
+
+
+def validate_monte_carlo(inputs: ChannelInputs, samples: int, seed: int) -> list[Violation]:
+    """``channel.validate`` plus the run's own limits (fields ``samples`` and ``seed``, checked to be whole
+    numbers whatever their type); never raises."""
+    v = validate(inputs)
+    every = np.ones(row_count(inputs), dtype=bool)
+    if not _whole(samples) or not 1 <= samples <= MAX_SAMPLES:
+        require(v, every, "samples", f"samples ({samples!r}) must be a whole number from 1 to {MAX_SAMPLES:,}")
+    elif not v:
+        draws = samples * inputs.strings * inputs.leds_in_series
+        bad = draws > MAX_LED_DRAWS
+        if bad.any():
+            k = int(np.argmax(bad))
+            per_sample = int(inputs.strings[k] * inputs.leds_in_series[k])
+            require(
+                v,
+                bad,
+                "samples",
+                f"samples ({samples}) × strings × leds_in_series ({per_sample}) LED draws exceed "
+                f"{MAX_LED_DRAWS:,}: use at most {MAX_LED_DRAWS // per_sample:,} samples for this design",
+            )
+    if not _whole(seed) or seed < 0:
+        require(v, every, "seed", f"seed ({seed!r}) must be a whole number of at least 0")
+    return v
+
+
+def _draw(inputs: ChannelInputs, nominal: ChannelReview, rng: np.random.Generator, count: int) -> _Point:
+    """``count`` samples of the single row's toleranced values, drawn in a fixed order."""
+    i = inputs
+    strings, leds = int(i.strings[0]), int(i.leds_in_series[0])
+    tol = resistor_tolerance(i)[0]
+
+    def spread(nominal_value: float, fraction: float, shape: tuple[int, ...]) -> FloatArray:
+        return nominal_value * (1.0 + fraction * rng.uniform(-1.0, 1.0, shape))
+
+    supply = spread(i.supply_v[0], i.supply_tolerance[0], (1, count))
+    vf = rng.uniform(i.vf_min_v[0], i.vf_max_v[0], (1, count, strings, leds)).sum(axis=-1)
+    led_r = spread(nominal.led_string.results["resistor_ohm"][0], tol, (1, count, strings))
+    base_r = spread(nominal.switch.results["rb_ohm"][0], tol, (1, count))
+    low, high = np.log(i.hfe_min[0]), np.log(hfe_max(i)[0])
+    hfe = np.exp(rng.uniform(low, high, (1, count)))
+    return _Point(supply, np.arange(count), vf, led_r, base_r, hfe)
+
+
+def monte_carlo(inputs: ChannelInputs, samples: int = DEFAULT_SAMPLES, seed: int = 0) -> Yield:
+    """Yield of one row's design over ``samples`` random builds (model: module docstring).
+
+    ``inputs`` must hold exactly one row (ValueError otherwise). Raises DomainError when
+    ``validate_monte_carlo`` finds a violation.
+    """
+    if row_count(inputs) != 1:
+        raise ValueError("monte_carlo reviews exactly one row")
+    raise_violations(validate_monte_carlo(inputs, samples, seed))
+    nominal = review(inputs)
+    rng = np.random.default_rng(seed)
+    chunk = max(1, _CHUNK_DRAWS // int(inputs.strings[0] * inputs.leds_in_series[0]))
+
+    parts: list[list[Check]] = []
+    for start in range(0, samples, chunk):
+        parts.append(_evaluate(inputs, nominal, _draw(inputs, nominal, rng, min(chunk, samples - start))))
+
+    names = [c.name for c in nominal.checks]
+    ok = {name: np.concatenate([p[j].ok[0] for p in parts]) for j, name in enumerate(names)}
+    passing = np.logical_and.reduce(list(ok.values()))
+    failures = {name: int(samples - np.count_nonzero(ok[name])) for name in names}
+    passed = int(np.count_nonzero(passing))
+    low, high = wilson_interval(passed, samples)
+
+    worst = max(range(len(names)), key=lambda j: (failures[names[j]], -j))
+    most = names[worst] if failures[names[worst]] else None
+    values = limits = None
+    if most is not None:
+        values = np.concatenate([p[worst].value[0] for p in parts])
+        limits = np.concatenate([p[worst].limit[0] for p in parts])
+    return Yield(
+        samples=samples,
+        seed=seed,
+        passed=passed,
+        fraction=passed / samples,
+        ci_low=float(low),
+        ci_high=float(high),
+        failures=failures,
+        most_failing_check=most,
+        most_failing_values=values,
+        most_failing_limits=limits,
+    )

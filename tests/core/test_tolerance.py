@@ -1,0 +1,398 @@
+"""Tests for the channel's tolerance analysis: worst case over corners, Monte Carlo yield, Wilson interval."""
+
+from __future__ import annotations
+
+import itertools
+import math
+from typing import Any
+
+import numpy as np
+import pytest
+from hypothesis import given, settings
+from hypothesis import strategies as st
+from scipy.stats import binomtest
+from test_channel import DEMO, FRONT_CHECKS, NO_FRONT_STAGE, channel_rows, make, rows_to_inputs
+
+from calcsvc.core.channel import review
+from calcsvc.core.outcome import DomainError
+from calcsvc.core.tolerance import (
+    CORNERS,
+    DEPENDS_ON,
+    MAX_SAMPLES,
+    QUANTITIES,
+    SETTINGS,
+    Z_95,
+    monte_carlo,
+    validate_monte_carlo,
+    wilson_interval,
+    worst_case,
+)
+
+# ---- an independent scalar model of one built channel, for brute-force corner enumeration -------------
+
+
+def corner_values(row: dict[str, Any], r_led: float, rb: float, corner: dict[str, str]) -> dict[str, tuple]:
+    """(value, limit, ok) of every check for one row at one corner, in plain floats (Ohm's law, KVL)."""
+    tol = row["resistor_tolerance"]
+    if math.isnan(tol):
+        tol = {"E6": 0.2, "E12": 0.1, "E24": 0.05, "E48": 0.02, "E96": 0.01, "E192": 0.005}[row["e_series"]]
+    sign = {q: 1.0 if corner[q] == SETTINGS[q][1] else -1.0 for q in QUANTITIES}
+    vs = row["supply_v"] * (1 + sign["supply"] * row["supply_tolerance"])
+    vf = row["vf_max_v"] if corner["vf"] == "max" else row["vf_min_v"]
+    r = r_led * (1 + sign["led_resistor"] * tol)
+    r_b = rb * (1 + sign["base_resistor"] * tol)
+    hfe = row["hfe_min"] if corner["hfe"] == "min" else 2 * row["hfe_typ"] - row["hfe_min"]
+
+    v_r = vs - row["leds_in_series"] * vf - row["vce_sat_v"]
+    i_string = max(v_r, 0.0) / r
+    ic = row["strings"] * i_string
+    ib = (row["drive_high_v"] - row["vbe_sat_v"]) / r_b
+    power = (row["vce_sat_v"] * ic + row["vbe_sat_v"] * ib) * row["duty_cycle"]
+    supply_avg = row["channels"] * ic * row["duty_cycle"]
+    supply_peak = row["channels"] * ic
+
+    def at_most(value: float, limit: float) -> tuple:
+        return value, limit, math.isnan(limit) or value <= limit
+
+    out = {
+        "led_current_rating": at_most(i_string, row["if_max_a"]),
+        "headroom": (v_r, 0.1 * vs, v_r >= 0.1 * vs),  # 10 % of the supply (common practice)
+        "resistor_rating": at_most(2 * i_string**2 * r, 5.0),  # twice the dissipation within 5 W
+        "saturation": (ic / ib, hfe, ic / ib < hfe),
+        "driver_current": at_most(ib, row["source_current_max_a"]),
+        "collector_current_rating": at_most(ic, row["ic_max_a"]),
+        "power_rating": at_most(power, row["power_max_w"]),
+        "off_state": at_most(row["drive_low_v"], 0.4),
+        "supply_average_current": at_most(supply_avg, row["current_max_a"]),
+        "supply_peak_current": at_most(supply_peak, row["current_max_a"]),
+    }
+    if math.isnan(row["gbw_hz"]):
+        out |= {name: (math.nan, math.nan, True) for name in ("gain_achievable", "signal_in_band", "slew_rate")}
+        out["output_swing"] = (math.nan, math.nan, True)
+    else:
+        # Single-pole op-amp: noise gain G (non-inverting) or 1 + G (inverting); bandwidth GBW/NG + GBW/A0.
+        noise_gain = row["gain"] + (1.0 if row["inverting"] else 0.0)
+        a0 = row["open_loop_gain"]
+        bandwidth = row["gbw_hz"] / noise_gain + (0.0 if math.isnan(a0) else row["gbw_hz"] / a0)
+        headroom = 0.0 if math.isnan(row["output_headroom_v"]) else row["output_headroom_v"]
+        out |= {
+            "gain_achievable": at_most(noise_gain, a0 / 10),
+            "signal_in_band": at_most(row["signal_hz"], bandwidth),
+            "slew_rate": at_most(2 * math.pi * row["signal_hz"] * row["amplitude_v"], row["slew_rate_v_per_s"]),
+            "output_swing": at_most(row["amplitude_v"], vs / 2 - headroom),
+        }
+    return out
+
+
+def scalar_margin(value: float, limit: float, sense: str) -> float:
+    return ((limit - value) if sense == "max" else (value - limit)) / abs(limit)
+
+
+BRUTE_ROWS: list[dict[str, Any]] = [
+    DEMO,
+    # Inverting front stage on a ±10 % supply; a pin of unknown rating.
+    DEMO | {"supply_tolerance": 0.1, "inverting": True, "gain": 20.0, "source_current_max_a": math.nan},
+    # No front stage; three strings of two LEDs; 2 % resistors from E12.
+    DEMO | NO_FRONT_STAGE | {"strings": 3.0, "leds_in_series": 2.0, "e_series": "E12", "resistor_tolerance": 0.02},
+    # Under-driven: forced beta 30 against hfe_min 20.
+    DEMO | {"hfe_min": 20.0, "hfe_typ": 40.0, "forced_beta": 30.0, "source_current_max_a": 0.002},
+    # 7.5 V for three red LEDs: at low supply and high Vf the strings go dark (current clamped at 0).
+    DEMO | {"supply_v": 7.5, "current_a": 0.005, "output_headroom_v": 1.0, "amplitude_v": 1.5},
+]
+
+
+def test_worst_case_matches_brute_force_enumeration() -> None:
+    wc = worst_case(rows_to_inputs(BRUTE_ROWS))
+    settings_lists = [SETTINGS[q] for q in QUANTITIES]
+    for k, row in enumerate(BRUTE_ROWS):
+        r_led = float(wc.nominal.led_string.results["resistor_ohm"][k])
+        rb = float(wc.nominal.switch.results["rb_ohm"][k])
+        table = {
+            combo: corner_values(row, r_led, rb, dict(zip(QUANTITIES, combo, strict=True)))
+            for combo in itertools.product(*settings_lists)
+        }
+        for worst in wc.checks:
+            name, sense = worst.name, worst.check.sense
+            assert worst.check.ok[k] == all(t[name][2] for t in table.values()), (k, name)
+            limit_known = not math.isnan(next(iter(table.values()))[name][1])
+            if not limit_known:
+                continue
+            margins = {combo: scalar_margin(*t[name][:2], sense) for combo, t in table.items()}
+            least = min(margins.values())
+            assert worst.margin()[k] == pytest.approx(least, rel=1e-9, abs=1e-12), (k, name)
+            full = CORNERS[int(worst.corner_index[k])]
+            assert margins[tuple(full[q] for q in QUANTITIES)] == pytest.approx(least, rel=1e-9, abs=1e-12)
+            assert worst.corner(k) == {q: full[q] for q in DEPENDS_ON[name]}
+
+
+def test_depends_on_is_exact() -> None:
+    # Flipping a quantity a check does not depend on leaves it unchanged at every corner of every row; each
+    # quantity it does depend on changes it somewhere.
+    assert set(DEPENDS_ON) == {c.name for c in review(make()).checks}
+    tables = []
+    for row in BRUTE_ROWS:
+        out = review(rows_to_inputs([row]))
+        r_led, rb = float(out.led_string.results["resistor_ohm"][0]), float(out.switch.results["rb_ohm"][0])
+        tables.append({i: corner_values(row, r_led, rb, c) for i, c in enumerate(CORNERS)})
+    for name, depends in DEPENDS_ON.items():
+        for q in QUANTITIES:
+            changes = False
+            for table in tables:
+                for i, corner in enumerate(CORNERS):
+                    flipped = corner | {q: SETTINGS[q][1 - SETTINGS[q].index(corner[q])]}
+                    j = CORNERS.index(flipped)
+                    for a, b in zip(table[i][name][:2], table[j][name][:2], strict=True):  # value, limit
+                        changes |= not (math.isclose(a, b, rel_tol=1e-12) or (math.isnan(a) and math.isnan(b)))
+            assert changes == (q in depends), (name, q)
+
+
+def test_greenhouse_demo_worst_case_by_hand() -> None:
+    # Resistors fixed at 300 Ω and 390 Ω (chosen at nominal, see test_channel). With Ohm's law:
+    # highest string current (12.6 − 5.4 − 0.2) V / 285 Ω = 24.561 mA, so Ic_max = 49.123 mA;
+    # lowest headroom (11.4 − 7.2 − 0.2) V = 4.0 V against 10 % of 11.4 V;
+    # saturation: Rb high (409.5 Ω) gives Ib = 2.05 / 409.5 = 5.0061 mA, Ic/Ib = 9.8126 < hfe_min 100;
+    # pin current: Rb low (370.5 Ω) gives 2.05 / 370.5 = 5.5331 mA < 8 mA;
+    # supply: 6 × 49.123 mA = 0.29474 A peak, half that on average; output swing 11.4/2 − 1.5 = 4.2 V.
+    wc = worst_case(make())
+    expect = {
+        "led_current_rating": (7.0 / 285, {"supply": "high", "vf": "min", "led_resistor": "low"}),
+        "headroom": (4.0, {"supply": "low", "vf": "max"}),
+        "saturation": (
+            (2 * 7.0 / 285) / (2.05 / 409.5),
+            {"supply": "high", "vf": "min", "led_resistor": "low", "base_resistor": "high", "hfe": "min"},
+        ),
+        "driver_current": (2.05 / 370.5, {"base_resistor": "low"}),
+        "supply_peak_current": (6 * 2 * 7.0 / 285, {"supply": "high", "vf": "min", "led_resistor": "low"}),
+        "supply_average_current": (3 * 2 * 7.0 / 285, {"supply": "high", "vf": "min", "led_resistor": "low"}),
+        "output_swing": (1.0, {"supply": "low"}),
+        "off_state": (0.4, {}),
+    }
+    for name, (value, corner) in expect.items():
+        assert wc.check(name).check.value[0] == pytest.approx(value, rel=1e-12), name
+        assert wc.check(name).corner(0) == corner, name
+    assert wc.check("headroom").check.limit[0] == pytest.approx(1.14, rel=1e-12)
+    assert wc.check("saturation").check.value[0] == pytest.approx(9.8126, abs=1e-4)
+    assert wc.check("output_swing").check.limit[0] == pytest.approx(4.2, rel=1e-12)
+    assert wc.ok[0]
+    assert wc.failing() == [[]]
+
+
+def test_worst_case_agrees_with_the_led_stage_and_with_nominal_when_nothing_varies() -> None:
+    # The LED stage's own worst case (current_max_a, resistor_power_max_w) is the corners' extreme.
+    wc = worst_case(make(current_a=[0.005, 0.02, 0.025]))
+    led = wc.nominal.led_string.results
+    np.testing.assert_allclose(wc.check("led_current_rating").check.value, led["current_max_a"], rtol=1e-12)
+    np.testing.assert_allclose(wc.check("resistor_rating").check.value, 2 * led["resistor_power_max_w"], rtol=1e-12)
+    # Without any tolerance every corner is the nominal design: each check equals the stages' own result.
+    exact = make(supply_tolerance=0.0, resistor_tolerance=0.0, vf_min_v=2.0, vf_max_v=2.0, hfe_typ=100.0)
+    wc = worst_case(exact)
+    for c in wc.nominal.checks:
+        assert wc.check(c.name).check.value[0] == pytest.approx(c.value[0], rel=1e-12), c.name
+        assert wc.check(c.name).check.limit[0] == pytest.approx(c.limit[0], rel=1e-12), c.name
+
+
+def test_nominal_pass_can_hide_a_worst_case_saturation_failure() -> None:
+    # Forced beta 18 against hfe_min 18.5: Rb = 2.05 V × 18 / 49.12 mA = 751 Ω → 750 Ω, Ic_max/Ib = 17.97
+    # passes at nominal; a +5 % base resistor makes it 18.87 ≥ 18.5.
+    x = make(hfe_min=18.5, hfe_typ=40.0, forced_beta=18.0)
+    assert review(x).ok[0]
+    wc = worst_case(x)
+    assert wc.failing() == [["saturation"]]
+    sat = wc.check("saturation")
+    assert sat.check.value[0] == pytest.approx((2 * 7.0 / 285) / (2.05 / (750 * 1.05)), rel=1e-12)
+    assert sat.corner(0) == {
+        "supply": "high",
+        "vf": "min",
+        "led_resistor": "low",
+        "base_resistor": "high",
+        "hfe": "min",
+    }
+    assert sat.margin()[0] < 0
+
+
+def test_worst_case_rejects_invalid_rows() -> None:
+    with pytest.raises(DomainError):
+        worst_case(make(hfe_typ=50.0))
+
+
+# ---- Monte Carlo -----------------------------------------------------------------------------------------
+
+
+def test_design_passing_worst_case_yields_exactly_one() -> None:
+    assert worst_case(make()).ok[0]
+    y = monte_carlo(make(), samples=10_000, seed=1)
+    assert y.fraction == 1.0 and y.passed == 10_000
+    assert y.most_failing_check is None and y.most_failing_values is None
+    assert set(y.failures.values()) == {0}
+    # Wilson interval at k = n: upper bound 1, lower bound n/(n + z²).
+    assert y.ci_high == 1.0
+    assert y.ci_low == pytest.approx(10_000 / (10_000 + Z_95**2), rel=1e-12)
+
+
+def test_design_failing_at_nominal_yields_near_zero() -> None:
+    # At nominal the strings carry 19.33 mA against a 14 mA rating; only builds near the lowest corner
+    # (12.7 mA) pass.
+    x = make(if_max_a=0.014)
+    y = monte_carlo(x, samples=10_000, seed=2)
+    assert y.fraction < 0.01
+    assert y.most_failing_check == "led_current_rating"
+    assert y.failures["led_current_rating"] == 10_000 - y.passed
+
+
+def test_yield_matches_closed_form_for_a_uniform_supply() -> None:
+    # Only the supply varies, uniform on 12 V ± 10 % = [10.8, 13.2] V. With 300 Ω, 3 × 2.0 V and 0.2 V fixed,
+    # the string current (Vs − 6.2 V)/300 Ω stays within if_max = 6.4 V/300 Ω (21.33 mA) exactly when
+    # Vs ≤ 12.6 V, so the passing fraction is (12.6 − 10.8)/(13.2 − 10.8) = 0.75.
+    x = make(
+        supply_tolerance=0.1, resistor_tolerance=0.0, vf_min_v=2.0, vf_max_v=2.0, hfe_typ=100.0, if_max_a=6.4 / 300
+    )
+    assert review(x).led_string.results["resistor_ohm"][0] == 300.0
+    y = monte_carlo(x, samples=20_000, seed=3)
+    expected = (12.6 - 10.8) / (13.2 - 10.8)
+    assert y.ci_low <= expected <= y.ci_high
+    assert [name for name, count in y.failures.items() if count] == ["led_current_rating"]
+
+
+def test_yield_matches_closed_form_for_a_log_uniform_gain() -> None:
+    # Only the gain varies, log-uniform on [20, 60] (hfe_max = 40 + (40 − 20)); with everything else fixed,
+    # the switch saturates when hfe > β = Ic/Ib, so the passing fraction is ln(60/β)/ln(60/20).
+    x = make(
+        supply_tolerance=0.0,
+        resistor_tolerance=0.0,
+        vf_min_v=2.0,
+        vf_max_v=2.0,
+        hfe_min=20.0,
+        hfe_typ=40.0,
+        forced_beta=30.0,
+        source_current_max_a=math.nan,
+    )
+    beta = float(review(x).check("saturation").value[0])
+    assert 20 < beta < 60
+    y = monte_carlo(x, samples=20_000, seed=4)
+    expected = math.log(60 / beta) / math.log(3)
+    assert y.ci_low <= expected <= y.ci_high
+    assert y.most_failing_check == "saturation"
+
+
+def test_under_driven_channel_loses_yield_to_saturation() -> None:
+    x = make(hfe_min=20.0, hfe_typ=40.0, forced_beta=30.0, source_current_max_a=0.002)
+    assert "saturation" in worst_case(x).failing()[0]
+    y = monte_carlo(x, samples=10_000, seed=5)
+    assert 0 < y.fraction < 1
+    assert y.most_failing_check == "saturation"
+    assert y.most_failing_values is not None and y.most_failing_limits is not None
+    assert y.most_failing_values.shape == (10_000,)
+    # The kept samples are those the count came from: saturation fails where Ic/Ib ≥ hfe.
+    assert int(np.count_nonzero(y.most_failing_values >= y.most_failing_limits)) == y.failures["saturation"]
+    assert np.all((y.most_failing_limits >= 20.0) & (y.most_failing_limits <= 60.0))  # hfe_min … hfe_max
+
+
+def test_many_leds_are_drawn_in_chunks() -> None:
+    # 100 strings × 10 LEDs = 1,000 LED draws per sample: 5,000 samples take several chunks.
+    x = make(
+        supply_v=30.0,
+        leds_in_series=10.0,
+        strings=100.0,
+        ic_max_a=5.0,
+        power_max_w=5.0,
+        if_max_a=0.022,
+        source_current_max_a=math.nan,
+        channels=1.0,
+        current_max_a=10.0,
+        **NO_FRONT_STAGE,
+    )
+    y = monte_carlo(x, samples=5_000, seed=6)
+    assert 0 < y.fraction < 1
+    assert y.most_failing_check == "led_current_rating"
+    assert y.most_failing_values is not None and y.most_failing_values.shape == (5_000,)
+    # The kept value is the worst of the 100 strings; no build exceeds the corners' highest current.
+    highest = worst_case(x).check("led_current_rating").check.value[0]
+    assert np.all(y.most_failing_values <= highest)
+    assert int(np.count_nonzero(y.most_failing_values > 0.022)) == y.failures["led_current_rating"]
+
+
+def test_seeded_runs_repeat_and_seeds_differ() -> None:
+    x = make(hfe_min=20.0, hfe_typ=40.0, forced_beta=30.0, source_current_max_a=0.002)
+    a, b, c = monte_carlo(x, 5_000, seed=7), monte_carlo(x, 5_000, seed=7), monte_carlo(x, 5_000, seed=8)
+    assert a.fraction == b.fraction and a.failures == b.failures
+    np.testing.assert_array_equal(a.most_failing_values, b.most_failing_values)
+    assert a.fraction != c.fraction
+
+
+@pytest.mark.parametrize(
+    ("samples", "seed", "field"),
+    [
+        (0, 0, "samples"),
+        (MAX_SAMPLES + 1, 0, "samples"),
+        (2.5, 0, "samples"),
+        (True, 0, "samples"),
+        (100, -1, "seed"),
+        (100, 1.5, "seed"),
+    ],
+)
+def test_monte_carlo_run_limits(samples: Any, seed: Any, field: str) -> None:
+    assert [v.field for v in validate_monte_carlo(make(), samples, seed)] == [field]
+    with pytest.raises(DomainError):
+        monte_carlo(make(), samples, seed)
+
+
+def test_monte_carlo_caps_led_draws_and_takes_one_row() -> None:
+    # 1,000 strings × 10 LEDs × 1,000,000 samples = 1e10 LED draws, over the 1e8 cap: at most 10,000 samples.
+    big = make(supply_v=30.0, leds_in_series=10.0, strings=1000.0)
+    (violation,) = validate_monte_carlo(big, MAX_SAMPLES, 0)
+    assert violation.field == "samples" and "10,000 samples" in violation.message
+    assert validate_monte_carlo(big, 10_000, 0) == []
+    with pytest.raises(ValueError, match="one row"):
+        monte_carlo(make(current_a=[0.02, 0.01]))
+    # Channel violations come first and keep their own fields.
+    assert [v.field for v in validate_monte_carlo(make(channels=0.0), 100, 0)] == ["channels"]
+
+
+# ---- Wilson interval -------------------------------------------------------------------------------------
+
+
+def test_wilson_interval_against_newcombe_worked_examples() -> None:
+    # R. G. Newcombe, "Two-sided confidence intervals for the single proportion: comparison of seven methods",
+    # Statistics in Medicine 17 (1998), Table II, Wilson score method (values from memory, 4 decimals).
+    for k, n, low, high in ((81, 263, 0.2553, 0.3662), (15, 148, 0.0624, 0.1605), (1, 29, 0.0061, 0.1718)):
+        got_low, got_high = wilson_interval(k, n)
+        assert round(float(got_low), 4) == low and round(float(got_high), 4) == high
+    # 0 of 20: the interval is [0, z²/(n + z²)] in closed form.
+    low, high = wilson_interval(0, 20)
+    assert low == 0.0 and high == pytest.approx(Z_95**2 / (20 + Z_95**2), rel=1e-12)
+
+
+def test_wilson_interval_against_scipy() -> None:
+    for k, n in ((0, 1), (1, 1), (3, 10), (50, 100), (999, 1000), (12_345, 100_000)):
+        ci = binomtest(k, n).proportion_ci(confidence_level=0.95, method="wilson")
+        low, high = wilson_interval(k, n)
+        assert float(low) == pytest.approx(ci.low, rel=1e-9, abs=1e-12)
+        assert float(high) == pytest.approx(ci.high, rel=1e-9, abs=1e-12)
+
+
+# ---- properties ------------------------------------------------------------------------------------------
+
+
+@settings(max_examples=60, deadline=None, derandomize=True)
+@given(row=channel_rows(), seed=st.integers(0, 2**32 - 1))
+def test_property_yield_is_sound_and_bounded_by_the_worst_case(row: dict[str, Any], seed: int) -> None:
+    x = rows_to_inputs([row])
+    y = monte_carlo(x, samples=300, seed=seed)
+    assert 0.0 <= y.fraction <= 1.0
+    assert y.ci_low <= y.fraction <= y.ci_high
+    assert all(math.isfinite(v) for v in (y.fraction, y.ci_low, y.ci_high))
+    assert y.passed == round(y.fraction * 300)
+    assert all(0 <= count <= 300 for count in y.failures.values())
+    if y.most_failing_values is not None:
+        assert np.all(np.isfinite(y.most_failing_values))
+    again = monte_carlo(x, samples=300, seed=seed)
+    assert again.fraction == y.fraction and again.failures == y.failures
+    # Every build lies inside the corners' box: a check that passes at every corner (clear of rounding)
+    # never fails a sample.
+    wc = worst_case(x)
+    for worst in wc.checks:
+        margin = worst.margin()[0]
+        if worst.check.ok[0] and not margin < 1e-9:
+            assert y.failures[worst.name] == 0, worst.name
+        if wc.nominal.has_front_stage[0] or worst.name not in FRONT_CHECKS:
+            assert np.isfinite(worst.check.value[0]), worst.name

@@ -1,0 +1,118 @@
+"""The whole-channel review over HTTP: the greenhouse demo, an under-driven switch, and reports that agree
+with the JSON number for number."""
+
+from __future__ import annotations
+
+import json
+import re
+from pathlib import Path
+from typing import Any
+
+import pytest
+from flask.testing import FlaskClient
+from helpers import assert_problem
+
+DEMO = json.loads((Path(__file__).resolve().parent.parent / "examples" / "greenhouse-channel.json").read_text())
+EXPLICIT = {
+    "supply_v": 12, "supply_tolerance": 0.05, "current_max_a": 2,
+    "drive_high_v": 2.9, "drive_low_v": 0.2, "source_current_max_a": 0.008,
+    "hfe_min": 100, "hfe_typ": 200, "vbe_sat_v": 0.85, "vce_sat_v": 0.2, "ic_max_a": 0.2, "power_max_w": 0.625,
+    "vf_typ_v": 2.0, "vf_min_v": 1.8, "vf_max_v": 2.4, "if_max_a": 0.03,
+    "leds_in_series": 3, "strings": 2, "current_a": 0.02, "duty_cycle": 0.5, "channels": 6, "samples": 2000,
+}  # fmt: skip
+
+
+def review(client: FlaskClient, body: dict[str, Any]) -> dict[str, Any]:
+    response = client.post("/v1/review/channel", json=body)
+    assert response.status_code == 200, response.get_json()
+    return response.get_json()
+
+
+def test_greenhouse_demo_passes_with_every_stage(client: FlaskClient, seeded: Any) -> None:
+    data = review(client, DEMO)
+    assert data["verdict"] == "pass" and data["failing"] == []
+    assert set(data["stages"]) == {"led_string", "switch", "supply", "front_stage"}
+    assert {c["stage"] for c in data["checks"]} == {"led_string", "switch", "supply", "front_stage"}
+    assert {p["role"] for p in data["parts"]} == {"supply", "driver", "transistor", "led", "opamp"}
+    # (12 - 3 x 2.0 - 0.2) V / 20 mA = 290 ohm, rounded up to the E24 value 300 ohm (IEC 60063).
+    assert data["stages"]["led_string"]["resistor_ohm"] == 300.0
+    # Six channels of 2 x 19.33 mA at 50 % on a 2 A adapter: every channel could run at 100 %.
+    assert data["stages"]["supply"]["average_current_a"] == pytest.approx(6 * 2 * 5.8 / 300 * 0.5)
+    assert data["max_duty_cycle"] == 1.0
+    assert data["yield"]["fraction"] == 1.0 and data["yield"]["samples"] == 10_000
+    assert len(data["fingerprint"]) == 64
+
+
+def test_explicit_values_give_the_same_review_as_parts(client: FlaskClient, seeded: Any) -> None:
+    from_parts = {
+        k: v for k, v in DEMO.items() if k not in {"opamp", "configuration", "gain", "signal_hz", "amplitude_v"}
+    }
+    a = review(client, {**from_parts, "samples": 2000, "drive_low_v": 0.2})
+    b = review(client, {**EXPLICIT, "seed": DEMO["seed"]})
+    assert a["stages"] == b["stages"] and a["checks"] == b["checks"] and a["yield"] == b["yield"]
+
+
+def test_under_driven_switch_fails_saturation_and_loses_yield(client: FlaskClient) -> None:
+    # Forced beta 30 against hfe_min 20: the worst-case transistor cannot saturate.
+    weak = {**EXPLICIT, "hfe_min": 20, "hfe_typ": 40, "forced_beta": 30, "samples": 5000}
+    data = review(client, weak)
+    assert data["verdict"] == "fail" and "saturation" in data["failing"]
+    saturation = next(c for c in data["checks"] if c["name"] == "saturation")
+    assert not saturation["ok"] and saturation["worst_case"]["corner"]["hfe"] == "min"
+    assert data["yield"]["most_failing_check"] == "saturation"
+    assert data["yield"]["fraction"] < 1.0 and data["yield"]["failures"]["saturation"] > 0
+
+
+def test_pwm_timing_instead_of_duty_cycle(client: FlaskClient) -> None:
+    base = {k: v for k, v in EXPLICIT.items() if k != "duty_cycle"}
+    timed = review(client, {**base, "on_time_s": "250 us", "period_s": "1 ms", "samples": 0})
+    fraction = review(client, {**base, "duty_cycle": 0.25, "samples": 0})
+    assert timed["stages"]["supply"] == fraction["stages"]["supply"] and timed["yield"] is None
+    assert_problem(client.post("/v1/review/channel", json={**base, "on_time_s": 0.001}), 422, "period_s")
+    assert_problem(client.post("/v1/review/channel", json={**base, "on_time_s": 2, "period_s": 1}), 422, "on_time_s")
+
+
+@pytest.mark.parametrize(
+    ("change", "field"),
+    [
+        ({"duty_cycle": 1.3}, "duty_cycle"),
+        ({"supply_v": 5}, "supply_v"),
+        ({"samples": 1_000_001}, "samples"),
+        ({"current_a": "20 mV"}, "current_a"),
+        ({"vf_min_v": 2.2}, "vf_typ_v"),
+    ],
+)
+def test_bad_inputs_name_the_field(client: FlaskClient, change: dict[str, Any], field: str) -> None:
+    assert_problem(client.post("/v1/review/channel", json={**EXPLICIT, **change}), 422, field)
+
+
+def _numbers(text: str) -> list[float]:
+    return [float(x) for x in re.findall(r"-?\d+(?:\.\d+)?(?:e[+-]?\d+)?", text)]
+
+
+def test_markdown_report_agrees_with_the_json(client: FlaskClient, seeded: Any) -> None:
+    data = review(client, DEMO)
+    response = client.post("/v1/review/channel", json=DEMO, headers={"Accept": "text/markdown"})
+    assert response.status_code == 200 and response.mimetype == "text/markdown"
+    report = response.get_data(as_text=True)
+    assert report.startswith("# Channel review: PASS") and data["fingerprint"] in report
+    rows = {line.split("|")[1].strip(): line for line in report.splitlines() if line.startswith("| ")}
+    for check in data["checks"]:
+        cells = [cell.strip() for cell in rows[check["name"]].split("|")[1:-1]]
+        assert float(cells[2]) == pytest.approx(check["value"], rel=1e-5)
+        assert float(cells[3]) == pytest.approx(check["limit"], rel=1e-5)
+        assert float(cells[5]) == pytest.approx(check["worst_case"]["value"], rel=1e-5)
+        assert cells[-1] == ("pass" if check["ok"] else "FAIL")
+    for name, value in data["inputs"].items():
+        if isinstance(value, int | float):
+            assert _numbers(rows[name].split("|")[2])[0] == pytest.approx(value, rel=1e-5)
+    for part in data["parts"]:
+        assert f"`{part['part_id']}` revision {part['revision']}" in report
+
+
+def test_html_report(client: FlaskClient, seeded: Any) -> None:
+    weak = {**EXPLICIT, "hfe_min": 20, "hfe_typ": 40, "forced_beta": 30, "samples": 500}
+    response = client.post("/v1/review/channel", json=weak, headers={"Accept": "text/html"})
+    assert response.mimetype == "text/html"
+    page = response.get_data(as_text=True)
+    assert "FAIL" in page and "saturation" in page and "<table" in page
