@@ -2,7 +2,15 @@
 
 from __future__ import annotations
 
+import threading
+from collections.abc import Iterator
+from contextlib import contextmanager
 from typing import Any
+
+import requests
+from flask import Flask
+from werkzeug.serving import make_server
+from werkzeug.wrappers import Response
 
 PROBLEM = "application/problem+json"
 
@@ -22,3 +30,22 @@ def assert_problem(response: Any, status: int, field: str | None = None) -> dict
     if field is not None:
         assert field in body.get("errors", {}), body
     return body
+
+
+@contextmanager
+def live_server(app: Flask) -> Iterator[str]:
+    """Serve ``app`` over real HTTP on a free local port, one thread per request; yields the base URL."""
+    server = make_server("127.0.0.1", 0, app, threaded=True)
+    thread = threading.Thread(target=server.serve_forever, daemon=True)
+    thread.start()
+    try:
+        yield f"http://127.0.0.1:{server.server_port}"
+    finally:
+        server.shutdown()
+        server.server_close()
+        thread.join()
+
+
+def as_flask(response: requests.Response) -> Response:
+    """A live server's answer in the shape ``assert_problem`` and the other helpers take."""
+    return Response(response.content, status=response.status_code, headers=list(response.headers.items()))

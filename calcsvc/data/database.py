@@ -13,6 +13,7 @@ from sqlalchemy import Engine, create_engine, event, text
 from sqlalchemy.orm import Session, sessionmaker
 
 MIGRATIONS = Path(__file__).with_name("migrations")
+CONNECT_TIMEOUT_S = 5
 
 
 def make_engine(url: str, pool_size: int = 5) -> Engine:
@@ -29,7 +30,15 @@ def make_engine(url: str, pool_size: int = 5) -> Engine:
 
         return engine
     # pre_ping replaces connections the server closed (restart, terminated backend) before they are used.
-    return create_engine(url, pool_pre_ping=True, pool_size=pool_size, max_overflow=pool_size)
+    engine = create_engine(url, pool_pre_ping=True, pool_size=pool_size, max_overflow=pool_size)
+
+    @event.listens_for(engine, "do_connect")
+    def _connect_timeout(_dialect: Any, _record: Any, _cargs: Any, cparams: dict[str, Any]) -> None:
+        # libpq waits forever for a server that accepts but never answers, hanging /readyz and every request;
+        # a connect_timeout given in the URL wins.
+        cparams.setdefault("connect_timeout", CONNECT_TIMEOUT_S)
+
+    return engine
 
 
 class Database:

@@ -234,6 +234,8 @@ class PartStore:
     ) -> PartView:
         """Store a new revision if the part is still at ``expected_revision``; it returns to draft."""
         current = self._row(part_id)
+        if current.status == "retired":
+            raise PartRetired(f"part '{part_id}' is retired; add a new part instead of reviving it", "part_id")
         errors = validate_parameters(current.kind, parameters)
         if errors:
             raise InvalidPart(errors)
@@ -241,7 +243,7 @@ class PartStore:
         now = _now()
         result = self.session.execute(
             update(Part)
-            .where(Part.part_id == part_id, Part.revision == expected_revision)
+            .where(Part.part_id == part_id, Part.revision == expected_revision, Part.status != "retired")
             .values(
                 description=description,
                 parameters=parameters,
