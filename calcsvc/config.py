@@ -36,24 +36,41 @@ SETTINGS: dict[str, Setting] = {
     "CORS_ORIGINS": Setting(
         "CALCSVC_CORS_ORIGINS", "", "comma-separated origins allowed to call from a browser; empty: CORS off"
     ),
-    "MAX_CONTENT_LENGTH": Setting("CALCSVC_MAX_CONTENT_LENGTH", "16777216", "largest request body, bytes"),
+    "MAX_CONTENT_LENGTH": Setting("CALCSVC_MAX_CONTENT_LENGTH", "67108864", "largest request body, bytes"),
     "BATCH_MAX_ROWS": Setting("CALCSVC_BATCH_MAX_ROWS", "100000", "most rows in one batch request"),
-    "DB_POOL_SIZE": Setting("CALCSVC_DB_POOL_SIZE", "5", "database connections per worker process"),
+    "SELECT_MAX_COMBINATIONS": Setting(
+        "CALCSVC_SELECT_MAX_COMBINATIONS",
+        "100000",
+        "most candidates (or combinations of candidates, for a channel) one /v1/select request evaluates",
+    ),
+    "DB_POOL_SIZE": Setting(
+        "CALCSVC_DB_POOL_SIZE", "5", "database connections a worker keeps open; under load it may open as many again"
+    ),
     "LOG_LEVEL": Setting("CALCSVC_LOG_LEVEL", "INFO", "DEBUG, INFO, WARNING or ERROR"),
     "SEED_DIR": Setting("CALCSVC_SEED_DIR", str(REPO_SEED_DIR), "folder of seed part files"),
+    # The server process around the app, read by calcsvc.gunicorn_conf (`calcsvc serve`).
+    "HOST": Setting("HOST", "127.0.0.1", "address the server listens on; the container image sets 0.0.0.0"),
+    "PORT": Setting("PORT", "8000", "port the server listens on"),
+    "WORKERS": Setting("WEB_CONCURRENCY", "", "gunicorn worker processes; empty: the CPUs this process may use + 1"),
+    "WORKER_TIMEOUT": Setting("GUNICORN_TIMEOUT", "60", "seconds a request may run before its worker is replaced"),
+    "ACCESS_LOG": Setting(
+        "GUNICORN_ACCESS_LOG", "", "gunicorn access log file, `-` for stdout; empty: off (the JSON request log has it)"
+    ),
 }
 
 _TRUE = {"1", "true", "yes", "on"}
 _FALSE = {"0", "false", "no", "off", ""}
 
 
-def _integer(name: str, text: str, low: int) -> int:
+def _integer(name: str, text: str, low: int, high: int | None = None) -> int:
     try:
         value = int(text)
     except ValueError as exc:
         raise ConfigError(f"{SETTINGS[name].env}={text!r} is not a whole number") from exc
     if value < low:
         raise ConfigError(f"{SETTINGS[name].env}={value} must be at least {low}")
+    if high is not None and value > high:
+        raise ConfigError(f"{SETTINGS[name].env}={value} must be at most {high}")
     return value
 
 
@@ -66,9 +83,7 @@ def _boolean(name: str, text: str) -> bool:
     raise ConfigError(f"{SETTINGS[name].env}={text!r} must be true or false")
 
 
-def load_config(
-    overrides: Mapping[str, Any] | None = None, environ: Mapping[str, str] | None = None
-) -> dict[str, Any]:
+def load_config(overrides: Mapping[str, Any] | None = None, environ: Mapping[str, str] | None = None) -> dict[str, Any]:
     """Settings as Flask config keys; ``overrides`` (already typed) win over the environment."""
     environ = os.environ if environ is None else environ
     overrides = dict(overrides or {})
@@ -79,9 +94,15 @@ def load_config(
         "CORS_ORIGINS": [o.strip() for o in raw["CORS_ORIGINS"].split(",") if o.strip()],
         "MAX_CONTENT_LENGTH": _integer("MAX_CONTENT_LENGTH", raw["MAX_CONTENT_LENGTH"], 1024),
         "BATCH_MAX_ROWS": _integer("BATCH_MAX_ROWS", raw["BATCH_MAX_ROWS"], 1),
+        "SELECT_MAX_COMBINATIONS": _integer("SELECT_MAX_COMBINATIONS", raw["SELECT_MAX_COMBINATIONS"], 1),
         "DB_POOL_SIZE": _integer("DB_POOL_SIZE", raw["DB_POOL_SIZE"], 1),
         "LOG_LEVEL": raw["LOG_LEVEL"].strip().upper(),
         "SEED_DIR": raw["SEED_DIR"],
+        "HOST": raw["HOST"].strip() or SETTINGS["HOST"].default,
+        "PORT": _integer("PORT", raw["PORT"], 1, 65535),
+        "WORKERS": _integer("WORKERS", raw["WORKERS"], 1) if raw["WORKERS"].strip() else None,
+        "WORKER_TIMEOUT": _integer("WORKER_TIMEOUT", raw["WORKER_TIMEOUT"], 1),
+        "ACCESS_LOG": raw["ACCESS_LOG"].strip(),
     }
     config.update(overrides)
     if config["LOG_LEVEL"] not in {"DEBUG", "INFO", "WARNING", "ERROR"}:
