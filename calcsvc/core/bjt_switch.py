@@ -31,12 +31,12 @@ import numpy as np
 
 from calcsvc.core import eseries
 from calcsvc.core.outcome import (
-    BoolArray,
     Check,
     FloatArray,
     Notice,
     Outcome,
     Violation,
+    add_notice,
     first_bad,
     raise_violations,
     require,
@@ -256,39 +256,35 @@ def compute(inputs: BjtSwitchInputs) -> Outcome:
     warnings: list[Notice] = []
     cautions: list[Notice] = []
 
-    def add(target: list[Notice], mask: BoolArray, message: str) -> None:
-        if mask.any():
-            target.append(Notice(mask, message))
-
-    add(
+    add_notice(
         warnings,
         margin < 1.0,
         "The actual forced beta is at or above hfe_min: at worst-case gain the transistor does not saturate "
         "and will dissipate far more than computed.",
     )
-    add(
+    add_notice(
         warnings,
         (margin >= 1.0) & (margin < SATURATION_MARGIN_WARN),
         "hfe_min is less than twice the actual forced beta: little margin over worst-case gain "
         "(gain also falls at low temperature and high current).",
     )
-    add(
+    add_notice(
         warnings,
         i.duty_cycle < 1.0,
         "transistor_power_w is averaged over the switching period; the power while on is higher "
         "(divide by duty_cycle).",
     )
-    add(
+    add_notice(
         cautions,
         ic > i.ic_max_a,
         "The collector current exceeds the transistor's rating: the transistor can fail.",
     )
-    add(
+    add_notice(
         cautions,
         power > i.power_max_w,
         "The transistor dissipates more than its rating: it will overheat and can fail.",
     )
-    add(
+    add_notice(
         cautions,
         driver_over,
         "The drive pin would source more than its rating: this can damage the microcontroller or logic "

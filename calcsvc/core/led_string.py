@@ -34,12 +34,12 @@ import numpy as np
 
 from calcsvc.core import eseries
 from calcsvc.core.outcome import (
-    BoolArray,
     Check,
     FloatArray,
     Notice,
     Outcome,
     Violation,
+    add_notice,
     first_bad,
     raise_violations,
     require,
@@ -263,38 +263,34 @@ def compute(inputs: LedStringInputs) -> Outcome:
     warnings: list[Notice] = []
     cautions: list[Notice] = []
 
-    def add(target: list[Notice], mask: BoolArray, message: str) -> None:
-        if mask.any():
-            target.append(Notice(mask, message))
-
-    add(
+    add_notice(
         warnings,
         v_r < headroom_limit,
         "Less than 10 % of the supply is across the resistor: the current will vary widely with supply "
         "voltage and LED forward voltage.",
     )
-    add(
+    add_notice(
         warnings,
         current_min <= 0.0,
         "At low supply and high forward voltage the worst-case current is zero: the string may not light.",
     )
-    add(
+    add_notice(
         cautions,
         power_max >= HOT_RESISTOR_W,
         "The resistor dissipates 0.5 W or more in the worst case and runs hot: keep it clear of plastics, "
         "wiring and fingers.",
     )
-    add(
+    add_notice(
         cautions,
         i.if_max_a >= HIGH_POWER_LED_A,
         "High-power LEDs: provide heat-sinking for the LEDs, and do not look into them at close range (eye safety).",
     )
-    add(
+    add_notice(
         cautions,
         current_max > i.if_max_a,
         "The worst-case current exceeds the LED's maximum forward current: the LEDs can overheat and fail early.",
     )
-    add(
+    add_notice(
         cautions,
         need_w > max_rating,
         "No standard resistor rating up to 5 W is adequate: the resistor would overheat; use a different "

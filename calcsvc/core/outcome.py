@@ -99,6 +99,12 @@ def raise_violations(violations: list[Violation]) -> None:
         raise DomainError(found)
 
 
+def add_notice(target: list[Notice], rows: BoolArray, message: str) -> None:
+    """Append a warning or caution only when it applies to some row."""
+    if rows.any():
+        target.append(Notice(rows, message))
+
+
 def first_bad(values: np.ndarray, bad: BoolArray) -> str:
     """The value on the first bad row, formatted for a message ("" when no row is bad)."""
     return f"{float(np.asarray(values)[bad][0]):g}" if bad.any() else ""
