@@ -116,3 +116,16 @@ def test_query_form_errors_are_one_line_for_cells(client: FlaskClient) -> None:
     text = response.get_data(as_text=True)
     assert "\n" not in text and text.startswith("error:") and "supply_v" in text
     assert_problem(client.get("/v1/calc/led-string?supply_v=12 A&leds_in_series=3"), 422, "supply_v")
+
+
+def test_column_layout_carries_the_same_numbers(client: FlaskClient) -> None:
+    rows = [{**LED, "supply_v": 12, "current_a": 0.02}, {**LED, "supply_v": 5, "current_a": 0.02}]
+    by_row = client.post("/v1/batch/led-string", json=rows).get_json()
+    by_column = client.post("/v1/batch/led-string?layout=columns", json=rows).get_json()
+    assert by_column["layout"] == "columns" and by_column["ok"] == [True, False]
+    for name, value in by_row["rows"][0]["results"].items():
+        assert by_column["results"][name][0] == value
+        assert by_column["results"][name][1] is None  # the bad row has no results
+    first_check = by_row["rows"][0]["checks"][0]
+    assert by_column["checks"][first_check["name"]]["value"][0] == first_check["value"]
+    assert by_column["problems"]["1"]["errors"].keys() == by_row["rows"][1]["problem"]["errors"].keys()

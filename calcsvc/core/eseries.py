@@ -17,6 +17,8 @@ correctly rounded operation, so 4.7 kΩ comes back as exactly ``4700.0`` and 4.7
 
 from __future__ import annotations
 
+import functools
+
 import numpy as np
 import numpy.typing as npt
 
@@ -121,6 +123,7 @@ def _scaled(integer: npt.NDArray[np.int64], exponent: npt.NDArray[np.int64]) -> 
     return np.where(exponent >= 0, integer * up, integer / down)
 
 
+@functools.cache
 def _tables(series: str) -> tuple[FloatArray, npt.NDArray[np.int64], npt.NDArray[np.int64]]:
     """Mantissas over three decades (0.1 … 99.x) plus 100, with their integer digits and decade offsets.
 
@@ -179,17 +182,31 @@ def is_standard(values: npt.ArrayLike, series: str) -> BoolArray:
 # ---- per-row helpers for calculations whose ``e_series`` input is a string array -------------------------
 
 
+def _series_masks(names: np.ndarray) -> dict[str, BoolArray]:
+    """Each series name present with the rows that use it; most batches use one series on every row."""
+    first = str(names.flat[0]) if names.size else ""
+    same = names == first
+    if same.all():
+        return {first: same}
+    return {name: mask for name in SERIES_NAMES if (mask := names == name).any()}
+
+
 def known_series(names: npt.ArrayLike) -> BoolArray:
     """True where a name is one of the series in ``SERIES``."""
-    return np.isin(np.asarray(names, dtype=str), SERIES_NAMES)
+    arr = np.asarray(names, dtype=str)
+    known = np.zeros(arr.shape, dtype=bool)
+    for name, mask in _series_masks(arr).items():
+        if name in SERIES:
+            known |= mask
+    return known
 
 
 def default_tolerance_rows(names: npt.ArrayLike) -> FloatArray:
     """Each row's default resistor tolerance for its series name (NaN for an unknown name)."""
     arr = np.asarray(names, dtype=str)
     out = np.full(arr.shape, np.nan)
-    for name, tol in DEFAULT_TOLERANCE.items():
-        out[arr == name] = tol
+    for name, mask in _series_masks(arr).items():
+        out[mask] = DEFAULT_TOLERANCE.get(name, np.nan)
     return out
 
 
@@ -199,10 +216,12 @@ def _pick_rows(values: npt.ArrayLike, names: npt.ArrayLike, above: bool) -> Floa
     unknown = ~known_series(arr)
     if unknown.any():
         _check_series(str(arr[unknown].flat[0]))
+    masks = _series_masks(arr)
+    if len(masks) == 1:
+        return _pick(x, next(iter(masks)), above)
     out = np.empty_like(x)
-    for name in np.unique(arr):  # a handful of series names, not a loop over rows
-        sel = arr == name
-        out[sel] = _pick(x[sel], str(name), above)
+    for name, sel in masks.items():  # a handful of series names, not a loop over rows
+        out[sel] = _pick(x[sel], name, above)
     return out
 
 

@@ -13,10 +13,12 @@ from flask.views import MethodView
 from flask_smorest import Blueprint
 
 from calcsvc.core.outcome import take
+from calcsvc.web.auth import require_reader
 from calcsvc.web.calc_schemas import request_schema
 from calcsvc.web.calculations import FLAT_CALCULATIONS, Calculation
 from calcsvc.web.columns import ParsedRows, parse_rows
 from calcsvc.web.envelope import plain
+from calcsvc.web.metrics import record_calculation
 from calcsvc.web.problems import Problem, error_response
 from calcsvc.web.resolve import PartResolver
 
@@ -29,14 +31,20 @@ blp = Blueprint(
 )
 
 CSV = "text/csv"
+EXTRA_CELLS = "cells_beyond_the_header"
 
 
 def read_records() -> tuple[list[Any], bool]:
     """The rows of the body, and whether blank cells mean "not given" (CSV)."""
     if request.mimetype == CSV:
         text = request.get_data(as_text=True)
-        reader = csv.DictReader(io.StringIO(text), skipinitialspace=True)
-        records = [{k.strip(): v.strip() for k, v in row.items() if k is not None} for row in reader]
+        # A short row's missing cells are blank (not given); cells beyond the header become an unknown field of
+        # their row, which refuses that row instead of dropping data that was likely shifted.
+        reader = csv.DictReader(io.StringIO(text, newline=""), skipinitialspace=True, restkey=EXTRA_CELLS, restval="")
+        try:
+            records = [{k.strip(): v.strip() if isinstance(v, str) else v for k, v in row.items()} for row in reader]
+        except csv.Error as exc:
+            raise Problem(400, f"the request body is not a valid CSV table: {exc}", "malformed-body") from exc
         return records, True
     try:
         data = orjson.loads(request.get_data())
@@ -50,7 +58,7 @@ def read_records() -> tuple[list[Any], bool]:
 
 def evaluate(calc: Calculation, parsed: ParsedRows) -> tuple[dict[str, Any], np.ndarray, Any]:
     """Run the core once over every row that parsed; physical violations become errors on their rows."""
-    n = len(parsed.parts)
+    n = parsed.n
     candidates = np.flatnonzero(~parsed.errors.mask(n))
     inputs = calc.make_inputs({name: column[candidates] for name, column in parsed.columns.items()})
     for violation in calc.validate(inputs):
@@ -67,7 +75,7 @@ def _row_problem(errors: dict[str, list[str]]) -> dict[str, Any]:
 
 
 def json_rows(calc: Calculation, parsed: ParsedRows, ok_rows: np.ndarray, outcome: Any) -> list[dict[str, Any]]:
-    n = len(parsed.parts)
+    n = parsed.n
     names = [name for name, _ in calc.results if name in outcome.results]
     results = [plain(outcome.results[name]) for name in names]
     sweep = "sweep_frequency_hz" in outcome.results
@@ -94,19 +102,63 @@ def json_rows(calc: Calculation, parsed: ParsedRows, ok_rows: np.ndarray, outcom
                 for name, ok, value, limit, margin in checks
                 if limit[k] is not None  # a check whose limit is unknown on this row does not apply
             ],
-            "warnings": parsed.warnings[row] + notices["warnings"][k],
+            "warnings": parsed.warnings.get(row, []) + notices["warnings"][k],
             "cautions": notices["cautions"][k],
-            "parts": parsed.parts[row],
+            "parts": parsed.parts.get(row, []),
         }
     for row, errors in parsed.errors.by_row.items():
         rows[row] = {"row": row, "ok": False, "problem": _row_problem(errors)}
     return rows
 
 
+def json_columns(calc: Calculation, parsed: ParsedRows, ok_rows: np.ndarray, outcome: Any) -> dict[str, Any]:
+    """The same answer as ``json_rows``, one array per result and check (element i belongs to row i).
+
+    Arrays go to the serializer as they are, with no object per row, which is what makes large batches fast.
+    A row that was not computed has ok false, null results and null check values, and its problem.
+    """
+    n = parsed.n
+
+    def full(column: np.ndarray, fill: Any = np.nan) -> np.ndarray:
+        out = np.full((n, *column.shape[1:]), fill, dtype=column.dtype)
+        out[ok_rows] = column
+        return out
+
+    ok = np.zeros(n, dtype=bool)
+    ok[ok_rows] = True
+    results = {name: full(outcome.results[name]) for name, _ in calc.results if name in outcome.results}
+    if "sweep_frequency_hz" in outcome.results:
+        results["sweep"] = {k: full(outcome.results[f"sweep_{k}"]) for k in ("frequency_hz", "gain_db", "phase_deg")}
+    checks = {
+        check.name: {
+            "ok": full(check.ok, False),
+            "value": full(check.value),
+            "limit": full(check.limit),
+            "margin": full(check.margin()),
+        }
+        for check in outcome.checks
+    }
+    notices = {
+        kind: [{"message": notice.message, "rows": ok_rows[notice.rows]} for notice in found]
+        for kind, found in (("warnings", outcome.warnings), ("cautions", outcome.cautions))
+    }
+    part_warnings = [{"message": m, "rows": [row]} for row, found in parsed.warnings.items() for m in found]
+    notices["warnings"] = part_warnings + notices["warnings"]
+    return {
+        "layout": "columns",
+        "ok": ok,
+        "results": results,
+        "checks": checks,
+        **notices,
+        "parts": {str(row): used for row, used in parsed.parts.items()},
+        "problems": {str(row): _row_problem(errors) for row, errors in parsed.errors.by_row.items()},
+    }
+
+
 def csv_body(calc: Calculation, parsed: ParsedRows, ok_rows: np.ndarray, outcome: Any) -> str:
     """One line per row: every scalar result, the failing checks, and the problem of a bad row."""
     names = [name for name, _ in calc.results if name in outcome.results and outcome.results[name].ndim == 1]
-    n = len(parsed.parts)
+    n = parsed.n
     table: list[list[Any]] = [[row, "false"] + [""] * len(names) + ["", ""] for row in range(n)]
     columns = [outcome.results[name].tolist() for name in names]
     failing = [(c.name, (~c.ok).tolist()) for c in outcome.checks]
@@ -132,6 +184,7 @@ def run_batch(calc: Calculation) -> Response:
     with current_app.extensions["calcsvc.db"].transaction() as session:
         parsed = parse_rows(calc, records, PartResolver(session), blank_is_absent)
     _results, ok_rows, outcome = evaluate(calc, parsed)
+    record_calculation(calc.name, int(ok_rows.size))
     if (
         CSV in request.accept_mimetypes.values()
         and request.accept_mimetypes.best_match(["application/json", CSV]) == CSV
@@ -143,9 +196,12 @@ def run_batch(calc: Calculation) -> Response:
         "count": len(records),
         "ok_count": int(ok_rows.size),
         "check_details": {check.name: check.detail for check in outcome.checks},
-        "rows": json_rows(calc, parsed, ok_rows, outcome),
     }
-    return Response(orjson.dumps(body), mimetype="application/json")
+    if request.args.get("layout") == "columns":
+        body.update(json_columns(calc, parsed, ok_rows, outcome))
+    else:
+        body["rows"] = json_rows(calc, parsed, ok_rows, outcome)
+    return Response(orjson.dumps(body, option=orjson.OPT_SERIALIZE_NUMPY), mimetype="application/json")
 
 
 def _batch_doc(calc: Calculation) -> dict[str, Any]:
@@ -166,6 +222,16 @@ def _batch_doc(calc: Calculation) -> dict[str, Any]:
                 },
             },
         },
+        "parameters": [
+            {
+                "name": "layout",
+                "in": "query",
+                "required": False,
+                "schema": {"type": "string", "enum": ["rows", "columns"], "default": "rows"},
+                "description": "rows: one object per row; columns: one array per result and check (fastest for "
+                "large batches; element i belongs to row i)",
+            }
+        ],
         "responses": {
             "200": {
                 "description": "one entry per row, in order; a bad row has ok false and its problem",
@@ -192,3 +258,9 @@ def _register(calc: Calculation) -> None:
 
 for _calc in FLAT_CALCULATIONS.values():
     _register(_calc)
+
+
+@blp.before_request
+def _reads_may_need_a_token() -> None:
+    # Calculations read the parts table, so they follow its read protection.
+    require_reader()

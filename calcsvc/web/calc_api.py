@@ -16,9 +16,11 @@ from marshmallow import Schema, ValidationError, fields, validate, validates_sch
 
 from calcsvc.core import duty_power
 from calcsvc.core.outcome import Outcome
+from calcsvc.web.auth import require_reader
 from calcsvc.web.calc_schemas import camel, request_schema, response_schema, role_fields
 from calcsvc.web.calculations import FLAT_CALCULATIONS, Calculation, Columns, Form, Role
 from calcsvc.web.envelope import envelope, plain, row_results
+from calcsvc.web.metrics import record_calculation
 from calcsvc.web.problems import PROBLEM_MIMETYPE, Problem, error_response
 from calcsvc.web.quantity import Quantity
 from calcsvc.web.resolve import PartResolver, Resolved, resolve
@@ -35,6 +37,8 @@ MAX_WAVEFORM_SAMPLES = 100_000
 
 
 def resolve_parts(roles: tuple[Role, ...], body: Mapping[str, Any]) -> Resolved:
+    if not any(role.name in body or f"{role.name}_revision" in body for role in roles):
+        return resolve(roles, body, PartResolver(None))  # all values explicit: no database round trip
     with current_app.extensions["calcsvc.db"].transaction() as session:
         return resolve(roles, body, PartResolver(session))
 
@@ -81,6 +85,7 @@ def run_flat(calc: Calculation, body: Mapping[str, Any]) -> dict[str, Any]:
     resolved = resolve_parts(calc.roles, body)
     values = complete(calc, resolved.values)
     outcome = calc.compute(calc.make_inputs(columns_of(calc, [values])))
+    record_calculation(calc.name, 1)
     return envelope(
         calc.name, calc.version, values, resolved.parts, flat_results(calc, outcome, 0), outcome, 0, resolved.warnings
     )
@@ -142,9 +147,10 @@ def _cell_error(description: str) -> dict[str, Any]:
 
 
 def _register_flat(calc: Calculation) -> None:
-    request = request_schema(calc)
-    response = response_schema(calc.name, calc.results)
-    query = query_schema(calc)
+    # Instances, not classes: webargs would build a new schema object on every request.
+    request = request_schema(calc)()
+    response = response_schema(calc.name, calc.results)()
+    query = query_schema(calc)()
 
     class CalculationView(MethodView):
         @blp.arguments(request)
@@ -315,6 +321,7 @@ def run_duty(body: Mapping[str, Any]) -> dict[str, Any]:
         count=column["count"],
     )
     outcome = duty_power.compute(inputs)
+    record_calculation(duty_power.NAME, 1)
     per_load = [
         {
             "name": load["name"],
@@ -346,3 +353,9 @@ class DutyCyclePower(MethodView):
     def post(self, body: dict[str, Any]) -> dict[str, Any]:
         """Average and peak supply current and power of duty-cycled loads, with runtime and duty headroom."""
         return run_duty(body)
+
+
+@blp.before_request
+def _reads_may_need_a_token() -> None:
+    # Calculations read the parts table, so they follow its read protection.
+    require_reader()

@@ -16,11 +16,12 @@ import numpy as np
 
 from calcsvc.units import UnitError, parse_quantity
 from calcsvc.web.calculations import Calculation, Columns, Input, Role
-from calcsvc.web.parts_api import PART_ID
+from calcsvc.web.parts_api import MAX_REVISION, PART_ID
 from calcsvc.web.problems import Problem
 from calcsvc.web.resolve import PartResolver, resolve
 
 _PART_ID = re.compile(PART_ID)
+_SCALARS = frozenset((int, float, str))  # exact types: bool, a subclass of int, is refused on the slow path
 
 
 @dataclass
@@ -44,18 +45,20 @@ class RowErrors:
 
 @dataclass
 class ParsedRows:
+    n: int
     columns: Columns
     present: dict[str, np.ndarray]  # which rows gave each input (explicitly or through a part)
-    parts: list[list[dict[str, Any]]]
-    warnings: list[list[str]]
+    parts: dict[int, list[dict[str, Any]]]  # only rows that name parts
+    warnings: dict[int, list[str]]
     errors: RowErrors
 
 
 def _number_column(spec: Input, raw: list[Any], errors: RowErrors, blank_is_absent: bool) -> np.ndarray:
-    if None not in raw and not any(type(v) is bool for v in raw):
+    if set(map(type, raw)) <= _SCALARS:  # one C-level pass over the cells
         try:
             # Fast path: every cell a number or a bare numeric string ("" never converts), so a NaN here was
-            # written as NaN by the caller, which is an error, not "absent".
+            # written as NaN by the caller, which is an error, not "absent". A list or null cell takes the slow
+            # path: numpy would turn [1] into a second axis and null into NaN.
             column = np.array(raw, dtype=np.float64)
         except (TypeError, ValueError, OverflowError):
             pass
@@ -116,7 +119,7 @@ def parse_rows(
     allowed = {spec.name for spec in calc.inputs}
     for role in calc.roles:
         allowed |= {role.name, f"{role.name}_revision"}
-    if not all(isinstance(record, dict) for record in records):
+    if set(map(type, records)) != {dict}:
         for row, record in enumerate(records):
             if not isinstance(record, dict):
                 errors.add(row, "row", "each row must be an object of input names and values")
@@ -144,8 +147,8 @@ def parse_rows(
             _check_range(spec, column, errors)
             columns[spec.name] = column
 
-    parts: list[list[dict[str, Any]]] = [[] for _ in range(n)]
-    warnings: list[list[str]] = [[] for _ in range(n)]
+    parts: dict[int, list[dict[str, Any]]] = {}
+    warnings: dict[int, list[str]] = {}
     for role in calc.roles:
         if role.name in seen or f"{role.name}_revision" in seen:
             _resolve_role(role, records, columns, parts, warnings, errors, resolver, blank_is_absent)
@@ -162,15 +165,15 @@ def parse_rows(
     for spec in calc.inputs:
         if spec.choices:
             columns[spec.name] = columns[spec.name].astype(str)
-    return ParsedRows(columns, present, parts, warnings, errors)
+    return ParsedRows(n, columns, present, parts, warnings, errors)
 
 
 def _resolve_role(
     role: Role,
     records: list[dict[str, Any]],
     columns: Columns,
-    parts: list[list[dict[str, Any]]],
-    warnings: list[list[str]],
+    parts: dict[int, list[dict[str, Any]]],
+    warnings: dict[int, list[str]],
     errors: RowErrors,
     resolver: PartResolver,
     blank_is_absent: bool,
@@ -191,11 +194,13 @@ def _resolve_role(
             errors.add(row, role.name, "must be a part_id")
             continue
         try:
+            if isinstance(revision, bool) or (isinstance(revision, float) and not revision.is_integer()):
+                raise ValueError  # int() would take True as 1 and cut 1.5 to 1
             revision = None if revision is None else int(revision)
-            if revision is not None and revision < 1:
+            if revision is not None and not 1 <= revision <= MAX_REVISION:
                 raise ValueError
         except (TypeError, ValueError):
-            errors.add(row, f"{role.name}_revision", "must be a whole number of at least 1")
+            errors.add(row, f"{role.name}_revision", f"must be a whole number from 1 to {MAX_REVISION}")
             continue
         groups.setdefault((part_id, revision), []).append(row)
     for (part_id, revision), rows in groups.items():
@@ -215,5 +220,6 @@ def _resolve_role(
                 take = index[np.isnan(column[index])]
                 column[take] = float(resolved.values[input_name])
         for row in rows:
-            parts[row].extend(resolved.parts)
-            warnings[row].extend(resolved.warnings)
+            parts.setdefault(row, []).extend(resolved.parts)
+            if resolved.warnings:
+                warnings.setdefault(row, []).extend(resolved.warnings)

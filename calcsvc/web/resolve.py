@@ -17,12 +17,13 @@ from calcsvc.web.problems import Problem
 class PartResolver:
     """Looks each distinct (part, revision) up once, however many rows or roles name it."""
 
-    session: Session
+    session: Session | None  # None when the request names no part
     cache: dict[tuple[str, int | None], PartView] = field(default_factory=dict)
 
     def part(self, role: str, part_id: str, revision: int | None) -> PartView:
         key = (part_id, revision)
         if key not in self.cache:
+            assert self.session is not None, "a part is named, so the resolver needs a session"
             store = PartStore(self.session)
             try:
                 self.cache[key] = store.get(part_id) if revision is None else store.get_revision(part_id, revision)
