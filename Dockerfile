@@ -33,6 +33,7 @@ COPY seed_parts ./seed_parts
 COPY --chmod=0755 deploy/entrypoint.sh /usr/local/bin/calcsvc-entrypoint
 
 ENV CALCSVC_SEED_DIR=/app/seed_parts \
+    MPLCONFIGDIR=/tmp/matplotlib \
     DATABASE_URL=sqlite:////data/calcsvc.sqlite \
     HOST=0.0.0.0 \
     PORT=8000

@@ -116,3 +116,12 @@ def test_html_report(client: FlaskClient, seeded: Any) -> None:
     assert response.mimetype == "text/html"
     page = response.get_data(as_text=True)
     assert "FAIL" in page and "saturation" in page and "<table" in page
+
+
+def test_yield_histogram_of_the_most_failing_check(client: FlaskClient) -> None:
+    weak = {**EXPLICIT, "hfe_min": 20, "hfe_typ": 40, "forced_beta": 30, "samples": 1000}
+    png = client.post("/v1/review/channel/histogram.png", json=weak)
+    assert png.status_code == 200 and png.mimetype == "image/png" and png.data.startswith(b"\x89PNG")
+    svg = client.post("/v1/review/channel/histogram.svg", json=weak)
+    assert svg.mimetype == "image/svg+xml" and b"saturation" in svg.data
+    assert_problem(client.post("/v1/review/channel/histogram.svg", json=EXPLICIT), 422, "samples")

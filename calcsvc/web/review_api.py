@@ -14,10 +14,14 @@ from marshmallow import Schema, fields
 
 from calcsvc.core import channel, tolerance
 from calcsvc.core.outcome import Outcome, raise_violations
+from calcsvc.web import plots
+from calcsvc.web.auth import require_reader
 from calcsvc.web.calc_api import columns_of, complete, resolve_parts
 from calcsvc.web.calc_schemas import CheckSchema, PartUsedSchema, request_schema
 from calcsvc.web.calculations import E_SERIES, Form, Input, Role, fraction, positive
 from calcsvc.web.envelope import fingerprint, plain, row_notices
+from calcsvc.web.metrics import record_calculation
+from calcsvc.web.plots_api import image_response
 from calcsvc.web.problems import Problem, error_response
 from calcsvc.web.review_report import render_html, render_markdown
 
@@ -130,6 +134,7 @@ REVIEW = Form(
     ),
 )
 STAGES = ("led_string", "switch", "supply", "front_stage")
+REVIEW_REQUEST = request_schema(REVIEW)
 
 
 def _refuse(field: str, message: str) -> Problem:
@@ -193,6 +198,7 @@ def review_document(values: dict[str, Any], parts: list[dict[str, Any]], warning
     samples, seed = int(values["samples"]), int(values["seed"])
     raise_violations(tolerance.validate_monte_carlo(inputs, max(samples, 1), seed))
     worst = tolerance.worst_case(inputs)
+    record_calculation(channel.NAME, 1)
     nominal = worst.nominal
     stage_of = {check.name: stage for stage in STAGES for check in getattr(nominal, stage).checks}
     checks = [
@@ -231,6 +237,31 @@ def review_document(values: dict[str, Any], parts: list[dict[str, Any]], warning
         }
     document["fingerprint"] = fingerprint(channel.NAME, channel.VERSION, document["inputs"], parts)
     return document
+
+
+# The unit of each check's value, for axes and reports.
+CHECK_UNITS = {
+    "led_current_rating": "A", "headroom": "V", "resistor_rating": "W", "saturation": "", "driver_current": "A",
+    "collector_current_rating": "A", "power_rating": "W", "off_state": "V", "supply_average_current": "A",
+    "supply_peak_current": "A", "gain_achievable": "", "signal_in_band": "Hz", "slew_rate": "V/s", "output_swing": "V",
+}  # fmt: skip
+
+
+def yield_histogram(body: Mapping[str, Any], fmt: str) -> plots.Plot:
+    """The Monte Carlo distribution of the check that fails most often, with its limit marked."""
+    resolved = resolve_parts(REVIEW.roles, body)
+    values = complete(REVIEW, resolved.values)
+    samples = int(values["samples"]) or tolerance.DEFAULT_SAMPLES
+    found = tolerance.monte_carlo(channel_inputs(values), samples, int(values["seed"]))
+    if found.most_failing_check is None or found.most_failing_values is None or found.most_failing_limits is None:
+        message = f"every one of the {samples} simulated builds passes every check: there is no failing check to plot"
+        raise Problem(422, message, "nothing-fails", {"samples": [message]})
+    name, values, limits = found.most_failing_check, found.most_failing_values, found.most_failing_limits
+    if np.ptp(limits) > 1e-9 * np.abs(limits).max():
+        # The limit itself varies per build (the hfe of each transistor, the supply of each build): only the
+        # value relative to its own limit shows which builds fail.
+        return plots.histogram(values / limits, 1.0, f"{name} (value / its limit)", "", fmt)
+    return plots.histogram(values, float(limits[0]), name, CHECK_UNITS[name], fmt)
 
 
 def run_review(body: Mapping[str, Any]) -> dict[str, Any]:
@@ -283,7 +314,7 @@ REPORTS = {"text/markdown": render_markdown, "text/html": render_html}
 
 @blp.route("/channel", endpoint="channel")
 class ChannelReview(MethodView):
-    @blp.arguments(request_schema(REVIEW))
+    @blp.arguments(REVIEW_REQUEST)
     @blp.response(200, ReviewSchema)
     @error_response(blp, 404, "a referenced part does not exist")
     @blp.doc(
@@ -305,3 +336,26 @@ class ChannelReview(MethodView):
         if best in REPORTS:
             return Response(REPORTS[best](document), mimetype=best)
         return document
+
+
+@blp.before_request
+def _reads_may_need_a_token() -> None:
+    # Calculations read the parts table, so they follow its read protection.
+    require_reader()
+
+
+def _register_histogram(fmt: str) -> None:
+    class Histogram(MethodView):
+        @blp.arguments(REVIEW_REQUEST)
+        @blp.response(200, {"type": "string"}, content_type=plots.FORMATS[fmt], description=f"the histogram ({fmt})")
+        @error_response(blp, 404, "a referenced part does not exist")
+        def post(self, body: dict[str, Any]) -> Response:
+            """Monte Carlo histogram of the check that fails most often (limit marked); same body as the review."""
+            return image_response(yield_histogram(body, fmt))
+
+    Histogram.__name__ = f"Histogram{fmt.capitalize()}"
+    blp.route(f"/channel/histogram.{fmt}", endpoint=f"histogram-{fmt}")(Histogram)
+
+
+for _fmt in plots.FORMATS:
+    _register_histogram(_fmt)

@@ -1,0 +1,159 @@
+"""The review page in a real browser: headless Chromium from the system's packages, driven by Playwright, against
+the app served over HTTP. Runs once, on its own SQLite store; screenshots go to each test's tmp_path."""
+
+from __future__ import annotations
+
+import os
+import time
+from collections.abc import Iterator
+from pathlib import Path
+from typing import Any
+from urllib.parse import urlencode
+
+import pytest
+import requests
+from flask import Flask
+from helpers import bearer, live_server
+
+from calcsvc import create_app
+from calcsvc.data.database import upgrade
+from calcsvc.data.seed import load_seed
+from calcsvc.data.tokens import create_token
+from calcsvc.web.review_page import DEMO_CHANNEL
+
+CHROMIUM = "/usr/bin/chromium"
+if not os.access(CHROMIUM, os.X_OK):
+    message = f"{CHROMIUM} is absent: install the Debian package 'chromium'"
+    if os.environ.get("CALCSVC_REQUIRE_BROWSER"):
+        # CI installs the browser, so its absence there is a failure, never a silent skip.
+        raise RuntimeError(message)
+    pytest.skip(message, allow_module_level=True)
+sync_api = pytest.importorskip("playwright.sync_api", reason="the playwright Python package is not installed")
+
+REPO = Path(__file__).resolve().parent.parent
+OPAMP_ID = "opamp-general-1mhz"
+STEP_MS = 10_000  # a step waits at most this long
+
+
+@pytest.fixture(scope="module")
+def served(tmp_path_factory: pytest.TempPathFactory) -> Iterator[tuple[str, dict[str, str]]]:
+    """The app on a free loopback port with the seed parts and three tokens; yields the base URL and tokens."""
+    url = f"sqlite:///{tmp_path_factory.mktemp('browser') / 'calcsvc.sqlite'}"
+    upgrade(url)
+    app: Flask = create_app({"DATABASE_URL": url, "SEED_DIR": str(REPO / "seed_parts"), "LOG_LEVEL": "WARNING"})
+    with app.extensions["calcsvc.db"].transaction() as session:
+        load_seed(session, REPO / "seed_parts")
+        tokens = {name: create_token(session, name, role) for name, role in (("edna", "editor"), ("rita", "reviewer"))}
+    with live_server(app) as base:
+        yield base, tokens
+    app.extensions["calcsvc.db"].dispose()
+
+
+@pytest.fixture(scope="module")
+def browser() -> Iterator[Any]:
+    with sync_api.sync_playwright() as playwright:
+        chromium = playwright.chromium.launch(
+            executable_path=CHROMIUM,
+            args=["--headless", "--no-sandbox", "--disable-gpu", "--disable-background-networking"],
+        )
+        yield chromium
+        chromium.close()
+
+
+@pytest.fixture
+def tab(browser: Any) -> Iterator[Any]:
+    # Page scripts off: the page must work without them (the test's own probes still run).
+    context = browser.new_context(viewport={"width": 1100, "height": 900}, java_script_enabled=False)
+    context.set_default_timeout(STEP_MS)
+    page = context.new_page()
+    yield page
+    context.close()
+
+
+def images_loaded(page: Any) -> list[bool]:
+    """Whether each image has arrived and decoded (scrolled to first: plots load lazily where scripts run)."""
+    for image in page.locator("img").all():
+        image.scroll_into_view_if_needed()
+    # Polled from here: the page's CSP forbids the string evaluation wait_for_function would use.
+    deadline = time.monotonic() + STEP_MS / 1000
+    while not all(page.eval_on_selector_all("img", "images => images.map(i => i.complete)")):
+        assert time.monotonic() < deadline, "the plots did not load"
+        page.wait_for_timeout(50)
+    return page.eval_on_selector_all("img", "images => images.map(i => i.naturalWidth > 0)")
+
+
+def shot(page: Any, folder: Path, name: str) -> None:
+    images_loaded(page)
+    page.screenshot(path=str(folder / f"{name}.png"), full_page=True)
+
+
+def test_review_a_revision_and_approve_it(tab: Any, served: tuple[str, dict[str, str]], tmp_path: Path) -> None:
+    base, tokens = served
+    # An editor changes the op-amp's gain-bandwidth product through the API.
+    etag = requests.get(f"{base}/v1/parts/{OPAMP_ID}", timeout=5).headers["ETag"]
+    current = requests.get(f"{base}/v1/parts/{OPAMP_ID}", timeout=5).json()["parameters"]
+    edited = requests.put(
+        f"{base}/v1/parts/{OPAMP_ID}",
+        json={"parameters": {**current, "gbw_hz": "1.2 MHz"}},
+        headers={**bearer(tokens["edna"]), "If-Match": etag},
+        timeout=5,
+    )
+    assert edited.status_code == 200, edited.text
+
+    tab.goto(f"{base}/review/")
+    assert "Parts" in tab.title()
+    drafts = tab.locator("section.drafts")
+    assert OPAMP_ID in drafts.inner_text()
+    shot(tab, tmp_path, "1-parts")
+
+    drafts.get_by_role("link", name=OPAMP_ID).click()
+    tab.wait_for_url(f"**/review/parts/{OPAMP_ID}")
+    assert tab.locator("#part-status").inner_text() == "draft"
+    change = tab.locator("#revision-2 li.change-changed")
+    assert change.inner_text().replace("\N{NO-BREAK SPACE}", " ") == "gbw_hz changed: 1 MHz → 1.2 MHz"
+    assert images_loaded(tab) == [True, True]
+    shot(tab, tmp_path, "2-part-draft")
+
+    # The editor's own token is refused on the page, and the part stays a draft.
+    tab.get_by_label("Reviewer token").fill(tokens["edna"])
+    tab.get_by_role("button", name="Approve revision 2").click()
+    assert "approving needs a reviewer" in tab.get_by_role("alert").inner_text()
+    assert tab.locator("#part-status").inner_text() == "draft"
+    shot(tab, tmp_path, "3-part-refused")
+
+    tab.get_by_label("Reviewer token").fill(tokens["rita"])
+    tab.get_by_role("button", name="Approve revision 2").click()
+    tab.wait_for_url(f"**/review/parts/{OPAMP_ID}?approved=2")
+    assert tab.locator("#part-status").inner_text() == "approved"
+    assert tab.get_by_role("status").inner_text() == "Revision 2 approved."
+    assert "approved by rita" in tab.locator("#revision-2").inner_text()
+    shot(tab, tmp_path, "4-part-approved")
+    assert requests.get(f"{base}/v1/parts/{OPAMP_ID}", timeout=5).json()["approved_by"] == "rita"
+
+
+def test_demo_channel_review(tab: Any, served: tuple[str, dict[str, str]], tmp_path: Path) -> None:
+    base, _ = served
+    tab.goto(f"{base}/review/channel")
+    assert tab.get_by_label("Current per string").input_value() == DEMO_CHANNEL["current_a"]
+    tab.get_by_role("button", name="Review the channel").click()
+    tab.wait_for_url("**/review/channel?*")
+    verdict = tab.locator("#verdict").inner_text()
+    expected = requests.get(f"{base}/review/channel.json?{urlencode(DEMO_CHANNEL)}", timeout=10).json()
+    assert verdict == expected["verdict"]
+    assert tab.locator("table.checks tbody tr").count() == len(expected["checks"])
+    shot(tab, tmp_path, "5-channel")
+
+
+def test_narrow_screen(browser: Any, served: tuple[str, dict[str, str]], tmp_path: Path) -> None:
+    base, _ = served
+    context = browser.new_context(viewport={"width": 380, "height": 800})
+    context.set_default_timeout(STEP_MS)
+    page = context.new_page()
+    try:
+        page.goto(f"{base}/review/parts/{OPAMP_ID}")
+        # Nothing but the scrollable tables may be wider than the screen.
+        overflow = page.evaluate("document.documentElement.scrollWidth - document.documentElement.clientWidth")
+        assert overflow <= 0
+        shot(page, tmp_path, "6-narrow")
+    finally:
+        context.close()

@@ -1,0 +1,302 @@
+"""The review page: lists, a part's parameters, history and plots, approval through the form, the channel form."""
+
+from __future__ import annotations
+
+import re
+from html.parser import HTMLParser
+from typing import Any
+from urllib.parse import urlencode
+
+import pytest
+from flask import Flask
+from flask.testing import FlaskClient
+from helpers import bearer
+
+from calcsvc import create_app
+from calcsvc.web.review_page import CSRF_COOKIE, DEMO_CHANNEL, channel_body
+
+OPAMP_ID = "opamp-general-1mhz"
+
+
+VOID = {"area", "base", "br", "col", "embed", "hr", "img", "input", "link", "meta", "source", "track", "wbr"}
+
+
+class Page(HTMLParser):
+    """What the tests read from a page: labelled controls, images, and the text of elements with an id."""
+
+    def __init__(self, html: str) -> None:
+        super().__init__()
+        self.labels: set[str] = set()
+        self.controls: list[str] = []
+        self.images: list[str] = []
+        self.hidden: dict[str, str] = {}
+        self.text: dict[str, str] = {}
+        self._open: list[str | None] = []  # the id of each open element, None where it has none
+        self.feed(html)
+
+    def handle_starttag(self, tag: str, attrs: list[tuple[str, str | None]]) -> None:
+        a = {k: v or "" for k, v in attrs}
+        if tag == "label":
+            self.labels.add(a.get("for", ""))
+        elif tag in {"input", "select", "textarea"}:
+            if a.get("type") == "hidden":
+                self.hidden[a["name"]] = a.get("value", "")
+            else:
+                self.controls.append(a.get("id", ""))
+        elif tag == "img":
+            self.images.append(a["src"])
+        if tag not in VOID:
+            self._open.append(a.get("id"))
+            if "id" in a:
+                self.text[a["id"]] = ""
+
+    def handle_endtag(self, tag: str) -> None:
+        if tag not in VOID:
+            self._open.pop()
+
+    def handle_data(self, data: str) -> None:
+        for element in self._open:
+            if element is not None:
+                self.text[element] += data
+
+
+def page(client: FlaskClient, url: str, status: int = 200) -> tuple[str, Page]:
+    response = client.get(url)
+    assert response.status_code == status, response.get_data(as_text=True)[:2000]
+    assert response.mimetype == "text/html"
+    html = response.get_data(as_text=True).replace("\N{NO-BREAK SPACE}", " ")  # values keep their units on one line
+    parsed = Page(html)
+    assert set(parsed.controls) <= parsed.labels, "every form control has a <label for=...>"
+    return html, parsed
+
+
+def create(client: FlaskClient, token: str, part: dict[str, Any]) -> None:
+    assert client.post("/v1/parts", json=part, headers=bearer(token)).status_code == 201
+
+
+def edit(client: FlaskClient, token: str, part_id: str, parameters: dict[str, Any]) -> None:
+    etag = client.get(f"/v1/parts/{part_id}").headers["ETag"]
+    response = client.put(
+        f"/v1/parts/{part_id}", json={"parameters": parameters}, headers={**bearer(token), "If-Match": etag}
+    )
+    assert response.status_code == 200, response.get_json()
+
+
+def approve(client: FlaskClient, part_id: str, token: str, revision: int | None = None) -> Any:
+    """Post the part page's approval form as a browser would, with the page's CSRF token and cookie."""
+    _, parsed = page(client, f"/review/parts/{part_id}")
+    form = {**parsed.hidden, "token": token}
+    if revision is not None:
+        form["revision"] = str(revision)
+    return client.post(f"/review/parts/{part_id}/approve", data=form)
+
+
+def status_of(client: FlaskClient, part_id: str) -> str:
+    return client.get(f"/v1/parts/{part_id}").get_json()["status"]
+
+
+OPAMP_PARAMETERS = {
+    "gbw_hz": "1.2 MHz",
+    "slew_rate_v_per_s": 500000,
+    "open_loop_gain": 200000,
+    "supply_min_v": 10,
+    "supply_max_v": 36,
+    "output_headroom_v": 1.5,
+}
+
+
+def test_list_shows_kind_status_revision_and_filters(client: FlaskClient, seeded: Any) -> None:
+    html, _ = page(client, "/review/")
+    assert "opamp-general-1mhz" in html and "led-red-5mm" in html
+    assert re.search(r"opamp-general-1mhz</a></th>\s*<td>opamp</td>", html)
+    assert "Nothing is waiting" in html
+    leds, _ = page(client, "/review/?kind=led&status=approved")
+    assert "led-red-5mm" in leds and "opamp-general-1mhz" not in leds
+    assert "6 parts of kind led, approved" in " ".join(leds.split())
+    wrong, _ = page(client, "/review/?kind=resistor", status=422)
+    assert "no part kind &#39;resistor&#39;" in wrong
+
+
+def test_drafts_wait_for_approval_on_the_list(client: FlaskClient, seeded: Any, tokens: dict[str, str]) -> None:
+    edit(client, tokens["edna"], OPAMP_ID, OPAMP_PARAMETERS)
+    html, _ = page(client, "/review/")
+    drafts = html[html.index("Waiting for approval") : html.index("</section>")]
+    assert "Waiting for approval (1)" in drafts
+    assert OPAMP_ID in drafts and "revision 2 by edna" in drafts
+
+
+def test_part_page_shows_parameters_with_units_and_each_revisions_difference(
+    client: FlaskClient, seeded: Any, tokens: dict[str, str]
+) -> None:
+    edit(client, tokens["edna"], OPAMP_ID, OPAMP_PARAMETERS)  # gbw 1 → 1.2 MHz, input_offset_v removed
+    html, parsed = page(client, f"/review/parts/{OPAMP_ID}")
+    assert '<data value="1200000.0">1.2 MHz</data>' in html
+    assert '<data value="500000">500 kV/s</data>' in html
+    assert parsed.text["part-status"] == "draft"
+    revision_2 = html[html.index('id="revision-2"') : html.index('id="revision-1"')]
+    assert "Written by edna" in revision_2 and "not approved" in revision_2
+    assert re.search(r"<code>gbw_hz</code> changed:\s*<del>1 MHz</del> → <ins>1.2 MHz</ins>", revision_2)
+    assert re.search(r"<code>input_offset_v</code> removed:\s*<del>2 mV</del>", revision_2)
+    assert "slew_rate_v_per_s" not in revision_2  # unchanged fields are not listed
+    revision_1 = html[html.index('id="revision-1"') :]
+    assert "First revision." in revision_1 and "approved by seed" in revision_1
+
+
+def test_opamp_page_shows_its_plots_pinned_to_the_revision(client: FlaskClient, seeded: Any) -> None:
+    _, parsed = page(client, f"/review/parts/{OPAMP_ID}")
+    assert len(parsed.images) == 2
+    closed_loop, slew = parsed.images
+    assert closed_loop.startswith("/v1/plots/closed-loop.svg?") and "opamp_revision=1" in closed_loop
+    assert "gain=10" in closed_loop
+    assert slew.startswith("/v1/plots/slew-limit.svg?") and "supply_v=12.0" in slew
+    for url in parsed.images:
+        response = client.get(url.replace("&amp;", "&"))
+        assert response.status_code == 200 and response.mimetype == "image/svg+xml"
+
+
+@pytest.mark.parametrize(("vf_typ_v", "in_series"), [(2.0, 3), (3.8, 1)])
+def test_led_page_plots_three_in_series_when_they_fit(
+    client: FlaskClient, seeded: Any, tokens: dict[str, str], vf_typ_v: float, in_series: int
+) -> None:
+    led = {
+        "part_id": "led-test",
+        "kind": "led",
+        "parameters": {
+            "color": "amber",
+            "vf_typ_v": vf_typ_v,
+            "vf_min_v": vf_typ_v - 0.2,
+            "vf_max_v": vf_typ_v + 0.3,
+            "if_test_a": 0.02,
+            "if_max_a": 0.03,
+        },
+    }
+    create(client, tokens["edna"], led)
+    _, parsed = page(client, "/review/parts/led-test")
+    (url,) = parsed.images
+    url = url.replace("&amp;", "&")
+    # 3 × 3.8 V leaves 0.6 V of 12 V, under the 10 % headroom a resistor needs to regulate (common practice).
+    assert f"leds_in_series={in_series}" in url and "supply=supply-adapter-12v-2a" in url and "current_a=0.02" in url
+    assert client.get(url).status_code == 200
+
+
+def test_parts_without_plots_show_none(client: FlaskClient, seeded: Any) -> None:
+    _, parsed = page(client, "/review/parts/npn-small-signal")
+    assert parsed.images == []
+
+
+def test_reviewer_approves_through_the_form(client: FlaskClient, seeded: Any, tokens: dict[str, str]) -> None:
+    edit(client, tokens["edna"], OPAMP_ID, OPAMP_PARAMETERS)
+    response = approve(client, OPAMP_ID, tokens["rita"])
+    assert response.status_code == 303
+    assert response.headers["Location"].endswith(f"/review/parts/{OPAMP_ID}?approved=2")
+    assert tokens["rita"] not in response.headers.get("Set-Cookie", "")
+    assert status_of(client, OPAMP_ID) == "approved"
+    html, parsed = page(client, f"/review/parts/{OPAMP_ID}?approved=2")
+    assert parsed.text["part-status"] == "approved"
+    assert "Revision 2 approved." in html and "approved by rita" in html
+
+
+@pytest.mark.parametrize(
+    ("who", "status", "message"),
+    [
+        ("edna", 403, "approving needs a reviewer"),
+        ("nobody", 401, "not valid"),
+        ("", 401, "Paste your reviewer token"),
+    ],
+)
+def test_approval_refusals_show_on_the_page(
+    client: FlaskClient, seeded: Any, tokens: dict[str, str], who: str, status: int, message: str
+) -> None:
+    edit(client, tokens["edna"], OPAMP_ID, OPAMP_PARAMETERS)
+    response = approve(client, OPAMP_ID, tokens.get(who, "cs_" + who if who else ""))
+    assert response.status_code == status
+    assert response.mimetype == "text/html"
+    assert message in response.get_data(as_text=True)
+    assert status_of(client, OPAMP_ID) == "draft"
+
+
+def test_author_cannot_approve_their_own_revision(client: FlaskClient, seeded: Any, tokens: dict[str, str]) -> None:
+    edit(client, tokens["rita"], OPAMP_ID, OPAMP_PARAMETERS)  # a reviewer may edit, but not approve her edit
+    response = approve(client, OPAMP_ID, tokens["rita"])
+    assert response.status_code == 403
+    assert "cannot be approved by its own author" in response.get_data(as_text=True)
+    assert approve(client, OPAMP_ID, tokens["ravi"]).status_code == 303
+
+
+def test_a_revision_changed_since_the_page_loaded_is_not_approved(
+    client: FlaskClient, seeded: Any, tokens: dict[str, str]
+) -> None:
+    edit(client, tokens["edna"], OPAMP_ID, OPAMP_PARAMETERS)
+    edit(client, tokens["edna"], OPAMP_ID, {**OPAMP_PARAMETERS, "gbw_hz": "1.3 MHz"})
+    response = approve(client, OPAMP_ID, tokens["rita"], revision=2)
+    assert response.status_code == 412
+    assert "review it again" in response.get_data(as_text=True)
+    assert status_of(client, OPAMP_ID) == "draft"
+
+
+def test_approval_needs_the_pages_csrf_token(client: FlaskClient, seeded: Any, tokens: dict[str, str]) -> None:
+    edit(client, tokens["edna"], OPAMP_ID, OPAMP_PARAMETERS)
+    url = f"/review/parts/{OPAMP_ID}/approve"
+    forged = {"token": tokens["rita"], "revision": "2", "csrf_token": "x" * 43}
+    assert client.post(url, data=forged).status_code == 400  # no cookie yet: a cross-site post has none
+    page(client, f"/review/parts/{OPAMP_ID}")  # now the browser holds a cookie, but the forger cannot read it
+    response = client.post(url, data=forged)
+    assert response.status_code == 400
+    assert "form has expired" in response.get_data(as_text=True)
+    assert status_of(client, OPAMP_ID) == "draft"
+
+
+def test_csrf_cookie_is_httponly_strict_and_secure_over_https(client: FlaskClient, seeded: Any) -> None:
+    plain = client.get(f"/review/parts/{OPAMP_ID}").headers["Set-Cookie"]
+    assert plain.startswith(f"{CSRF_COOKIE}=") and "HttpOnly" in plain and "SameSite=Strict" in plain
+    assert "Path=/review" in plain and "Secure" not in plain
+    secure = client.get(f"/review/parts/{OPAMP_ID}", base_url="https://parts.example").headers["Set-Cookie"]
+    assert "Secure" in secure
+    headers = client.get("/review/").headers
+    assert "frame-ancestors 'none'" in headers["Content-Security-Policy"]
+    assert headers["Cache-Control"] == "no-store"
+
+
+def test_unknown_part_and_protected_reads(client: FlaskClient, database_url: str) -> None:
+    html, _ = page(client, "/review/parts/no-such-part", status=404)
+    assert "There is no part" in html
+    protected = create_app({"DATABASE_URL": database_url, "READ_REQUIRES_TOKEN": True})
+    try:
+        html, _ = page(protected.test_client(), "/review/", status=403)
+        assert "requires a token for every read" in html
+    finally:
+        protected.extensions["calcsvc.db"].dispose()
+
+
+def test_channel_form_starts_with_the_demo(client: FlaskClient, seeded: Any) -> None:
+    html, parsed = page(client, "/review/channel")
+    for role in ("supply", "driver", "transistor", "led", "opamp"):
+        assert f'<option value="{DEMO_CHANNEL[role]}" selected>' in html
+    assert 'value="pnp-small-signal"' not in html  # the switch must be an NPN
+    assert {"leds_in_series", "strings", "current_a", "duty_cycle", "channels", "gain"} <= set(parsed.controls)
+    assert "Verdict" not in html
+
+
+def test_demo_channel_review_shows_the_verdict_checks_and_report(app: Flask, client: FlaskClient, seeded: Any) -> None:
+    from calcsvc.web.review_api import run_review
+
+    html, parsed = page(client, "/review/channel?" + urlencode(DEMO_CHANNEL))
+    with app.test_request_context():
+        expected = run_review(channel_body(DEMO_CHANNEL))
+    assert parsed.text["verdict"] == expected["verdict"]
+    assert "<table class='checks'>" in html and '<pre class="report"># Channel review:' in html
+    assert all(check["name"] in html for check in expected["checks"])
+    json_url = re.search(r'<a href="([^"]+)">This review as JSON</a>', html)
+    assert json_url is not None
+    answer = client.get(json_url.group(1).replace("&amp;", "&"))
+    assert answer.status_code == 200 and answer.get_json()["fingerprint"] == expected["fingerprint"]
+
+
+def test_channel_form_errors_name_the_field(client: FlaskClient, seeded: Any) -> None:
+    html, _ = page(client, "/review/channel?" + urlencode({**DEMO_CHANNEL, "duty_cycle": "1.5"}), status=422)
+    assert "<code>duty_cycle</code>" in html and 'id="duty_cycle"' in html and 'aria-invalid="true"' in html
+    html, _ = page(client, "/review/channel?" + urlencode({**DEMO_CHANNEL, "led": "no-such-led"}), status=404)
+    assert "<code>led</code>" in html
+    without_opamp = channel_body({**DEMO_CHANNEL, "opamp": ""})
+    assert "opamp" not in without_opamp and "gain" not in without_opamp
+    assert without_opamp["leds_in_series"] == 3 and without_opamp["current_a"] == 0.02
