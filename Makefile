@@ -6,7 +6,7 @@ HOST ?= 127.0.0.1
 PORT ?= 8000
 export HOST PORT
 
-.PHONY: serve test lint openapi bench clean
+.PHONY: serve test lint openapi bench load clean
 
 $(PY):
 	$(PYTHON) -m venv $(VENV)
@@ -36,8 +36,13 @@ lint: $(VENV)/.test-installed
 openapi: $(VENV)/.serve-installed
 	$(PY) -m calcsvc.openapi_spec openapi/openapi.json
 
-bench: $(VENV)/.test-installed
-	$(PY) benchmarks/run.py
+# Speed figures side by side, also written to benchmarks/RESULTS.md (about 2 minutes; BENCH_ARGS e.g. --seconds 3).
+bench: $(VENV)/.serve-installed
+	$(PY) benchmarks/run.py --write-results $(BENCH_ARGS)
+
+# A bounded mix of calculation and parts traffic (20 s); with DATABASE_URL set, against that PostgreSQL.
+load: $(VENV)/.serve-installed
+	$(PY) benchmarks/load.py $(LOAD_ARGS)
 
 clean:
 	rm -rf $(VENV) instance .pytest_cache

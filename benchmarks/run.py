@@ -1,0 +1,614 @@
+"""``make bench``: calcsvc's speed figures, measured side by side in one run and printed as one table with ratios.
+
+1. Endpoint overhead: requests/s of ``POST /v1/calc/led-string`` against a bare JSON route of the same app
+   (benchmarks/echo_app.py) under the same gunicorn settings and the same load generator.
+2. Batch: a 100,000-row LED-string batch over HTTP (JSON and CSV, end to end) against the core in-process
+   and against single-row requests.
+3. Core: closed-loop sweep and LED string against plain Python loops of the same formulas; channel Monte Carlo.
+4. Memory: peak RSS (VmHWM) of the gunicorn workers after the batches.
+
+Speed targets live here, never in unit tests. ``--write-results`` also writes the table to benchmarks/RESULTS.md.
+"""
+
+from __future__ import annotations
+
+import argparse
+import bisect
+import csv
+import datetime
+import io
+import math
+import os
+import platform
+import statistics
+import sys
+import time
+from collections.abc import Callable
+from dataclasses import dataclass
+from importlib.metadata import version
+from pathlib import Path
+from typing import Any
+
+import numpy as np
+import orjson
+from server import REPO, Server, gunicorn, peak_rss_bytes
+from traffic import Client, Tally, drive
+
+from calcsvc.core import closed_loop, eseries, led_string, tolerance
+from calcsvc.core.channel import ChannelInputs
+
+RESULTS = REPO / "benchmarks" / "RESULTS.md"
+JSON = {"Content-Type": "application/json"}
+ENDPOINT_TARGET = 0.7  # calculation endpoint at least 0.7 of the bare route's requests/s
+ENDPOINT_ROUNDS = 2
+BATCH_ROWS_PER_S_TARGET = 200_000
+BATCH_SPEEDUP_TARGET = 100.0
+SINGLE_REQUESTS = 1_000
+CORE_ROWS = 1_000_000
+LOOP_ROWS = 10_000  # the plain Python loop runs on these and is extrapolated
+SWEEP_POINTS = closed_loop.MAX_SWEEP_POINTS
+MONTE_CARLO_SAMPLES = (1_000_000, 100_000)
+
+# The greenhouse grow-light demo: three red LEDs in each of two strings at 20 mA, from a 12 V adapter, switched
+# by a small-signal NPN from a 3.3 V microcontroller pin; six such channels at 50 % duty.
+LED = {"vf_typ_v": 2.0, "vf_min_v": 1.8, "vf_max_v": 2.4, "if_max_a": 0.03}
+SINGLE_BODY = {
+    "supply_v": 12.0, "supply_tolerance": 0.05, **LED, "leds_in_series": 3, "strings": 2, "current_a": 0.02,
+    "switch_drop_v": 0.2,
+}  # fmt: skip
+PARTS_BODY = {
+    "supply": "supply-adapter-12v-2a", "led": "led-red-5mm", "transistor": "npn-small-signal",
+    "leds_in_series": 3, "strings": 2, "current_a": 0.02,
+}  # fmt: skip
+
+
+# ---- formatting ------------------------------------------------------------------------------------------
+
+
+@dataclass(frozen=True)
+class Row:
+    section: str
+    measured: str
+    figure: str
+    baseline: str
+    baseline_figure: str
+    ratio: str
+    target: str = ""
+    verdict: str = ""
+
+
+HEADER = ("", "measured", "figure", "compared with", "figure", "ratio", "target", "verdict")
+
+
+def duration(seconds: float) -> str:
+    for unit, scale in (("s", 1.0), ("ms", 1e-3), ("µs", 1e-6)):
+        if seconds >= scale:
+            return f"{seconds / scale:.3g} {unit}"
+    return f"{seconds / 1e-9:.3g} ns"
+
+
+def rate(per_second: float, unit: str) -> str:
+    return f"{per_second:,.0f} {unit}/s"
+
+
+def mib(size: int) -> str:
+    return f"{size / 2**20:,.0f} MiB"
+
+
+def verdict(ok: bool) -> str:
+    return "met" if ok else "MISSED"
+
+
+def markdown_table(rows: list[Row]) -> str:
+    cells = [HEADER] + [
+        (r.section, r.measured, r.figure, r.baseline, r.baseline_figure, r.ratio, r.target, r.verdict) for r in rows
+    ]
+    widths = [max(len(line[k]) for line in cells) for k in range(len(HEADER))]
+
+    def line(values: tuple[str, ...]) -> str:
+        return "| " + " | ".join(v.ljust(w) for v, w in zip(values, widths, strict=True)) + " |"
+
+    return "\n".join(
+        [line(cells[0]), "|" + "|".join("-" * (w + 2) for w in widths) + "|"] + [line(c) for c in cells[1:]]
+    )
+
+
+def cpu_model() -> str:
+    for line in Path("/proc/cpuinfo").read_text().splitlines():
+        if line.startswith("model name"):
+            return line.partition(":")[2].strip()
+    return platform.machine()
+
+
+def machine() -> dict[str, str]:
+    memory = next(line.split()[1] for line in Path("/proc/meminfo").read_text().splitlines() if "MemTotal" in line)
+    load = ", ".join(f"{x:.2f}" for x in os.getloadavg())
+    return {
+        "date": datetime.datetime.now(datetime.UTC).strftime("%Y-%m-%d %H:%M UTC"),
+        "command": " ".join([Path(sys.executable).name, *sys.argv]),
+        "nproc": str(len(os.sched_getaffinity(0))),
+        "memory": f"{int(memory) / 2**20:.1f} GiB",
+        "python": platform.python_version(),
+        "numpy": np.__version__,
+        "gunicorn": version("gunicorn"),
+        "cpu": cpu_model(),
+        "load average (1, 5, 15 min) at start": load,
+    }
+
+
+def best_of(repeats: int, run: Callable[[], Any]) -> tuple[float, Any]:
+    """Shortest wall time of ``repeats`` runs (the least disturbed by other work on the machine), and what the
+    last run returned."""
+    times, value = [], None
+    for _ in range(repeats):
+        began = time.perf_counter()
+        value = run()
+        times.append(time.perf_counter() - began)
+    return min(times), value
+
+
+# ---- the rows --------------------------------------------------------------------------------------------
+
+
+def designs(n: int, seed: int) -> dict[str, np.ndarray]:
+    """Input columns of ``n`` valid, varied LED-string designs: red LEDs three to a string or green two to a
+    string, 7.5–24 V, 4–25 mA, one to three strings, three resistor series."""
+    rng = np.random.default_rng(seed)
+    green = rng.random(n) < 0.5
+    return {
+        "supply_v": np.round(rng.uniform(7.5, 24.0, n), 3),
+        "supply_tolerance": np.full(n, 0.05),
+        "vf_typ_v": np.where(green, 3.2, LED["vf_typ_v"]),
+        "vf_min_v": np.where(green, 2.8, LED["vf_min_v"]),
+        "vf_max_v": np.where(green, 3.6, LED["vf_max_v"]),
+        "if_max_a": np.full(n, LED["if_max_a"]),
+        "leds_in_series": np.where(green, 2.0, 3.0),
+        "strings": rng.integers(1, 4, n).astype(np.float64),
+        "current_a": np.round(rng.uniform(0.004, 0.025, n), 5),
+        "switch_drop_v": np.full(n, 0.2),
+        "e_series": rng.choice(["E12", "E24", "E96"], n),
+    }
+
+
+def led_inputs(columns: dict[str, np.ndarray]) -> led_string.LedStringInputs:
+    n = columns["supply_v"].shape[0]
+    return led_string.LedStringInputs(**columns, resistor_tolerance=np.full(n, np.nan))
+
+
+def records(columns: dict[str, np.ndarray]) -> list[dict[str, Any]]:
+    """The designs as request rows; counts as JSON integers."""
+    whole = {"leds_in_series", "strings"}
+    names = list(columns)
+    values = [columns[name].astype(int).tolist() if name in whole else columns[name].tolist() for name in names]
+    return [dict(zip(names, row, strict=True)) for row in zip(*values, strict=True)]
+
+
+def csv_text(rows: list[dict[str, Any]]) -> str:
+    out = io.StringIO()
+    writer = csv.DictWriter(out, fieldnames=list(rows[0]), lineterminator="\n")
+    writer.writeheader()
+    writer.writerows(rows)
+    return out.getvalue()
+
+
+# ---- plain Python loops of the core's formulas (the yardstick for the vectorized core) -------------------
+
+_MANTISSAS = {
+    name: [m * 10.0**decade for decade in (-1, 0, 1) for m in values] + [100.0]
+    for name, values in eseries.SERIES.items()
+}
+
+
+def _standard_at_or_above(value: float, series: str) -> float:
+    decade = math.floor(math.log10(value))
+    scale = 10.0**decade
+    table = _MANTISSAS[series]
+    return table[bisect.bisect_left(table, value / scale * (1.0 - eseries.REL_TOL))] * scale
+
+
+RESULT_NAMES = (
+    "resistor_exact_ohm", "resistor_ohm", "current_a", "current_min_a", "current_max_a", "resistor_power_w",
+    "resistor_power_max_w", "resistor_rating_w", "led_power_w", "total_current_a", "efficiency", "headroom_v",
+)  # fmt: skip
+"""The results ``led_string_loop`` gives first, in this order."""
+
+
+LOOP_INPUTS = (
+    "supply_v", "supply_tolerance", "vf_typ_v", "vf_min_v", "vf_max_v", "if_max_a", "leds_in_series", "strings",
+    "current_a", "switch_drop_v", "e_series",
+)  # fmt: skip
+
+
+def loop_rows(inputs: led_string.LedStringInputs, count: int) -> list[tuple[Any, ...]]:
+    """The first ``count`` rows as tuples of Python values in ``LOOP_INPUTS`` order."""
+    return list(zip(*(getattr(inputs, name)[:count].tolist() for name in LOOP_INPUTS), strict=True))
+
+
+def led_string_loop(rows: list[tuple[Any, ...]]) -> list[tuple[float, ...]]:
+    """``led_string.compute`` one row at a time with ``math`` (resistor tolerance: the series' default): the
+    main preconditions, the results, the three checks and the notices' conditions."""
+    ratings = led_string.POWER_RATINGS_W.tolist()
+    out = []
+    for k, (vs, ts, vf_typ, vf_min, vf_max, if_max, leds, strings, target, drop_sw, series) in enumerate(rows):
+        if not (vs > 0 and 0 <= ts < 1 and 0 < vf_min <= vf_typ <= vf_max and if_max > 0 and target > 0):
+            raise ValueError(f"row {k} is not a valid design")
+        drop = leds * vf_typ + drop_sw
+        if vs <= drop:
+            raise ValueError(f"row {k}: the supply does not exceed the string's drop")
+        tr = eseries.DEFAULT_TOLERANCE[series]
+        v_r = vs - drop
+        r_exact = v_r / target
+        r = _standard_at_or_above(r_exact, series)
+        current = v_r / r
+        v_r_low = vs * (1.0 - ts) - leds * vf_max - drop_sw
+        v_r_high = vs * (1.0 + ts) - leds * vf_min - drop_sw
+        current_min = max(v_r_low / (r * (1.0 + tr)), 0.0)
+        current_max = v_r_high / (r * (1.0 - tr))
+        power_max = v_r_high**2 / (r * (1.0 - tr))
+        need = led_string.DERATING_FACTOR * power_max
+        rating = next((w for w in ratings if w >= need), math.nan)
+        notices = (
+            v_r < led_string.HEADROOM_FRACTION * vs,
+            current_min <= 0.0,
+            power_max >= led_string.HOT_RESISTOR_W,
+            if_max >= led_string.HIGH_POWER_LED_A,
+            current_max > if_max,
+            need > ratings[-1],
+        )
+        out.append(
+            (
+                r_exact, r, current, current_min, current_max, current**2 * r, power_max, rating,
+                leds * vf_typ * current, strings * current, leds * vf_typ / vs, v_r,
+                current_max <= if_max, v_r >= led_string.HEADROOM_FRACTION * vs, need <= ratings[-1], *notices,
+            )
+        )  # fmt: skip
+    return out
+
+
+def sweep_inputs() -> closed_loop.ClosedLoopInputs:
+    """The sensor preamp: non-inverting, gain 20 on a 1 MHz op-amp, swept from 10 Hz to 1 MHz."""
+
+    def one(x: float) -> np.ndarray:
+        return np.array([x])
+
+    return closed_loop.ClosedLoopInputs(
+        inverting=np.array([False]), gain=one(20.0), rf_ohm=one(math.nan), rg_ohm=one(math.nan), gbw_hz=one(1e6),
+        open_loop_gain=one(2e5), stages=one(1.0), signal_hz=one(1e3), sweep_start_hz=one(10.0),
+        sweep_stop_hz=one(1e6), sweep_points=SWEEP_POINTS,
+    )  # fmt: skip
+
+
+def sweep_loop(inputs: closed_loop.ClosedLoopInputs) -> list[tuple[float, float, float]]:
+    """``closed_loop.compute``'s sweep for one non-inverting row, one frequency at a time with ``math``."""
+    gain, gbw, a0, stages = float(inputs.gain[0]), float(inputs.gbw_hz[0]), float(inputs.open_loop_gain[0]), 1.0
+    start, stop, points = float(inputs.sweep_start_hz[0]), float(inputs.sweep_stop_hz[0]), inputs.sweep_points
+    dc_gain = gain / (1.0 + gain / a0)
+    bandwidth = gbw / gain + gbw / a0
+    dc_db = 20.0 * math.log10(abs(dc_gain))
+    low, step = math.log10(start), (math.log10(stop) - math.log10(start)) / (points - 1)
+    out = []
+    for k in range(points):
+        f = 10.0 ** (low + k * step)
+        x = f / bandwidth
+        out.append(
+            (f, stages * (dc_db - 10.0 * math.log1p(x * x) / math.log(10.0)), -stages * math.degrees(math.atan(x)))
+        )
+    return out
+
+
+def channel() -> ChannelInputs:
+    """One greenhouse channel (see SINGLE_BODY) with the seed parts' values and no front stage, pushed to 27 mA
+    per string: some builds then exceed the LEDs' rating, so the failing samples' path is timed too."""
+
+    def one(x: float) -> np.ndarray:
+        return np.array([x])
+
+    nan = one(math.nan)
+    return ChannelInputs(
+        supply_v=one(12.0), supply_tolerance=one(0.05), current_max_a=one(2.0), capacity_ah=nan,
+        drive_high_v=one(2.9), drive_low_v=one(0.4), source_current_max_a=one(0.008),
+        hfe_min=one(100.0), hfe_typ=one(200.0), vbe_sat_v=one(0.85), vce_sat_v=one(0.2), ic_max_a=one(0.2),
+        power_max_w=one(0.625), vf_typ_v=one(2.0), vf_min_v=one(1.8), vf_max_v=one(2.4), if_max_a=one(0.03),
+        leds_in_series=one(3.0), strings=one(2.0), current_a=one(0.027), duty_cycle=one(0.5), channels=one(6.0),
+        e_series=np.array(["E24"]), forced_beta=one(10.0), resistor_tolerance=nan, inverting=np.array([False]),
+        gain=nan, gbw_hz=nan, open_loop_gain=nan, slew_rate_v_per_s=nan, output_headroom_v=nan, signal_hz=nan,
+        amplitude_v=nan,
+    )  # fmt: skip
+
+
+# ---- sections --------------------------------------------------------------------------------------------
+
+
+def core_section(repeats: int) -> tuple[list[Row], list[str]]:
+    rows: list[Row] = []
+    notes: list[str] = []
+
+    sweep = sweep_inputs()
+    vectorized, outcome = best_of(repeats * 3, lambda: closed_loop.compute(sweep))
+    plain, looped = best_of(repeats * 3, lambda: sweep_loop(sweep))
+    for k, name in enumerate(("sweep_frequency_hz", "sweep_gain_db", "sweep_phase_deg")):
+        np.testing.assert_allclose(np.array(looped)[:, k], outcome.results[name][0], rtol=1e-9, err_msg=name)
+    rows.append(
+        Row(
+            "core",
+            f"closed-loop sweep, {SWEEP_POINTS:,} points (numpy, incl. validation)",
+            f"{duration(vectorized)} ({duration(vectorized / SWEEP_POINTS)}/point)",
+            "plain Python loop, same points",
+            f"{duration(plain)} ({duration(plain / SWEEP_POINTS)}/point)",
+            f"{plain / vectorized:.1f}× faster",
+        )
+    )
+
+    inputs = led_inputs(designs(CORE_ROWS, seed=2))
+    vectorized, outcome = best_of(repeats, lambda: led_string.compute(inputs))
+    subset = loop_rows(inputs, LOOP_ROWS)
+    plain, looped = best_of(repeats, lambda: led_string_loop(subset))
+    plain *= CORE_ROWS / LOOP_ROWS
+    for k, name in enumerate(RESULT_NAMES):
+        np.testing.assert_allclose([r[k] for r in looped], outcome.results[name][:LOOP_ROWS], rtol=1e-12, err_msg=name)
+    rows.append(
+        Row(
+            "core",
+            f"LED string, {CORE_ROWS:,} rows (numpy, incl. validation)",
+            f"{duration(vectorized)} ({duration(vectorized / CORE_ROWS)}/row)",
+            f"plain Python loop, {LOOP_ROWS:,} rows extrapolated",
+            f"{duration(plain)} ({duration(plain / CORE_ROWS)}/row)",
+            f"{plain / vectorized:.0f}× faster",
+        )
+    )
+
+    one = channel()
+    times = {}
+    for samples in MONTE_CARLO_SAMPLES:
+        runs = 1 if samples >= 1_000_000 else repeats
+        times[samples], result = best_of(runs, lambda s=samples: tolerance.monte_carlo(one, samples=s, seed=1))
+        notes.append(
+            f"Monte Carlo of one greenhouse channel at 27 mA per string, {samples:,} samples (best of {runs}): "
+            f"yield {result.fraction:.4f} (95 % interval {result.ci_low:.4f}–{result.ci_high:.4f}); most failing "
+            f"check: {result.most_failing_check or 'none'}."
+        )
+    large, small = MONTE_CARLO_SAMPLES
+    rows.append(
+        Row(
+            "core",
+            f"channel Monte Carlo, {large:,} samples",
+            f"{duration(times[large])} ({duration(times[large] / large)}/sample)",
+            f"{small:,} samples",
+            f"{duration(times[small])} ({duration(times[small] / small)}/sample)",
+            f"{(times[large] / large) / (times[small] / small):.2f} (time per sample)",
+        )
+    )
+    return rows, notes
+
+
+def throughput(server: Server, path: str, body: bytes, seconds: float, args: argparse.Namespace) -> Tally:
+    tally = drive(
+        server.port,
+        lambda client, _rng: client.request(path, "POST", path, body, JSON),
+        seconds=seconds,
+        warmup=args.warmup,
+        processes=args.clients,
+        threads=args.threads,
+    )
+    bad = {key: count for key, count in tally.statuses.items() if key[1] != 200}
+    if bad:
+        raise RuntimeError(f"{path} answered other than 200: {bad}")
+    return tally
+
+
+def endpoint_section(args: argparse.Namespace) -> tuple[list[Row], list[str]]:
+    single, parts = orjson.dumps(SINGLE_BODY), orjson.dumps(PARTS_BODY)
+    runs = {"echo": ("/bench/echo", single), "numbers": ("/v1/calc/led-string", single),
+            "parts": ("/v1/calc/led-string", parts)}  # fmt: skip
+    tallies = {name: Tally() for name in runs}
+    with gunicorn("echo_app:app") as server:
+        workers = len(server.workers())
+        # Alternating short windows: a change in the machine's other load hits every endpoint alike.
+        for _ in range(ENDPOINT_ROUNDS):
+            for name, (path, body) in runs.items():
+                window = throughput(server, path, body, args.seconds / ENDPOINT_ROUNDS, args)
+                tallies[name].merge(window)
+                tallies[name].seconds += window.seconds
+    ceiling, numbers, by_part = tallies["echo"], tallies["numbers"], tallies["parts"]
+    per_s = {name: t.requests / t.seconds for name, t in (("echo", ceiling), ("numbers", numbers), ("parts", by_part))}
+    rows = [
+        Row(
+            "endpoint",
+            "POST /v1/calc/led-string, numbers",
+            rate(per_s["numbers"], "req"),
+            "POST /bench/echo (bare JSON route, same app)",
+            rate(per_s["echo"], "req"),
+            f"{per_s['numbers'] / per_s['echo']:.2f}",
+            f"≥ {ENDPOINT_TARGET}",
+            verdict(per_s["numbers"] / per_s["echo"] >= ENDPOINT_TARGET),
+        ),
+        Row(
+            "endpoint",
+            "POST /v1/calc/led-string, 3 part references",
+            rate(per_s["parts"], "req"),
+            "POST /bench/echo",
+            rate(per_s["echo"], "req"),
+            f"{per_s['parts'] / per_s['echo']:.2f}",
+        ),
+    ]
+    cores = len(os.sched_getaffinity(0))
+    cpu = ", ".join(
+        f"{name} {t.client_cpu_s / t.seconds:.2f}"
+        for name, t in (("echo", ceiling), ("numbers", numbers), ("parts", by_part))
+    )
+    notes = [
+        f"Endpoint load: {args.clients} client processes × {args.threads} threads (http.client) against {workers} "
+        f"gunicorn sync workers; per endpoint {args.seconds:g} s counted, in {ENDPOINT_ROUNDS} alternating windows "
+        f"after {args.warmup:g} s warm-up each. The load generator runs on the same {cores} cores as the server and "
+        f"competes with it: it used {cpu} cores (CPU seconds per second). gunicorn's sync workers close the "
+        "connection after every answer, so each request opens a new TCP connection although the client would keep "
+        "it alive.",
+    ]
+    return rows, notes
+
+
+def post(port: int, path: str, body: bytes, headers: dict[str, str]) -> tuple[int, bytes]:
+    client = Client(port)
+    status, _headers, answer = client.request(path, "POST", path, body, headers)
+    client.connection.close()
+    return status, answer
+
+
+def batch_section(args: argparse.Namespace) -> tuple[list[Row], list[str]]:
+    columns = designs(args.rows, seed=1)
+    n = args.rows
+    inputs = led_inputs(columns)
+    rows_in = records(columns)
+    json_body = orjson.dumps(rows_in)
+    csv_body = csv_text(rows_in).encode()
+    csv_headers = {"Content-Type": "text/csv", "Accept": "text/csv"}
+    core_time, _ = best_of(args.repeats, lambda: led_string.compute(inputs))
+
+    with gunicorn() as server:
+        workers = server.workers()
+        status, _ = post(server.port, "/v1/calc/led-string", orjson.dumps(rows_in[0]), JSON)
+        before = max(peak_rss_bytes(pid) for pid in workers)
+
+        client = Client(server.port)
+        singles = rows_in[:SINGLE_REQUESTS]
+        began = time.perf_counter()
+        for design in singles:
+            status, _h, _b = client.request("single", "POST", "/v1/calc/led-string", orjson.dumps(design), JSON)
+            if status != 200:
+                raise RuntimeError(f"single request answered {status}")
+        single_time = time.perf_counter() - began
+        client.connection.close()
+
+        timings: dict[str, list[float]] = {"json": [], "csv": []}
+        sizes: dict[str, int] = {}
+        for _ in range(args.repeats):
+            for kind, body, headers in (("json", json_body, JSON), ("csv", csv_body, csv_headers)):
+                began = time.perf_counter()
+                status, answer = post(server.port, "/v1/batch/led-string", body, headers)
+                timings[kind].append(time.perf_counter() - began)
+                if status != 200:
+                    raise RuntimeError(f"{kind} batch answered {status}: {answer[:300]!r}")
+                sizes[kind] = len(answer)
+                if kind == "json" and orjson.loads(answer)["ok_count"] != n:
+                    raise RuntimeError("the JSON batch rejected rows")
+                if kind == "csv" and answer.count(b"\n") != n + 1:
+                    raise RuntimeError("the CSV batch answered a wrong number of lines")
+        peaks = {pid: peak_rss_bytes(pid) for pid in workers}
+
+    json_time, csv_time = statistics.median(timings["json"]), statistics.median(timings["csv"])
+    single_rate = SINGLE_REQUESTS / single_time
+    json_rate, csv_rate = n / json_time, n / csv_time
+    target = f"≥ {BATCH_ROWS_PER_S_TARGET:,} rows/s"
+    rows = [
+        Row(
+            "batch",
+            f"POST /v1/batch/led-string, {n:,} rows JSON, end to end",
+            f"{rate(json_rate, 'rows')} ({duration(json_time)})",
+            "core in-process, same rows",
+            f"{rate(n / core_time, 'rows')} ({duration(core_time)})",
+            f"{json_rate / (n / core_time):.3f} of the core",
+            target,
+            verdict(json_rate >= BATCH_ROWS_PER_S_TARGET),
+        ),
+        Row(
+            "batch",
+            f"POST /v1/batch/led-string, {n:,} rows JSON",
+            rate(json_rate, "rows"),
+            f"{SINGLE_REQUESTS:,} single-row requests, one after another",
+            f"{rate(single_rate, 'rows')} ({duration(single_time / SINGLE_REQUESTS)}/request)",
+            f"{json_rate / single_rate:.0f}×",
+            f"≥ {BATCH_SPEEDUP_TARGET:.0f}×",
+            verdict(json_rate / single_rate >= BATCH_SPEEDUP_TARGET),
+        ),
+        Row(
+            "batch",
+            f"POST /v1/batch/led-string, {n:,} rows CSV in and out",
+            f"{rate(csv_rate, 'rows')} ({duration(csv_time)})",
+            f"{SINGLE_REQUESTS:,} single-row requests",
+            rate(single_rate, "rows"),
+            f"{csv_rate / single_rate:.0f}× the single-row rate",
+            target,
+            verdict(csv_rate >= BATCH_ROWS_PER_S_TARGET),
+        ),
+        Row(
+            "memory",
+            f"peak RSS (VmHWM) of the busiest of {len(workers)} workers after the batches",
+            mib(max(peaks.values())),
+            "the same after one single-row request",
+            mib(before),
+            f"{max(peaks.values()) / before:.1f}×",
+        ),
+    ]
+    notes = [
+        f"Batch: median of {args.repeats} runs each, timed from sending the body to the last byte of the answer "
+        f"(request {len(json_body) / 2**20:.1f} MiB JSON / {len(csv_body) / 2**20:.1f} MiB CSV; answer "
+        f"{sizes['json'] / 2**20:.1f} MiB JSON / {sizes['csv'] / 2**20:.1f} MiB CSV). The core figure is the best of "
+        f"{args.repeats} calls of led_string.compute on the same rows as arrays. Single-row requests: one client, "
+        "one request at a time.",
+        "Peak RSS per worker: " + ", ".join(f"{pid}: {mib(size)}" for pid, size in sorted(peaks.items())) + ".",
+    ]
+    return rows, notes
+
+
+def report(info: dict[str, str], rows: list[Row], notes: list[str]) -> str:
+    lines = [
+        "# calcsvc benchmark results",
+        "",
+        "Written by `make bench` (`benchmarks/run.py --write-results`); each run overwrites it. Speed targets live "
+        "here, not in the unit tests.",
+        "",
+        *(f"- {key}: {value}" for key, value in info.items()),
+        "",
+        markdown_table(rows),
+        "",
+        *(f"- {note}" for note in notes),
+        "",
+    ]
+    return "\n".join(lines)
+
+
+def main(argv: list[str] | None = None) -> int:
+    parser = argparse.ArgumentParser(description=__doc__.splitlines()[0] if __doc__ else None)
+    parser.add_argument("--seconds", type=float, default=5.0, help="counted seconds per endpoint (default 5)")
+    parser.add_argument("--warmup", type=float, default=1.0, help="uncounted seconds before each (default 1)")
+    parser.add_argument("--clients", type=int, default=2, help="load generator processes (default 2)")
+    parser.add_argument("--threads", type=int, default=2, help="connections per client process (default 2)")
+    parser.add_argument("--rows", type=int, default=100_000, help="rows in the batch (default 100,000)")
+    parser.add_argument("--repeats", type=int, default=3, help="runs per batch and core figure (default 3)")
+    parser.add_argument("--write-results", action="store_true", help=f"also write {RESULTS.relative_to(REPO)}")
+    args = parser.parse_args(argv)
+    if not 1 <= args.rows <= 100_000 or args.seconds <= 0 or args.repeats < 1:
+        parser.error("--rows must be 1..100000 (the server's batch limit), --seconds positive, --repeats ≥ 1")
+
+    began = time.monotonic()
+    info = machine()
+    for key, value in info.items():
+        print(f"{key}: {value}", flush=True)
+    rows: list[Row] = []
+    notes: list[str] = []
+    for title, section in (
+        ("endpoint overhead", lambda: endpoint_section(args)),
+        ("batch and memory", lambda: batch_section(args)),
+        ("core", lambda: core_section(args.repeats)),
+    ):
+        print(f"measuring {title} …", flush=True)
+        found, said = section()
+        rows += found
+        notes += said
+    info["load average (1, 5, 15 min) at end"] = ", ".join(f"{x:.2f}" for x in os.getloadavg())
+    info["wall time of the run"] = f"{time.monotonic() - began:.0f} s"
+    notes.append(
+        "Core figures are the best of several runs; the machine may be shared, so compare the load averages above "
+        "with its core count before trusting small differences."
+    )
+    text = report(info, rows, notes)
+    print()
+    print(text)
+    if args.write_results:
+        RESULTS.write_text(text)
+        print(f"written to {RESULTS.relative_to(REPO)}")
+    return 0
+
+
+if __name__ == "__main__":
+    sys.exit(main())
