@@ -30,8 +30,8 @@ test: $(VENV)/.test-installed
 	$(PY) -m pytest
 
 lint: $(VENV)/.test-installed
-	$(VENV)/bin/ruff check calcsvc tests
-	$(VENV)/bin/ruff format --check calcsvc tests
+	$(VENV)/bin/ruff check calcsvc tests benchmarks examples
+	$(VENV)/bin/ruff format --check calcsvc tests benchmarks examples
 
 openapi: $(VENV)/.serve-installed
 	$(PY) -m calcsvc.openapi_spec openapi/openapi.json

@@ -1,0 +1,36 @@
+"""The shipped examples run against a live server and give the answers their numbers imply."""
+
+from __future__ import annotations
+
+import csv
+import importlib.util
+from pathlib import Path
+from typing import Any
+
+pytest_plugins = ("live_server",)
+
+EXAMPLES = Path(__file__).resolve().parent.parent / "examples"
+
+
+def _channel_batch() -> Any:
+    spec = importlib.util.spec_from_file_location("channel_batch", EXAMPLES / "channel_batch.py")
+    assert spec is not None and spec.loader is not None
+    module = importlib.util.module_from_spec(spec)
+    spec.loader.exec_module(module)
+    return module
+
+
+def test_candidate_channels_through_the_batch_endpoint(live_url: str, seeded: Any, tmp_path: Path) -> None:
+    results = tmp_path / "results.csv"
+    assert _channel_batch().main([str(EXAMPLES / "greenhouse-candidates.csv"), str(results), "--url", live_url]) == 0
+    rows = {row["design"]: row for row in csv.DictReader(results.open())}
+    assert len(rows) == 6
+    # (12 - 3 x 2.0 - 0.2) V / 20 mA = 290 ohm; the next E24 value up is 300 ohm (IEC 60063).
+    assert float(rows["red-3x2-20mA"]["resistor_ohm"]) == 300.0 and rows["red-3x2-20mA"]["ok"] == "True"
+    # Four red LEDs leave (12 - 8 - 0.2) V: 3.8 V is above the 1.2 V headroom limit, so this one sizes too.
+    assert rows["red-4x2-20mA"]["resistor_ohm"] != ""
+    # Three white LEDs at 3.1 V need 9.3 V plus the switch: more than the 9 V pack, refused with the reason.
+    white = rows["white-3x1-battery"]
+    assert white["ok"] == "False" and "forward voltage" in white["problem"]
+    # 350 mA from an 8 mA pin at forced beta 10 needs 35 mA: the driver check fails and is named.
+    assert "driver_current" in rows["deep-red-3x1-350mA"]["failing_checks"]
