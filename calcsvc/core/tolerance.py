@@ -23,9 +23,11 @@ Toleranced quantities
 Worst case
     Every check's margin is monotonic in each toleranced quantity, so its extreme over the tolerance box
     lies at one of the 32 corners (supply × Vf × LED resistor × base resistor × hfe, each at either end),
-    with every string at the same corner. All rows × corners are evaluated in one pass; per check the
-    corner of least margin is reported (ties: the first corner in ``CORNERS`` order, low/min before
-    high/max), with the settings of the quantities that check depends on.
+    with every string at the same corner. All rows are evaluated in one pass with each quantity's two
+    settings on an axis of its own, so broadcasting computes each check only at the corners of the
+    quantities it depends on (``saturation`` at all 32, ``driver_current`` at 2). Per check the corner of
+    least margin is reported (ties: the first corner in ``CORNERS`` order, low/min before high/max), with
+    the settings of the quantities that check depends on.
 
 Monte Carlo
     ``np.random.default_rng(seed)`` draws, per sample: the supply uniform within its tolerance; every LED's
@@ -44,6 +46,8 @@ from __future__ import annotations
 
 import dataclasses
 import itertools
+import math
+from collections.abc import Callable
 from dataclasses import dataclass
 
 import numpy as np
@@ -84,8 +88,7 @@ SETTINGS: dict[str, tuple[str, str]] = {
 CORNERS: tuple[dict[str, str], ...] = tuple(
     dict(zip(QUANTITIES, combo, strict=True)) for combo in itertools.product(*(SETTINGS[q] for q in QUANTITIES))
 )
-# Per quantity, +1 where a corner takes its upper setting and −1 where it takes its lower one.
-_SIGN = {q: np.array([1.0 if c[q] == SETTINGS[q][1] else -1.0 for c in CORNERS]) for q in QUANTITIES}
+CORNER_AXES = tuple(len(SETTINGS[q]) for q in QUANTITIES)  # CORNERS in C order over these axes
 
 _LED = ("supply", "vf", "led_resistor")
 DEPENDS_ON: dict[str, tuple[str, ...]] = {
@@ -136,107 +139,102 @@ def wilson_interval(successes: npt.ArrayLike, trials: npt.ArrayLike, z: float = 
 
 @dataclass(frozen=True)
 class _Point:
-    """Actual values at k points (corners or samples) of each of n rows: ``(n, k)``; per string ``(n, k, s)``
-    where s is 1 when every string is alike (corners) or the row's number of strings (samples)."""
+    """Actual values at the points (corners or samples) of each of n rows. ``points`` are the shape of the
+    points; every array broadcasts against ``(n, *points)``, a per-string one against ``(n, *points, s)``
+    where s is 1 when every string is alike (corners) or the row's number of strings (samples). An axis of
+    length 1 is a quantity that does not vary along it, so work is spent only where values differ."""
 
-    supply_levels_v: FloatArray  # (n, m): the distinct supply voltages
-    supply_index: IntArray  # (k,): which level each point takes
-    string_vf_v: FloatArray  # sum of the string's forward voltages
-    led_resistor_ohm: FloatArray
+    points: tuple[int, ...]
+    supply_v: FloatArray
+    string_vf_v: FloatArray  # sum of the string's forward voltages, per string
+    led_resistor_ohm: FloatArray  # per string
     base_resistor_ohm: FloatArray
     hfe: FloatArray
 
-    @property
-    def supply_v(self) -> FloatArray:
-        return self.supply_levels_v[:, self.supply_index]
+    def row(self, x: np.ndarray) -> np.ndarray:
+        """A per-row array ``(n,)`` as ``(n, 1, …)``, to broadcast against the points."""
+        return x.reshape(-1, *(1,) * len(self.points))
 
 
-def _col(x: np.ndarray) -> np.ndarray:
-    return x[:, None]
+def _by_row(x: np.ndarray) -> np.ndarray:
+    """``(n, …)`` as ``(n, k)``: every point of a row on one axis (also when there are no rows)."""
+    return x.reshape(x.shape[0], math.prod(x.shape[1:]))
+
+
+def _per_string(x: np.ndarray, reduce: Callable[..., np.ndarray]) -> np.ndarray:
+    """Reduce over the strings (the last axis); a single evaluated string needs no reduction."""
+    return x[..., 0] if x.shape[-1] == 1 else reduce(x, axis=-1)
 
 
 def _evaluate(inputs: ChannelInputs, nominal: ChannelReview, at: _Point) -> list[Check]:
-    """Every check of ``nominal`` at the given points, shapes ``(n, k)``, in the review's order."""
+    """Every check of ``nominal`` at the given points, in the review's order. A check's arrays broadcast
+    against ``(n, *at.points)`` and have length 1 on the axes of points it does not vary over."""
     i = inputs
-    shape = at.supply_v.shape
-    per_string = _col(_col(i.vce_sat_v))
-    v_r = at.supply_v[..., None] - at.string_vf_v - per_string
+    row = at.row
+    v_r = at.supply_v[..., None] - at.string_vf_v - row(i.vce_sat_v)[..., None]
     current = np.maximum(v_r, 0.0) / at.led_resistor_ohm
     # Each of the s evaluated strings stands for strings/s real ones.
-    ic = _col(i.strings / at.string_vf_v.shape[-1]) * current.sum(axis=-1)
-    ib = _col(i.drive_high_v - i.vbe_sat_v) / at.base_resistor_ohm
+    ic = row(i.strings / at.string_vf_v.shape[-1]) * _per_string(current, np.sum)
+    ib = row(i.drive_high_v - i.vbe_sat_v) / at.base_resistor_ohm
     beta = ic / ib
-    duty = _col(i.duty_cycle)
-    power = (_col(i.vce_sat_v) * ic + _col(i.vbe_sat_v) * ib) * duty
+    duty = row(i.duty_cycle)
+    power = (row(i.vce_sat_v) * ic + row(i.vbe_sat_v) * ib) * duty
     channel_average, _ = duty_power.rectangular_load(ic, duty)
-    supply_average = _col(i.channels) * channel_average
-    supply_peak = _col(i.channels) * ic
+    supply_average = row(i.channels) * channel_average
+    supply_peak = row(i.channels) * ic
 
-    def full(x: np.ndarray) -> FloatArray:
-        return np.broadcast_to(np.asarray(x, dtype=np.float64), shape)
-
-    worst_current = current.max(axis=-1)
-    headroom = v_r.min(axis=-1)
+    worst_current = _per_string(current, np.max)
+    headroom = _per_string(v_r, np.min)
     headroom_limit = led_string.HEADROOM_FRACTION * at.supply_v
-    resistor_need = led_string.DERATING_FACTOR * (current**2 * at.led_resistor_ohm).max(axis=-1)
+    resistor_need = led_string.DERATING_FACTOR * _per_string(current**2 * at.led_resistor_ohm, np.max)
     max_rating = led_string.POWER_RATINGS_W[-1]
     rating = {
-        "if_max_a": full(_col(i.if_max_a)),
-        "hfe": full(at.hfe),
-        "source": full(_col(i.source_current_max_a)),
-        "ic_max": full(_col(i.ic_max_a)),
-        "power_max": full(_col(i.power_max_w)),
-        "supply": full(_col(i.current_max_a)),
+        "if_max_a": row(i.if_max_a),
+        "source": row(i.source_current_max_a),
+        "ic_max": row(i.ic_max_a),
+        "power_max": row(i.power_max_w),
+        "supply": row(i.current_max_a),
     }
     varying: dict[str, tuple[np.ndarray, np.ndarray, np.ndarray]] = {  # value, limit, ok
         "led_current_rating": (worst_current, rating["if_max_a"], worst_current <= rating["if_max_a"]),
         "headroom": (headroom, headroom_limit, headroom >= headroom_limit),
-        "resistor_rating": (resistor_need, full(max_rating), resistor_need <= max_rating),
-        "saturation": (beta, rating["hfe"], beta < rating["hfe"]),
-        "driver_current": (full(ib), rating["source"], ~(ib > rating["source"])),
+        "resistor_rating": (resistor_need, max_rating, resistor_need <= max_rating),
+        "saturation": (beta, at.hfe, beta < at.hfe),
+        "driver_current": (ib, rating["source"], ~(ib > rating["source"])),
         "collector_current_rating": (ic, rating["ic_max"], ic <= rating["ic_max"]),
         "power_rating": (power, rating["power_max"], power <= rating["power_max"]),
         "supply_average_current": (supply_average, rating["supply"], ~(supply_average > rating["supply"])),
         "supply_peak_current": (supply_peak, rating["supply"], ~(supply_peak > rating["supply"])),
-        "output_swing": tuple(x[:, at.supply_index] for x in _output_swing(inputs, nominal, at.supply_levels_v)),
+        "output_swing": _output_swing(inputs, nominal, at.supply_v),
     }
     checks = []
     for c in nominal.checks:
-        if DEPENDS_ON[c.name]:
-            value, limit, ok = varying[c.name]
-            checks.append(Check(c.name, np.broadcast_to(ok, shape), full(value), full(limit), c.sense, c.detail))
-        else:
-            checks.append(
-                Check(
-                    c.name,
-                    np.broadcast_to(_col(c.ok), shape),
-                    full(_col(c.value)),
-                    full(_col(c.limit)),
-                    c.sense,
-                    c.detail,
-                )
-            )
+        value, limit, ok = varying[c.name] if DEPENDS_ON[c.name] else (row(c.value), row(c.limit), row(c.ok))
+        value, limit, ok = np.broadcast_arrays(np.asarray(value, dtype=np.float64), limit, ok)
+        checks.append(Check(c.name, ok, value, limit, c.sense, c.detail))
     return checks
 
 
 def _output_swing(
     inputs: ChannelInputs, nominal: ChannelReview, supply_v: FloatArray
 ) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
-    """The front stage's output-swing check with ``supply_v`` (n, m) as its rail span (slew calculation)."""
+    """The front stage's output-swing check with ``supply_v`` (n, …) as its rail span (slew calculation),
+    in the shape of ``supply_v``."""
+    levels = _by_row(supply_v)
     nominal_check = nominal.check("output_swing")
-    value = np.broadcast_to(_col(nominal_check.value), supply_v.shape).copy()
-    limit = np.full(supply_v.shape, np.nan)
-    ok = np.ones(supply_v.shape, dtype=bool)
+    value = np.broadcast_to(nominal_check.value[:, None], levels.shape).copy()
+    limit = np.full(levels.shape, np.nan)
+    ok = np.ones(levels.shape, dtype=bool)
     front = has_front_stage(inputs)
     if front.any():
-        k = supply_v.shape[1]
+        k = levels.shape[1]
         stage = take(slew_inputs(take(inputs, front), inputs.supply_v[front]), np.repeat(np.arange(front.sum()), k))
-        swing = slew.compute(dataclasses.replace(stage, supply_v=supply_v[front].ravel()))
+        swing = slew.compute(dataclasses.replace(stage, supply_v=levels[front].ravel()))
         check = next(c for c in swing.checks if c.name == "output_swing")
         value[front] = check.value.reshape(-1, k)
         limit[front] = check.limit.reshape(-1, k)
         ok[front] = check.ok.reshape(-1, k)
-    return value, limit, ok
+    return value.reshape(supply_v.shape), limit.reshape(supply_v.shape), ok.reshape(supply_v.shape)
 
 
 # ---- worst case ------------------------------------------------------------------------------------------
@@ -279,39 +277,49 @@ class WorstCase:
 
 
 def _corners(inputs: ChannelInputs, nominal: ChannelReview) -> _Point:
+    """Each quantity's two settings on an axis of its own (``CORNER_AXES``), every string alike."""
     i = inputs
-    tol = _col(resistor_tolerance(i))
-    vf = np.where(_SIGN["vf"] > 0, _col(i.vf_max_v), _col(i.vf_min_v))
+    tol = resistor_tolerance(i)
+
+    def settings(quantity: str, low: FloatArray, high: FloatArray) -> FloatArray:
+        shape = [1] * len(QUANTITIES)
+        shape[QUANTITIES.index(quantity)] = 2
+        return np.stack([low, high], axis=1).reshape(-1, *shape)
+
+    r_led = nominal.led_string.results["resistor_ohm"]
+    r_base = nominal.switch.results["rb_ohm"]
     return _Point(
-        supply_levels_v=_col(i.supply_v) * (1.0 + _col(i.supply_tolerance) * np.array([-1.0, 1.0])),
-        supply_index=(_SIGN["supply"] > 0).astype(np.intp),
-        string_vf_v=(_col(i.leds_in_series) * vf)[..., None],
-        led_resistor_ohm=(_col(nominal.led_string.results["resistor_ohm"]) * (1.0 + tol * _SIGN["led_resistor"]))[
-            ..., None
-        ],
-        base_resistor_ohm=_col(nominal.switch.results["rb_ohm"]) * (1.0 + tol * _SIGN["base_resistor"]),
-        hfe=np.where(_SIGN["hfe"] > 0, _col(hfe_max(i)), _col(i.hfe_min)),
+        points=CORNER_AXES,
+        supply_v=settings("supply", i.supply_v * (1.0 - i.supply_tolerance), i.supply_v * (1.0 + i.supply_tolerance)),
+        string_vf_v=settings("vf", i.leds_in_series * i.vf_min_v, i.leds_in_series * i.vf_max_v)[..., None],
+        led_resistor_ohm=settings("led_resistor", r_led * (1.0 - tol), r_led * (1.0 + tol))[..., None],
+        base_resistor_ohm=settings("base_resistor", r_base * (1.0 - tol), r_base * (1.0 + tol)),
+        hfe=settings("hfe", i.hfe_min, hfe_max(i)),
     )
 
 
 def _worst(check: Check) -> WorstCheck:
-    """Reduce a check over corners (axis 1) to its corner of least margin."""
-    margin = check.margin()
+    """Reduce a check over its corner axes to its corner of least margin."""
+    flat = Check(check.name, _by_row(check.ok), _by_row(check.value), _by_row(check.limit), check.sense, check.detail)
+    margin = flat.margin()
     # 0/0 (value on a zero limit) is on the edge; without a limit rank by the value itself.
-    applies = ~np.isnan(check.limit)
-    toward_failing = -check.value if check.sense == "max" else check.value
-    key = np.where(applies, np.where(np.isnan(margin), 0.0, margin), toward_failing)
+    key = np.where(np.isnan(margin), 0.0, margin)
+    applies = ~np.isnan(flat.limit)
+    if not applies.all():
+        key = np.where(applies, key, -flat.value if check.sense == "max" else flat.value)
+    # The first least corner in C order over the check's axes is the first in CORNERS order.
     index = np.argmin(key, axis=1)
     pick = index[:, None]
     worst = Check(
         check.name,
-        check.ok.all(axis=1),
-        np.take_along_axis(check.value, pick, axis=1)[:, 0],
-        np.take_along_axis(check.limit, pick, axis=1)[:, 0],
+        flat.ok.all(axis=1),
+        np.take_along_axis(flat.value, pick, axis=1)[:, 0],
+        np.take_along_axis(flat.limit, pick, axis=1)[:, 0],
         check.sense,
         check.detail,
     )
-    return WorstCheck(worst, index, DEPENDS_ON[check.name])
+    corner = np.ravel_multi_index(np.unravel_index(index, check.value.shape[1:]), CORNER_AXES)
+    return WorstCheck(worst, corner, DEPENDS_ON[check.name])
 
 
 def worst_case(inputs: ChannelInputs) -> WorstCase:
@@ -392,7 +400,13 @@ def _draw(inputs: ChannelInputs, nominal: ChannelReview, rng: np.random.Generato
     base_r = spread(nominal.switch.results["rb_ohm"][0], tol, (1, count))
     low, high = np.log(i.hfe_min[0]), np.log(hfe_max(i)[0])
     hfe = np.exp(rng.uniform(low, high, (1, count)))
-    return _Point(supply, np.arange(count), vf, led_r, base_r, hfe)
+    return _Point((count,), supply, vf, led_r, base_r, hfe)
+
+
+def _every_sample(check: Check, count: int) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """ok, value and limit of a one-row check at each of ``count`` samples, shape ``(1, count)``."""
+    shape = (1, count)
+    return np.broadcast_to(check.ok, shape), np.broadcast_to(check.value, shape), np.broadcast_to(check.limit, shape)
 
 
 def monte_carlo(inputs: ChannelInputs, samples: int = DEFAULT_SAMPLES, seed: int = 0) -> Yield:
@@ -410,7 +424,9 @@ def monte_carlo(inputs: ChannelInputs, samples: int = DEFAULT_SAMPLES, seed: int
 
     parts: list[list[Check]] = []
     for start in range(0, samples, chunk):
-        parts.append(_evaluate(inputs, nominal, _draw(inputs, nominal, rng, min(chunk, samples - start))))
+        count = min(chunk, samples - start)
+        checks = _evaluate(inputs, nominal, _draw(inputs, nominal, rng, count))
+        parts.append([Check(c.name, *_every_sample(c, count), c.sense, c.detail) for c in checks])
 
     names = [c.name for c in nominal.checks]
     ok = {name: np.concatenate([p[j].ok[0] for p in parts]) for j, name in enumerate(names)}

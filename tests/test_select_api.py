@@ -1,0 +1,381 @@
+"""Candidate search over the seeded parts table: single roles (op-amps, transistors, LEDs) and whole channels.
+
+Every expected part id below is derived by hand from the values in seed_parts/*.json; the comments show the
+arithmetic (the models are those of the calculation modules, e.g. f_-3dB = GBW/NG + GBW/A0).
+"""
+
+from __future__ import annotations
+
+import json
+import math
+from collections import Counter
+from pathlib import Path
+from typing import Any
+
+import pytest
+from flask import Flask
+from flask.testing import FlaskClient
+from helpers import assert_problem, bearer
+
+DEMO = json.loads((Path(__file__).resolve().parent.parent / "examples" / "greenhouse-channel.json").read_text())
+SLEW_20K_5V = {"calculation": "slew-limit", "inputs": {"frequency_hz": "20 kHz", "amplitude_v": 5}}
+OPAMPS_GAIN_50 = {"opamp": {}, "gain": 50, "signal_hz": "20 kHz", "require": [SLEW_20K_5V]}
+SWITCH_150MA = {
+    "search": "transistor",
+    "collector_current_a": 0.15,
+    "drive_high_v": 3.3,
+    "driver_current_max_a": "8 mA",
+}
+LEDS_3_ON_9V = {"led": {}, "supply_v": 9, "leds_in_series": 3, "current_a": "15 mA"}
+
+
+def select(client: FlaskClient, calculation: str, body: dict[str, Any]) -> dict[str, Any]:
+    response = client.post(f"/v1/select/{calculation}", json=body)
+    assert response.status_code == 200, response.get_json()
+    return response.get_json()
+
+
+def ids(candidates: list[dict[str, Any]]) -> list[str]:
+    return [c["part_id"] for c in candidates]
+
+
+def test_op_amps_that_keep_20_khz_at_gain_50_without_slew_limiting(client: FlaskClient, seeded: Any) -> None:
+    # Bandwidth at noise gain 50: f = GBW/50 + GBW/A0 must reach 20 kHz (signal_in_band).
+    #   jfet-4mhz        4e6/50 + 4e6/2e5 = 80 020 Hz   margin (80 020 - 20 000)/80 020 = 0.750
+    #   rrio-3mhz        3e6/50 + 3e6/1e5 = 60 030 Hz   margin 0.667
+    #   general-1mhz     1e6/50 + 1e6/2e5 = 20 005 Hz   margin 0.00025 (just in band)
+    #   micropower       1e5/50 + 1e5/5e4 =  2 002 Hz   fails
+    # 5 V peak at 20 kHz needs 2π · 20e3 · 5 = 628 319 V/s (slew_rate):
+    #   jfet 13 V/µs margin 0.952; rrio 1.5 V/µs margin (1.5e6 - 628 319)/1.5e6 = 0.581; general 0.5 V/µs
+    #   margin -0.257 (fails); micropower 0.05 V/µs margin -11.57 (fails). No supply_v: output_swing does not apply.
+    data = select(client, "closed-loop-bandwidth", OPAMPS_GAIN_50)
+    assert data["evaluated"] == 4 and data["passing"] == 2 and data["role"] == "opamp"
+    assert data["filter"] == {"status": ["approved"], "where": {}}
+    assert ids(data["candidates"]) == [
+        "opamp-jfet-4mhz",
+        "opamp-rrio-3mhz",
+        "opamp-general-1mhz",
+        "opamp-micropower-100khz",
+    ]
+    jfet, rrio, general, micro = data["candidates"]
+    assert (jfet["limiting_check"], jfet["margin"]) == ("signal_in_band", pytest.approx(60_020 / 80_020))
+    assert (rrio["limiting_check"], rrio["margin"]) == (
+        "slew-limit.slew_rate",
+        pytest.approx(1 - 2e5 * math.pi / 1.5e6),
+    )
+    assert general["failing"] == ["slew-limit.slew_rate"] and general["margin"] == pytest.approx(
+        1 - 2e5 * math.pi / 5e5
+    )
+    assert micro["failing"] == ["signal_in_band", "slew-limit.slew_rate"]
+    assert jfet["ok"] and rrio["ok"] and not general["ok"] and not micro["ok"]
+    assert jfet["results"]["bandwidth_hz"] == pytest.approx(80_020)
+    assert jfet["required_results"]["slew-limit"]["required_slew_rate_v_per_s"] == pytest.approx(2e5 * math.pi)
+    assert data["require"][0]["inputs"]["frequency_hz"] == 20_000.0
+    assert "slew-limit.slew_rate" in data["check_details"]
+
+
+def test_rank_by_a_result_and_only_passing(client: FlaskClient, seeded: Any) -> None:
+    # Passing ones by bandwidth, lowest first: rrio 60 030 Hz, then jfet 80 020 Hz (derived above).
+    body = {**OPAMPS_GAIN_50, "rank_by": "bandwidth_hz", "order": "asc", "only_passing": True}
+    data = select(client, "closed-loop-bandwidth", body)
+    assert ids(data["candidates"]) == ["opamp-rrio-3mhz", "opamp-jfet-4mhz"]
+    assert (data["rank_by"], data["order"]) == ("bandwidth_hz", "asc")
+    by_slew = select(
+        client, "closed-loop-bandwidth", {**OPAMPS_GAIN_50, "rank_by": "slew-limit.slew_limited_amplitude_v"}
+    )
+    assert ids(by_slew["candidates"])[:2] == ["opamp-jfet-4mhz", "opamp-rrio-3mhz"]
+    assert len(select(client, "closed-loop-bandwidth", {**OPAMPS_GAIN_50, "limit": 1})["candidates"]) == 1
+
+
+def test_transistors_that_saturate_150_ma_from_an_8_ma_pin(client: FlaskClient, seeded: Any) -> None:
+    # Forced beta 10 (the default) asks 150 mA / 10 = 15 mA of base current: more than the pin's 8 mA for every
+    # transistor, so none passes driver_current. The largest base current the pin allows sets forced beta to at
+    # least 150/8 = 18.75; the request uses 20 (Ib 7.5 mA). Rb = the E24 value at or below (3.3 V - Vbe_sat)/7.5 mA:
+    #   medium-power  2.3 V/7.5 mA = 306.7 -> 300 Ω, 7.667 mA, margin (8 - 7.667)/8 = 0.0417, P = 0.3·0.15 + 1.0·0.00767
+    #   darlington    1.7 V/7.5 mA = 226.7 -> 220 Ω, 7.727 mA, margin 0.0341, P = 1.0·0.15 + 1.6·0.00773 = 0.1624 W
+    #   power-tab     2.1 V/7.5 mA = 280.0 -> 270 Ω, 7.778 mA, margin 0.0278, P = 0.5·0.15 + 1.2·0.00778 = 0.0843 W
+    #   small-signal  2.45 V/7.5 mA = 326.7 -> 300 Ω, 8.167 mA > 8 mA: rounding down pushes it past the pin rating.
+    # Every gain is ample (Ic/Ib ≈ 19.3–19.6 < hfe_min 25–1000); the pnp part cannot fill an npn role.
+    weak = select(client, "bjt-switch", SWITCH_150MA)
+    assert weak["passing"] == 0 and all(c["failing"] == ["driver_current"] for c in weak["candidates"])
+    assert weak["excluded"] == [
+        {"part_id": "pnp-small-signal", "revision": 1, "status": "approved",
+         "reason": "polarity is 'pnp'; the transistor role needs 'npn'"}
+    ]  # fmt: skip
+
+    data = select(client, "bjt-switch", {**SWITCH_150MA, "forced_beta": 20})
+    assert ids(data["candidates"]) == ["npn-medium-power", "npn-darlington-1a", "npn-power-tab", "npn-small-signal"]
+    medium, darlington, tab, small = data["candidates"]
+    assert [c["limiting_check"] for c in data["candidates"]] == ["driver_current"] * 4
+    assert [c["margin"] for c in data["candidates"]] == pytest.approx([1 / 24, 1 - 1.7 / 220 / 0.008, 1 / 36, -1 / 48])
+    assert (medium["results"]["rb_ohm"], darlington["results"]["rb_ohm"], tab["results"]["rb_ohm"]) == (300, 220, 270)
+    assert small["failing"] == ["driver_current"] and small["results"]["drive_current_a"] == pytest.approx(2.45 / 300)
+    assert any("damage the microcontroller" in caution for caution in small["cautions"])
+
+    coolest = select(
+        client, "bjt-switch", {**SWITCH_150MA, "forced_beta": 20, "rank_by": "transistor_power_w", "order": "asc"}
+    )
+    assert ids(coolest["candidates"]) == ["npn-medium-power", "npn-power-tab", "npn-darlington-1a", "npn-small-signal"]
+    assert coolest["candidates"][0]["results"]["transistor_power_w"] == pytest.approx(0.3 * 0.15 + 2.3 / 300)
+
+    # The candidate's request reproduces it through the calculation endpoint, part pinned by revision.
+    request = medium["request"]
+    assert request["transistor"] == "npn-medium-power" and request["transistor_revision"] == 1
+    single = client.post("/v1/calc/bjt-switch", json=request).get_json()
+    assert single["results"] == medium["results"]
+    assert min(c["margin"] for c in single["checks"]) == pytest.approx(medium["margin"])
+
+
+def test_leds_three_in_series_on_9_v(client: FlaskClient, seeded: Any) -> None:
+    # 3 × Vf_typ must stay below 9 V: red 6.0 V and deep red 6.6 V do; blue and green (9.6 V), white and royal
+    # blue (9.3 V) cannot light, and the core refuses them with its own numbers (no 422 for the whole search).
+    # Red: R = (9 - 6)/15 mA = 200 Ω (E24); worst current (9 - 3 × 1.8)/(200 × 0.95) = 18.9 mA of 30 mA,
+    # margin 0.368 (E24's 5 % resistor tolerance, common practice). Deep red: R = 2.4 V/15 mA = 160 Ω (E24);
+    # worst (9 - 3 × 2.0)/(160 × 0.95) = 19.7 mA of 500 mA, margin 0.961. Headroom and resistor rating have more.
+    data = select(client, "led-string", LEDS_3_ON_9V)
+    assert ids(data["candidates"]) == [
+        "led-deep-red-grow-1w", "led-red-5mm",
+        "led-blue-5mm", "led-green-5mm", "led-royal-blue-grow-1w", "led-white-5mm",
+    ]  # fmt: skip
+    deep_red, red, *dark = data["candidates"]
+    assert data["passing"] == 2 and deep_red["ok"] and red["ok"]
+    assert deep_red["margin"] == pytest.approx(1 - (3 / 152) / 0.5) and red["margin"] == pytest.approx(
+        1 - (3.6 / 190) / 0.03
+    )
+    assert (deep_red["results"]["resistor_ohm"], red["results"]["resistor_ohm"]) == (160, 200)
+    assert any("eye safety" in caution for caution in deep_red["cautions"])  # a 1 W class LED
+    for candidate in dark:
+        assert candidate["failing"] == ["physically_possible"] and candidate["results"] is None
+        assert candidate["margin"] is None and candidate["limiting_check"] is None
+    assert "(9.6 V = 3 × 3.2 V + 0 V)" in dark[0]["problem"]["supply_v"][0]
+    assert "(9.3 V = 3 × 3.1 V + 0 V)" in dark[3]["problem"]["supply_v"][0]
+    assert ids(select(client, "led-string", {**LEDS_3_ON_9V, "only_passing": True})["candidates"]) == ids(
+        [deep_red, red]
+    )
+
+    single = client.post("/v1/calc/led-string", json=red["request"]).get_json()
+    assert single["results"] == red["results"] and single["cautions"] == red["cautions"]
+
+
+def test_explicit_values_override_every_candidate(client: FlaskClient, seeded: Any) -> None:
+    # Search supplies with supply_v given: every candidate runs at 9 V and gives only its tolerance. Red LEDs,
+    # 3 in series at 15 mA: headroom 9 - 6 = 3 V for all; worst current (9 (1 + t) - 5.4)/(200 × 0.95):
+    # adapters (t = 0.05) 21.3 mA, battery pack (t = 0.15) 26.1 mA.
+    body = {"supply": {}, "supply_v": 9, "led": "led-red-5mm", "leds_in_series": 3, "current_a": 0.015}
+    data = select(client, "led-string", body)
+    assert data["from_candidates"] == ["supply_tolerance"] and data["inputs"]["supply_v"] == 9
+    assert {c["results"]["headroom_v"] for c in data["candidates"]} == {3.0}
+    worst = {c["part_id"]: c["results"]["current_max_a"] for c in data["candidates"]}
+    assert worst["supply-adapter-5v-1a"] == pytest.approx(4.05 / 190)
+    assert worst["supply-battery-9v-6aa"] == pytest.approx(4.95 / 190)
+    assert data["parts"] == [{"role": "led", "part_id": "led-red-5mm", "revision": 1, "status": "approved"}]
+
+
+def test_filter_bounds_take_units_and_lists_name_parts(client: FlaskClient, seeded: Any) -> None:
+    # At least 2 MHz and at most 5 V/µs: only rrio-3mhz (3 MHz, 1.5 V/µs); jfet slews at 13 V/µs.
+    where = {"gbw_hz": {"min": "2 MHz"}, "slew_rate_v_per_s": {"max": "5 V/us"}}
+    data = select(client, "closed-loop-bandwidth", {**OPAMPS_GAIN_50, "opamp": {"where": where}})
+    assert ids(data["candidates"]) == ["opamp-rrio-3mhz"]
+    assert data["filter"]["where"] == {"gbw_hz": {"min": 2e6}, "slew_rate_v_per_s": {"max": 5e6}}
+    none = select(client, "closed-loop-bandwidth", {**OPAMPS_GAIN_50, "opamp": {"where": {"gbw_hz": {"min": "1 GHz"}}}})
+    assert (none["evaluated"], none["candidates"]) == (0, [])
+    listed = select(client, "bjt-switch", {**SWITCH_150MA, "transistor": ["pnp-small-signal", "npn-small-signal"]})
+    assert ids(listed["candidates"]) == ["npn-small-signal"] and listed["filter"] == {
+        "part_ids": ["pnp-small-signal", "npn-small-signal"]
+    }
+    assert [e["part_id"] for e in listed["excluded"]] == ["pnp-small-signal"]
+
+
+def test_a_required_calculation_can_refuse_a_candidate(client: FlaskClient, seeded: Any) -> None:
+    # On a 3 V rail span an output 1.5 V short of each rail has no room to swing: the slew calculation refuses
+    # general-1mhz and jfet-4mhz (3 V ≤ 2 × 1.5 V) but takes rrio (0.05 V) and micropower (0.1 V). 1 V peak at
+    # 20 kHz needs 2π · 20e3 · 1 = 125.7 kV/s: rrio passes, micropower (50 kV/s, 2 kHz bandwidth) fails.
+    # Refused ones come last, by the margin of the checks that did run (jfet 0.750 before general 0.00025).
+    slew = {"calculation": "slew-limit", "inputs": {"frequency_hz": 20e3, "amplitude_v": 1, "supply_v": 3}}
+    data = select(client, "closed-loop-bandwidth", {**OPAMPS_GAIN_50, "require": [slew]})
+    assert ids(data["candidates"]) == [
+        "opamp-rrio-3mhz",
+        "opamp-micropower-100khz",
+        "opamp-jfet-4mhz",
+        "opamp-general-1mhz",
+    ]
+    jfet = data["candidates"][2]
+    assert jfet["failing"] == ["slew-limit.physically_possible"] and jfet["results"]["bandwidth_hz"] == 80_020
+    assert "slew-limit.supply_v" in jfet["problem"] and jfet["required_results"] == {"slew-limit": None}
+
+
+def test_drafts_are_searched_only_when_asked(client: FlaskClient, seeded: Any, tokens: dict[str, str]) -> None:
+    part = {"part_id": "opamp-draft-10mhz", "kind": "opamp", "parameters": {
+        "gbw_hz": 1e7, "slew_rate_v_per_s": 2e7, "open_loop_gain": 1e5, "supply_min_v": 5, "supply_max_v": 36,
+        "output_headroom_v": 1.0}}  # fmt: skip
+    assert client.post("/v1/parts", json=part, headers=bearer(tokens["edna"])).status_code == 201
+    approved = select(client, "closed-loop-bandwidth", OPAMPS_GAIN_50)
+    assert "opamp-draft-10mhz" not in ids(approved["candidates"])
+    both = select(client, "closed-loop-bandwidth", {**OPAMPS_GAIN_50, "opamp": {"status": ["approved", "draft"]}})
+    # 1e7/50 + 1e7/1e5 = 200 100 Hz: margin (200 100 - 20 000)/200 100 = 0.900, the best; it is flagged as a draft.
+    best = both["candidates"][0]
+    assert (best["part_id"], best["status"]) == ("opamp-draft-10mhz", "draft")
+    assert best["warnings"][0] == "opamp 'opamp-draft-10mhz' revision 1 is draft, not approved"
+
+
+def opamps(**change: Any) -> tuple[str, dict[str, Any]]:
+    return "closed-loop-bandwidth", {**OPAMPS_GAIN_50, **change}
+
+
+@pytest.mark.parametrize(
+    ("calculation", "body", "field"),
+    [
+        (*opamps(opamp={"where": {"gbw_khz": {"min": 1}}}), "opamp.where.gbw_khz"),
+        (*opamps(opamp={"where": {"gbw_hz": {"min": "2 mA"}}}), "opamp.where.gbw_hz.min"),
+        (*opamps(opamp={"where": {"gbw_hz": {"min": 2, "max": 1}}}), "opamp.where.gbw_hz.max"),
+        (*opamps(opamp={"status": ["reviewed"]}), "opamp.status.0"),
+        (*opamps(opamp={}, opamp_revision=1), "opamp_revision"),
+        (*opamps(rank_by="slew-limit.full_power_bandwidth_hz", require=[]), "rank_by"),
+        (*opamps(require=[{"calculation": "led-string", "inputs": {}}]), "require.0.calculation"),
+        (*opamps(require=[{**SLEW_20K_5V, "inputs": {"amplitude_v": "5 A"}}]), "require.0.inputs.amplitude_v"),
+        (*opamps(require=[{**SLEW_20K_5V, "inputs": {"waveform": "triangle"}}]), "require.0.inputs.frequency_hz"),
+        (*opamps(require=[SLEW_20K_5V, SLEW_20K_5V]), "require.1.calculation"),
+        (*opamps(opamp=["opamp-rrio-3mhz", "led-red-5mm"]), "opamp"),
+        (*opamps(opamp=None), "search"),
+        (*opamps(gain=None), "gain"),  # the same for every candidate: the request's own fault
+        ("bjt-switch", {**SWITCH_150MA, "driver": {}}, "search"),
+        ("bjt-switch", {**SWITCH_150MA, "transistor": {}, "driver": {}}, "driver"),
+        ("led-string", {**LEDS_3_ON_9V, "current_a": None}, "current_a"),
+    ],
+)
+def test_bad_searches_name_the_field(
+    client: FlaskClient, seeded: Any, calculation: str, body: dict[str, Any], field: str
+) -> None:
+    body = {k: v for k, v in body.items() if v is not None}
+    assert_problem(client.post(f"/v1/select/{calculation}", json=body), 422, field)
+
+
+def test_unknown_listed_part_is_not_found(client: FlaskClient, seeded: Any) -> None:
+    body = {**OPAMPS_GAIN_50, "opamp": ["opamp-rrio-3mhz", "opamp-missing"]}
+    assert_problem(client.post("/v1/select/closed-loop-bandwidth", json=body), 404, "opamp")
+
+
+def test_searches_beyond_the_configured_size_are_refused(app: Flask, client: FlaskClient, seeded: Any) -> None:
+    app.config["SELECT_MAX_COMBINATIONS"] = 3
+    assert_problem(client.post("/v1/select/closed-loop-bandwidth", json=OPAMPS_GAIN_50), 413)  # 4 op-amps
+    body = {**DEMO, "led": {}, "samples": 0}  # 6 LEDs
+    assert_problem(client.post("/v1/select/channel", json=body), 413)
+    app.config["SELECT_MAX_COMBINATIONS"] = 6
+    assert client.post("/v1/select/channel", json=body).status_code == 200
+
+
+# ---- whole channels ----------------------------------------------------------------------------------------
+
+# The demo's channel (3.3 V pin sourcing 8 mA, two strings of three LEDs at 20 mA, six channels at 50 %, the
+# preamp) over every seeded supply × npn transistor × LED: 3 × 4 × 6 = 72 designs. By hand:
+# - 5 V adapter: 3 × Vf_typ ≥ 6 V > 5 V for every LED, so the core refuses all 24.
+# - 9 V pack (±15 %): blue, green, white and royal blue (3 × Vf_typ ≥ 9.3 V) are refused (16); red and deep red
+#   fail headroom at the low corner: 9 × 0.85 - 3 × 2.4 - Vce_sat ≤ 0.25 V < 10 % of 7.65 V (8).
+# - 12 V adapter (±5 %): blue, green, white, royal blue fail headroom at the low corner, 11.4 - 3 × Vf_max (≥ 10.2)
+#   - Vce_sat ≤ 1.0 V < 1.14 V (16). Red and deep red pass (8): e.g. red on the small-signal part, 300 Ω,
+#   worst current (12.6 - 5.4 - 0.2)/285 = 24.6 mA ≤ 30 mA, pin current ≈ 2 × 24.6 mA/10 ≈ 5 mA ≤ 8 mA.
+# The pin's low level is 0.4 V, exactly the off-state limit, so every passing design's least margin is 0
+# (off_state); the next-least margin orders them.
+CHANNEL_SEARCH = {**DEMO, "supply": {}, "transistor": {}, "led": {}, "samples": 0, "limit": 100}
+
+
+def channel_select(client: FlaskClient, body: dict[str, Any]) -> dict[str, Any]:
+    response = client.post("/v1/select/channel", json=body)
+    assert response.status_code == 200, response.get_json()
+    return response.get_json()
+
+
+def test_channel_search_ranks_the_seeded_designs(client: FlaskClient, seeded: Any) -> None:
+    data = channel_select(client, CHANNEL_SEARCH)
+    assert data["combinations"] == 72 and data["candidates"] == {"supply": 3, "transistor": 4, "led": 6}
+    assert [e["part_id"] for e in data["excluded"]["transistor"]] == ["pnp-small-signal"]
+    designs = data["designs"]
+    refused = [d for d in designs if d["failing"] == ["physically_possible"]]
+    passing = [d for d in designs if d["verdict"] == "pass"]
+    assert (data["passing"], len(passing), len(refused), len(designs)) == (8, 8, 40, 72)
+    assert designs[:8] == passing and designs[-40:] == refused
+    parts = [{p["role"]: p["part_id"] for p in d["parts"]} for d in passing]
+    assert {p["supply"] for p in parts} == {"supply-adapter-12v-2a"}
+    assert {(p["transistor"], p["led"]) for p in parts} == {
+        (t, led) for t in ("npn-small-signal", "npn-medium-power", "npn-power-tab", "npn-darlington-1a")
+        for led in ("led-red-5mm", "led-deep-red-grow-1w")
+    }  # fmt: skip
+    assert all(d["limiting_check"] == "off_state" and d["margin"] == 0 for d in passing)
+    supplies = Counter({p["role"]: p["part_id"] for p in d["parts"]}["supply"] for d in refused)
+    assert supplies == {"supply-adapter-5v-1a": 24, "supply-battery-9v-6aa": 16}
+    # Refused in role order: the 5 V adapter, the darlington (1 V drop), blue LEDs first.
+    assert "(10.6 V = 3 × 3.2 V + 1 V)" in refused[0]["problem"]["supply_v"][0]
+    failing = designs[8:32]
+    assert [d["margin"] for d in failing] == sorted((d["margin"] for d in failing), reverse=True)
+    assert {d["limiting_check"] for d in failing} == {"headroom"}
+
+
+def test_best_channel_design_reruns_identically_through_the_review(client: FlaskClient, seeded: Any) -> None:
+    data = channel_select(client, CHANNEL_SEARCH)
+    margins = []
+    for design in data["designs"][:8]:
+        review = client.post("/v1/review/channel", json=design["request"]).get_json()
+        assert review["parts"] == design["parts"] and review["verdict"] == design["verdict"] == "pass"
+        assert review["failing"] == design["failing"]
+        worst = sorted((c["worst_case"]["margin"], c["name"]) for c in review["checks"])
+        assert (worst[0][1], worst[0][0]) == (design["limiting_check"], pytest.approx(design["margin"], abs=1e-12))
+        margins.append(worst[1][0])
+        stages, numbers = review["stages"], design["numbers"]
+        assert numbers == pytest.approx({
+            "resistor_ohm": stages["led_string"]["resistor_ohm"],
+            "string_current_a": stages["led_string"]["current_a"],
+            "rb_ohm": stages["switch"]["rb_ohm"],
+            "drive_current_a": stages["switch"]["drive_current_a"],
+            "transistor_power_w": stages["switch"]["transistor_power_w"],
+            "supply_average_current_a": stages["supply"]["average_current_a"],
+            "supply_power_w": stages["supply"]["average_power_w"],
+            "max_duty_cycle": review["max_duty_cycle"],
+        }, rel=1e-12)  # fmt: skip
+        assert design["cautions"] == review["cautions"]
+    # Ties on the least margin (all 0) go to the next-least margin, descending.
+    assert margins == sorted(margins, reverse=True)
+
+
+def test_channel_rank_by_supply_power(client: FlaskClient, seeded: Any) -> None:
+    # Average supply power = 12 V × 6 channels × 2 strings × I × 0.5 with I = (12 - 3 Vf_typ - Vce_sat)/R and R
+    # the E24 value at or above that drop / 20 mA. Power tab (Vce_sat 0.5 V) with deep red: 4.9 V/20 mA = 245 ->
+    # 270 Ω, 18.15 mA, 1.307 W; with red: 5.5 V -> 300 Ω, 18.33 mA, 1.320 W; darlington with red: 5.0 V -> 270 Ω,
+    # 1.333 W. The others draw more (up to the darlington with deep red: 4.4 V -> 220 Ω, 20 mA, 1.44 W).
+    data = channel_select(client, {**CHANNEL_SEARCH, "rank_by": "supply_power_w", "only_passing": True})
+    powers = [d["numbers"]["supply_power_w"] for d in data["designs"]]
+    assert powers == sorted(powers) and len(powers) == 8
+    assert powers[:3] == pytest.approx([12 * 6 * 2 * 0.5 * i for i in (4.9 / 270, 5.5 / 300, 5.0 / 270)])
+    first = {p["role"]: p["part_id"] for p in data["designs"][0]["parts"]}
+    assert (first["transistor"], first["led"]) == ("npn-power-tab", "led-deep-red-grow-1w")
+    assert powers[-1] == pytest.approx(1.44)
+
+
+def test_channel_rank_by_yield(client: FlaskClient, seeded: Any) -> None:
+    # A design passing at every corner yields exactly 1 (every build lies inside the corners' box); the
+    # shortlist of ten by margin holds the eight passing designs and the two nearest misses, re-ranked.
+    body = {**CHANNEL_SEARCH, "rank_by": "yield", "samples": 400, "seed": 3, "limit": 12}
+    data = channel_select(client, body)
+    designs = data["designs"]
+    yields = [d["yield"]["fraction"] for d in designs[:10]]
+    assert yields == sorted(yields, reverse=True) and yields[:8] == [1.0] * 8 and yields[9] < 1.0
+    assert all(d["yield"] is None for d in designs[10:])
+    assert designs[9]["request"]["samples"] == 400 and designs[9]["request"]["seed"] == 3
+    review = client.post("/v1/review/channel", json=designs[9]["request"]).get_json()
+    assert review["yield"]["fraction"] == designs[9]["yield"]["fraction"]
+    assert_problem(client.post("/v1/select/channel", json={**body, "samples": 0}), 422, "rank_by")
+
+
+@pytest.mark.parametrize(
+    ("change", "field", "status"),
+    [
+        ({"supply": "supply-adapter-12v-2a", "transistor": "npn-small-signal", "led": "led-red-5mm"}, "body", 422),
+        ({"transistor_revision": 1}, "transistor_revision", 422),
+        ({"strings": 1000, "samples": 100_000}, "samples", 422),
+        ({"led": {"where": {"if_max_a": {"min": "2 V"}}}}, "led.where.if_max_a.min", 422),
+        ({"supply": ["supply-adapter-12v-2a", "supply-missing"]}, "supply", 404),
+    ],
+)
+def test_bad_channel_searches_name_the_field(
+    client: FlaskClient, seeded: Any, change: dict[str, Any], field: str, status: int
+) -> None:
+    assert_problem(client.post("/v1/select/channel", json={**CHANNEL_SEARCH, **change}), status, field)
