@@ -19,9 +19,7 @@ _QUANTITY = re.compile(
     r"\s*(?P<number>[+-]?(?:\d+\.?\d*|\.\d+)(?:[eE][+-]?\d+)?)\s*(?P<unit>[A-Za-zµμΩ%/*^0-9 .·-]*?)\s*"
 )
 # Unit text: names, products and quotients of names with optional integer powers; nothing that evaluates.
-_UNIT_TEXT = re.compile(
-    r"[A-Za-zµμΩ]+(?:\s*(?:\*\*|\^)\s*-?\d)?(?:\s*[*/·]\s*[A-Za-zµμΩ]+(?:\s*(?:\*\*|\^)\s*-?\d)?)*"
-)
+_UNIT_TEXT = re.compile(r"[A-Za-zµμΩ]+(?:\s*(?:\*\*|\^)\s*-?\d)?(?:\s*[*/·]\s*[A-Za-zµμΩ]+(?:\s*(?:\*\*|\^)\s*-?\d)?)*")
 _ALIASES = {"Ω": "ohm", "µ": "u", "μ": "u", "·": "*", "^": "**"}
 
 

@@ -18,9 +18,7 @@ def test_committed_spec_is_valid() -> None:
 
 
 def test_committed_spec_matches_the_code() -> None:
-    assert COMMITTED.read_text() == render(generated_spec()), (
-        "openapi/openapi.json is stale: run `make openapi`"
-    )
+    assert COMMITTED.read_text() == render(generated_spec()), "openapi/openapi.json is stale: run `make openapi`"
 
 
 def test_served_spec_matches_the_committed_one(client: FlaskClient) -> None:

@@ -16,9 +16,7 @@ def test_unknown_route_and_method(client: FlaskClient) -> None:
 
 def test_bad_json_wrong_type_and_unknown_fields(client: FlaskClient, tokens: dict[str, str]) -> None:
     headers = bearer(tokens["edna"])
-    assert_problem(
-        client.post("/v1/parts", data="{not json", content_type="application/json", headers=headers), 400
-    )
+    assert_problem(client.post("/v1/parts", data="{not json", content_type="application/json", headers=headers), 400)
     assert_problem(client.post("/v1/parts", data="a=1", content_type="text/plain", headers=headers), 415)
     body = {"part_id": "x", "kind": "led", "parameters": {}, "colour": "red"}
     assert_problem(client.post("/v1/parts", json=body, headers=headers), 422, "colour")
@@ -27,9 +25,7 @@ def test_bad_json_wrong_type_and_unknown_fields(client: FlaskClient, tokens: dic
 
 def test_deeply_nested_json_is_a_client_error(client: FlaskClient, tokens: dict[str, str]) -> None:
     deep = "[" * 100_000 + "]" * 100_000
-    response = client.post(
-        "/v1/parts", data=deep, content_type="application/json", headers=bearer(tokens["edna"])
-    )
+    response = client.post("/v1/parts", data=deep, content_type="application/json", headers=bearer(tokens["edna"]))
     assert_problem(response, 400)
 
 

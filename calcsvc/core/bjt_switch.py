@@ -40,6 +40,7 @@ from calcsvc.core.outcome import (
     first_bad,
     raise_violations,
     require,
+    require_practical,
     rows,
 )
 
@@ -50,6 +51,7 @@ VERSION = "1"
 # "low" drive at or below 0.4 V leaves a 0.2 V margin so the transistor stays off (common practice).
 OFF_STATE_MAX_V = 0.4
 SATURATION_MARGIN_WARN = 2.0  # hfe_min at least twice the actual forced beta (common practice)
+MAX_PULLDOWN_SHARE = 1e6  # pull-down current / required base current beyond which Ib is lost in rounding
 
 
 @dataclass(frozen=True)
@@ -157,6 +159,9 @@ def validate(inputs: BjtSwitchInputs) -> list[Violation]:
                 "e_series",
                 f"e_series {bad_name!r} is not a known series; use one of {', '.join(eseries.SERIES_NAMES)}",
             )
+        require_practical(
+            v, required | {"rbe_ohm": i.rbe_ohm, "driver_current_max_a": i.driver_current_max_a}, ("rbe_ohm",)
+        )
         if not v:
             # Only when everything else holds: the exact base resistor must lie where standard values exist.
             rb_exact = _rb_exact(i)
@@ -167,6 +172,17 @@ def validate(inputs: BjtSwitchInputs) -> list[Violation]:
                 "collector_current_a",
                 f"collector_current_a ({first_bad(i.collector_current_a, bad)} A) gives a base resistor of "
                 f"{first_bad(rb_exact, bad)} Ω, outside any practical range",
+            )
+            # The base current is the drive less the pull-down's share; when that share is millions of times
+            # larger, the difference drowns in rounding (no real design wastes its drive so).
+            ib_req = i.collector_current_a / i.forced_beta
+            bad = _rbe_current(i) > MAX_PULLDOWN_SHARE * ib_req
+            require(
+                v,
+                bad,
+                "rbe_ohm",
+                f"rbe_ohm ({first_bad(i.rbe_ohm, bad)} Ω) would take over {MAX_PULLDOWN_SHARE:g} times the "
+                f"base current ({first_bad(ib_req, bad)} A): choose a larger pull-down",
             )
     return v
 

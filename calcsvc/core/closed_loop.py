@@ -39,6 +39,7 @@ from calcsvc.core.outcome import (
     first_bad,
     raise_violations,
     require,
+    require_practical,
 )
 
 NAME = "closed-loop-bandwidth"
@@ -75,6 +76,9 @@ class ClosedLoopInputs:
     sweep_start_hz: FloatArray
     sweep_stop_hz: FloatArray
     sweep_points: int = 0
+
+
+_QUANTITIES = ("gain", "rf_ohm", "rg_ohm", "gbw_hz", "open_loop_gain", "signal_hz", "sweep_start_hz", "sweep_stop_hz")
 
 
 def _sweep_points_valid(points: object) -> bool:
@@ -180,6 +184,7 @@ def validate(inputs: ClosedLoopInputs) -> list[Violation]:
     bad = np.isfinite(sig) & (sig <= 0.0)
     require(v, bad, "signal_hz", f"signal_hz ({first_bad(sig, bad)} Hz) must be above 0 Hz")
 
+    require_practical(v, {name: getattr(inputs, name) for name in _QUANTITIES}, ("rg_ohm", "gbw_hz"))
     v.extend(_validate_sweep(inputs, n))
     return v
 

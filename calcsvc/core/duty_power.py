@@ -40,6 +40,7 @@ from calcsvc.core.outcome import (
     first_bad,
     raise_violations,
     require,
+    require_practical,
 )
 
 NAME = "duty-cycle-power"
@@ -301,6 +302,8 @@ def validate(inputs: DutyPowerInputs) -> list[Violation]:
         f"rms_current_a ({first_bad(rms, bad)} A) of load {_first_load(bad)} cannot exceed its "
         f"peak_current_a ({first_bad(peak, bad)} A)",
     )
+    require_practical(v, {name: getattr(inputs, name) for name in _ROW_FIELDS}, ("current_max_a",))
+    require_practical(v, {name: getattr(inputs, name) for name in _LOAD_FIELDS[1:]}, rows_of=rows_of)
     return v
 
 
@@ -325,11 +328,13 @@ def compute(inputs: DutyPowerInputs) -> Outcome:
     peak_current = np.bincount(row, weights=inputs.peak_current_a * count, minlength=n)
     rating = inputs.current_max_a
     rating_known = ~np.isnan(rating)
-    with np.errstate(divide="ignore", invalid="ignore"):
+    with np.errstate(divide="ignore", invalid="ignore", over="ignore"):
         utilization = average_current / rating
-        # No drain, no finite runtime: give "does not apply" (NaN) and say so in a warning.
-        runtime = np.where(average_current > 0.0, inputs.capacity_ah / average_current, np.nan)
+        # No drain (or so little that the quotient overflows), no finite runtime: give "does not apply" (NaN)
+        # and say so in a warning.
+        runtime = inputs.capacity_ah / average_current
         common_duty = np.where(peak_current > 0.0, np.minimum(1.0, rating / peak_current), 1.0)
+    runtime[np.isinf(runtime)] = np.nan
     common_duty = np.where(rating_known, common_duty, np.nan)
 
     results: dict[str, np.ndarray] = {
@@ -369,7 +374,7 @@ def compute(inputs: DutyPowerInputs) -> Outcome:
 
     warnings: list[Notice] = []
     capacity_known = ~np.isnan(inputs.capacity_ah)
-    mask = capacity_known & (average_current > 0.0)
+    mask = capacity_known & ~np.isnan(runtime)
     if mask.any():
         warnings.append(
             Notice(
@@ -377,10 +382,14 @@ def compute(inputs: DutyPowerInputs) -> Outcome:
                 "real battery capacity falls at high drain; treat runtime_h as an upper bound",
             )
         )
-    mask = capacity_known & ~(average_current > 0.0)
+    mask = capacity_known & np.isnan(runtime)
     if mask.any():
         warnings.append(
-            Notice(mask, "the loads draw no average current, so runtime_h does not apply (it would be unbounded)")
+            Notice(
+                mask,
+                "the loads draw no average current (or vanishingly little), so runtime_h does not apply "
+                "(it would be unbounded)",
+            )
         )
 
     cautions: list[Notice] = []

@@ -184,7 +184,9 @@ def is_standard(values: npt.ArrayLike, series: str) -> BoolArray:
 
 def _series_masks(names: np.ndarray) -> dict[str, BoolArray]:
     """Each series name present with the rows that use it; most batches use one series on every row."""
-    first = str(names.flat[0]) if names.size else ""
+    if not names.size:
+        return {}  # no rows: no series to pick from (an empty name would be refused as unknown)
+    first = str(names.flat[0])
     same = names == first
     if same.all():
         return {first: same}

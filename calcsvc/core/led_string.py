@@ -43,6 +43,7 @@ from calcsvc.core.outcome import (
     first_bad,
     raise_violations,
     require,
+    require_practical,
     rows,
 )
 
@@ -166,6 +167,7 @@ def validate(inputs: LedStringInputs) -> list[Violation]:
                 f"supply_v ({i.supply_v[k]:g} V) must exceed the string's forward voltage plus switch drop "
                 f"({drop[k]:g} V = {i.leds_in_series[k]:g} × {i.vf_typ_v[k]:g} V + {i.switch_drop_v[k]:g} V)",
             )
+        require_practical(v, required | {"resistor_tolerance": rt})
         if not v:
             # Only when everything else holds: the exact resistor must lie where standard values are defined.
             r_exact = (i.supply_v - drop) / i.current_a

@@ -9,6 +9,7 @@ Conventions:
 from __future__ import annotations
 
 import dataclasses
+from collections.abc import Callable
 from dataclasses import dataclass, field
 from typing import Any, Literal, TypeVar
 
@@ -115,3 +116,38 @@ def require(violations: list[Violation], rows_bad: BoolArray, name: str, message
     bad = np.asarray(rows_bad, dtype=bool)
     if bad.any():
         violations.append(Violation(name, message, bad))
+
+
+PRACTICAL_MAX = 1e30
+PRACTICAL_MIN = 1e-30
+"""Magnitudes (SI units) the calculations take: far beyond any circuit, and narrow enough that products,
+squares and quotients of a few inputs stay finite in float64 (near 1e300 they overflow to infinity). The
+lower bound applies only to inputs something is divided by: a tiny factor is harmless, a tiny divisor is not."""
+
+
+def require_practical(
+    violations: list[Violation],
+    values: dict[str, np.ndarray],
+    divisors: tuple[str, ...] = (),
+    rows_of: Callable[[BoolArray], BoolArray] | None = None,
+) -> None:
+    """A violation for each input above PRACTICAL_MAX in magnitude, or, if in ``divisors``, below PRACTICAL_MIN.
+
+    0 and NaN (not given) pass: other rules judge them. ``rows_of`` maps bad entries to the rows they belong to,
+    for inputs that are not one per row.
+    """
+    with np.errstate(invalid="ignore"):
+        for name, x in values.items():
+            size = np.abs(np.asarray(x, dtype=np.float64))
+            bad = np.isfinite(size) & (size > PRACTICAL_MAX)
+            limits = f"at most {PRACTICAL_MAX:g}"
+            if name in divisors:
+                bad |= (size != 0.0) & (size < PRACTICAL_MIN)
+                limits = f"{PRACTICAL_MIN:g} to {PRACTICAL_MAX:g}"
+            require(
+                violations,
+                bad if rows_of is None or not bad.any() else rows_of(bad),
+                name,
+                f"{name} ({first_bad(x, bad)}) lies outside the magnitudes this service computes with "
+                f"({limits} in SI units)",
+            )

@@ -37,6 +37,7 @@ from calcsvc.core.outcome import (
     first_bad,
     raise_violations,
     require,
+    require_practical,
 )
 
 NAME = "slew-limit"
@@ -62,6 +63,9 @@ class SlewInputs:
     triangle: BoolArray
     supply_v: FloatArray
     step_v: FloatArray
+
+
+_QUANTITIES = ("slew_rate_v_per_s", "output_headroom_v", "frequency_hz", "amplitude_v", "supply_v", "step_v")
 
 
 def validate(inputs: SlewInputs) -> list[Violation]:
@@ -110,6 +114,9 @@ def validate(inputs: SlewInputs) -> list[Violation]:
         "supply_v",
         f"supply_v ({first_bad(supply, bad)} V) must exceed twice output_headroom_v "
         f"({first_bad(2.0 * headroom, bad)} V): otherwise the output has no room to swing",
+    )
+    require_practical(
+        v, {name: getattr(inputs, name) for name in _QUANTITIES}, ("slew_rate_v_per_s", "frequency_hz", "amplitude_v")
     )
     return v
 

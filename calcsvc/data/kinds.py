@@ -123,12 +123,7 @@ def validate_parameters(kind: str, parameters: dict[str, Any]) -> dict[str, str]
             errors[name] = "must not be negative"
     for low, high, strict in ORDERED[kind]:
         a, b = parameters.get(low), parameters.get(high)
-        if (
-            low in errors
-            or high in errors
-            or not isinstance(a, int | float)
-            or not isinstance(b, int | float)
-        ):
+        if low in errors or high in errors or not isinstance(a, int | float) or not isinstance(b, int | float):
             continue
         if (a >= b) if strict else (a > b):
             errors[high] = f"{high} ({b:g}) must be {'greater than' if strict else 'at least'} {low} ({a:g})"

@@ -11,6 +11,7 @@ from typing import Any
 from flask import Flask, Response, current_app, request
 from flask_smorest import Api
 from flask_smorest.utils import prepare_response
+from sqlalchemy.exc import OperationalError
 from werkzeug.exceptions import HTTPException, RequestEntityTooLarge
 
 from calcsvc.config import load_config
@@ -25,9 +26,11 @@ from calcsvc.data.store import (
     StaleRevision,
     StoreError,
 )
-from calcsvc.web import calc_api, health, parts_api
+from calcsvc.web import batch_api, calc_api, health, parts_api, plots_api, review_api, review_page, select_api
+from calcsvc.web.observability import install_observability
 from calcsvc.web.problems import (
     PROBLEM_MIMETYPE,
+    BodyErrorsPlugin,
     Problem,
     ProblemSchema,
     from_http_exception,
@@ -86,11 +89,20 @@ def _domain_problem(error: DomainError) -> Response:
     return problem_response(Problem(422, detail, "physically-impossible", errors, title="Physically impossible input"))
 
 
+def _database_down(error: OperationalError) -> Response:
+    log.error("database unavailable on %s %s: %s", request.method, request.path, type(error).__name__)
+    return problem_response(Problem(503, "the database is not reachable; try again shortly", "database-unavailable"))
+
+
 def _unexpected(error: Exception) -> Response:
     if isinstance(error, HTTPException):
         return problem_response(from_http_exception(error))
     if isinstance(error, RecursionError):
         return problem_response(Problem(400, "the request body is nested too deeply", "malformed-body"))
+    if isinstance(error, ValueError) and "integer string conversion" in str(error):
+        # The JSON parser refuses integer literals of thousands of digits (Python's guard against slow
+        # conversions) with a plain ValueError, which the argument parser does not take for bad JSON.
+        return problem_response(Problem(400, "a number in the request body has too many digits", "malformed-body"))
     log.exception("unhandled error on %s %s", request.method, request.path)
     return problem_response(
         Problem(500, "the server failed to answer this request; the failure has been logged", "internal")
@@ -103,7 +115,7 @@ def _check_body() -> Response | None:
     if request.content_length is not None and request.content_length > limit:
         return problem_response(from_http_exception(RequestEntityTooLarge()))
     if request.method in {"POST", "PUT", "PATCH"} and request.content_length:
-        if request.mimetype not in BODY_MIMETYPES:
+        if request.mimetype not in BODY_MIMETYPES and request.blueprint != review_page.bp.name:  # HTML forms
             return problem_response(
                 Problem(
                     415,
@@ -150,15 +162,22 @@ def create_app(config: Mapping[str, Any] | None = None) -> Flask:
     logging.getLogger("calcsvc").setLevel(app.config["LOG_LEVEL"])
     app.extensions["calcsvc.db"] = Database(app.config["DATABASE_URL"], app.config["DB_POOL_SIZE"])
 
-    api = ProblemApi(app)
+    api = ProblemApi(app, spec_kwargs={"extra_plugins": [BodyErrorsPlugin()]})
     app.extensions["calcsvc.api"] = api
     api.register_blueprint(health.blp)
     api.register_blueprint(parts_api.blp)
+    install_observability(app)
     api.register_blueprint(calc_api.blp)
+    api.register_blueprint(batch_api.blp)
+    api.register_blueprint(review_api.blp)
+    api.register_blueprint(plots_api.blp)
+    api.register_blueprint(select_api.blp)
+    app.register_blueprint(review_page.bp)
 
     app.register_error_handler(Problem, problem_response)
     app.register_error_handler(StoreError, _store_problem)
     app.register_error_handler(DomainError, _domain_problem)
+    app.register_error_handler(OperationalError, _database_down)
     app.register_error_handler(Exception, _unexpected)
     app.before_request(_check_body)
     origins = app.config["CORS_ORIGINS"]

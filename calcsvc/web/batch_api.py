@@ -12,7 +12,6 @@ from flask import Response, current_app, request
 from flask.views import MethodView
 from flask_smorest import Blueprint
 
-from calcsvc.core.outcome import take
 from calcsvc.web.auth import require_reader
 from calcsvc.web.calc_schemas import request_schema
 from calcsvc.web.calculations import FLAT_CALCULATIONS, Calculation
@@ -59,12 +58,18 @@ def read_records() -> tuple[list[Any], bool]:
 def evaluate(calc: Calculation, parsed: ParsedRows) -> tuple[dict[str, Any], np.ndarray, Any]:
     """Run the core once over every row that parsed; physical violations become errors on their rows."""
     n = parsed.n
-    candidates = np.flatnonzero(~parsed.errors.mask(n))
-    inputs = calc.make_inputs({name: column[candidates] for name, column in parsed.columns.items()})
-    for violation in calc.validate(inputs):
-        parsed.errors.add_rows(np.isin(np.arange(n), candidates[violation.rows]), violation.field, violation.message)
     ok_rows = np.flatnonzero(~parsed.errors.mask(n))
-    outcome = calc.compute(take(inputs, np.isin(candidates, ok_rows)))
+    # Some rules run only once a row's other inputs hold (its resistor in range, say), and what rows share (a
+    # sweep size) comes from the rows computed: so the rows left are validated again until none is refused.
+    while True:
+        inputs = calc.make_inputs({name: column[ok_rows] for name, column in parsed.columns.items()})
+        violations = calc.validate(inputs)
+        if not violations:
+            break
+        for violation in violations:
+            parsed.errors.add_rows(np.isin(np.arange(n), ok_rows[violation.rows]), violation.field, violation.message)
+        ok_rows = np.flatnonzero(~parsed.errors.mask(n))
+    outcome = calc.compute(inputs)
     return outcome.results, ok_rows, outcome
 
 

@@ -12,7 +12,7 @@ import numpy as np
 from flask import Response, current_app, g, request
 from flask.views import MethodView
 from flask_smorest import Blueprint
-from marshmallow import Schema, ValidationError, fields, validate, validates_schema
+from marshmallow import RAISE, Schema, ValidationError, fields, validate, validates_schema
 
 from calcsvc.core import duty_power
 from calcsvc.core.outcome import Outcome
@@ -160,7 +160,7 @@ def _register_flat(calc: Calculation) -> None:
         def post(self, body: dict[str, Any]) -> dict[str, Any]:
             return run_flat(calc, body)
 
-        @blp.arguments(query, location="query")
+        @blp.arguments(query, location="query", unknown=RAISE)  # a misspelt input is refused, not dropped
         @blp.response(200, response)
         @error_response(blp, 404, "a referenced part does not exist")
         @blp.doc(

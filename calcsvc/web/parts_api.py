@@ -3,24 +3,31 @@
 from __future__ import annotations
 
 import re
+import sys
 from dataclasses import asdict
+from datetime import UTC, datetime
 from typing import Any
 
 from flask import current_app, g, request, url_for
 from flask.views import MethodView
 from flask_smorest import Blueprint
-from marshmallow import Schema, fields, validate
+from marshmallow import RAISE, Schema, fields, validate
 
 from calcsvc.data.kinds import KINDS, params_of
 from calcsvc.data.store import STATUSES, PartStore, PartView
 from calcsvc.units import UnitError, parse_quantity
 from calcsvc.web.auth import reads, requires
+from calcsvc.web.metrics import record_parts_write
 from calcsvc.web.problems import Problem, error_response
 
 blp = Blueprint("parts", __name__, url_prefix="/v1/parts", description="The shared parts table")
 
 PART_ID = r"^[a-z0-9][a-z0-9-]{0,63}$"
-_ETAG = re.compile(r'^(?:W/)?"(?P<part>[a-z0-9-]+)-r(?P<revision>\d+)"$')
+MAX_REVISION = 2**31 - 1  # the store keeps revisions in 32-bit integer columns; larger ones cannot be looked up
+_PART_ID = re.compile(PART_ID.removesuffix("$") + r"\Z")  # $ would let a trailing newline through
+# PostgreSQL cannot store a NUL character in a text column (SQLite can): refuse it in the request.
+NO_NUL = validate.ContainsNoneOf("\x00", error="must not contain a NUL character")
+_ETAG = re.compile(r'^(?:W/)?"(?P<part>[a-z0-9-]+)-r(?P<revision>\d{1,10})"$')
 _KIND_DOC = "; ".join(
     f"{kind}: " + ", ".join(p.name + (" (optional)" if p.optional else "") for p in params)
     for kind, params in KINDS.items()
@@ -41,22 +48,31 @@ class ParametersField(fields.Dict):
         )
 
 
+class UtcDateTime(fields.DateTime):
+    """The store writes UTC; SQLite returns it without the zone, which RFC 3339 date-time requires."""
+
+    def _serialize(self, value: datetime | None, attr: str | None, obj: Any, **kwargs: Any) -> str | None:
+        if value is not None and value.tzinfo is None:
+            value = value.replace(tzinfo=UTC)
+        return super()._serialize(value, attr, obj, **kwargs)
+
+
 class PartCreateSchema(Schema):
     part_id = fields.String(required=True, validate=validate.Regexp(PART_ID), metadata={"pattern": PART_ID})
     kind = fields.String(required=True, validate=validate.OneOf(list(KINDS)))
-    description = fields.String(load_default="", validate=validate.Length(max=500))
+    description = fields.String(load_default="", validate=[validate.Length(max=500), NO_NUL])
     parameters = ParametersField(required=True)
 
 
 class PartUpdateSchema(Schema):
-    description = fields.String(load_default=None, validate=validate.Length(max=500))
+    description = fields.String(load_default=None, validate=[validate.Length(max=500), NO_NUL])
     parameters = ParametersField(required=True)
 
 
 class ApproveSchema(Schema):
     revision = fields.Integer(
         load_default=None,
-        validate=validate.Range(min=1),
+        validate=validate.Range(min=1, max=MAX_REVISION),
         metadata={"description": "the revision being approved; default: the one named by If-Match, else current"},
     )
 
@@ -68,7 +84,7 @@ class PartSchema(Schema):
     parameters = fields.Dict(required=True)
     status = fields.String(required=True, validate=validate.OneOf(STATUSES))
     revision = fields.Integer(required=True)
-    updated_at = fields.DateTime(required=True)
+    updated_at = UtcDateTime(required=True)
     updated_by = fields.String(required=True)
     approved_by = fields.String(allow_none=True, required=True)
 
@@ -93,9 +109,9 @@ class RevisionSchema(Schema):
     description = fields.String(required=True)
     parameters = fields.Dict(required=True)
     author = fields.String(required=True)
-    created_at = fields.DateTime(required=True)
+    created_at = UtcDateTime(required=True)
     approved_by = fields.String(allow_none=True, required=True)
-    approved_at = fields.DateTime(allow_none=True, required=True)
+    approved_at = UtcDateTime(allow_none=True, required=True)
 
 
 class RevisionListSchema(Schema):
@@ -122,6 +138,8 @@ def convert_parameters(kind: str, raw: dict[str, Any]) -> dict[str, Any]:
                 converted[name] = parse_quantity(value, param.unit)
             except UnitError as exc:
                 errors[f"parameters.{name}"] = [str(exc)]
+        elif isinstance(value, int) and abs(value) > sys.float_info.max:
+            errors[f"parameters.{name}"] = ["number is too large"]  # a JSON integer of 400 digits, say
         else:
             converted[name] = value
     if errors:
@@ -144,9 +162,18 @@ def expected_revision(part_id: str, required: bool) -> int | None:
             )
         return None
     match = _ETAG.match(header.strip())
-    if match is None or match["part"] != part_id:
+    if match is None or match["part"] != part_id or int(match["revision"]) > MAX_REVISION:
         raise Problem(412, f"If-Match {header!r} does not name a revision of '{part_id}'", "stale-revision")
     return int(match["revision"])
+
+
+@blp.before_request
+def _no_such_shape() -> None:
+    """An id no part can have is not looked up (PostgreSQL refuses a NUL in a query with an error)."""
+    part_id = (request.view_args or {}).get("part_id")
+    if part_id is not None and _PART_ID.match(part_id) is None:
+        message = f"no part {part_id[:80]!r}: a part_id is {PART_ID}"
+        raise Problem(404, message, "part-not-found", {"part_id": [message]})
 
 
 def _store() -> Any:
@@ -156,7 +183,7 @@ def _store() -> Any:
 @blp.route("")
 class Parts(MethodView):
     @reads
-    @blp.arguments(PartQuerySchema, location="query")
+    @blp.arguments(PartQuerySchema, location="query", unknown=RAISE)  # a misspelt filter is refused, not dropped
     @blp.response(200, PartListSchema)
     def get(self, query: dict[str, Any]) -> dict[str, Any]:
         """List parts, filtered by kind and status, in pages."""
@@ -184,6 +211,7 @@ class Parts(MethodView):
             view = PartStore(session).create(
                 body["part_id"], body["kind"], body["description"], parameters, g.identity.name
             )
+        record_parts_write("create")
         data, _, headers = part_response(view)
         headers["Location"] = url_for("parts.Part", part_id=view.part_id)
         return data, 201, headers
@@ -206,6 +234,7 @@ class Part(MethodView):
     @error_response(blp, 401, "no valid token")
     @error_response(blp, 403, "the token's role may not edit parts")
     @error_response(blp, 404, "no such part")
+    @error_response(blp, 409, "the part is retired")
     @error_response(blp, 412, "the part changed since the ETag was read")
     @error_response(blp, 428, "If-Match is missing")
     def put(
@@ -219,7 +248,9 @@ class Part(MethodView):
             current = store.get(part_id)
             parameters = convert_parameters(current.kind, body["parameters"])
             description = current.description if body["description"] is None else body["description"]
-            return part_response(store.update(part_id, expected, description, parameters, g.identity.name))
+            view = store.update(part_id, expected, description, parameters, g.identity.name)
+        record_parts_write("update")
+        return part_response(view)
 
     @requires("editor")
     @blp.response(200, PartSchema)
@@ -229,7 +260,9 @@ class Part(MethodView):
     def delete(self, part_id: str) -> tuple[dict[str, Any], int, dict[str, str]]:
         """Retire a part (editor): refused in new calculations unless pinned by revision; history stays."""
         with _store() as session:
-            return part_response(PartStore(session).retire(part_id, g.identity.name))
+            view = PartStore(session).retire(part_id, g.identity.name)
+        record_parts_write("retire")
+        return part_response(view)
 
 
 @blp.route("/<string:part_id>/approve")
@@ -252,7 +285,9 @@ class Approve(MethodView):
             store = PartStore(session)
             if revision is None:
                 revision = store.get(part_id).revision
-            return part_response(store.approve(part_id, revision, g.identity.name))
+            view = store.approve(part_id, revision, g.identity.name)
+        record_parts_write("approve")
+        return part_response(view)
 
 
 @blp.route("/<string:part_id>/revisions")

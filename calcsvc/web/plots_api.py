@@ -14,7 +14,7 @@ import numpy as np
 from flask import Response
 from flask.views import MethodView
 from flask_smorest import Blueprint
-from marshmallow import Schema
+from marshmallow import RAISE, Schema
 
 from calcsvc.core import closed_loop, eseries, led_string, slew
 from calcsvc.core.outcome import Outcome
@@ -199,7 +199,7 @@ def _register(name: str, calc_name: str, draw: Callable[[dict[str, Any], str], p
         )(get)
         get = error_response(blp, 404, "a referenced part does not exist")(get)
         get = blp.response(200, schema, content_type=mimetype, description=f"the plot as {mimetype}")(get)
-        get = blp.arguments(query, location="query")(get)
+        get = blp.arguments(query, location="query", unknown=RAISE)(get)  # a misspelt input is refused
         view = type(f"{camel(name)}{fmt.capitalize()}Plot", (MethodView,), {"get": get})
         blp.route(f"/{name}.{fmt}", endpoint=endpoint(name, fmt))(view)
 

@@ -3,8 +3,10 @@
 from __future__ import annotations
 
 import logging
+from http import HTTPStatus
 from typing import Any
 
+from apispec import BasePlugin
 from flask import Response, g, json, request
 from marshmallow import Schema, fields
 from werkzeug.exceptions import HTTPException
@@ -31,6 +33,20 @@ class ProblemSchema(Schema):
 def error_response(blp: Any, status: int, description: str) -> Any:
     """Document an error status of an operation as a problem document."""
     return blp.alt_response(status, schema=ProblemSchema, content_type=PROBLEM_MIMETYPE, description=description)
+
+
+class BodyErrorsPlugin(BasePlugin):
+    """Documents the refusals every operation that reads a body can answer before its own logic runs."""
+
+    STATUSES = (HTTPStatus.BAD_REQUEST, HTTPStatus.REQUEST_ENTITY_TOO_LARGE, HTTPStatus.UNSUPPORTED_MEDIA_TYPE)
+
+    def operation_helper(self, path: str | None = None, operations: dict[str, Any] | None = None, **_: Any) -> None:
+        for operation in (operations or {}).values():
+            if "requestBody" in operation:
+                responses = operation.setdefault("responses", {})
+                for status in self.STATUSES:
+                    if status not in responses and str(int(status)) not in responses:
+                        responses[str(int(status))] = status.name  # the problem response registered per status
 
 
 class Problem(Exception):

@@ -77,9 +77,7 @@ class EbersMoll:
         return ic, ib
 
 
-def solve_switch(
-    model: EbersMoll, v_high: float, rb: float, rbe: float, v_cc: float, rc: float
-) -> dict[str, float]:
+def solve_switch(model: EbersMoll, v_high: float, rb: float, rbe: float, v_cc: float, rc: float) -> dict[str, float]:
     """Solve the circuit V_high–Rb–base (Rbe base to emitter), emitter grounded, Rc from V_cc to collector.
 
     Nested brentq: for a base voltage, the collector node (Vcc − Vc)/Rc = Ic(Vb, Vb − Vc) has one root

@@ -142,9 +142,7 @@ def test_matches_scipy_freqs(inverting, gain, rf, rg, gbw, a0, n):
     np.testing.assert_allclose(f, np.geomspace(gbw * 1e-5, gbw * 10, 300), rtol=1e-12)
     hs = response(bn, an, f)
     np.testing.assert_allclose(out["sweep_gain_db"][0], 20 * np.log10(np.abs(hs)), atol=1e-9)
-    np.testing.assert_allclose(
-        out["sweep_phase_deg"][0], np.degrees(np.unwrap(np.angle(hs * sign**n))), atol=1e-9
-    )
+    np.testing.assert_allclose(out["sweep_phase_deg"][0], np.degrees(np.unwrap(np.angle(hs * sign**n))), atol=1e-9)
 
 
 def test_textbook_gbw_over_noise_gain():
@@ -285,11 +283,7 @@ def test_batch_rows_and_sweep_nan_on_rows_without_sweep():
     two = make(inverting=True, gain=3.0, stages=2.0, sweep_points=50)
     batch = ClosedLoopInputs(
         **{
-            f.name: (
-                np.concatenate([getattr(one, f.name), getattr(two, f.name)])
-                if f.name != "sweep_points"
-                else 50
-            )
+            f.name: (np.concatenate([getattr(one, f.name), getattr(two, f.name)]) if f.name != "sweep_points" else 50)
             for f in dataclasses.fields(ClosedLoopInputs)
         }
     )
@@ -298,9 +292,7 @@ def test_batch_rows_and_sweep_nan_on_rows_without_sweep():
     assert np.all(np.isfinite(out["sweep_gain_db"][0]))
     assert np.all(np.isnan(out["sweep_gain_db"][1]))
     # Each row equals its own single-row result.
-    assert (
-        out["bandwidth_hz"][1] == compute(dataclasses.replace(two, sweep_points=0)).results["bandwidth_hz"][0]
-    )
+    assert out["bandwidth_hz"][1] == compute(dataclasses.replace(two, sweep_points=0)).results["bandwidth_hz"][0]
 
 
 # --- properties ---------------------------------------------------------------------------------------------
@@ -316,12 +308,8 @@ def test_bandwidth_falls_as_gain_rises(g1, g2, gbw, a0, inverting):
     # Constant gain-bandwidth product (Sedra & Smith): more noise gain, less bandwidth.
     lo, hi = sorted((g1, g2))
     assume(hi > lo * (1 + 1e-9))
-    f_lo = compute(make(inverting=inverting, gain=lo, gbw_hz=gbw, open_loop_gain=a0)).results["bandwidth_hz"][
-        0
-    ]
-    f_hi = compute(make(inverting=inverting, gain=hi, gbw_hz=gbw, open_loop_gain=a0)).results["bandwidth_hz"][
-        0
-    ]
+    f_lo = compute(make(inverting=inverting, gain=lo, gbw_hz=gbw, open_loop_gain=a0)).results["bandwidth_hz"][0]
+    f_hi = compute(make(inverting=inverting, gain=hi, gbw_hz=gbw, open_loop_gain=a0)).results["bandwidth_hz"][0]
     assert f_hi < f_lo
 
 

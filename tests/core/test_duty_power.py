@@ -290,9 +290,7 @@ duties = st.floats(min_value=0.0, max_value=1.0)
 def test_duty_power_linear_in_duty(v, peak, duty, count):
     # Average power of a rectangular load is V·I·D: linear in D (definition of the mean).
     def power(d: float) -> float:
-        return compute(make([{"peak": peak, "duty": d, "count": count}], supply_v=v)).results[
-            "average_power_w"
-        ][0]
+        return compute(make([{"peak": peak, "duty": d, "count": count}], supply_v=v)).results["average_power_w"][0]
 
     full = power(1.0)
     assert power(duty) == pytest.approx(duty * full, rel=1e-12, abs=1e-300)

@@ -74,9 +74,9 @@ def simulate(amplitude: float, frequency: float, slew_rate: float, triangle: boo
 @pytest.mark.parametrize("triangle", [False, True])
 def test_time_domain_simulation_of_slew_limit(triangle):
     sr, f = 0.5e6, 20e3
-    limit = compute(make(slew_rate_v_per_s=sr, frequency_hz=f, triangle=triangle)).results[
-        "slew_limited_amplitude_v"
-    ][0]
+    limit = compute(make(slew_rate_v_per_s=sr, frequency_hz=f, triangle=triangle)).results["slew_limited_amplitude_v"][
+        0
+    ]
     # Independent numerical solution: a waveform just below SR/(2πf) (sine) or SR/(4f) (triangle) passes a
     # rate-limited follower untouched...
     error_below, thd_below = simulate(0.9 * limit, f, sr, triangle)
