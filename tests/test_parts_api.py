@@ -35,9 +35,7 @@ def test_seeded_parts_are_listed_by_kind(client: FlaskClient, seeded: Any) -> No
     assert all(item["status"] == "approved" and item["approved_by"] == "seed" for item in body["items"])
 
 
-def test_create_converts_units_and_returns_location_and_etag(
-    client: FlaskClient, tokens: dict[str, str]
-) -> None:
+def test_create_converts_units_and_returns_location_and_etag(client: FlaskClient, tokens: dict[str, str]) -> None:
     response = create(client, tokens["edna"])
     assert response.status_code == 201
     assert response.headers["Location"] == "/v1/parts/led-amber-3mm"
@@ -75,16 +73,12 @@ def test_edit_needs_if_match_and_rejects_stale_etags(client: FlaskClient, tokens
     etag = create(client, tokens["edna"]).headers["ETag"]
     changed = {"parameters": {**LED["parameters"], "if_max_a": 0.025}}
     assert_problem(client.put("/v1/parts/led-amber-3mm", json=changed, headers=bearer(tokens["edna"])), 428)
-    first = client.put(
-        "/v1/parts/led-amber-3mm", json=changed, headers={**bearer(tokens["edna"]), "If-Match": etag}
-    )
+    first = client.put("/v1/parts/led-amber-3mm", json=changed, headers={**bearer(tokens["edna"]), "If-Match": etag})
     assert first.status_code == 200
     assert first.headers["ETag"] == '"led-amber-3mm-r2"'
     assert first.get_json()["parameters"]["if_max_a"] == 0.025
     stale = {"parameters": {**LED["parameters"], "if_max_a": 0.02}}
-    response = client.put(
-        "/v1/parts/led-amber-3mm", json=stale, headers={**bearer(tokens["edna"]), "If-Match": etag}
-    )
+    response = client.put("/v1/parts/led-amber-3mm", json=stale, headers={**bearer(tokens["edna"]), "If-Match": etag})
     assert_problem(response, 412)
     stored = client.get("/v1/parts/led-amber-3mm").get_json()
     assert stored["parameters"]["if_max_a"] == 0.025 and stored["revision"] == 2
@@ -109,12 +103,8 @@ def test_revisions_keep_every_edit(client: FlaskClient, tokens: dict[str, str]) 
 def test_review_workflow(client: FlaskClient, tokens: dict[str, str]) -> None:
     create(client, tokens["rita"])  # a reviewer may also author
     assert_problem(client.post("/v1/parts/led-amber-3mm/approve", headers=bearer(tokens["edna"])), 403)
-    assert_problem(
-        client.post("/v1/parts/led-amber-3mm/approve", headers=bearer(tokens["rita"])), 403, "revision"
-    )
-    approved = client.post(
-        "/v1/parts/led-amber-3mm/approve", json={"revision": 1}, headers=bearer(tokens["ravi"])
-    )
+    assert_problem(client.post("/v1/parts/led-amber-3mm/approve", headers=bearer(tokens["rita"])), 403, "revision")
+    approved = client.post("/v1/parts/led-amber-3mm/approve", json={"revision": 1}, headers=bearer(tokens["ravi"]))
     assert approved.status_code == 200
     assert (approved.get_json()["status"], approved.get_json()["approved_by"]) == ("approved", "ravi")
     params = {**LED["parameters"], "if_max_a": 0.025}
@@ -153,3 +143,12 @@ def test_writes_need_a_valid_token(client: FlaskClient, tokens: dict[str, str]) 
 def test_unknown_part_is_404_problem(client: FlaskClient) -> None:
     assert_problem(client.get("/v1/parts/no-such-part"), 404, "part_id")
     assert_problem(client.get("/v1/parts/no-such-part/revisions"), 404)
+
+
+def test_a_second_approval_keeps_the_first(client: FlaskClient, tokens: dict[str, str]) -> None:
+    create(client, tokens["edna"])
+    client.post("/v1/parts/led-amber-3mm/approve", headers=bearer(tokens["rita"]))
+    again = client.post("/v1/parts/led-amber-3mm/approve", headers=bearer(tokens["ravi"]))
+    assert again.status_code == 200 and again.get_json()["approved_by"] == "rita"
+    history = client.get("/v1/parts/led-amber-3mm/revisions").get_json()["revisions"]
+    assert history[0]["approved_by"] == "rita"

@@ -7,6 +7,7 @@ SQLite and PostgreSQL evaluate atomically, so of several editors holding the sam
 
 from __future__ import annotations
 
+from collections.abc import Sequence
 from dataclasses import dataclass
 from datetime import UTC, datetime
 from typing import Any
@@ -162,6 +163,12 @@ class PartStore:
         rows = self.session.scalars(query.order_by(Part.part_id).offset(offset).limit(limit))
         return [_view(row) for row in rows], total
 
+    def all_of_kind(self, kind: str, statuses: Sequence[str]) -> list[PartView]:
+        """Every current part of ``kind`` whose status is one of ``statuses``, by part_id; no pagination
+        (candidate search evaluates them all at once)."""
+        query = select(Part).where(Part.kind == kind, Part.status.in_(statuses)).order_by(Part.part_id)
+        return [_view(row) for row in self.session.scalars(query)]
+
     def revisions(self, part_id: str) -> list[RevisionView]:
         self._row(part_id)
         rows = self.session.scalars(
@@ -282,6 +289,8 @@ class PartStore:
             raise PartRetired(f"part '{part_id}' is retired", "part_id")
         if row.author == reviewer:
             raise SelfApproval("a revision cannot be approved by its own author", "revision")
+        if current.status == "approved":
+            return _view(current)  # already approved: the first approval stands, never overwritten
         now = _now()
         result = self.session.execute(
             update(Part)
