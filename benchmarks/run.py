@@ -2,10 +2,13 @@
 
 1. Endpoint overhead: requests/s of ``POST /v1/calc/led-string`` against a bare JSON route of the same app
    (benchmarks/echo_app.py) under the same gunicorn settings and the same load generator.
-2. Batch: a 100,000-row LED-string batch over HTTP (JSON and CSV, end to end) against the core in-process
-   and against single-row requests.
-3. Core: closed-loop sweep and LED string against plain Python loops of the same formulas; channel Monte Carlo.
-4. Memory: peak RSS (VmHWM) of the gunicorn workers after the batches.
+2. Batch: a 100,000-row LED-string batch over HTTP (JSON in the rows and the columns layout, and CSV, end to
+   end) against the core in-process, the 200,000 rows/s target and single-row requests.
+3. Candidate search: 1,000 synthetic LEDs in one role of an LED string, and 100,000 combinations of synthetic
+   supplies, NPN transistors and LEDs for a whole channel, in-process (calcsvc.web.candidates) against loops of
+   the single-row path, and end to end over HTTP with the same parts in the server's database.
+4. Core: closed-loop sweep and LED string against plain Python loops of the same formulas; channel Monte Carlo.
+5. Memory: peak RSS (VmHWM) of the gunicorn workers after the batches.
 
 Speed targets live here, never in unit tests. ``--write-results`` also writes the table to benchmarks/RESULTS.md.
 """
@@ -22,6 +25,7 @@ import os
 import platform
 import statistics
 import sys
+import tempfile
 import time
 from collections.abc import Callable
 from dataclasses import dataclass
@@ -31,11 +35,18 @@ from typing import Any
 
 import numpy as np
 import orjson
+import synthetic_parts
 from server import REPO, Server, gunicorn, peak_rss_bytes
 from traffic import Client, Tally, drive
 
 from calcsvc.core import closed_loop, eseries, led_string, tolerance
 from calcsvc.core.channel import ChannelInputs
+from calcsvc.core.outcome import DomainError
+from calcsvc.data.store import PartView
+from calcsvc.web.calc_api import columns_of, complete
+from calcsvc.web.calculations import LED_STRING, Form, Role
+from calcsvc.web.candidates import ChannelSearch, RoleSearch, search_channel, search_role
+from calcsvc.web.review_api import REVIEW, channel_inputs
 
 RESULTS = REPO / "benchmarks" / "RESULTS.md"
 JSON = {"Content-Type": "application/json"}
@@ -59,6 +70,20 @@ SINGLE_BODY = {
 PARTS_BODY = {
     "supply": "supply-adapter-12v-2a", "led": "led-red-5mm", "transistor": "npn-small-signal",
     "leds_in_series": 3, "strings": 2, "current_a": 0.02,
+}  # fmt: skip
+
+# Candidate search. The single LED string above with the LED open; the whole greenhouse channel from numbers
+# (the 3.3 V pin and the 1 MHz preamp at gain 20) with supply, transistor and LED open.
+SEARCH_TARGET_S = 1.0  # every search, in-process and over HTTP, answers in (well) under a second
+SEARCH_LEDS = 1_000
+CHANNEL_PARTS = {"supply": 50, "transistor": 40, "led": 50}  # 100,000 combinations; LEDs: the first 50 above
+REVIEW_SAMPLE = 500  # single reviews timed and extrapolated per combination
+SEARCH_REQUESTS = 5  # per search over HTTP, after the warm-up
+LED_SEARCH = {name: value for name, value in SINGLE_BODY.items() if name not in LED}
+CHANNEL_SEARCH = {
+    "drive_high_v": 2.9, "drive_low_v": 0.4, "source_current_max_a": 0.008, "leds_in_series": 3, "strings": 2,
+    "current_a": 0.02, "duty_cycle": 0.5, "channels": 6, "e_series": "E24", "gain": 20, "gbw_hz": 1e6,
+    "open_loop_gain": 2e5, "slew_rate_v_per_s": 5e5, "output_headroom_v": 1.5, "signal_hz": 1e3, "amplitude_v": 2.0,
 }  # fmt: skip
 
 
@@ -479,25 +504,35 @@ def batch_section(args: argparse.Namespace) -> tuple[list[Row], list[str]]:
         single_time = time.perf_counter() - began
         client.connection.close()
 
-        timings: dict[str, list[float]] = {"json": [], "csv": []}
+        variants = {
+            "json": ("/v1/batch/led-string", json_body, JSON),
+            "columns": ("/v1/batch/led-string?layout=columns", json_body, JSON),
+            "csv": ("/v1/batch/led-string", csv_body, csv_headers),
+        }
+        timings: dict[str, list[float]] = {kind: [] for kind in variants}
         sizes: dict[str, int] = {}
         for _ in range(args.repeats):
-            for kind, body, headers in (("json", json_body, JSON), ("csv", csv_body, csv_headers)):
+            for kind, (path, body, headers) in variants.items():
                 began = time.perf_counter()
-                status, answer = post(server.port, "/v1/batch/led-string", body, headers)
+                status, answer = post(server.port, path, body, headers)
                 timings[kind].append(time.perf_counter() - began)
                 if status != 200:
                     raise RuntimeError(f"{kind} batch answered {status}: {answer[:300]!r}")
                 sizes[kind] = len(answer)
-                if kind == "json" and orjson.loads(answer)["ok_count"] != n:
-                    raise RuntimeError("the JSON batch rejected rows")
-                if kind == "csv" and answer.count(b"\n") != n + 1:
-                    raise RuntimeError("the CSV batch answered a wrong number of lines")
+                if kind == "csv":
+                    if answer.count(b"\n") != n + 1:
+                        raise RuntimeError("the CSV batch answered a wrong number of lines")
+                    continue
+                found = orjson.loads(answer)
+                if found["ok_count"] != n:
+                    raise RuntimeError(f"the {kind} batch rejected rows")
+                if kind == "columns" and len(found["results"]["resistor_ohm"]) != n:
+                    raise RuntimeError("the columns batch answered a wrong number of rows")
         peaks = {pid: peak_rss_bytes(pid) for pid in workers}
 
-    json_time, csv_time = statistics.median(timings["json"]), statistics.median(timings["csv"])
+    json_time, columns_time, csv_time = (statistics.median(timings[kind]) for kind in ("json", "columns", "csv"))
     single_rate = SINGLE_REQUESTS / single_time
-    json_rate, csv_rate = n / json_time, n / csv_time
+    json_rate, columns_rate, csv_rate = n / json_time, n / columns_time, n / csv_time
     target = f"≥ {BATCH_ROWS_PER_S_TARGET:,} rows/s"
     rows = [
         Row(
@@ -522,6 +557,34 @@ def batch_section(args: argparse.Namespace) -> tuple[list[Row], list[str]]:
         ),
         Row(
             "batch",
+            f"POST /v1/batch/led-string?layout=columns, {n:,} rows JSON, end to end",
+            f"{rate(columns_rate, 'rows')} ({duration(columns_time)})",
+            "the target",
+            rate(BATCH_ROWS_PER_S_TARGET, "rows"),
+            f"{columns_rate / BATCH_ROWS_PER_S_TARGET:.2f} of the target",
+            target,
+            verdict(columns_rate >= BATCH_ROWS_PER_S_TARGET),
+        ),
+        Row(
+            "batch",
+            f"POST /v1/batch/led-string?layout=columns, {n:,} rows JSON",
+            rate(columns_rate, "rows"),
+            f"{SINGLE_REQUESTS:,} single-row requests",
+            rate(single_rate, "rows"),
+            f"{columns_rate / single_rate:.0f}×",
+            f"≥ {BATCH_SPEEDUP_TARGET:.0f}×",
+            verdict(columns_rate / single_rate >= BATCH_SPEEDUP_TARGET),
+        ),
+        Row(
+            "batch",
+            f"POST /v1/batch/led-string?layout=columns, {n:,} rows JSON",
+            rate(columns_rate, "rows"),
+            "the same rows in the rows layout (above)",
+            rate(json_rate, "rows"),
+            f"{columns_rate / json_rate:.1f}× faster",
+        ),
+        Row(
+            "batch",
             f"POST /v1/batch/led-string, {n:,} rows CSV in and out",
             f"{rate(csv_rate, 'rows')} ({duration(csv_time)})",
             f"{SINGLE_REQUESTS:,} single-row requests",
@@ -542,10 +605,198 @@ def batch_section(args: argparse.Namespace) -> tuple[list[Row], list[str]]:
     notes = [
         f"Batch: median of {args.repeats} runs each, timed from sending the body to the last byte of the answer "
         f"(request {len(json_body) / 2**20:.1f} MiB JSON / {len(csv_body) / 2**20:.1f} MiB CSV; answer "
-        f"{sizes['json'] / 2**20:.1f} MiB JSON / {sizes['csv'] / 2**20:.1f} MiB CSV). The core figure is the best of "
+        f"{sizes['json'] / 2**20:.1f} MiB JSON rows / {sizes['columns'] / 2**20:.1f} MiB JSON columns / "
+        f"{sizes['csv'] / 2**20:.1f} MiB CSV). The core figure is the best of "
         f"{args.repeats} calls of led_string.compute on the same rows as arrays. Single-row requests: one client, "
         "one request at a time.",
         "Peak RSS per worker: " + ", ".join(f"{pid}: {mib(size)}" for pid, size in sorted(peaks.items())) + ".",
+    ]
+    return rows, notes
+
+
+def provided(role: Role, part: PartView) -> dict[str, Any]:
+    """The inputs ``part`` gives in ``role``, as a single request resolves a part reference."""
+    return {name: part.parameters[parameter] for parameter, name in role.provides if parameter in part.parameters}
+
+
+def role_of(form: Form, name: str) -> Role:
+    return next(role for role in form.roles if role.name == name)
+
+
+def led_singles(search: RoleSearch) -> Callable[[], list[Any]]:
+    """The single-row path of ``POST /v1/calc/led-string`` (calc_api.run_flat's core call) over every
+    candidate, one part at a time; the inputs are resolved and completed beforehand, outside the timing."""
+    rows = [complete(LED_STRING, {**LED_SEARCH, **provided(search.role, part)}) for part in search.parts]
+
+    def run() -> list[Any]:
+        return [LED_STRING.compute(LED_STRING.make_inputs(columns_of(LED_STRING, [values]))) for values in rows]
+
+    return run
+
+
+def review_singles(search: ChannelSearch, sample: np.ndarray) -> Callable[[], list[tolerance.WorstCase | None]]:
+    """The single review of ``POST /v1/review/channel`` (inputs, then the worst case, which runs the nominal
+    review first) for the combinations ``sample``; None where the core refuses one (a single review's 422)."""
+
+    def values(row: int) -> dict[str, Any]:
+        given: dict[str, Any] = {**CHANNEL_SEARCH, "samples": 0}
+        for role, part in zip(search.roles, search.parts_of(row), strict=True):
+            given.update(provided(role, part))
+        return complete(REVIEW, given)
+
+    rows = [values(row) for row in sample.tolist()]
+
+    def one(values: dict[str, Any]) -> tolerance.WorstCase | None:
+        try:
+            return tolerance.worst_case(channel_inputs(values))
+        except DomainError:
+            return None
+
+    return lambda: [one(values) for values in rows]
+
+
+def timed_posts(server: Server, path: str, body: bytes, runs: int) -> tuple[list[float], dict[str, Any], int]:
+    """Wall times of ``runs`` requests, one after another, after as many uncounted ones as there are workers
+    (each has its own caches and database connection to warm); the last answer and its size."""
+    times, answer = [], b""
+    for k in range(len(server.workers()) + runs):
+        began = time.perf_counter()
+        status, answer = post(server.port, path, body, JSON)
+        if status != 200:
+            raise RuntimeError(f"{path} answered {status}: {answer[:300]!r}")
+        if k >= len(server.workers()):
+            times.append(time.perf_counter() - began)
+    return times, orjson.loads(answer), len(answer)
+
+
+def select_section(args: argparse.Namespace) -> tuple[list[Row], list[str]]:
+    rng = np.random.default_rng(4)
+    leds = synthetic_parts.leds(SEARCH_LEDS, rng)
+    by_role = {
+        "supply": synthetic_parts.supplies(CHANNEL_PARTS["supply"], rng),
+        "transistor": synthetic_parts.npn_transistors(CHANNEL_PARTS["transistor"], rng),
+        "led": leds[: CHANNEL_PARTS["led"]],
+    }
+    combinations = math.prod(CHANNEL_PARTS.values())
+
+    led_role = role_of(LED_STRING, "led")
+    role_time, found = best_of(args.repeats * 3, lambda: search_role(LED_STRING, LED_SEARCH, led_role, leds))
+    loop_time, outcomes = best_of(args.repeats, led_singles(found))
+    searched = found.evaluations[0]
+    if not searched.accepted.all():
+        raise RuntimeError("the core refused some synthetic LEDs; the loop assumes it takes them all")
+    for name in ("resistor_ohm", "current_max_a", "resistor_power_max_w"):
+        looped = [outcome.results[name][0] for outcome in outcomes]
+        np.testing.assert_allclose(looped, searched.column(name), rtol=1e-12, err_msg=name)
+
+    channel_time, space = best_of(args.repeats * 2, lambda: search_channel(CHANNEL_SEARCH, by_role))
+    sample = np.sort(np.random.default_rng(5).choice(combinations, REVIEW_SAMPLE, replace=False))
+    review_time, reviews = best_of(args.repeats, review_singles(space, sample))
+    review_time *= combinations / REVIEW_SAMPLE
+    positions = np.cumsum(space.accepted) - 1
+    for row, worst in zip(sample.tolist(), reviews, strict=True):
+        if (worst is None) == bool(space.accepted[row]):
+            raise RuntimeError(f"combination {row}: the single review and the search disagree on refusing it")
+        if worst is not None and space.worst is not None:
+            k = int(positions[row])
+            same = bool(worst.ok[0]) == bool(space.worst.ok[k]) and math.isclose(
+                worst.nominal.led_string.results["resistor_ohm"][0],
+                space.worst.nominal.led_string.results["resistor_ohm"][k],
+            )
+            if not same:
+                raise RuntimeError(f"combination {row}: the single review and the search disagree")
+
+    led_body = orjson.dumps({**LED_SEARCH, "led": [part.part_id for part in leds]})
+    channel_body = orjson.dumps(
+        {**CHANNEL_SEARCH, **{name: [p.part_id for p in parts] for name, parts in by_role.items()}, "samples": 0}
+    )
+    runs = SEARCH_REQUESTS
+    with tempfile.TemporaryDirectory(prefix="calcsvc-bench-select-") as folder:
+        url = f"sqlite:///{Path(folder) / 'calcsvc.sqlite'}"
+        synthetic_parts.store(url, leds + by_role["supply"] + by_role["transistor"])
+        with gunicorn(database_url=url) as server:
+            led_http, led_answer, led_size = timed_posts(server, "/v1/select/led-string", led_body, runs)
+            channel_http, channel_answer, channel_size = timed_posts(server, "/v1/select/channel", channel_body, runs)
+    if [c["part_id"] for c in led_answer["candidates"]] != [found.parts[int(r)].part_id for r in found.rows]:
+        raise RuntimeError("the LED search over HTTP ranked other candidates than in-process")
+    designs = [[p["part_id"] for p in d["parts"]] for d in channel_answer["designs"]]
+    if designs != [[p.part_id for p in space.parts_of(int(r))] for r in space.rows]:
+        raise RuntimeError("the channel search over HTTP ranked other designs than in-process")
+    if channel_answer["combinations"] != combinations:
+        raise RuntimeError("the channel search over HTTP evaluated another number of combinations")
+
+    led_median, channel_median = statistics.median(led_http), statistics.median(channel_http)
+    target = f"< {SEARCH_TARGET_S:g} s"
+    shape = "{supply} supplies × {transistor} NPN × {led} LEDs".format(**CHANNEL_PARTS)
+    rows = [
+        Row(
+            "select",
+            f"search_role led-string, {SEARCH_LEDS:,} LED candidates, in-process",
+            f"{duration(role_time)} ({duration(role_time / SEARCH_LEDS)}/candidate)",
+            f"{SEARCH_LEDS:,} single calculations (the single-row path), in-process",
+            f"{duration(loop_time)} ({duration(loop_time / SEARCH_LEDS)}/candidate)",
+            f"{loop_time / role_time:.0f}× faster",
+            target,
+            verdict(role_time < SEARCH_TARGET_S),
+        ),
+        Row(
+            "select",
+            f"POST /v1/select/led-string, {SEARCH_LEDS:,} listed LEDs, end to end",
+            duration(led_median),
+            "search_role in-process (above)",
+            duration(role_time),
+            f"{led_median / role_time:.0f}× the in-process time",
+            target,
+            verdict(led_median < SEARCH_TARGET_S),
+        ),
+        Row(
+            "select",
+            f"search_channel, {combinations:,} combinations ({shape}), in-process",
+            f"{duration(channel_time)} ({duration(channel_time / combinations)}/combination)",
+            f"{REVIEW_SAMPLE:,} single reviews (worst_case), extrapolated",
+            f"{duration(review_time)} ({duration(review_time / combinations)}/combination)",
+            f"{review_time / channel_time:.0f}× faster",
+            target,
+            verdict(channel_time < SEARCH_TARGET_S),
+        ),
+        Row(
+            "select",
+            f"POST /v1/select/channel, {combinations:,} combinations, end to end",
+            duration(channel_median),
+            "search_channel in-process (above)",
+            duration(channel_time),
+            f"{channel_median / channel_time:.2f}× the in-process time",
+            target,
+            verdict(channel_median < SEARCH_TARGET_S),
+        ),
+    ]
+    refused = combinations - int(space.accepted.sum())
+    notes = [
+        f"Candidate search: synthetic generic parts from numpy's Generator (seed 4): {SEARCH_LEDS:,} LEDs "
+        f"(bench-led-0001 …), {CHANNEL_PARTS['supply']} supplies, {CHANNEL_PARTS['transistor']} NPN transistors; the "
+        f"channel uses the first {CHANNEL_PARTS['led']} LEDs. LED search: the greenhouse string "
+        "(12 V ±5 %, three LEDs in series, two strings, 20 mA, 0.2 V switch drop) with the LED open; "
+        f"{int(found.scores.ok.sum()):,} of {SEARCH_LEDS:,} pass. Channel search: the greenhouse channel from "
+        f"numbers with supply, transistor and LED open; {int(space.scores.ok.sum()):,} combinations pass, "
+        f"{refused:,} are refused by the core. In-process figures are the best of {args.repeats * 3} "
+        f"(LED search), {args.repeats * 2} (channel search) and {args.repeats} (loops) runs and include scoring "
+        f"and ranking the top {len(found.rows)}; the loops only compute. The single-row loop runs "
+        "LED_STRING.compute(make_inputs(columns_of(...))) per candidate on inputs resolved beforehand (the results "
+        f"are checked equal to the search's); the single reviews run channel_inputs and tolerance.worst_case on "
+        f"{REVIEW_SAMPLE} randomly sampled combinations ({len([r for r in reviews if r is None])} of them refused, "
+        "a 422 over HTTP) and agree with the search on refusal, verdict and resistor.",
+        f"Search over HTTP: median of {runs} requests each, one after another, after as many uncounted ones as "
+        "there are workers (the kernel picks the worker, so a cold one can still show as an outlier), timed from "
+        "sending the body to the last byte of the answer; the parts were stored, approved, in "
+        "the server's SQLite database before it started and listed by part_id in the request "
+        f"({len(led_body) / 1024:.0f} KiB / {len(channel_body) / 1024:.1f} KiB). Answers: the top "
+        f"{len(led_answer['candidates'])} candidates ({led_size / 1024:.0f} KiB) and top "
+        f"{len(channel_answer['designs'])} designs ({channel_size / 1024:.0f} KiB), checked identical to the "
+        "in-process ranking. All runs (s): LED "
+        + ", ".join(f"{t:.3f}" for t in led_http)
+        + "; channel "
+        + ", ".join(f"{t:.3f}" for t in channel_http)
+        + ".",
     ]
     return rows, notes
 
@@ -589,6 +840,7 @@ def main(argv: list[str] | None = None) -> int:
     for title, section in (
         ("endpoint overhead", lambda: endpoint_section(args)),
         ("batch and memory", lambda: batch_section(args)),
+        ("candidate search", lambda: select_section(args)),
         ("core", lambda: core_section(args.repeats)),
     ):
         print(f"measuring {title} …", flush=True)
