@@ -1,0 +1,81 @@
+"""A lab server upgrades in place: from the first migration to head, every part and revision is kept."""
+
+from __future__ import annotations
+
+import json
+import os
+from collections.abc import Iterator
+from datetime import UTC, datetime
+from pathlib import Path
+
+import pytest
+from alembic import command
+from alembic.script import ScriptDirectory
+from sqlalchemy import create_engine, text
+
+from calcsvc.data.database import Database, alembic_config
+from calcsvc.data.store import PartStore
+
+PARTS = {
+    "led-amber-3mm": ("led", [{"color": "amber", "vf_typ_v": 2.1}, {"color": "amber", "vf_typ_v": 2.05}]),
+    "npn-spare": ("bjt", [{"polarity": "npn", "hfe_min": 100}]),
+}
+
+
+@pytest.fixture
+def empty_url(database_url: str, tmp_path: Path) -> Iterator[str]:
+    """A database of the same kind as the suite's, holding nothing yet."""
+    if database_url.startswith("sqlite"):
+        yield f"sqlite:///{tmp_path / 'upgrade.sqlite'}"
+        return
+    name = f"calcsvc_upgrade_{os.getpid()}"
+    admin = create_engine(database_url, isolation_level="AUTOCOMMIT")
+    with admin.connect() as connection:
+        connection.execute(text(f"DROP DATABASE IF EXISTS {name}"))
+        connection.execute(text(f"CREATE DATABASE {name}"))
+    try:
+        yield database_url.rsplit("/", 1)[0] + f"/{name}"
+    finally:
+        with admin.connect() as connection:
+            connection.execute(text(f"DROP DATABASE IF EXISTS {name} WITH (FORCE)"))
+        admin.dispose()
+
+
+def test_upgrade_from_the_first_migration_keeps_every_part(empty_url: str) -> None:
+    config = alembic_config(empty_url)
+    first = ScriptDirectory.from_config(config).get_base()
+    command.upgrade(config, first)
+    now = datetime(2026, 1, 1, tzinfo=UTC)
+    engine = create_engine(empty_url)
+    # Written with the first migration's columns, as an old server would have stored them.
+    with engine.begin() as connection:
+        for part_id, (kind, revisions) in PARTS.items():
+            connection.execute(
+                text(
+                    "INSERT INTO parts (part_id, kind, description, parameters, status, revision, updated_at,"
+                    " updated_by, approved_by) VALUES (:p, :k, '', :params, 'draft', :r, :t, 'edna', NULL)"
+                ),
+                {"p": part_id, "k": kind, "params": json.dumps(revisions[-1]), "r": len(revisions), "t": now},
+            )
+            for number, parameters in enumerate(revisions, start=1):
+                connection.execute(
+                    text(
+                        "INSERT INTO part_revisions (part_id, revision, kind, description, parameters, author,"
+                        " created_at) VALUES (:p, :n, :k, '', :params, 'edna', :t)"
+                    ),
+                    {"p": part_id, "n": number, "k": kind, "params": json.dumps(parameters), "t": now},
+                )
+    engine.dispose()
+
+    command.upgrade(config, "head")
+
+    database = Database(empty_url)
+    with database.transaction() as session:
+        store = PartStore(session)
+        for part_id, (kind, revisions) in PARTS.items():
+            part = store.get(part_id)
+            assert (part.kind, part.revision, part.parameters) == (kind, len(revisions), revisions[-1])
+            history = store.revisions(part_id)
+            assert [r.parameters for r in history] == revisions
+            assert {r.author for r in history} == {"edna"}
+    database.dispose()
