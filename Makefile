@@ -36,7 +36,7 @@ lint: $(VENV)/.test-installed
 openapi: $(VENV)/.serve-installed
 	$(PY) -m calcsvc.openapi_spec openapi/openapi.json
 
-# Speed figures side by side, also written to benchmarks/RESULTS.md (about 2 minutes; BENCH_ARGS e.g. --seconds 3).
+# Speed figures side by side, also written to benchmarks/RESULTS.md (about 2 minutes on 2 cores; BENCH_ARGS e.g. --seconds 3).
 bench: $(VENV)/.serve-installed
 	$(PY) benchmarks/run.py --write-results $(BENCH_ARGS)
 

@@ -6,6 +6,7 @@ from __future__ import annotations
 import os
 from collections.abc import Iterator
 from pathlib import Path
+from typing import Any
 
 import pytest
 from flask import Flask
@@ -74,3 +75,18 @@ def seeded(app: Flask) -> Flask:
     with app.extensions["calcsvc.db"].transaction() as session:
         load_seed(session, Path(app.config["SEED_DIR"]))
     return app
+
+
+def pytest_terminal_summary(terminalreporter: Any) -> None:
+    """Say how many tests ran on each store, so a CI log shows both were proven."""
+    counts: dict[str, int] = {}
+    for outcome in ("passed", "failed"):
+        for report in terminalreporter.stats.get(outcome, []):
+            if getattr(report, "when", "call") != "call":
+                continue
+            for store in BACKENDS:
+                if f"[{store}" in report.nodeid:
+                    counts[store] = counts.get(store, 0) + 1
+    terminalreporter.write_sep("=", "stores")
+    for store in BACKENDS:
+        terminalreporter.write_line(f"{store}: {counts.get(store, 0)} tests ran on this store")
