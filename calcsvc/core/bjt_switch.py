@@ -150,15 +150,7 @@ def validate(inputs: BjtSwitchInputs) -> list[Violation]:
                 "drive_low_v",
                 f"drive_low_v ({i.drive_low_v[k]:g} V) must be below drive_high_v ({i.drive_high_v[k]:g} V)",
             )
-        known = eseries.known_series(i.e_series)
-        if not known.all():
-            bad_name = str(np.asarray(i.e_series)[~known][0])
-            require(
-                v,
-                ~known,
-                "e_series",
-                f"e_series {bad_name!r} is not a known series; use one of {', '.join(eseries.SERIES_NAMES)}",
-            )
+        eseries.require_known_series(v, i.e_series)
         require_practical(
             v, required | {"rbe_ohm": i.rbe_ohm, "driver_current_max_a": i.driver_current_max_a}, ("rbe_ohm",)
         )

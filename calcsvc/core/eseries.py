@@ -22,7 +22,7 @@ import functools
 import numpy as np
 import numpy.typing as npt
 
-from calcsvc.core.outcome import BoolArray, FloatArray
+from calcsvc.core.outcome import BoolArray, FloatArray, Violation, require
 
 # fmt: off
 SERIES: dict[str, tuple[float, ...]] = {
@@ -201,6 +201,15 @@ def known_series(names: npt.ArrayLike) -> BoolArray:
         if name in SERIES:
             known |= mask
     return known
+
+
+def require_known_series(violations: list[Violation], names: npt.ArrayLike) -> None:
+    """Record a violation of the ``e_series`` input on every row whose series name is unknown."""
+    known = known_series(names)
+    if not known.all():
+        bad_name = str(np.asarray(names)[~known][0])
+        message = f"e_series {bad_name!r} is not a known series; use one of {', '.join(SERIES_NAMES)}"
+        require(violations, ~known, "e_series", message)
 
 
 def default_tolerance_rows(names: npt.ArrayLike) -> FloatArray:

@@ -145,15 +145,7 @@ def validate(inputs: LedStringInputs) -> list[Violation]:
             "resistor_tolerance",
             f"resistor_tolerance ({first_bad(rt, bad)}) must be a fraction in [0, 1) when given",
         )
-        known = eseries.known_series(i.e_series)
-        if not known.all():
-            bad_name = str(np.asarray(i.e_series)[~known][0])
-            require(
-                v,
-                ~known,
-                "e_series",
-                f"e_series {bad_name!r} is not a known series; use one of {', '.join(eseries.SERIES_NAMES)}",
-            )
+        eseries.require_known_series(v, i.e_series)
 
         # The key rule: with the supply at or below the string's drop there is nothing left for the resistor.
         drop = _string_drop(i)
