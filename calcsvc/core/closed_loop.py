@@ -36,6 +36,7 @@ from calcsvc.core.outcome import (
     Notice,
     Outcome,
     Violation,
+    add_notice,
     first_bad,
     raise_violations,
     require,
@@ -334,22 +335,18 @@ def compute(inputs: ClosedLoopInputs) -> Outcome:
 
     warnings: list[Notice] = []
     mask = np.abs(gain_error_pct) > GAIN_ERROR_WARN_PCT
-    if mask.any():
-        warnings.append(
-            Notice(
-                mask,
-                f"the finite open_loop_gain costs more than {GAIN_ERROR_WARN_PCT:g} % of the ideal gain per "
-                "stage (see gain_error_pct): use an op-amp with more open-loop gain or a lower stage gain",
-            )
-        )
+    add_notice(
+        warnings,
+        mask,
+        f"the finite open_loop_gain costs more than {GAIN_ERROR_WARN_PCT:g} % of the ideal gain per "
+        "stage (see gain_error_pct): use an op-amp with more open-loop gain or a lower stage gain",
+    )
     mask = signal_given & (inputs.signal_hz > IN_BAND_FRACTION * cascade_bandwidth)
-    if mask.any():
-        warnings.append(
-            Notice(
-                mask,
-                "signal_hz is above a tenth of the cascade bandwidth: the gain there is already below its DC "
-                "value and the phase lag is appreciable (see gain_at_signal_db and phase_at_signal_deg)",
-            )
-        )
+    add_notice(
+        warnings,
+        mask,
+        "signal_hz is above a tenth of the cascade bandwidth: the gain there is already below its DC "
+        "value and the phase lag is appreciable (see gain_at_signal_db and phase_at_signal_deg)",
+    )
 
     return Outcome(results=results, checks=checks, warnings=warnings)

@@ -37,6 +37,7 @@ from calcsvc.core.outcome import (
     Notice,
     Outcome,
     Violation,
+    add_notice,
     first_bad,
     raise_violations,
     require,
@@ -375,42 +376,34 @@ def compute(inputs: DutyPowerInputs) -> Outcome:
     warnings: list[Notice] = []
     capacity_known = ~np.isnan(inputs.capacity_ah)
     mask = capacity_known & ~np.isnan(runtime)
-    if mask.any():
-        warnings.append(
-            Notice(
-                mask,
-                "real battery capacity falls at high drain; treat runtime_h as an upper bound",
-            )
-        )
+    add_notice(
+        warnings,
+        mask,
+        "real battery capacity falls at high drain; treat runtime_h as an upper bound",
+    )
     mask = capacity_known & np.isnan(runtime)
-    if mask.any():
-        warnings.append(
-            Notice(
-                mask,
-                "the loads draw no average current (or vanishingly little), so runtime_h does not apply "
-                "(it would be unbounded)",
-            )
-        )
+    add_notice(
+        warnings,
+        mask,
+        "the loads draw no average current (or vanishingly little), so runtime_h does not apply "
+        "(it would be unbounded)",
+    )
 
     cautions: list[Notice] = []
     mask = average_current > rating
-    if mask.any():
-        cautions.append(
-            Notice(
-                mask,
-                "average current exceeds current_max_a: the supply will overheat or shut down; a battery "
-                "pack that is overloaded or shorted can overheat and catch fire. Reduce the load or use a "
-                "supply rated for it",
-            )
-        )
+    add_notice(
+        cautions,
+        mask,
+        "average current exceeds current_max_a: the supply will overheat or shut down; a battery "
+        "pack that is overloaded or shorted can overheat and catch fire. Reduce the load or use a "
+        "supply rated for it",
+    )
     mask = peak_current > rating
-    if mask.any():
-        cautions.append(
-            Notice(
-                mask,
-                "peak current with every load on at once exceeds current_max_a: the supply may "
-                "current-limit, droop or reset during the peaks and run hot; stagger the loads or confirm "
-                "the supply's pulse rating and bulk capacitance",
-            )
-        )
+    add_notice(
+        cautions,
+        mask,
+        "peak current with every load on at once exceeds current_max_a: the supply may "
+        "current-limit, droop or reset during the peaks and run hot; stagger the loads or confirm "
+        "the supply's pulse rating and bulk capacitance",
+    )
     return Outcome(results=results, checks=checks, warnings=warnings, cautions=cautions)

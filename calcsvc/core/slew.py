@@ -34,6 +34,7 @@ from calcsvc.core.outcome import (
     Notice,
     Outcome,
     Violation,
+    add_notice,
     first_bad,
     raise_violations,
     require,
@@ -178,12 +179,10 @@ def compute(inputs: SlewInputs) -> Outcome:
 
     warnings: list[Notice] = []
     mask = ~np.isnan(inputs.supply_v) & ~headroom_known
-    if mask.any():
-        warnings.append(
-            Notice(
-                mask,
-                "output_headroom_v not given: swing_limited_amplitude_v assumes the output reaches the rails "
-                "(0 V headroom), so it is an upper bound",
-            )
-        )
+    add_notice(
+        warnings,
+        mask,
+        "output_headroom_v not given: swing_limited_amplitude_v assumes the output reaches the rails "
+        "(0 V headroom), so it is an upper bound",
+    )
     return Outcome(results=results, checks=checks, warnings=warnings)

@@ -51,6 +51,14 @@ class Plot:
     markers: dict[str, float]
 
 
+def _operating_point(ax: Any, x: float, y: float, colour: str, label: str) -> Any:
+    """The design's own point on a plot, tagged so its position can be read back from the image."""
+    (point,) = ax.plot(
+        [x], [y], marker="D", markersize=7, color=colour, linestyle="none", label=label, gid="operating-point"
+    )
+    return point
+
+
 def unit_symbol(unit: str) -> str:
     """How a unit is written for people: "Ω" for pint's "ohm", nothing for a ratio."""
     return {"dimensionless": "", "ohm": "Ω", "A*h": "A·h"}.get(unit, unit)
@@ -244,15 +252,8 @@ def slew_limit_plot(curves: SlewCurves, fmt: str) -> Plot:
     if curves.operating_hz is not None and curves.operating_amplitude_v is not None:
         colour = OPERATING if curves.operating_ok else LIMIT
         verdict = "within limits" if curves.operating_ok else "distorts"
-        (point,) = ax.plot(
-            [curves.operating_hz],
-            [curves.operating_amplitude_v],
-            marker="D",
-            markersize=7,
-            color=colour,
-            linestyle="none",
-            label=f"operating point ({verdict})",
-            gid="operating-point",
+        point = _operating_point(
+            ax, curves.operating_hz, curves.operating_amplitude_v, colour, f"operating point ({verdict})"
         )
         markers["frequency_hz"] = float(point.get_xdata()[0])
         markers["amplitude_v"] = float(point.get_ydata()[0])
@@ -317,15 +318,12 @@ def led_string_plot(curves: LedCurves, fmt: str) -> Plot:
     ax.plot(vs, curves.current_a, color=CURVE, linewidth=2.0, label=f"nominal, {eng(curves.resistor_ohm, 'ohm')}")
     ax.axhline(curves.if_max_a, color=LIMIT, linewidth=1.6, linestyle="--", label="LED maximum current")
     ax.axvline(curves.operating_supply_v, color=OPERATING, linewidth=1.0, linestyle=":")
-    (point,) = ax.plot(
-        [curves.operating_supply_v],
-        [curves.operating_current_a],
-        marker="D",
-        markersize=7,
-        color=OPERATING,
-        linestyle="none",
-        label=f"operating point {eng(curves.operating_supply_v, 'V')}",
-        gid="operating-point",
+    point = _operating_point(
+        ax,
+        curves.operating_supply_v,
+        curves.operating_current_a,
+        OPERATING,
+        f"operating point {eng(curves.operating_supply_v, 'V')}",
     )
     ax.plot(
         [low, high],

@@ -134,7 +134,8 @@ REVIEW = Form(
     ),
 )
 STAGES = ("led_string", "switch", "supply", "front_stage")
-REVIEW_REQUEST = request_schema(REVIEW)
+# An instance, not a class: webargs would build a new schema object on every request.
+REVIEW_REQUEST = request_schema(REVIEW)()
 
 
 def _refuse(field: str, message: str) -> Problem:
@@ -315,7 +316,7 @@ REPORTS = {"text/markdown": render_markdown, "text/html": render_html}
 @blp.route("/channel", endpoint="channel")
 class ChannelReview(MethodView):
     @blp.arguments(REVIEW_REQUEST)
-    @blp.response(200, ReviewSchema)
+    @blp.response(200, ReviewSchema())
     @error_response(blp, 404, "a referenced part does not exist")
     @blp.doc(
         responses={
