@@ -87,6 +87,8 @@ def _token_revoke(args: argparse.Namespace) -> int:
 
 def _serve(_args: argparse.Namespace) -> int:
     _app_database()  # fail here, with a clear message, on a bad setting
+    if not os.environ.get("WEB_CONCURRENCY", "x").strip():
+        del os.environ["WEB_CONCURRENCY"]  # empty means "the default" here; gunicorn would fail to read it
     command = [
         sys.executable, "-m", "gunicorn", "--config", "python:calcsvc.gunicorn_conf", "calcsvc.wsgi:app",
     ]  # fmt: skip

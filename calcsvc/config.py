@@ -36,7 +36,12 @@ SETTINGS: dict[str, Setting] = {
     "CORS_ORIGINS": Setting(
         "CALCSVC_CORS_ORIGINS", "", "comma-separated origins allowed to call from a browser; empty: CORS off"
     ),
-    "MAX_CONTENT_LENGTH": Setting("CALCSVC_MAX_CONTENT_LENGTH", "67108864", "largest request body, bytes"),
+    "MAX_CONTENT_LENGTH": Setting(
+        "CALCSVC_MAX_CONTENT_LENGTH",
+        "67108864",
+        "largest batch request body, bytes; every other route takes at most 1 MiB "
+        "(a duty-cycle budget with waveforms 8 MiB), or this value if smaller",
+    ),
     "BATCH_MAX_ROWS": Setting("CALCSVC_BATCH_MAX_ROWS", "100000", "most rows in one batch request"),
     "SELECT_MAX_COMBINATIONS": Setting(
         "CALCSVC_SELECT_MAX_COMBINATIONS",
@@ -52,7 +57,10 @@ SETTINGS: dict[str, Setting] = {
     "HOST": Setting("HOST", "127.0.0.1", "address the server listens on; the container image sets 0.0.0.0"),
     "PORT": Setting("PORT", "8000", "port the server listens on"),
     "WORKERS": Setting("WEB_CONCURRENCY", "", "gunicorn worker processes; empty: the CPUs this process may use + 1"),
-    "WORKER_TIMEOUT": Setting("GUNICORN_TIMEOUT", "60", "seconds a request may run before its worker is replaced"),
+    "THREADS": Setting("GUNICORN_THREADS", "8", "threads per worker process, each serving one connection at a time"),
+    "WORKER_TIMEOUT": Setting(
+        "GUNICORN_TIMEOUT", "60", "seconds a worker process may stop answering its heartbeat before it is replaced"
+    ),
     "ACCESS_LOG": Setting(
         "GUNICORN_ACCESS_LOG", "", "gunicorn access log file, `-` for stdout; empty: off (the JSON request log has it)"
     ),
@@ -101,6 +109,7 @@ def load_config(overrides: Mapping[str, Any] | None = None, environ: Mapping[str
         "HOST": raw["HOST"].strip() or SETTINGS["HOST"].default,
         "PORT": _integer("PORT", raw["PORT"], 1, 65535),
         "WORKERS": _integer("WORKERS", raw["WORKERS"], 1) if raw["WORKERS"].strip() else None,
+        "THREADS": _integer("THREADS", raw["THREADS"], 1, 64),
         "WORKER_TIMEOUT": _integer("WORKER_TIMEOUT", raw["WORKER_TIMEOUT"], 1),
         "ACCESS_LOG": raw["ACCESS_LOG"].strip(),
     }
@@ -118,3 +127,18 @@ def load_config(overrides: Mapping[str, Any] | None = None, environ: Mapping[str
         if not origin.startswith(("http://", "https://")) or origin.endswith("/"):
             raise ConfigError(f"CALCSVC_CORS_ORIGINS entry {origin!r} must look like https://host[:port]")
     return config
+
+
+def settings_table() -> str:
+    """The README's settings table, in Markdown (a test keeps the README equal to it)."""
+    lines = ["| Variable | Default | Meaning |", "| --- | --- | --- |"]
+    for key, setting in SETTINGS.items():
+        default = (
+            "the checkout's `seed_parts/`"
+            if key == "SEED_DIR"
+            else f"`{setting.default}`"
+            if setting.default
+            else "(empty)"
+        )
+        lines.append(f"| `{setting.env}` | {default} | {setting.description} |")
+    return "\n".join(lines)

@@ -56,9 +56,13 @@ def _metrics_dir() -> tuple[str, bool]:
 METRICS_DIR, _OWN_METRICS_DIR = _metrics_dir()
 
 bind = f"{_settings['HOST']}:{_settings['PORT']}"
-# The work is CPU-bound numpy and short database transactions: one process per core plus one.
+# The work is CPU-bound numpy and short database transactions: one process per core plus one. Each process
+# serves several connections on threads, and the app reads every body under a deadline
+# (calcsvc.web.request_body), so a few slow or silent clients hold threads for seconds while the other
+# threads keep answering; gunicorn's threaded worker also parks connections that have sent no request yet.
 workers = _settings["WORKERS"] or _cpu_count() + 1
-worker_class = "sync"
+worker_class = "gthread"
+threads = _settings["THREADS"]
 timeout = _settings["WORKER_TIMEOUT"]
 graceful_timeout = 30
 keepalive = 5

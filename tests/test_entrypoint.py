@@ -82,13 +82,18 @@ def _stop(process: subprocess.Popen[bytes], pidfile: Path) -> None:
 
 
 @contextmanager
-def entrypoint(tmp_path: Path, database_url: str, run: str) -> Iterator[Server]:
-    """Run the entrypoint until /healthz answers; always stopped on leaving."""
+def entrypoint(tmp_path: Path, database_url: str, run: str, **extra: str) -> Iterator[Server]:
+    """Run the entrypoint (with ``extra`` settings) until /healthz answers; always stopped on leaving."""
     port = _free_port()
     pidfile = tmp_path / f"gunicorn-{run}.pid"
     output = tmp_path / f"entrypoint-{run}.log"
     env = _environment(
-        tmp_path, database_url, HOST="127.0.0.1", PORT=str(port), GUNICORN_CMD_ARGS=f"--pid {shlex.quote(str(pidfile))}"
+        tmp_path,
+        database_url,
+        HOST="127.0.0.1",
+        PORT=str(port),
+        GUNICORN_CMD_ARGS=f"--pid {shlex.quote(str(pidfile))}",
+        **extra,
     )
     with output.open("wb") as sink:
         process = subprocess.Popen(

@@ -34,3 +34,10 @@ def test_candidate_channels_through_the_batch_endpoint(live_url: str, seeded: An
     assert white["ok"] == "False" and "forward voltage" in white["problem"]
     # 350 mA from an 8 mA pin at forced beta 10 needs 35 mA: the driver check fails and is named.
     assert "driver_current" in rows["deep-red-3x1-350mA"]["failing_checks"]
+
+
+def test_readme_settings_table_is_the_one_the_settings_define() -> None:
+    from calcsvc.config import settings_table
+
+    readme = (EXAMPLES.parent / "README.md").read_text()
+    assert settings_table() in readme

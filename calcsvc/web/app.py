@@ -8,11 +8,11 @@ from http import HTTPStatus
 from pathlib import Path
 from typing import Any
 
-from flask import Flask, Response, current_app, request
+from flask import Flask, Response, request
 from flask_smorest import Api
 from flask_smorest.utils import prepare_response
 from sqlalchemy.exc import OperationalError
-from werkzeug.exceptions import HTTPException, RequestEntityTooLarge
+from werkzeug.exceptions import HTTPException
 
 from calcsvc.config import load_config
 from calcsvc.core.outcome import DomainError
@@ -36,6 +36,7 @@ from calcsvc.web.problems import (
     from_http_exception,
     problem_response,
 )
+from calcsvc.web.request_body import buffer_body
 
 log = logging.getLogger("calcsvc")
 
@@ -110,11 +111,10 @@ def _unexpected(error: Exception) -> Response:
 
 
 def _check_body() -> Response | None:
-    """Refuse oversized or non-JSON bodies before anything reads them (or asks who sent them)."""
-    limit = current_app.config["MAX_CONTENT_LENGTH"]
-    if request.content_length is not None and request.content_length > limit:
-        return problem_response(from_http_exception(RequestEntityTooLarge()))
-    if request.method in {"POST", "PUT", "PATCH"} and request.content_length:
+    """Refuse non-JSON bodies, then read the body whole under its route's limits, before anything parses it
+    (or asks who sent it)."""
+    chunked = "chunked" in request.headers.get("Transfer-Encoding", "").lower()
+    if request.method in {"POST", "PUT", "PATCH"} and (request.content_length or chunked):
         if request.mimetype not in BODY_MIMETYPES and request.blueprint != review_page.bp.name:  # HTML forms
             return problem_response(
                 Problem(
@@ -123,6 +123,7 @@ def _check_body() -> Response | None:
                     "media-type",
                 )
             )
+    buffer_body(request)
     return None
 
 
