@@ -13,7 +13,7 @@ from flask.views import MethodView
 from flask_smorest import Blueprint
 from marshmallow import RAISE, Schema, fields, validate
 
-from calcsvc.data.kinds import KINDS, params_of
+from calcsvc.data.kinds import KINDS, MAX_DESCRIPTION_LENGTH, MAX_TEXT_LENGTH, params_of
 from calcsvc.data.store import STATUSES, PartStore, PartView
 from calcsvc.units import UnitError, parse_quantity
 from calcsvc.web.auth import reads, requires
@@ -33,16 +33,18 @@ _KIND_DOC = "; ".join(
     for kind, params in KINDS.items()
 )
 
+# A parameter given as text: the kind's rules (for text) and the unit parser (for numbers) refuse longer ones.
+_TEXT_VALUE = {"type": "string", "maxLength": MAX_TEXT_LENGTH}
+
 
 class ParametersField(fields.Dict):
     def __init__(self, **kwargs: Any) -> None:
         super().__init__(
             keys=fields.String(),
-            values=fields.Raw(),
+            values=fields.Raw(metadata={"oneOf": [{"type": "number"}, _TEXT_VALUE]}),
             metadata={
                 "description": "Parameters in SI units (numbers) or as strings with units ('4.7 kohm'). "
                 f"By kind: {_KIND_DOC}",
-                "additionalProperties": {"oneOf": [{"type": "number"}, {"type": "string", "maxLength": 64}]},
             },
             **kwargs,
         )
@@ -60,12 +62,12 @@ class UtcDateTime(fields.DateTime):
 class PartCreateSchema(Schema):
     part_id = fields.String(required=True, validate=validate.Regexp(PART_ID), metadata={"pattern": PART_ID})
     kind = fields.String(required=True, validate=validate.OneOf(list(KINDS)))
-    description = fields.String(load_default="", validate=[validate.Length(max=500), NO_NUL])
+    description = fields.String(load_default="", validate=[validate.Length(max=MAX_DESCRIPTION_LENGTH), NO_NUL])
     parameters = ParametersField(required=True)
 
 
 class PartUpdateSchema(Schema):
-    description = fields.String(load_default=None, validate=[validate.Length(max=500), NO_NUL])
+    description = fields.String(load_default=None, validate=[validate.Length(max=MAX_DESCRIPTION_LENGTH), NO_NUL])
     parameters = ParametersField(required=True)
 
 
