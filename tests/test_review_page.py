@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import re
+import time
 from html.parser import HTMLParser
 from typing import Any
 from urllib.parse import urlencode
@@ -320,3 +321,12 @@ def test_channel_form_errors_name_the_field(client: FlaskClient, seeded: Any) ->
     without_opamp = channel_body({**DEMO_CHANNEL, "opamp": ""})
     assert "opamp" not in without_opamp and "gain" not in without_opamp
     assert without_opamp["leds_in_series"] == 3 and without_opamp["current_a"] == 0.02
+
+
+# The same field as the API's: tests/test_hostile_input.py puts every hostile unit string through it.
+@pytest.mark.parametrize("hostile", ["1" * 100_000 + "!", "\u0662\u0660 mA"], ids=["100,001 chars", "Arabic-Indic 20"])
+def test_channel_form_refuses_hostile_unit_strings_at_once(client: FlaskClient, seeded: Any, hostile: str) -> None:
+    started = time.perf_counter()
+    html, _ = page(client, "/review/channel?" + urlencode({**DEMO_CHANNEL, "current_a": hostile}), status=422)
+    assert time.perf_counter() - started < 1.0  # generous: 900 digits once took 3.5 s, 100,000 did not finish
+    assert "<code>current_a</code>" in html
