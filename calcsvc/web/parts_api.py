@@ -11,7 +11,7 @@ from typing import Any
 from flask import current_app, g, request, url_for
 from flask.views import MethodView
 from flask_smorest import Blueprint
-from marshmallow import RAISE, Schema, fields, validate
+from marshmallow import RAISE, Schema, ValidationError, fields, validate
 
 from calcsvc.data.kinds import KINDS, MAX_DESCRIPTION_LENGTH, MAX_TEXT_LENGTH, params_of
 from calcsvc.data.store import STATUSES, PartStore, PartView
@@ -33,21 +33,34 @@ _KIND_DOC = "; ".join(
     for kind, params in KINDS.items()
 )
 
-# A parameter given as text: the kind's rules (for text) and the unit parser (for numbers) refuse longer ones.
-_TEXT_VALUE = {"type": "string", "maxLength": MAX_TEXT_LENGTH}
-
 
 class ParametersField(fields.Dict):
+    """Parameter values as published: a number, or a string of at most MAX_TEXT_LENGTH characters (a unit
+    quantity or text), refused here, before If-Match or the kind's rules, and keyed by the parameter's name."""
+
     def __init__(self, **kwargs: Any) -> None:
+        text = {"type": "string", "maxLength": MAX_TEXT_LENGTH}
         super().__init__(
             keys=fields.String(),
-            values=fields.Raw(metadata={"oneOf": [{"type": "number"}, _TEXT_VALUE]}),
+            values=fields.Raw(metadata={"oneOf": [{"type": "number"}, text]}),
             metadata={
                 "description": "Parameters in SI units (numbers) or as strings with units ('4.7 kohm'). "
                 f"By kind: {_KIND_DOC}",
             },
             **kwargs,
         )
+
+    def _deserialize(self, value: Any, attr: str | None, data: Any, **kwargs: Any) -> dict[str, Any]:
+        parameters: dict[str, Any] = super()._deserialize(value, attr, data, **kwargs)
+        errors = {}
+        for name, each in parameters.items():
+            if isinstance(each, bool) or not isinstance(each, int | float | str):
+                errors[name] = ["must be a number or a string"]
+            elif isinstance(each, str) and len(each) > MAX_TEXT_LENGTH:
+                errors[name] = [f"must be at most {MAX_TEXT_LENGTH} characters"]
+        if errors:
+            raise ValidationError(errors)
+        return parameters
 
 
 class UtcDateTime(fields.DateTime):
