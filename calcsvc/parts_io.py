@@ -131,10 +131,11 @@ def check_row(
     body: dict[str, Any] = {"part_id": part_id, "kind": kind, "parameters": parameters}
     if description is not None:
         body["description"] = description
-    errors = [
-        RowError(where, name, " ".join(map(str, messages)))
-        for name, messages in PartCreateSchema().validate(body).items()
-    ]
+    errors = []
+    for name, messages in PartCreateSchema().validate(body).items():
+        # A parameter's messages come keyed by its name, and are reported under it as the later checks' are.
+        by_field = messages if isinstance(messages, dict) else {name: messages}
+        errors += [RowError(where, field, " ".join(map(str, texts))) for field, texts in by_field.items()]
     if errors or not isinstance(parameters, dict):
         return None, errors
     try:

@@ -15,11 +15,23 @@ import pint
 
 UREG = pint.UnitRegistry()
 
-_QUANTITY = re.compile(
-    r"\s*(?P<number>[+-]?(?:\d+\.?\d*|\.\d+)(?:[eE][+-]?\d+)?)\s*(?P<unit>[A-Za-zµμΩ%/*^0-9 .·-]*?)\s*"
-)
+# The longest quantity string read: "-1.2345678901234567e-300 kohm/us" is about 30 characters. Checked before
+# any pattern runs, so the time to refuse a string never grows with what a client sends.
+MAX_QUANTITY_LENGTH = 64
+
+# A decimal number (ASCII digits only: float() would also read other scripts' digits), then optionally a unit:
+# words separated by spaces, the first starting with a letter or "%". Each character can be matched in only
+# one way (no space or digit is claimed by two neighbouring repetitions), so a backtracking matcher refuses
+# any string in linear time, in Python and in the JSON Schema validators that read the published pattern.
+_NUMBER = r"[+-]?(?:[0-9]+(?:\.[0-9]*)?|\.[0-9]+)(?:[eE][+-]?[0-9]+)?"
+_UNIT_CHARS = "A-Za-zµμΩ%/*^0-9.·-"
+_UNIT = rf"[A-Za-zµμΩ%][{_UNIT_CHARS}]*(?: +[{_UNIT_CHARS}]+)*"
+QUANTITY = rf" *({_NUMBER})(?: *({_UNIT}))? *"
+QUANTITY_PATTERN = rf"^{QUANTITY}$"  # as published in the OpenAPI document
+_QUANTITY = re.compile(QUANTITY)
 # Unit text: names, products and quotients of names with optional integer powers; nothing that evaluates.
-_UNIT_TEXT = re.compile(r"[A-Za-zµμΩ]+(?:\s*(?:\*\*|\^)\s*-?\d)?(?:\s*[*/·]\s*[A-Za-zµμΩ]+(?:\s*(?:\*\*|\^)\s*-?\d)?)*")
+_NAME = "[A-Za-zµμΩ]+(?: *(?:\\*\\*|\\^) *-?[0-9])?"
+_UNIT_TEXT = re.compile(rf"{_NAME}(?: *[*/·] *{_NAME})*")
 _ALIASES = {"Ω": "ohm", "µ": "u", "μ": "u", "·": "*", "^": "**"}
 
 
@@ -51,14 +63,16 @@ def parse_quantity(text: str, si_unit: str) -> float:
     ``si_unit`` is the pint spelling of the field's SI unit ("V", "A", "ohm", "Hz", "V/s", "s", "W", "A*h",
     "dimensionless"). A bare number is taken as already in that unit.
     """
+    if len(text) > MAX_QUANTITY_LENGTH:
+        raise UnitError(f"longer than {MAX_QUANTITY_LENGTH} characters: not a number followed by a unit")
     match = _QUANTITY.fullmatch(text)
     if match is None:
         raise UnitError(f"'{text}' is not a number followed by a unit")
-    number = float(match["number"])
+    number = float(match[1])
     if not math.isfinite(number):
         raise UnitError(f"'{text}' is not a finite number")
-    unit_text = match["unit"].strip()
-    if not unit_text:
+    unit_text = match[2]
+    if unit_text is None:
         return number
     if unit_text != "%" and _UNIT_TEXT.fullmatch(unit_text) is None:
         raise UnitError(f"'{unit_text}' is not a unit name")

@@ -49,3 +49,28 @@ def live_server(app: Flask) -> Iterator[str]:
 def as_flask(response: requests.Response) -> Response:
     """A live server's answer in the shape ``assert_problem`` and the other helpers take."""
     return Response(response.content, status=response.status_code, headers=list(response.headers.items()))
+
+
+# Unit strings a parser must refuse at once, whatever its pattern: long runs a backtracking matcher could split
+# in many ways (digits, spaces, unit characters, each next to a repetition that also takes them), ending in a
+# character nothing accepts; and digits of other scripts, which float() and \d would read as numbers.
+HOSTILE_UNIT_STRINGS: list[str] = [
+    "1" * 900 + "!",
+    "1" * 1_500 + "!",
+    "1" * 2_500 + "!",
+    "1" * 100_000 + "!",
+    "1" * 100_000 + " V",
+    "1" + " " * 100_000 + "!",
+    "1 " * 50_000 + "!",
+    "1." + "1" * 100_000 + "!",
+    "1e" + "1" * 100_000 + "!",
+    "1 V" + "1" * 100_000 + "!",
+    "1 V" + " 1" * 50_000 + "!",
+    "1 V" + " /" * 50_000 + "!",
+    " " * 100_000 + "1 V!",
+    "\u0662\u0660 mA",  # Arabic-Indic 20
+    "\uff12\uff10 mA",  # full-width 20
+    "2\u0660 mA",
+    "1e\u0663 V",
+    "\u00b2 V",  # a superscript two: str.isdigit() takes it, int() does not
+]

@@ -93,6 +93,23 @@ def test_import_with_bad_rows_writes_nothing_and_names_line_and_field(
     assert table(live_url) == before
 
 
+def test_import_refuses_text_longer_than_the_table_keeps(
+    seeded: Flask, live_url: str, tokens: dict[str, str], tmp_path: Path, capsys: Any
+) -> None:
+    path = tmp_path / "long.csv"
+    path.write_text(
+        LED_HEADER
+        + f"led-amber-3mm,led,{'x' * 501},amber,2.1 V,1.9 V,2.5 V,20 mA,30 mA\n"
+        + f"led-amber-5mm,led,Amber,{'x' * 65},2.1 V,1.9 V,2.5 V,20 mA,30 mA\n"
+    )
+    before = table(live_url)
+    assert main(["parts", "import", str(path), "--url", live_url, "--token", tokens["edna"]]) == 1
+    err = capsys.readouterr().err
+    assert f"{path}: line 2: description: Longer than maximum length 500." in err
+    assert f"{path}: line 3: color: must be at most 64 characters" in err
+    assert table(live_url) == before
+
+
 def test_json_import_reports_lines_and_unknown_fields(
     live_url: str, tokens: dict[str, str], tmp_path: Path, capsys: Any
 ) -> None:

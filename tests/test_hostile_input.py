@@ -9,6 +9,7 @@ it is published; the table below adds the physics of each calculation and the ru
 from __future__ import annotations
 
 import json
+import time
 from collections.abc import Iterator
 from dataclasses import dataclass
 from pathlib import Path
@@ -17,12 +18,14 @@ from typing import Any
 import pytest
 from flask import Flask
 from flask.testing import FlaskClient
-from helpers import PROBLEM, bearer
+from helpers import HOSTILE_UNIT_STRINGS, PROBLEM, bearer
 from sqlalchemy import text
 
 from calcsvc import create_app
 from calcsvc.data.seed import load_seed
 from calcsvc.data.tokens import create_token
+from calcsvc.units import MAX_QUANTITY_LENGTH, QUANTITY_PATTERN
+from calcsvc.web.parts_api import PART_ID
 
 REPO = Path(__file__).resolve().parent.parent
 SPEC = json.loads((REPO / "openapi" / "openapi.json").read_text())
@@ -53,6 +56,8 @@ class Case:
     if_match: str | None = None  # "current": the part's current ETag
     small_limit: bool = False
     answer: str = "problem"  # "problem", "text" (pick=) or "rows" (a batch refusing each row)
+    quick: bool = False  # refused in well under a second
+    also: tuple[str, ...] = ()  # further fields the answer must name
 
     @property
     def id(self) -> str:
@@ -283,6 +288,11 @@ def parts_cases() -> list[Case]:
              field="parameters.vbe_sat_v", role="editor"),
         Case(post, "an unknown parameter", (422,), as_json({**NEW, "parameters": {**BJT, "zzz": 1}}),
              field="parameters.zzz", role="editor"),
+        Case(post, "true for a parameter", (422,), as_json({**NEW, "parameters": {**BJT, "hfe_min": True}}),
+             field="parameters.hfe_min", role="editor"),
+        Case(put, "a list for a parameter and a stale If-Match", (422,),
+             as_json({"parameters": {**BJT, "hfe_min": [100]}}), field="parameters.hfe_min", role="editor",
+             if_match=f'"{PART}-r9"'),
         Case(post, "a path for a part id", (422,), as_json({**NEW, "part_id": "../etc"}), field="part_id",
              role="editor"),
         Case(post, "a NUL in the description", (422,), as_json({**NEW, "description": "a\x00b"}),
@@ -323,6 +333,145 @@ def parts_cases() -> list[Case]:
     return cases
 
 
+# ---- strings: over-long and hostile in every field -----------------------------------------------------------
+
+LONG = "1" * 100_000 + "!"  # the parser once took minutes to refuse this; any input must refuse it at once
+LED_PART = "led-red-5mm"  # a seeded LED: a part with a text parameter
+LED = {"color": "red", "vf_typ_v": 2.0, "vf_min_v": 1.8, "vf_max_v": 2.4, "if_test_a": 0.02, "if_max_a": 0.03}
+NEW_LED = {"part_id": "hostile-led", "kind": "led", "description": "", "parameters": LED}
+Path = tuple[str | int, ...]
+
+
+@dataclass(frozen=True)
+class Input:
+    path: Path  # where it goes in the body (or its query parameter)
+    schema: dict[str, Any]
+    shared: tuple[str, Path] | None  # (schema several operations refer to, path within it) for inner inputs
+
+    @property
+    def name(self) -> str:
+        return ".".join(map(str, self.path))
+
+    @property
+    def text_forms(self) -> list[dict[str, Any]]:
+        """The string forms the input accepts."""
+        forms = [self.schema, *self.schema.get("oneOf", [])]
+        return [form for form in forms if form.get("type") in ("string", ["string", "null"])]
+
+
+def inputs(schema: dict[str, Any], path: Path = (), shared: tuple[str, Path] | None = None) -> Iterator[Input]:
+    """Every input a request schema names, inner inputs of objects and arrays (their first item) included.
+    A part's parameters are keyed by the kind's names, so an LED's are used."""
+    if path and "$ref" in schema:
+        shared = (schema["$ref"], path)
+    schema = _schema(schema)
+    if path:
+        yield Input(path, schema, shared and (shared[0], path[len(shared[1]) :]))
+    for alternative in schema.get("oneOf", []) or [schema]:
+        inner = (alternative["$ref"], path) if "$ref" in alternative else shared
+        alternative = _schema(alternative)
+        for name, prop in sorted(alternative.get("properties", {}).items()):
+            yield from inputs(prop, (*path, name), inner)
+        if alternative.get("type") == "array":
+            yield from inputs(alternative["items"], (*path, 0), inner)
+        if path and path[-1] == "parameters" and isinstance(alternative.get("additionalProperties"), dict):
+            for name in LED:
+                yield from inputs(alternative["additionalProperties"], (*path, name), inner)
+
+
+def request_inputs(operation: str) -> list[Input]:
+    spec = OPERATIONS[operation]
+    found = [Input((p["name"],), p["schema"], None) for p in spec.get("parameters", []) if p["in"] == "query"]
+    body = spec.get("requestBody", {}).get("content", {}).get("application/json")
+    if body:
+        schema = _schema(body["schema"])
+        found += inputs(schema["items"] if is_batch(operation) else schema)  # a batch: the inputs of a row
+    return found
+
+
+def placed(path: Path, value: Any, base: Any) -> Any:
+    """``base`` with ``value`` at ``path``, the objects and lists on the way made where missing."""
+    if not path:
+        return value
+    key, rest = path[0], path[1:]
+    if isinstance(key, int):
+        return [placed(rest, value, base[0] if isinstance(base, list) and base else None)]
+    inner = base if isinstance(base, dict) else {}
+    return {**inner, key: placed(rest, value, inner.get(key))}
+
+
+def strings_case(operation: str, name: str, values: dict[Path, str], quick: bool = False) -> Case:
+    """``operation`` with each of ``values`` at its path; the answer must name every one."""
+    fields = tuple(".".join(map(str, path)) for path in values)
+    common: dict[str, Any] = {"field": fields[0], "also": fields[1:], "quick": quick}
+    if "requestBody" not in OPERATIONS[operation]:
+        query = "&".join(f"{path[0]}={value}" for path, value in values.items())
+        return Case(operation, name, (422,), query=query, answer="text" if "pick" in fields else "problem", **common)
+    body: Any = {}
+    if operation == "POST /v1/parts":
+        body = NEW_LED
+    elif operation == "PUT /v1/parts/{part_id}":
+        body = {"parameters": LED}
+    for path, value in values.items():
+        body = placed(path, value, body)
+    if is_batch(operation):
+        return Case(operation, name, (200,), as_json([body]), answer="rows", **common)
+    part_id = LED_PART if operation.startswith(("PUT", "POST /v1/parts/")) else PART
+    if_match = "current" if operation.startswith("PUT") else None
+    return Case(operation, name, (422,), as_json(body), part_id=part_id, role=role_for(operation), if_match=if_match,
+                **common)  # fmt: skip
+
+
+def csv_case(operation: str, name: str, column: str, value: str) -> Case:
+    body = f"{column}\n{value}\n".encode()
+    return Case(operation, name, (200,), body, "text/csv", field=column, answer="rows", quick=True)
+
+
+def string_cases() -> list[Case]:
+    """A 100,000-character string in every input of every operation (an input of a schema several operations
+    share, in one of them) and in every column of a CSV batch; every input that takes text, just over its
+    published length limit."""
+    cases = []
+    shared: set[tuple[str, Path]] = set()
+    for operation in OPERATIONS:
+        for each in request_inputs(operation):
+            if each.shared not in shared:
+                cases.append(strings_case(operation, f"{each.name} of 100,000 characters", {each.path: LONG}, True))
+            if each.shared:
+                shared.add(each.shared)
+            if is_batch(operation) and len(each.path) == 1:
+                cases.append(csv_case(operation, f"{each.name} of 100,000 characters (CSV)", each.name, LONG))
+            for form in each.text_forms:
+                if "maxLength" in form:
+                    length = form["maxLength"] + 1
+                    value = "1" + " " * (length - 2) + "V" if "pattern" in form else "x" * length
+                    cases.append(strings_case(operation, f"{each.name} of {length} characters", {each.path: value}))
+    return cases
+
+
+# Each way a unit string reaches the parser: (operation, path of the input).
+UNIT_ROUTES: list[tuple[str, Path]] = [
+    ("POST /v1/calc/led-string", ("supply_v",)),
+    ("GET /v1/calc/led-string", ("supply_v",)),
+    ("POST /v1/calc/duty-cycle-power", ("loads", 0, "peak_current_a")),
+    ("POST /v1/batch/led-string", ("supply_v",)),
+    ("POST /v1/select/bjt-switch", ("transistor", "where", "hfe_min", "min")),
+    ("POST /v1/review/channel", ("current_a",)),
+    ("GET /v1/plots/led-string.svg", ("supply_v",)),
+    ("POST /v1/parts", ("parameters", "vf_typ_v")),
+    ("PUT /v1/parts/{part_id}", ("parameters", "vf_typ_v")),
+]
+
+
+def unit_string_cases() -> list[Case]:
+    cases = []
+    for hostile in HOSTILE_UNIT_STRINGS:
+        label = f"unit string of {len(hostile)} characters {hostile[:6]!r}"
+        cases += [strings_case(operation, label, {path: hostile}, quick=True) for operation, path in UNIT_ROUTES]
+        cases.append(csv_case("POST /v1/batch/led-string", f"{label} (CSV)", "supply_v", hostile))
+    return cases
+
+
 CASES = [
     *(case for op in OPERATIONS if "requestBody" in OPERATIONS[op] for case in generic_body_cases(op)),
     *(
@@ -333,6 +482,8 @@ CASES = [
     ),
     *physics_cases(),
     *parts_cases(),
+    *string_cases(),
+    *unit_string_cases(),
 ]
 
 
@@ -388,8 +539,8 @@ def check_problem(response: Any, case: Case) -> None:
     body = json.loads(response.get_data(as_text=True))
     assert {"type", "title", "status", "detail"} <= body.keys()
     assert body["status"] == response.status_code
-    if case.field is not None:
-        assert case.field in body.get("errors", {}), body
+    for field in [case.field, *case.also] if case.field else []:
+        assert field in body.get("errors", {}), body
 
 
 def check_line(response: Any, case: Case) -> None:
@@ -407,18 +558,22 @@ def check_rows(response: Any, case: Case) -> None:
     for row in rows:
         problem = row["problem"]
         assert {"type", "title", "status", "detail"} <= problem.keys()
-        assert case.field in problem["errors"], problem
+        for field in (case.field, *case.also):
+            assert field in problem["errors"], problem
 
 
 @pytest.mark.parametrize("case", CASES, ids=[case.id for case in CASES])
 def test_hostile_input_is_refused_with_a_problem(case: Case, target: dict[str, Any]) -> None:
+    started = time.perf_counter()
     response = send(case, target)
+    assert not case.quick or time.perf_counter() - started < 1.0  # generous: milliseconds are usual
     answer = response.get_data(as_text=True)
     assert response.status_code < 500, answer
     assert response.status_code in case.status, answer
     assert "Traceback" not in answer and 'File "' not in answer
     {"problem": check_problem, "text": check_line, "rows": check_rows}[case.answer](response, case)
-    assert table_state(target["app"].test_client()) == {"parts": target["before"]["parts"]}
+    if role_for(case.operation):  # only these write; the last test below checks the table after every case
+        assert table_state(target["app"].test_client()) == {"parts": target["before"]["parts"]}
 
 
 def test_every_endpoint_meets_hostile_input() -> None:
@@ -429,3 +584,27 @@ def test_every_endpoint_meets_hostile_input() -> None:
 def test_the_parts_table_and_its_revisions_are_unchanged(target: dict[str, Any]) -> None:
     """Runs after the hostile cases on the same store."""
     assert table_state(target["app"].test_client(), with_revisions=True) == target["before"]
+
+
+def test_every_text_input_has_a_published_length_limit() -> None:
+    """The limit the server enforces before reading a string is in the document (choices and part ids, whose
+    pattern bounds them, need none), so an input added later cannot take text of any length unseen."""
+    unbounded = [
+        f"{operation} {each.name}"
+        for operation in OPERATIONS
+        for each in request_inputs(operation)
+        for form in each.text_forms
+        if not {"maxLength", "enum"} & form.keys() and form.get("pattern") != PART_ID
+    ]
+    assert not unbounded
+
+
+def test_quantity_strings_are_published_with_the_parsers_pattern() -> None:
+    published = {
+        (form.get("pattern"), form.get("maxLength"))
+        for operation in OPERATIONS
+        for each in request_inputs(operation)
+        if "x-unit" in each.schema
+        for form in each.text_forms
+    }
+    assert published == {(QUANTITY_PATTERN, MAX_QUANTITY_LENGTH)}

@@ -4,8 +4,13 @@ from __future__ import annotations
 
 from typing import Any
 
+import pytest
+from flask import Flask
 from flask.testing import FlaskClient
 from helpers import assert_problem, bearer
+
+from calcsvc.data.kinds import MAX_DESCRIPTION_LENGTH, MAX_TEXT_LENGTH
+from calcsvc.data.store import InvalidPart, PartStore
 
 LED = {
     "part_id": "led-amber-3mm",
@@ -152,3 +157,25 @@ def test_a_second_approval_keeps_the_first(client: FlaskClient, tokens: dict[str
     assert again.status_code == 200 and again.get_json()["approved_by"] == "rita"
     history = client.get("/v1/parts/led-amber-3mm/revisions").get_json()["revisions"]
     assert history[0]["approved_by"] == "rita"
+
+
+def test_text_is_kept_only_within_its_published_length(app: Flask, client: FlaskClient, tokens: dict[str, str]) -> None:
+    """Every list, page and export repeats a part's text to every reader: a colour of megabytes is refused."""
+    parameters = LED["parameters"]
+    for part, field in [
+        ({**LED, "parameters": {**parameters, "color": "x" * (MAX_TEXT_LENGTH + 1)}}, "parameters.color"),
+        ({**LED, "parameters": {**parameters, "color": "x" * 2**20}}, "parameters.color"),
+        ({**LED, "description": "x" * (MAX_DESCRIPTION_LENGTH + 1)}, "description"),
+    ]:
+        assert_problem(create(client, tokens["edna"], part), 422, field)
+    longest = {"color": "x" * MAX_TEXT_LENGTH}
+    assert create(client, tokens["edna"], {**LED, "parameters": {**parameters, **longest}}).status_code == 201
+    url = f"/v1/parts/{LED['part_id']}"
+    edit = {"parameters": {**parameters, "color": "x" * 2**20}}
+    headers = {**bearer(tokens["edna"]), "If-Match": client.get(url).headers["ETag"]}
+    assert_problem(client.put(url, json=edit, headers=headers), 422, "parameters.color")
+    # The store itself refuses, whatever writes to it (seed files, scripts).
+    si = {"color": "amber", "vf_typ_v": 2.1, "vf_min_v": 1.9, "vf_max_v": 2.5, "if_test_a": 0.02, "if_max_a": 0.03}
+    with app.extensions["calcsvc.db"].transaction() as session, pytest.raises(InvalidPart) as refused:
+        PartStore(session).create("led-long", "led", "x" * (MAX_DESCRIPTION_LENGTH + 1), si, "edna")
+    assert set(refused.value.errors) == {"description"}

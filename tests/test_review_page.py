@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import re
+import time
 from html.parser import HTMLParser
 from typing import Any
 from urllib.parse import urlencode
@@ -82,7 +83,7 @@ def edit(client: FlaskClient, token: str, part_id: str, parameters: dict[str, An
     assert response.status_code == 200, response.get_json()
 
 
-def approve(client: FlaskClient, part_id: str, token: str, revision: int | None = None) -> Any:
+def approve(client: FlaskClient, part_id: str, token: str, revision: int | str | None = None) -> Any:
     """Post the part page's approval form as a browser would, with the page's CSRF token and cookie."""
     _, parsed = page(client, f"/review/parts/{part_id}")
     form = {**parsed.hidden, "token": token}
@@ -234,6 +235,26 @@ def test_a_revision_changed_since_the_page_loaded_is_not_approved(
     assert status_of(client, OPAMP_ID) == "draft"
 
 
+@pytest.mark.parametrize("revision", ["\u0662", "\u00b2", "9" * 30])  # an Arabic-Indic 2, a superscript 2
+def test_approval_takes_the_revision_in_ascii_digits_only(
+    client: FlaskClient, seeded: Any, tokens: dict[str, str], revision: str
+) -> None:
+    edit(client, tokens["edna"], OPAMP_ID, OPAMP_PARAMETERS)
+    response = approve(client, OPAMP_ID, tokens["rita"], revision=revision)
+    assert response.status_code == 400
+    assert "did not say which revision" in response.get_data(as_text=True)
+    assert status_of(client, OPAMP_ID) == "draft"
+
+
+@pytest.mark.parametrize("offset", ["\u0662", "\u00b2", "9" * 30])
+def test_list_offsets_in_other_digits_or_too_long_show_the_first_page(
+    client: FlaskClient, seeded: Any, offset: str
+) -> None:
+    first, _ = page(client, "/review/")
+    html, _ = page(client, "/review/?" + urlencode({"offset": offset}))
+    assert re.findall(r'href="/review/parts/[^"]+"', html) == re.findall(r'href="/review/parts/[^"]+"', first)
+
+
 def test_approval_needs_the_pages_csrf_token(client: FlaskClient, seeded: Any, tokens: dict[str, str]) -> None:
     edit(client, tokens["edna"], OPAMP_ID, OPAMP_PARAMETERS)
     url = f"/review/parts/{OPAMP_ID}/approve"
@@ -300,3 +321,12 @@ def test_channel_form_errors_name_the_field(client: FlaskClient, seeded: Any) ->
     without_opamp = channel_body({**DEMO_CHANNEL, "opamp": ""})
     assert "opamp" not in without_opamp and "gain" not in without_opamp
     assert without_opamp["leds_in_series"] == 3 and without_opamp["current_a"] == 0.02
+
+
+# The same field as the API's: tests/test_hostile_input.py puts every hostile unit string through it.
+@pytest.mark.parametrize("hostile", ["1" * 100_000 + "!", "\u0662\u0660 mA"], ids=["100,001 chars", "Arabic-Indic 20"])
+def test_channel_form_refuses_hostile_unit_strings_at_once(client: FlaskClient, seeded: Any, hostile: str) -> None:
+    started = time.perf_counter()
+    html, _ = page(client, "/review/channel?" + urlencode({**DEMO_CHANNEL, "current_a": hostile}), status=422)
+    assert time.perf_counter() - started < 1.0  # generous: 900 digits once took 3.5 s, 100,000 did not finish
+    assert "<code>current_a</code>" in html

@@ -2,9 +2,17 @@
 
 from __future__ import annotations
 
-import pytest
+import re
+import time
 
-from calcsvc.units import UnitError, parse_quantity
+import pytest
+from helpers import HOSTILE_UNIT_STRINGS
+
+from calcsvc.units import MAX_QUANTITY_LENGTH, QUANTITY_PATTERN, UnitError, parse_quantity
+
+
+def short(text: str) -> str:
+    return f"{len(text)} chars {text[:10]!r}"
 
 
 @pytest.mark.parametrize(
@@ -23,6 +31,12 @@ from calcsvc.units import UnitError, parse_quantity
         ("5 %", "dimensionless", 0.05),
         ("1e3 ohm", "ohm", 1000.0),
         ("-0.2 V", "V", -0.2),
+        ("  4.7 kohm  ", "ohm", 4700.0),
+        ("0.5 V / us", "V/s", 500_000.0),
+        ("1 m^2 * s ** -1", "m**2/s", 1.0),
+        (".5e+1 V", "V", 5.0),
+        ("5%", "dimensionless", 0.05),
+        ("1" + " " * (MAX_QUANTITY_LENGTH - 2) + "V", "V", 1.0),  # as long as a quantity may be
     ],
 )
 def test_converts_to_si(text: str, unit: str, expected: float) -> None:
@@ -41,6 +55,15 @@ def test_converts_to_si(text: str, unit: str, expected: float) -> None:
         ("9 blargs", "V", "unknown unit"),
         ("", "V", "not a number"),
         ("V 9", "V", "not a number"),
+        ("1" + " " * (MAX_QUANTITY_LENGTH - 1) + "V", "V", "longer than 64"),
+        ("\u0662\u0660 mA", "A", "not a number"),  # Arabic-Indic digits
+        ("\uff12\uff10 mA", "A", "not a number"),  # full-width digits
+        ("2\u0660 mA", "A", "not a number"),
+        ("1e\u0663 V", "V", "not a number"),
+        ("\u00b2 V", "V", "not a number"),
+        ("9 V\n", "V", "not a number"),
+        ("9\t V", "V", "not a number"),
+        ("9 1/s", "Hz", "not a number"),
     ],
 )
 def test_rejects_with_a_clear_message(text: str, unit: str, fragment: str) -> None:
@@ -53,3 +76,30 @@ def test_expression_syntax_never_reaches_the_evaluator() -> None:
     for text in ("2**2**2**2**2 V", "9**9**9 V", "(1+1) V", "9 V; import os", "__import__('os') V"):
         with pytest.raises(UnitError):
             parse_quantity(text, "V")
+
+
+@pytest.mark.parametrize("text", HOSTILE_UNIT_STRINGS, ids=short)
+def test_hostile_strings_are_refused_at_once(text: str) -> None:
+    started = time.perf_counter()
+    with pytest.raises(UnitError) as refusal:
+        parse_quantity(text, "A")
+    assert time.perf_counter() - started < 0.1  # generous: it takes microseconds; 900 digits once took 3.5 s
+    assert len(str(refusal.value)) < 200  # the message never repeats what it refused at length
+
+
+@pytest.mark.parametrize("text", HOSTILE_UNIT_STRINGS, ids=short)
+def test_the_published_pattern_is_linear_without_the_length_limit(text: str) -> None:
+    """Clients and schema validators run the published pattern on strings of any length."""
+    started = time.perf_counter()
+    re.search(QUANTITY_PATTERN, text)
+    assert time.perf_counter() - started < 0.5  # generous: 100,000 characters take a few milliseconds
+
+
+@pytest.mark.parametrize(
+    ("text", "unit"),
+    [("4.7 kohm", "ohm"), ("4.7kΩ", "ohm"), ("0.5 V/µs", "V/s"), ("0.5 V / us", "V/s"), ("5 %", "dimensionless"),
+     ("1e3 ohm", "ohm"), ("-0.2 V", "V"), ("9", "V"), (" 20 mA ", "A"), ("2200 mAh", "A*h")],
+)  # fmt: skip
+def test_the_published_pattern_takes_what_the_parser_converts(text: str, unit: str) -> None:
+    parse_quantity(text, unit)
+    assert re.search(QUANTITY_PATTERN, text)

@@ -6,6 +6,10 @@ import math
 from dataclasses import dataclass
 from typing import Any
 
+# Limits on what a part stores as text: every list, page and export repeats it to every reader.
+MAX_TEXT_LENGTH = 64  # a text parameter, such as an LED's colour
+MAX_DESCRIPTION_LENGTH = 500
+
 
 @dataclass(frozen=True)
 class Param:
@@ -113,6 +117,8 @@ def validate_parameters(kind: str, parameters: dict[str, Any]) -> dict[str, str]
         elif param.text:
             if not isinstance(value, str) or not value.strip():
                 errors[name] = "must be a non-empty string"
+            elif len(value) > MAX_TEXT_LENGTH:
+                errors[name] = f"must be at most {MAX_TEXT_LENGTH} characters"
         elif isinstance(value, bool) or not isinstance(value, int | float) or not math.isfinite(value):
             errors[name] = "must be a finite number"
         elif param.fraction and not 0 <= value < 1:
@@ -127,4 +133,12 @@ def validate_parameters(kind: str, parameters: dict[str, Any]) -> dict[str, str]
             continue
         if (a >= b) if strict else (a > b):
             errors[high] = f"{high} ({b:g}) must be {'greater than' if strict else 'at least'} {low} ({a:g})"
+    return errors
+
+
+def validate_part(kind: str, description: str, parameters: dict[str, Any]) -> dict[str, str]:
+    """Field errors of a whole part: its parameters as ``validate_parameters`` says, and its description."""
+    errors = validate_parameters(kind, parameters)
+    if not isinstance(description, str) or len(description) > MAX_DESCRIPTION_LENGTH:
+        errors["description"] = f"must be text of at most {MAX_DESCRIPTION_LENGTH} characters"
     return errors

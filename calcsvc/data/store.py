@@ -16,7 +16,7 @@ from sqlalchemy import func, select, update
 from sqlalchemy.exc import IntegrityError
 from sqlalchemy.orm import Session
 
-from calcsvc.data.kinds import validate_parameters
+from calcsvc.data.kinds import validate_part
 from calcsvc.data.models import Part, PartRevision
 
 STATUSES = ("draft", "approved", "retired")
@@ -52,7 +52,7 @@ class PartRetired(StoreError):
 
 class InvalidPart(StoreError):
     def __init__(self, errors: dict[str, str]) -> None:
-        super().__init__("the part's parameters are not valid", next(iter(errors), None))
+        super().__init__("the part is not valid", next(iter(errors), None))
         self.errors = errors
 
 
@@ -199,7 +199,7 @@ class PartStore:
         approve: bool = False,
     ) -> PartView:
         """Add a part as revision 1 (draft, or approved by its author when seeding)."""
-        errors = validate_parameters(kind, parameters)
+        errors = validate_part(kind, description, parameters)
         if errors:
             raise InvalidPart(errors)
         now = _now()
@@ -243,7 +243,7 @@ class PartStore:
         current = self._row(part_id)
         if current.status == "retired":
             raise PartRetired(f"part '{part_id}' is retired; add a new part instead of reviving it", "part_id")
-        errors = validate_parameters(current.kind, parameters)
+        errors = validate_part(current.kind, description, parameters)
         if errors:
             raise InvalidPart(errors)
         new_revision = expected_revision + 1

@@ -75,7 +75,7 @@ class ProblemApi(Api):
 
 def _store_problem(error: StoreError) -> Response:
     if isinstance(error, InvalidPart):
-        errors = {f"parameters.{k}" if k != "kind" else k: [v] for k, v in error.errors.items()}
+        errors = {k if k in ("kind", "description") else f"parameters.{k}": [v] for k, v in error.errors.items()}
         return problem_response(Problem(422, "the part's parameters are not valid", "invalid-part", errors))
     status, slug = _STORE_STATUS.get(type(error), (400, "store"))
     errors = {error.field: [str(error)]} if error.field else None

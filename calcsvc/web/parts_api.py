@@ -11,9 +11,9 @@ from typing import Any
 from flask import current_app, g, request, url_for
 from flask.views import MethodView
 from flask_smorest import Blueprint
-from marshmallow import RAISE, Schema, fields, validate
+from marshmallow import RAISE, Schema, ValidationError, fields, validate
 
-from calcsvc.data.kinds import KINDS, params_of
+from calcsvc.data.kinds import KINDS, MAX_DESCRIPTION_LENGTH, MAX_TEXT_LENGTH, params_of
 from calcsvc.data.store import STATUSES, PartStore, PartView
 from calcsvc.units import UnitError, parse_quantity
 from calcsvc.web.auth import reads, requires
@@ -35,17 +35,32 @@ _KIND_DOC = "; ".join(
 
 
 class ParametersField(fields.Dict):
+    """Parameter values as published: a number, or a string of at most MAX_TEXT_LENGTH characters (a unit
+    quantity or text), refused here, before If-Match or the kind's rules, and keyed by the parameter's name."""
+
     def __init__(self, **kwargs: Any) -> None:
+        text = {"type": "string", "maxLength": MAX_TEXT_LENGTH}
         super().__init__(
             keys=fields.String(),
-            values=fields.Raw(),
+            values=fields.Raw(metadata={"oneOf": [{"type": "number"}, text]}),
             metadata={
                 "description": "Parameters in SI units (numbers) or as strings with units ('4.7 kohm'). "
                 f"By kind: {_KIND_DOC}",
-                "additionalProperties": {"oneOf": [{"type": "number"}, {"type": "string", "maxLength": 64}]},
             },
             **kwargs,
         )
+
+    def _deserialize(self, value: Any, attr: str | None, data: Any, **kwargs: Any) -> dict[str, Any]:
+        parameters: dict[str, Any] = super()._deserialize(value, attr, data, **kwargs)
+        errors = {}
+        for name, each in parameters.items():
+            if isinstance(each, bool) or not isinstance(each, int | float | str):
+                errors[name] = ["must be a number or a string"]
+            elif isinstance(each, str) and len(each) > MAX_TEXT_LENGTH:
+                errors[name] = [f"must be at most {MAX_TEXT_LENGTH} characters"]
+        if errors:
+            raise ValidationError(errors)
+        return parameters
 
 
 class UtcDateTime(fields.DateTime):
@@ -60,12 +75,12 @@ class UtcDateTime(fields.DateTime):
 class PartCreateSchema(Schema):
     part_id = fields.String(required=True, validate=validate.Regexp(PART_ID), metadata={"pattern": PART_ID})
     kind = fields.String(required=True, validate=validate.OneOf(list(KINDS)))
-    description = fields.String(load_default="", validate=[validate.Length(max=500), NO_NUL])
+    description = fields.String(load_default="", validate=[validate.Length(max=MAX_DESCRIPTION_LENGTH), NO_NUL])
     parameters = ParametersField(required=True)
 
 
 class PartUpdateSchema(Schema):
-    description = fields.String(load_default=None, validate=[validate.Length(max=500), NO_NUL])
+    description = fields.String(load_default=None, validate=[validate.Length(max=MAX_DESCRIPTION_LENGTH), NO_NUL])
     parameters = ParametersField(required=True)
 
 

@@ -7,11 +7,7 @@ from typing import Any
 
 from marshmallow import ValidationError, fields
 
-from calcsvc.units import UnitError, parse_quantity
-
-# A decimal number followed by a unit made of letters and operators; mirrors the parser's first stage so
-# the published schema and the server agree on which strings are worth sending.
-QUANTITY_PATTERN = r"^\s*[+-]?(\d+\.?\d*|\.\d+)([eE][+-]?\d+)?\s*[A-Za-zµμΩ%/*^0-9 .·-]*$"
+from calcsvc.units import MAX_QUANTITY_LENGTH, QUANTITY_PATTERN, UnitError, parse_quantity
 
 
 class Quantity(fields.Field):
@@ -50,7 +46,9 @@ class Quantity(fields.Field):
         if integer:
             metadata["oneOf"] = [number]
         else:
-            metadata["oneOf"] = [number, {"type": "string", "pattern": QUANTITY_PATTERN}]
+            # The parser's own pattern and length limit, so the published schema and the server agree.
+            text = {"type": "string", "maxLength": MAX_QUANTITY_LENGTH, "pattern": QUANTITY_PATTERN}
+            metadata["oneOf"] = [number, text]
         super().__init__(metadata=metadata, **kwargs)
 
     def _deserialize(self, value: Any, attr: str | None, data: Any, **kwargs: Any) -> float:

@@ -60,6 +60,8 @@ DRAFTS_SHOWN = 50
 CSRF_COOKIE = "calcsvc_review_csrf"
 CSRF_FIELD = "csrf_token"
 _CSRF_FORMAT = re.compile(r"[A-Za-z0-9_-]{43}")  # secrets.token_urlsafe(32)
+# ASCII digits only (str.isdigit also takes "²", which int() refuses), few enough for the store's integer columns.
+_WHOLE_NUMBER = re.compile(r"[0-9]{1,9}")
 PAGE_POLICY = (
     "default-src 'none'; img-src 'self'; style-src 'self'; form-action 'self'; frame-ancestors 'none'; base-uri 'none'"
 )
@@ -242,7 +244,7 @@ def parts_list() -> Response:
         problems.append(f"There is no status '{status}'.")
         status = None
     offset = request.args.get("offset", "0")
-    start = int(offset) if offset.isdigit() else 0
+    start = int(offset) if _WHOLE_NUMBER.fullmatch(offset) else 0
     with _store() as session:
         store = PartStore(session)
         parts, total = store.list(kind, status, start, PAGE_SIZE)
@@ -390,7 +392,7 @@ def _approve(part_id: str) -> None:
     if not token:
         raise PageError(401, "Paste your reviewer token to approve.")
     revision = request.form.get("revision", "")
-    if not revision.isdigit():
+    if not _WHOLE_NUMBER.fullmatch(revision):
         raise PageError(400, "The form did not say which revision to approve: reload the page.")
     try:
         with _store() as session:
