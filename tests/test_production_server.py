@@ -12,9 +12,11 @@ import threading
 import time
 from collections.abc import Iterable, Iterator
 from pathlib import Path
+from typing import Any
 
 import pytest
 import requests
+from helpers import HOSTILE_UNIT_STRINGS
 from test_entrypoint import Server, entrypoint
 
 from calcsvc.web.request_body import BASE_S, SMALL_BODY_BYTES, WAVEFORM_BODY_BYTES
@@ -75,6 +77,56 @@ def _health_latencies(url: str, seconds: float) -> list[float]:
         assert answer.status_code == 200
         time.sleep(0.2)
     return latencies
+
+
+def test_hostile_unit_strings_are_refused_at_once_while_health_answers(server: Server) -> None:
+    """Every hostile quantity string, three at a time, through the JSON body, the query string and a CSV batch:
+    422 naming the field in well under a second each, and /healthz answering throughout."""
+    ways = [
+        lambda text: requests.post(
+            f"{server.url}/v1/calc/led-string",
+            json={"supply_v": text, "led": "led-red-5mm", "leds_in_series": 3, "current_a": 0.02},
+            timeout=30,
+        ),
+        lambda text: requests.get(
+            f"{server.url}/v1/calc/led-string",
+            params={"supply_v": text, "led": "led-red-5mm", "leds_in_series": 3, "current_a": 0.02},
+            timeout=30,
+        ),
+        lambda text: requests.post(
+            f"{server.url}/v1/batch/led-string",
+            data=f"supply_v,led,leds_in_series,current_a\n{text},led-red-5mm,3,0.02\n".encode(),
+            headers={"Content-Type": "text/csv"},
+            timeout=30,
+        ),
+    ]
+    worst = 0.0
+    for text in [t for t in HOSTILE_UNIT_STRINGS if len(t) > 60]:
+        answers: list[tuple[float, requests.Response]] = []
+
+        def send(way: Any, text: str = text, answers: list[tuple[float, requests.Response]] = answers) -> None:
+            started = time.monotonic()
+            answer = way(text)
+            answers.append((time.monotonic() - started, answer))
+
+        senders = [threading.Thread(target=send, args=(way,)) for way in ways]
+        for sender in senders:
+            sender.start()
+        health = requests.get(f"{server.url}/healthz", timeout=HEALTH_BUDGET_S)
+        for sender in senders:
+            sender.join(30)
+        assert health.status_code == 200 and len(answers) == 3
+        for elapsed, answer in answers:
+            worst = max(worst, elapsed)
+            if answer.request.method == "GET" and answer.status_code == 414:
+                continue  # a query string of 100,000 characters is over the server's request-line limit
+            body = answer.json()
+            if answer.request.url.endswith("/v1/batch/led-string"):
+                assert answer.status_code == 200 and body["rows"][0]["ok"] is False
+                assert "supply_v" in body["rows"][0]["problem"]["errors"]
+            else:
+                assert answer.status_code == 422 and "supply_v" in body["errors"], body
+    assert worst < 1.0
 
 
 def test_slow_clients_leave_the_service_answering(server: Server) -> None:
