@@ -29,6 +29,7 @@ def table(url: str) -> dict[str, tuple[str, str, dict[str, Any]]]:
 
 def empty_parts_table(app: Flask) -> None:
     with app.extensions["calcsvc.db"].transaction() as session:
+        session.execute(text("DELETE FROM part_events"))
         session.execute(text("DELETE FROM part_revisions"))
         session.execute(text("DELETE FROM parts"))
 

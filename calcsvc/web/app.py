@@ -19,8 +19,10 @@ from calcsvc.core.outcome import DomainError
 from calcsvc.data.database import Database
 from calcsvc.data.store import (
     InvalidPart,
+    InvalidPartId,
     PartExists,
     PartNotFound,
+    PartNotRetired,
     PartRetired,
     SelfApproval,
     StaleRevision,
@@ -48,6 +50,8 @@ _STORE_STATUS: dict[type[StoreError], tuple[int, str]] = {
     StaleRevision: (412, "stale-revision"),
     SelfApproval: (403, "self-approval"),
     PartRetired: (409, "part-retired"),
+    PartNotRetired: (409, "part-not-retired"),
+    InvalidPartId: (422, "invalid-part-id"),
 }
 
 
