@@ -153,8 +153,7 @@ def test_approval_racing_an_edit_never_lands_on_another_revision(
                 partial(
                     requests.post,
                     f"{url}/approve",
-                    json={"revision": aimed},
-                    headers=bearer(tokens["rita"]),
+                    headers={**bearer(tokens["rita"]), "If-Match": response.headers["ETag"]},
                     timeout=TIMEOUT_S,
                 ),
                 partial(
@@ -180,7 +179,7 @@ def test_approval_racing_an_edit_never_lands_on_another_revision(
             assert history[aimed - 1]["approved_by"] == "rita"
         else:
             outcomes["edited, approval refused"] += 1
-            assert_problem(as_flask(approve), 412, "revision")
+            assert_problem(as_flask(approve), 412, "If-Match")
             assert history[aimed - 1]["approved_by"] is None
     assert outcomes.total() == RACES
     print(f"approve/edit race outcomes: {dict(outcomes)}")

@@ -198,6 +198,14 @@ def _no_such_shape() -> None:
         raise Problem(404, message, "part-not-found", {"part_id": [message]})
 
 
+@blp.before_request
+def _retire_reason_is_json() -> None:
+    """The app checks the media type of POST/PUT bodies only; a retire's reason sent as anything but JSON would be
+    dropped unread."""
+    if request.method == "DELETE" and request.content_length and request.mimetype != "application/json":
+        raise Problem(415, f"send the body as application/json, not {request.mimetype or 'untyped'}", "media-type")
+
+
 def _store() -> Any:
     return current_app.extensions["calcsvc.db"].transaction()
 
@@ -305,6 +313,7 @@ class Approve(MethodView):
     @error_response(blp, 409, "the part is retired")
     @error_response(blp, 412, "the revision If-Match names is no longer current")
     @error_response(blp, 428, "If-Match is missing")
+    @error_response(blp, 415, "a body was sent, and not as JSON (approval takes none)")
     def post(self, _headers: dict[str, Any], part_id: str) -> tuple[dict[str, Any], int, dict[str, str]]:
         """Approve the revision If-Match names, if it is still current (reviewer; not its author)."""
         revision = expected_revision(part_id)
