@@ -22,6 +22,7 @@ from calcsvc.data.models import Part, PartEvent, PartRevision
 from calcsvc.data.part_ids import RULE, is_part_id
 
 STATUSES = ("draft", "approved", "retired")
+ACTIONS = ("created", "edited", "approved", "retired", "restored", "renamed")  # what an event records
 
 
 class StoreError(Exception):
@@ -303,6 +304,9 @@ class PartStore:
             .execution_options(synchronize_session=False)
         )
         if result.rowcount != 1:
+            self.session.refresh(current)
+            if current.status == "retired":  # retired meanwhile, at the same revision
+                raise PartRetired(f"part '{part_id}' is retired; restore it before revising it", "part_id")
             raise StaleRevision(f"part '{part_id}' is no longer at revision {expected_revision}", "If-Match")
         self.session.add(
             PartRevision(

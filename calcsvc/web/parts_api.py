@@ -15,7 +15,7 @@ from marshmallow import RAISE, Schema, ValidationError, fields, validate
 
 from calcsvc.data import part_ids
 from calcsvc.data.kinds import KINDS, params_of
-from calcsvc.data.store import STATUSES, PartStore, PartView
+from calcsvc.data.store import ACTIONS, STATUSES, PartStore, PartView
 from calcsvc.units import UnitError, parse_quantity
 from calcsvc.web.auth import reads, requires
 from calcsvc.web.metrics import record_parts_write
@@ -114,9 +114,7 @@ class PartQuerySchema(Schema):
 
 
 class EventSchema(Schema):
-    action = fields.String(
-        required=True, validate=validate.OneOf(("created", "edited", "approved", "retired", "restored", "renamed"))
-    )
+    action = fields.String(required=True, validate=validate.OneOf(ACTIONS))
     actor = fields.String(required=True)
     at = UtcDateTime(required=True)
     reason = fields.String(allow_none=True, required=True)
