@@ -174,7 +174,12 @@ def setup_scratch(server: Server, token: str, run: str) -> list[str]:
 def retire_scratch(server: Server, token: str, scratch: list[str]) -> None:
     client = Client(server.port)
     for part_id in scratch:
-        client.request("teardown", "DELETE", f"/v1/parts/{part_id}", headers=editor(token))
+        _status, headers, _body = client.request("teardown", "GET", f"/v1/parts/{part_id}")
+        retire = {**editor(token), "If-Match": headers["ETag"]}
+        reason = orjson.dumps({"reason": "load-test scratch part, no longer needed"})
+        status, _h, answer = client.request("teardown", "DELETE", f"/v1/parts/{part_id}", reason, retire)
+        if status != 200:
+            raise RuntimeError(f"retiring scratch part {part_id} answered {status}: {answer[:300]!r}")
     client.connection.close()
 
 

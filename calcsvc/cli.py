@@ -49,6 +49,43 @@ def _db_seed(args: argparse.Namespace) -> int:
     return 0
 
 
+def _db_check(args: argparse.Namespace) -> int:
+    """Report stored part_ids that break the id rule (no request can reach them); ``--fix`` renames them."""
+    from calcsvc.data.database import Database
+    from calcsvc.data.part_ids import RULE, suggest
+    from calcsvc.data.store import PartStore, StoreError
+
+    url, _ = _app_database()
+    database = Database(url)
+    with database.transaction() as session:
+        store = PartStore(session)
+        bad = store.malformed_ids()
+        if not bad:
+            print("every stored part_id follows the rule")
+            return 0
+        print(f"{len(bad)} stored part_id(s) break the rule ({RULE}); requests cannot reach them:")
+        left = 0
+        for part_id in bad:
+            new = suggest(part_id)
+            if not args.fix:
+                hint = f"rename to '{new}' with: calcsvc db check --fix" if new else "no valid id can be derived"
+                print(f"  {part_id!r}: {hint}")
+                left += 1
+                continue
+            try:
+                if new is None:
+                    raise StoreError("no valid id can be derived")
+                store.rename(part_id, new, "calcsvc db check --fix")
+                print(f"  {part_id!r}: renamed to '{new}' (its revisions and history follow; the rename is recorded)")
+            except StoreError as exc:
+                print(f"  {part_id!r}: not renamed: {exc}")
+                left += 1
+    database.dispose()
+    if left:
+        print(f"{left} part_id(s) left to fix", file=sys.stderr)
+    return 1 if left else 0
+
+
 def _has_parts(session: object) -> bool:
     from sqlalchemy import select
     from sqlalchemy.orm import Session
@@ -169,6 +206,15 @@ def _changes(before: dict[str, Any] | None, after: dict[str, Any]) -> str:
     return "; ".join(changed) or "no change"
 
 
+def _lifecycle(revision: dict[str, Any]) -> list[str]:
+    """Retirements, restores and renames of a revision (creation, edits and approval have their own columns)."""
+    return [
+        f"{e['action']} by {e['actor']}" + (f": {e['reason']}" if e["reason"] else "")
+        for e in revision["events"]
+        if e["action"] not in ("created", "edited", "approved")
+    ]
+
+
 def _parts_show(args: argparse.Namespace) -> int:
     with _client(args) as client:
         part, etag = client.get_part(args.part_id)
@@ -197,7 +243,13 @@ def _parts_show(args: argparse.Namespace) -> int:
     print("\nparameters (SI):")
     print(_indent(_table(["NAME", "VALUE", "UNIT"], parameters)))
     revisions = [
-        [str(r["revision"]), str(r["created_at"]), r["author"], r["approved_by"] or "-", _changes(before, r)]
+        [
+            str(r["revision"]),
+            str(r["created_at"]),
+            r["author"],
+            r["approved_by"] or "-",
+            "; ".join([_changes(before, r), *_lifecycle(r)]),
+        ]
         for before, r in zip([None, *history], history, strict=False)
     ]
     print("\nrevisions:")
@@ -353,6 +405,14 @@ def build_parser() -> argparse.ArgumentParser:
     seed = db.add_parser("seed", help="add the seed parts not yet in the table (never overwrites)")
     seed.add_argument("--if-empty", action="store_true", help="only seed a table that holds no parts")
     seed.set_defaults(run=_db_seed)
+    check = db.add_parser(
+        "check",
+        help="find stored part_ids that break the id rule (exit 1 when any)",
+        description="Lists each stored part_id that no request can reach (a trailing newline or space, capitals, "
+        "other characters) with the valid id it would get. --fix renames them in one transaction.",
+    )
+    check.add_argument("--fix", action="store_true", help="rename each to the suggested id when that id is free")
+    check.set_defaults(run=_db_check)
 
     token = commands.add_parser("token", help="API tokens").add_subparsers(dest="token", required=True)
     create = token.add_parser("create", help="make a token; prints it once")

@@ -10,7 +10,8 @@ repeating it cannot change the outcome:
 - GET reads nothing but state;
 - PUT carries If-Match, so a repeat of an edit that did land is refused with 412 instead of applied twice
   (a 412 after a retried :meth:`Client.update_part` may therefore mean the first attempt succeeded: re-read);
-- DELETE retires, and retiring a retired part changes nothing;
+- DELETE retires the revision its If-Match names, and retiring a retired part changes nothing;
+- restoring carries If-Match, so a repeat of a restore that did land is refused with 412, as for PUT;
 - the calculation, batch and review POSTs are pure functions of their body and the part revisions they
   reference: they write nothing, so a repeat gives the same answer.
 
@@ -254,15 +255,23 @@ class Client:
             body["description"] = description
         return self._part("PUT", _part_path(part_id), idempotent=True, json=body, headers={"If-Match": etag})
 
-    def approve_part(self, part_id: str, revision: int | None = None) -> tuple[Part, str]:
-        """Approve ``revision`` (reviewer token, not its author). Pass the revision you reviewed: without it the
-        server approves whatever is current at that moment. Never retried."""
-        body = None if revision is None else {"revision": revision}
-        return self._part("POST", f"{_part_path(part_id)}/approve", idempotent=False, json=body)
+    def approve_part(self, part_id: str, etag: str) -> tuple[Part, str]:
+        """Approve the revision ``etag`` names, the one you reviewed (reviewer token, not its author); 412 when
+        the part has changed since. Never retried."""
+        return self._part("POST", f"{_part_path(part_id)}/approve", idempotent=False, headers={"If-Match": etag})
 
-    def retire_part(self, part_id: str) -> tuple[Part, str]:
-        """Withdraw a part from new designs (editor token); its revisions stay readable and pinnable."""
-        return self._part("DELETE", _part_path(part_id), idempotent=True)
+    def retire_part(self, part_id: str, etag: str, reason: str | None = None) -> tuple[Part, str]:
+        """Withdraw the part at the revision ``etag`` names from new designs (editor token), recording
+        ``reason`` in its history; its revisions stay readable and pinnable. 412 when it changed since."""
+        body = None if reason is None else {"reason": reason}
+        return self._part("DELETE", _part_path(part_id), idempotent=True, json=body, headers={"If-Match": etag})
+
+    def restore_part(self, part_id: str, etag: str, reason: str | None = None) -> tuple[Part, str]:
+        """Bring a retired part (at the revision ``etag`` names) back as a new draft revision (editor token);
+        a reviewer approves it as any other. Returns the draft and its ETag."""
+        body = None if reason is None else {"reason": reason}
+        path = f"{_part_path(part_id)}/restore"
+        return self._part("POST", path, idempotent=True, json=body, headers={"If-Match": etag})
 
     def revisions(self, part_id: str) -> list[dict[str, Any]]:
         """Every revision of the part, oldest first, with parameters, author and approval."""

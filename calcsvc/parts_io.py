@@ -277,7 +277,7 @@ def plan_import(rows: list[PartRow], stored: dict[str, Part]) -> tuple[list[Part
             errors.append(RowError(row.where, "kind", message))
         elif differs(row, current):
             if current["status"] == "retired":
-                message = "the stored part is retired; an import does not revive it (edit it through the API)"
+                message = "the stored part is retired; an import does not revive it (restore it through the API)"
                 errors.append(RowError(row.where, "part_id", message))
             else:
                 writes.append(row)

@@ -60,8 +60,9 @@ def test_every_write_without_a_token_is_challenged(client: FlaskClient, part: An
     etag = {"If-Match": part.headers["ETag"]}
     assert_challenged(client.post("/v1/parts", json={**LED, "part_id": "led-other"}))
     assert_challenged(client.put(url, json=writer_edit(1), headers=etag))
-    assert_challenged(client.post(f"{url}/approve", json={"revision": 1}))
-    assert_challenged(client.delete(url))
+    assert_challenged(client.post(f"{url}/approve", headers=etag))
+    assert_challenged(client.delete(url, headers=etag))
+    assert_challenged(client.post(f"{url}/restore", headers=etag))
     assert_challenged(client.put(url, json=writer_edit(1), headers={**etag, **bearer("cs_not-a-token")}))
     stored = client.get(url).get_json()
     assert (stored["revision"], stored["status"]) == (1, "draft")
@@ -72,15 +73,18 @@ def test_approval_needs_a_reviewer_who_did_not_write_the_revision(
     client: FlaskClient, tokens: dict[str, str], part: Any
 ) -> None:
     url = f"/v1/parts/{LED['part_id']}"
-    body = assert_problem(client.post(f"{url}/approve", json={"revision": 1}, headers=bearer(tokens["edna"])), 403)
+    body = assert_problem(
+        client.post(f"{url}/approve", headers={**bearer(tokens["edna"]), "If-Match": part.headers["ETag"]}), 403
+    )
     assert "reviewer" in body["detail"]
     # ravi, a reviewer, edits: revision 2 is his, so he may not approve it, while rita may.
     edited = client.put(url, json=writer_edit(1), headers={**bearer(tokens["ravi"]), "If-Match": part.headers["ETag"]})
     assert edited.status_code == 200
-    refused = client.post(f"{url}/approve", json={"revision": 2}, headers=bearer(tokens["ravi"]))
+    revision_2 = {"If-Match": edited.headers["ETag"]}
+    refused = client.post(f"{url}/approve", headers={**bearer(tokens["ravi"]), **revision_2})
     assert_problem(refused, 403, "revision")
     assert client.get(url).get_json()["status"] == "draft"
-    approved = client.post(f"{url}/approve", json={"revision": 2}, headers=bearer(tokens["rita"]))
+    approved = client.post(f"{url}/approve", headers={**bearer(tokens["rita"]), **revision_2})
     assert approved.status_code == 200
     assert (approved.get_json()["status"], approved.get_json()["approved_by"]) == ("approved", "rita")
 
@@ -168,7 +172,8 @@ def test_cli_tokens_work_against_the_service_until_revoked(client: FlaskClient, 
     assert token.startswith("cs_") and "\n" not in token
     created = client.post("/v1/parts", json=LED, headers=bearer(token))
     assert created.status_code == 201 and created.get_json()["updated_by"] == "cli-edna"
-    assert_problem(client.post(f"/v1/parts/{LED['part_id']}/approve", headers=bearer(token)), 403)
+    revision_1 = {"If-Match": created.headers["ETag"]}
+    assert_problem(client.post(f"/v1/parts/{LED['part_id']}/approve", headers={**bearer(token), **revision_1}), 403)
 
     revoked = calcsvc_cli(database_url, "token", "revoke", "cli-edna")
     assert revoked.returncode == 0, revoked.stderr

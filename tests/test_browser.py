@@ -121,13 +121,29 @@ def test_review_a_revision_and_approve_it(tab: Any, served: tuple[str, dict[str,
     assert tab.locator("#part-status").inner_text() == "draft"
     shot(tab, tmp_path, "3-part-refused")
 
+    # The editor changes it again while the reviewer still has revision 2 on screen: approving what she read
+    # is refused, and revision 3, which she has not seen, is not approved either.
+    edited = requests.put(
+        f"{base}/v1/parts/{OPAMP_ID}",
+        json={"parameters": {**current, "gbw_hz": "1.3 MHz"}},
+        headers={**bearer(tokens["edna"]), "If-Match": edited.headers["ETag"]},
+        timeout=5,
+    )
+    assert edited.status_code == 200, edited.text
     tab.get_by_label("Reviewer token").fill(tokens["rita"])
     tab.get_by_role("button", name="Approve revision 2").click()
-    tab.wait_for_url(f"**/review/parts/{OPAMP_ID}?approved=2")
+    assert "someone changed the part since you loaded the page" in tab.get_by_role("alert").inner_text()
+    assert tab.locator("#part-status").inner_text() == "draft"
+    shot(tab, tmp_path, "4-part-changed-meanwhile")
+
+    tab.get_by_label("Reviewer token").fill(tokens["rita"])
+    tab.get_by_role("button", name="Approve revision 3").click()
+    tab.wait_for_url(f"**/review/parts/{OPAMP_ID}?approved=3")
     assert tab.locator("#part-status").inner_text() == "approved"
-    assert tab.get_by_role("status").inner_text() == "Revision 2 approved."
-    assert "approved by rita" in tab.locator("#revision-2").inner_text()
-    shot(tab, tmp_path, "4-part-approved")
+    assert tab.get_by_role("status").inner_text() == "Revision 3 approved."
+    assert "approved by rita" in tab.locator("#revision-3").inner_text()
+    assert "not approved" in tab.locator("#revision-2").inner_text()
+    shot(tab, tmp_path, "5-part-approved")
     assert requests.get(f"{base}/v1/parts/{OPAMP_ID}", timeout=5).json()["approved_by"] == "rita"
 
 

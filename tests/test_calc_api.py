@@ -189,11 +189,13 @@ def test_part_review_status_rules(client: FlaskClient, seeded: Any, tokens: dict
     part = client.get("/v1/parts/led-red-5mm")
     changed = {"parameters": {**part.get_json()["parameters"], "vf_typ_v": 2.1}}
     headers = {**bearer(tokens["edna"]), "If-Match": part.headers["ETag"]}
-    assert client.put("/v1/parts/led-red-5mm", json=changed, headers=headers).status_code == 200
+    edited = client.put("/v1/parts/led-red-5mm", json=changed, headers=headers)
+    assert edited.status_code == 200
     draft = post(client, "led-string", {**STRING_ONLY, "led": "led-red-5mm"})
     assert any("draft" in w for w in draft["warnings"])
     assert draft["parts"][0] == {"role": "led", "part_id": "led-red-5mm", "revision": 2, "status": "draft"}
-    client.delete("/v1/parts/led-red-5mm", headers=bearer(tokens["edna"]))
+    retire = {**bearer(tokens["edna"]), "If-Match": edited.headers["ETag"]}
+    assert client.delete("/v1/parts/led-red-5mm", headers=retire).status_code == 200
     assert_problem(client.post("/v1/calc/led-string", json={**STRING_ONLY, "led": "led-red-5mm"}), 422, "led")
     pinned = post(client, "led-string", {**STRING_ONLY, "led": "led-red-5mm", "led_revision": 1})
     assert pinned["inputs"]["vf_typ_v"] == 2.0 and pinned["parts"][0]["revision"] == 1

@@ -29,6 +29,7 @@ def table(url: str) -> dict[str, tuple[str, str, dict[str, Any]]]:
 
 def empty_parts_table(app: Flask) -> None:
     with app.extensions["calcsvc.db"].transaction() as session:
+        session.execute(text("DELETE FROM part_events"))
         session.execute(text("DELETE FROM part_revisions"))
         session.execute(text("DELETE FROM parts"))
 
@@ -144,7 +145,7 @@ def test_import_revises_changed_parts_only_and_refuses_conflicts(
         red, _ = client.get_part("led-red-5mm")
         revisions = {p["part_id"]: p["revision"] for p in client.list_parts(kind="led")}
         client.session.headers["Authorization"] = f"Bearer {tokens['edna']}"
-        client.retire_part("led-blue-5mm")
+        client.retire_part("led-blue-5mm", client.get_part("led-blue-5mm")[1], reason="no longer stocked")
     assert (red["revision"], red["status"], red["parameters"]["if_max_a"]) == (2, "draft", 0.025)
     assert sorted(revisions.values()) == [1, 1, 1, 1, 1, 2]
 
@@ -203,10 +204,17 @@ def test_parts_list_and_show(seeded: Flask, live_url: str, tokens: dict[str, str
     out = capsys.readouterr().out
     assert re.search(r"if_max_a +0.025 +A\n", out)
     assert "if_max_a 0.03 -> 0.025" in out  # the history says what each revision changed
+    with Client(live_url, tokens["edna"]) as edna:
+        edna.retire_part("led-red-5mm", edna.get_part("led-red-5mm")[1], reason="dimmer than its replacement")
+    assert main(["parts", "show", "led-red-5mm", "--url", live_url]) == 0
+    assert re.search(
+        r"\n +2 .* edna +- +if_max_a .*; retired by edna: dimmer than its replacement\n", out := capsys.readouterr().out
+    ), out
 
     assert main(["parts", "show", "led-red-5mm", "--json", "--url", live_url]) == 0
     shown = json.loads(capsys.readouterr().out)
     assert (shown["etag"], [r["revision"] for r in shown["revisions"]]) == ('"led-red-5mm-r2"', [1, 2])
+    assert shown["part"]["status"] == "retired"
 
     assert main(["parts", "show", "no-such-part", "--url", live_url]) == 2
     assert "404" in capsys.readouterr().err

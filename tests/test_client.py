@@ -116,7 +116,10 @@ def test_parts_round_trip(live_url: str, tokens: dict[str, str]) -> None:
         assert (updated["revision"], updated["parameters"]["if_max_a"]) == (2, 0.025)
         assert updated["description"] == "Amber indicator LED, 3 mm"  # None keeps it
         assert new_etag != read_etag
-        approved, _ = rita.approve_part("led-amber-3mm", revision=2)
+        with pytest.raises(CalcsvcError) as stale:
+            rita.approve_part("led-amber-3mm", read_etag)  # revision 1 is not what would be approved
+        assert stale.value.status == 412
+        approved, approved_etag = rita.approve_part("led-amber-3mm", new_etag)
         assert (approved["status"], approved["approved_by"]) == ("approved", "rita")
         history = edna.revisions("led-amber-3mm")
         assert [(r["revision"], r["author"], r["approved_by"]) for r in history] == [
@@ -124,15 +127,22 @@ def test_parts_round_trip(live_url: str, tokens: dict[str, str]) -> None:
             (2, "edna", "rita"),
         ]
         assert [r["parameters"]["if_max_a"] for r in history] == [0.03, 0.025]
-        retired, _ = edna.retire_part("led-amber-3mm")
+        retired, retired_etag = edna.retire_part("led-amber-3mm", approved_etag, reason="replaced")
         assert retired["status"] == "retired"
+        assert [(e["action"], e["reason"]) for e in edna.revisions("led-amber-3mm")[-1]["events"]][-1] == (
+            "retired",
+            "replaced",
+        )
+        restored, restored_etag = edna.restore_part("led-amber-3mm", retired_etag, reason="back in stock")
+        assert (restored["revision"], restored["status"], restored_etag) == (3, "draft", '"led-amber-3mm-r3"')
+        assert rita.approve_part("led-amber-3mm", restored_etag)[0]["status"] == "approved"
 
 
 def test_reviewer_cannot_approve_own_revision(live_url: str, tokens: dict[str, str]) -> None:
     with Client(live_url, tokens["rita"]) as rita:
-        rita.create_part("led-amber-3mm", "led", LED)
+        _, etag = rita.create_part("led-amber-3mm", "led", LED)
         with pytest.raises(CalcsvcError) as caught:
-            rita.approve_part("led-amber-3mm", revision=1)
+            rita.approve_part("led-amber-3mm", etag)
     assert caught.value.status == 403
     assert "revision" in caught.value.errors
 
@@ -269,7 +279,8 @@ def flaky(failures: int, status: int = 503) -> Callable[[str, str], Answer]:
 IDEMPOTENT_CALLS: dict[str, Callable[[Client], Any]] = {
     "get": lambda c: c.get_part("stub"),
     "put": lambda c: c.update_part("stub", {"vf_typ_v": 2.0}, '"stub-r1"'),
-    "delete": lambda c: c.retire_part("stub"),
+    "delete": lambda c: c.retire_part("stub", '"stub-r1"'),
+    "restore": lambda c: c.restore_part("stub", '"stub-r1"'),
     "calculation": lambda c: c.led_string(supply_v=12),
     "batch": lambda c: c.batch("led-string", [{"supply_v": 12}]),
 }
@@ -294,7 +305,7 @@ def test_a_retried_put_keeps_its_if_match(sleeps: list[float]) -> None:
 
 NEVER_RETRIED: dict[str, Callable[[Client], Any]] = {
     "create": lambda c: c.create_part("stub", "led", LED),
-    "approve": lambda c: c.approve_part("stub", revision=1),
+    "approve": lambda c: c.approve_part("stub", '"stub-r1"'),
 }
 
 

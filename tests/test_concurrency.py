@@ -1,5 +1,6 @@
 """Concurrent writers over real HTTP: of editors holding the same ETag exactly one wins, whole, and an
-approval racing an edit never lands on a revision it was not aimed at. Runs on every configured store."""
+approval or a retirement racing an edit never lands on a revision it was not aimed at. Runs on every
+configured store."""
 
 from __future__ import annotations
 
@@ -153,8 +154,7 @@ def test_approval_racing_an_edit_never_lands_on_another_revision(
                 partial(
                     requests.post,
                     f"{url}/approve",
-                    json={"revision": aimed},
-                    headers=bearer(tokens["rita"]),
+                    headers={**bearer(tokens["rita"]), "If-Match": response.headers["ETag"]},
                     timeout=TIMEOUT_S,
                 ),
                 partial(
@@ -180,8 +180,57 @@ def test_approval_racing_an_edit_never_lands_on_another_revision(
             assert history[aimed - 1]["approved_by"] == "rita"
         else:
             outcomes["edited, approval refused"] += 1
-            assert_problem(as_flask(approve), 412, "revision")
+            assert_problem(as_flask(approve), 412, "If-Match")
             assert history[aimed - 1]["approved_by"] is None
     assert outcomes.total() == RACES
     print(f"approve/edit race outcomes: {dict(outcomes)}")
+    assert_store_consistent(app)
+
+
+def test_a_retirement_racing_an_edit_never_retires_a_revision_it_was_not_aimed_at(
+    app: Flask, client: FlaskClient, tokens: dict[str, str], base_url: str
+) -> None:
+    outcomes: Counter[str] = Counter()
+    for race in range(RACES // 2):
+        part_id = f"led-retire-race-{race}"
+        created = client.post("/v1/parts", json={**LED, "part_id": part_id}, headers=bearer(tokens["edna"]))
+        aimed = {"If-Match": created.headers["ETag"]}
+        url = f"{base_url}/v1/parts/{part_id}"
+        retire, edit = run_together(
+            [
+                partial(
+                    requests.delete,
+                    url,
+                    json={"reason": "race"},
+                    headers={**bearer(tokens["edna"]), **aimed},
+                    timeout=TIMEOUT_S,
+                ),
+                partial(
+                    requests.put,
+                    url,
+                    json=writer_edit(race),
+                    headers={**bearer(tokens["ravi"]), **aimed},
+                    timeout=TIMEOUT_S,
+                ),
+            ]
+        )
+        assert not server_errors([retire, edit])
+        current = client.get(f"/v1/parts/{part_id}").get_json()
+        events = [
+            (r["revision"], e["action"])
+            for r in client.get(f"/v1/parts/{part_id}/revisions").get_json()["revisions"]
+            for e in r["events"]
+        ]
+        if retire.status_code == 200:  # retired first: the edit of a retired part is refused
+            outcomes["retired, edit refused"] += 1
+            assert_problem(as_flask(edit), 409)
+            assert (current["revision"], current["status"]) == (1, "retired")
+            assert events == [(1, "created"), (1, "retired")]
+        else:  # edited first: the retirement named revision 1, which is no longer current
+            outcomes["edited, retirement refused"] += 1
+            assert edit.status_code == 200, edit.text
+            assert_problem(as_flask(retire), 412, "If-Match")
+            assert (current["revision"], current["status"]) == (2, "draft")
+            assert events == [(1, "created"), (2, "edited")]
+    print(f"retire/edit race outcomes: {dict(outcomes)}")
     assert_store_consistent(app)

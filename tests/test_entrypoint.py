@@ -155,10 +155,14 @@ def test_entrypoint_migrates_seeds_an_empty_database_once_and_serves(tmp_path: P
             timeout=5,
         )
         assert created.status_code == 201, created.text
-        assert requests.delete(f"{server.url}/v1/parts/{retired_id}", headers=bearer(token), timeout=5).ok
+        etag = requests.get(f"{server.url}/v1/parts/{retired_id}", timeout=5).headers["ETag"]
+        retired = requests.delete(
+            f"{server.url}/v1/parts/{retired_id}", headers={**bearer(token), "If-Match": etag}, timeout=5
+        )
+        assert retired.ok, retired.text
 
         # Both workers write samples; whichever answers the scrape reports the server's totals.
-        for _ in range(12):
+        for _ in range(11):
             assert requests.get(f"{server.url}/v1/parts/{retired_id}", timeout=5).status_code == 200
         for _ in range(3):
             scraped = requests.get(f"{server.url}/metrics", timeout=5).text

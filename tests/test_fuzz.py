@@ -23,9 +23,9 @@ from hypothesis import strategies as st
 from sqlalchemy import text
 
 from calcsvc import create_app
+from calcsvc.data.part_ids import PATTERN
 from calcsvc.data.seed import load_seed
 from calcsvc.data.tokens import create_token
-from calcsvc.web.parts_api import PART_ID
 
 REPO = Path(__file__).resolve().parent.parent
 SPEC = REPO / "openapi" / "openapi.json"
@@ -101,7 +101,7 @@ def fuzz_target(database_url: str, request: pytest.FixtureRequest) -> Iterator[d
     app = create_app({"DATABASE_URL": database_url, "SEED_DIR": str(SEED_DIR)})
     database = app.extensions["calcsvc.db"]
     with database.transaction() as session:
-        for table in ("part_revisions", "parts", "api_tokens"):
+        for table in ("part_events", "part_revisions", "parts", "api_tokens"):
             session.execute(text(f"DELETE FROM {table}"))
         load_seed(session, SEED_DIR)
         tokens = {role: create_token(session, name, role) for name, role in (("edna", "editor"), ("rita", "reviewer"))}
@@ -109,7 +109,15 @@ def fuzz_target(database_url: str, request: pytest.FixtureRequest) -> Iterator[d
         request.config.pluginmanager.register(SUMMARY, "calcsvc-fuzz-summary")
     backend = database_url.split(":", 1)[0].split("+", 1)[0]
     parameters = {part_id: part["parameters"] for part_id, part in SEED_PARTS.items()}
-    yield {"app": app, "tokens": tokens, "backend": backend, "parameters": parameters, "created": [], "drafts": []}
+    yield {
+        "app": app,
+        "tokens": tokens,
+        "backend": backend,
+        "parameters": parameters,
+        "created": [],
+        "drafts": [],
+        "retired": [],
+    }
     database.dispose()
 
 
@@ -117,37 +125,44 @@ MOSTLY = st.sampled_from([True, True, True, False])
 
 
 def _steer(case: Any, data: st.DataObject, target: dict[str, Any]) -> None:
-    """On most schema-valid cases, name a real part (a draft to approve, one of this run's own to retire), send
-    its current ETag and a well-formed body, so that writes succeed and their answers are checked too."""
+    """On most schema-valid cases, name a real part (a draft to approve, one of this run's own to retire, a retired
+    one to restore), send its current ETag and a well-formed body, so that writes succeed and their answers are
+    checked too."""
     known = target["parameters"]
-    if "part_id" in (case.path_parameters or {}) and data.draw(MOSTLY):
-        pool = {"DELETE": target["created"], "POST": target["drafts"]}.get(case.method) or sorted(known)
-        case.path_parameters["part_id"] = data.draw(st.sampled_from(pool))
+    # Every draw happens whatever the pools hold: a draw that depends on state left by earlier cases makes
+    # hypothesis see a different data shape when it replays an example.
+    name_part, send_etag, send_body, pick = data.draw(st.tuples(MOSTLY, MOSTLY, MOSTLY, st.integers(0, 2**16)))
+    if "part_id" in (case.path_parameters or {}) and name_part:
+        pools = {"DELETE": target["created"], "POST": target["drafts"]}
+        pool = (target["retired"] if case.path.endswith("/restore") else pools.get(case.method)) or sorted(known)
+        case.path_parameters["part_id"] = pool[pick % len(pool)]
     part_id = (case.path_parameters or {}).get("part_id")
-    if case.method in ("PUT", "POST") and part_id and data.draw(MOSTLY):
+    if case.method in ("PUT", "POST", "DELETE") and part_id and send_etag:
         current = target["app"].test_client().get(f"/v1/parts/{part_id}")
         if current.status_code == 200:
             case.headers = {**(case.headers or {}), "If-Match": current.headers["ETag"]}
-    if case.method == "PUT" and part_id in known and data.draw(MOSTLY):
+    if case.method == "PUT" and part_id in known and send_body:
         case.body = {"parameters": known[part_id]}
     if case.method == "POST" and case.path == "/v1/parts" and data.draw(MOSTLY):
         template = SEED_PARTS[data.draw(st.sampled_from(sorted(SEED_PARTS)))]
-        new_id = data.draw(st.from_regex(PART_ID, fullmatch=True))
+        new_id = data.draw(st.from_regex(PATTERN.removeprefix("^").removesuffix("$"), fullmatch=True))
         case.body = {"part_id": new_id, "kind": template["kind"], "parameters": template["parameters"]}
 
 
 def _remember(case: Any, response: Any, target: dict[str, Any]) -> None:
-    """Parts this run created (to retire) and revisions waiting for review (to approve)."""
+    """Parts this run created (to retire), revisions waiting for review (to approve) and retired parts (to
+    restore)."""
     if response is None or response.status_code not in (200, 201) or case.method == "GET":
         return
     part = response.json()
     if response.status_code == 201:
         target["created"].append(part["part_id"])
         target["parameters"][part["part_id"]] = part["parameters"]
-    if part.get("status") == "draft":
-        target["drafts"].append(part["part_id"])
-    elif part["part_id"] in target["drafts"]:
-        target["drafts"].remove(part["part_id"])
+    for status, pool in (("draft", target["drafts"]), ("retired", target["retired"])):
+        if part.get("status") == status and part["part_id"] not in pool:
+            pool.append(part["part_id"])
+        elif part.get("status") != status and part["part_id"] in pool:
+            pool.remove(part["part_id"])
 
 
 def _boundary_case_off_the_store(case: Any) -> bool:

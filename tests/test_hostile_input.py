@@ -110,8 +110,8 @@ def body_template(operation: str) -> Any:
         return {"part_id": "hostile-part", "kind": "bjt", "parameters": {"hfe_min": "@"}}
     if operation == "PUT /v1/parts/{part_id}":
         return {"parameters": {"hfe_min": "@"}}
-    if operation.endswith("/approve"):
-        return {"revision": "@"}
+    if operation.startswith("DELETE /v1/parts") or operation.endswith("/restore"):
+        return {"reason": "@"}
     name = numeric_property(OPERATIONS[operation]) or "zzz_unknown"
     return [{name: "@"}] if is_batch(operation) else {name: "@"}
 
@@ -280,6 +280,7 @@ ODD_IDS = {
 
 def parts_cases() -> list[Case]:
     post, put, approve = "POST /v1/parts", "PUT /v1/parts/{part_id}", "POST /v1/parts/{part_id}/approve"
+    retire, restore = "DELETE /v1/parts/{part_id}", "POST /v1/parts/{part_id}/restore"
     cases = [
         Case(post, "no token", (401,), as_json(NEW)),
         Case(post, "a negative gain", (422,), as_json({**NEW, "parameters": {**BJT, "hfe_min": -5}}),
@@ -312,13 +313,28 @@ def parts_cases() -> list[Case]:
         Case(put, "no token", (401,), as_json({"parameters": BJT}), if_match="current"),
         Case(put, "an unknown part", (404,), as_json({"parameters": BJT}), part_id="no-such-part", role="editor",
              if_match='"no-such-part-r1"'),
-        Case("DELETE /v1/parts/{part_id}", "no token", (401,)),
-        Case("DELETE /v1/parts/{part_id}", "an unknown part", (404,), part_id="no-such-part", role="editor"),
-        Case(approve, "an editor's token", (403,), b"{}", role="editor"),
-        Case(approve, "revision 0", (422,), as_json({"revision": 0}), field="revision", role="reviewer"),
-        Case(approve, "revision 10**12", (422,), as_json({"revision": 10**12}), field="revision", role="reviewer"),
-        Case(approve, "an unknown part", (404,), b"{}", part_id="no-such-part", role="reviewer"),
-        Case(approve, "a revision that is not current", (412,), as_json({"revision": 2}), role="reviewer"),
+        Case(retire, "no token", (401,), if_match="current"),
+        Case(retire, "no If-Match", (428,), field="If-Match", role="editor"),
+        Case(retire, "a stale If-Match", (412,), field="If-Match", role="editor", if_match=f'"{PART}-r9"'),
+        Case(retire, "an If-Match of another part", (412,), role="editor", if_match='"led-red-5mm-r1"'),
+        Case(retire, "a reason of 501 characters", (422,), as_json({"reason": "x" * 501}), field="reason",
+             role="editor", if_match="current"),
+        Case(retire, "a NUL in the reason", (422,), as_json({"reason": "a\x00b"}), field="reason", role="editor",
+             if_match="current"),
+        Case(retire, "an unknown part", (404,), part_id="no-such-part", role="editor", if_match='"no-such-part-r1"'),
+        Case(restore, "no If-Match", (428,), field="If-Match", role="editor"),
+        Case(restore, "a part that is not retired", (409,), role="editor", if_match="current"),
+        Case(restore, "a stale If-Match", (412,), role="editor", if_match=f'"{PART}-r9"'),
+        Case(restore, "an unknown part", (404,), part_id="no-such-part", role="editor", if_match='"no-such-part-r1"'),
+        Case(approve, "an editor's token", (403,), role="editor", if_match="current"),
+        Case(approve, "no If-Match", (428,), field="If-Match", role="reviewer"),
+        Case(approve, "a revision in the body, no If-Match", (428,), as_json({"revision": 1}), role="reviewer"),
+        Case(approve, "a revision that is not current", (412,), field="If-Match", role="reviewer",
+             if_match=f'"{PART}-r2"'),
+        Case(approve, "an If-Match of 10**12", (412,), role="reviewer", if_match=f'"{PART}-r1000000000000"'),
+        Case(approve, "a weak If-Match with junk after it", (412,), role="reviewer", if_match=f'W/"{PART}-r1"x'),
+        Case(approve, "an unknown part", (404,), part_id="no-such-part", role="reviewer",
+             if_match='"no-such-part-r1"'),
     ]  # fmt: skip
     for query, field in [("limit=0", "limit"), ("limit=-1", "limit"), ("limit=1e400", "limit"),
                          ("offset=-1", "offset"), ("limit=" + "9" * 5000, "limit"), ("kind=flux", "kind"),
@@ -497,7 +513,7 @@ def target(database_url: str) -> Iterator[dict[str, Any]]:
     app = create_app({"DATABASE_URL": database_url, "SEED_DIR": str(SEED_DIR)})
     small = create_app({"DATABASE_URL": database_url, "MAX_CONTENT_LENGTH": SMALL_LIMIT})
     with app.extensions["calcsvc.db"].transaction() as session:
-        for table in ("part_revisions", "parts", "api_tokens"):
+        for table in ("part_events", "part_revisions", "parts", "api_tokens"):
             session.execute(text(f"DELETE FROM {table}"))
         load_seed(session, SEED_DIR)
         tokens = {role: create_token(session, name, role) for name, role in (("edna", "editor"), ("rita", "reviewer"))}

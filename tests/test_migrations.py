@@ -20,6 +20,8 @@ PARTS = {
     "led-amber-3mm": ("led", [{"color": "amber", "vf_typ_v": 2.1}, {"color": "amber", "vf_typ_v": 2.05}]),
     "npn-spare": ("bjt", [{"polarity": "npn", "hfe_min": 100}]),
 }
+STATUS = {"led-amber-3mm": "draft", "npn-spare": "retired"}  # retired by an old server: no history of it then
+APPROVED_BY = {("led-amber-3mm", 1): "rita", ("npn-spare", 1): "rita"}
 
 
 @pytest.fixture
@@ -53,17 +55,31 @@ def test_upgrade_from_the_first_migration_keeps_every_part(empty_url: str) -> No
             connection.execute(
                 text(
                     "INSERT INTO parts (part_id, kind, description, parameters, status, revision, updated_at,"
-                    " updated_by, approved_by) VALUES (:p, :k, '', :params, 'draft', :r, :t, 'edna', NULL)"
+                    " updated_by, approved_by) VALUES (:p, :k, '', :params, :s, :r, :t, 'edna', NULL)"
                 ),
-                {"p": part_id, "k": kind, "params": json.dumps(revisions[-1]), "r": len(revisions), "t": now},
+                {
+                    "p": part_id,
+                    "k": kind,
+                    "params": json.dumps(revisions[-1]),
+                    "s": STATUS[part_id],
+                    "r": len(revisions),
+                    "t": now,
+                },
             )
             for number, parameters in enumerate(revisions, start=1):
                 connection.execute(
                     text(
                         "INSERT INTO part_revisions (part_id, revision, kind, description, parameters, author,"
-                        " created_at) VALUES (:p, :n, :k, '', :params, 'edna', :t)"
+                        " created_at, approved_by, approved_at) VALUES (:p, :n, :k, '', :params, 'edna', :t, :a, :t)"
                     ),
-                    {"p": part_id, "n": number, "k": kind, "params": json.dumps(parameters), "t": now},
+                    {
+                        "p": part_id,
+                        "n": number,
+                        "k": kind,
+                        "params": json.dumps(parameters),
+                        "t": now,
+                        "a": APPROVED_BY.get((part_id, number)),
+                    },
                 )
     engine.dispose()
 
@@ -78,4 +94,22 @@ def test_upgrade_from_the_first_migration_keeps_every_part(empty_url: str) -> No
             history = store.revisions(part_id)
             assert [r.parameters for r in history] == revisions
             assert {r.author for r in history} == {"edna"}
+            assert part.status == STATUS[part_id]
+        # The history carries over as events: each revision's writing and approval, and the retirement.
+        events = {
+            part_id: [[(e.action, e.actor) for e in r.events] for r in store.revisions(part_id)] for part_id in PARTS
+        }
+        assert events == {
+            "led-amber-3mm": [[("created", "edna"), ("approved", "rita")], [("edited", "edna")]],
+            "npn-spare": [[("created", "edna"), ("approved", "rita"), ("retired", "edna")]],
+        }
+        # A retired part of the old server is restored as a new draft revision, as any other.
+        store.restore("npn-spare", 1, "edna", "back in stock")
+        assert (store.get("npn-spare").status, store.get("npn-spare").revision) == ("draft", 2)
+    database.dispose()
+
+    command.downgrade(config, first)  # the new table goes; every part and revision stays
+    database = Database(empty_url)
+    with database.transaction() as session:
+        assert session.scalar(text("SELECT count(*) FROM part_revisions")) == 4
     database.dispose()

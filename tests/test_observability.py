@@ -192,11 +192,14 @@ def test_parts_writes_are_counted_once_committed(client: FlaskClient, tokens: di
     path = f"/v1/parts/{NEW_PART['part_id']}"
     edit = {"parameters": dict(NEW_PART["parameters"], vf_typ_v=2.1)}
     headers = {**bearer(tokens["edna"]), "If-Match": created.headers["ETag"]}
-    assert client.put(path, json=edit, headers=headers).status_code == 200
-    assert client.post(f"{path}/approve", headers=bearer(tokens["rita"])).status_code == 200
-    assert client.delete(path, headers=bearer(tokens["edna"])).status_code == 200
+    edited = client.put(path, json=edit, headers=headers)
+    assert edited.status_code == 200
+    revision_2 = {"If-Match": edited.headers["ETag"]}
+    assert client.post(f"{path}/approve", headers={**bearer(tokens["rita"]), **revision_2}).status_code == 200
+    assert client.delete(path, headers={**bearer(tokens["edna"]), **revision_2}).status_code == 200
+    assert client.post(f"{path}/restore", headers={**bearer(tokens["edna"]), **revision_2}).status_code == 200
     after = scrape(client)
-    for action in ("create", "update", "approve", "retire"):
+    for action in ("create", "update", "approve", "retire", "restore"):
         assert delta(before, after, "calcsvc_parts_writes_total", action=action) == 1, action
 
 

@@ -105,36 +105,108 @@ def test_revisions_keep_every_edit(client: FlaskClient, tokens: dict[str, str]) 
     assert {r["author"] for r in history} == {"edna"}
 
 
+def approve(client: FlaskClient, token: str, etag: str | None, part_id: str = "led-amber-3mm") -> Any:
+    headers = bearer(token) | ({"If-Match": etag} if etag else {})
+    return client.post(f"/v1/parts/{part_id}/approve", headers=headers)
+
+
+def retire(client: FlaskClient, token: str, etag: str | None, reason: str | None = None) -> Any:
+    headers = bearer(token) | ({"If-Match": etag} if etag else {})
+    return client.delete(
+        "/v1/parts/led-amber-3mm", json=None if reason is None else {"reason": reason}, headers=headers
+    )
+
+
+def edit(client: FlaskClient, token: str, etag: str, if_max_a: float) -> Any:
+    body = {"parameters": {**LED["parameters"], "if_max_a": if_max_a}}
+    return client.put("/v1/parts/led-amber-3mm", json=body, headers={**bearer(token), "If-Match": etag})
+
+
 def test_review_workflow(client: FlaskClient, tokens: dict[str, str]) -> None:
-    create(client, tokens["rita"])  # a reviewer may also author
-    assert_problem(client.post("/v1/parts/led-amber-3mm/approve", headers=bearer(tokens["edna"])), 403)
-    assert_problem(client.post("/v1/parts/led-amber-3mm/approve", headers=bearer(tokens["rita"])), 403, "revision")
-    approved = client.post("/v1/parts/led-amber-3mm/approve", json={"revision": 1}, headers=bearer(tokens["ravi"]))
-    assert approved.status_code == 200
+    etag = create(client, tokens["rita"]).headers["ETag"]  # a reviewer may also author
+    assert_problem(approve(client, tokens["edna"], etag), 403)
+    assert_problem(approve(client, tokens["rita"], etag), 403, "revision")
+    approved = approve(client, tokens["ravi"], etag)
+    assert approved.status_code == 200 and approved.headers["ETag"] == etag
     assert (approved.get_json()["status"], approved.get_json()["approved_by"]) == ("approved", "ravi")
-    params = {**LED["parameters"], "if_max_a": 0.025}
-    edited = client.put(
-        "/v1/parts/led-amber-3mm",
-        json={"parameters": params},
-        headers={**bearer(tokens["edna"]), "If-Match": approved.headers["ETag"]},
-    )
+    edited = edit(client, tokens["edna"], approved.headers["ETag"], 0.025)
     assert (edited.get_json()["status"], edited.get_json()["approved_by"]) == ("draft", None)
-    stale_approval = client.post(
-        "/v1/parts/led-amber-3mm/approve", json={"revision": 1}, headers=bearer(tokens["ravi"])
-    )
-    assert_problem(stale_approval, 412)
+    assert_problem(approve(client, tokens["ravi"], etag), 412, "If-Match")
     history = client.get("/v1/parts/led-amber-3mm/revisions").get_json()["revisions"]
     assert history[0]["approved_by"] == "ravi" and history[1]["approved_by"] is None
+    assert [[(e["action"], e["actor"]) for e in r["events"]] for r in history] == [
+        [("created", "rita"), ("approved", "ravi")],
+        [("edited", "edna")],
+    ]
 
 
-def test_retire_keeps_history(client: FlaskClient, tokens: dict[str, str]) -> None:
-    create(client, tokens["edna"])
+def test_approval_names_the_revision_it_approves(client: FlaskClient, tokens: dict[str, str]) -> None:
+    etag = create(client, tokens["edna"]).headers["ETag"]
+    etag = edit(client, tokens["edna"], etag, 0.025).headers["ETag"]
+    read_by_reviewer = edit(client, tokens["edna"], etag, 0.028).headers["ETag"]  # revision 3, what rita reads
+    edit(client, tokens["edna"], read_by_reviewer, 0.05)  # revision 4, which rita has not seen
+    assert_problem(approve(client, tokens["rita"], None), 428, "If-Match")
+    assert_problem(approve(client, tokens["rita"], read_by_reviewer), 412, "If-Match")
+    for not_an_etag in ('"led-amber-3mm-r4" x', '"other-part-r4"', "*", '"led-amber-3mm-r99999999999"'):
+        assert_problem(approve(client, tokens["rita"], not_an_etag), 412)
+    stored = client.get("/v1/parts/led-amber-3mm")
+    assert (stored.get_json()["status"], stored.get_json()["revision"]) == ("draft", 4)
+    assert all(
+        r["approved_by"] is None for r in client.get("/v1/parts/led-amber-3mm/revisions").get_json()["revisions"]
+    )
+    assert approve(client, tokens["rita"], stored.headers["ETag"]).get_json()["approved_by"] == "rita"
+
+
+def test_retire_needs_if_match_is_in_the_history_and_is_undone_by_review(
+    client: FlaskClient, tokens: dict[str, str]
+) -> None:
+    etag = create(client, tokens["edna"]).headers["ETag"]
+    etag = approve(client, tokens["rita"], etag).headers["ETag"]
     assert_problem(client.delete("/v1/parts/led-amber-3mm"), 401)
-    retired = client.delete("/v1/parts/led-amber-3mm", headers=bearer(tokens["edna"]))
+    assert_problem(retire(client, tokens["edna"], None), 428, "If-Match")
+    assert_problem(retire(client, tokens["edna"], '"led-amber-3mm-r2"'), 412, "If-Match")
+    assert_problem(retire(client, tokens["edna"], etag, reason="x" * 501), 422, "reason")
+    assert client.get("/v1/parts/led-amber-3mm").get_json()["status"] == "approved"
+
+    retired = retire(client, tokens["edna"], etag, reason="replaced by a brighter amber")
     assert retired.status_code == 200 and retired.get_json()["status"] == "retired"
-    assert client.get("/v1/parts/led-amber-3mm").get_json()["status"] == "retired"
-    assert len(client.get("/v1/parts/led-amber-3mm/revisions").get_json()["revisions"]) == 1
-    assert_problem(client.post("/v1/parts/led-amber-3mm/approve", headers=bearer(tokens["rita"])), 409)
+    assert retire(client, tokens["edna"], etag).get_json()["status"] == "retired"  # a repeat changes nothing
+    (revision,) = client.get("/v1/parts/led-amber-3mm/revisions").get_json()["revisions"]
+    assert [(e["action"], e["actor"], e["reason"]) for e in revision["events"]] == [
+        ("created", "edna", None),
+        ("approved", "rita", None),
+        ("retired", "edna", "replaced by a brighter amber"),
+    ]
+    assert revision["approved_by"] == "rita"  # the approval of what was retired is kept
+    assert_problem(approve(client, tokens["rita"], etag), 409)
+    assert_problem(edit(client, tokens["edna"], etag, 0.025), 409)
+    calc = {"led": "led-amber-3mm", "supply_v": 12, "leds_in_series": 3, "current_a": 0.02}
+    assert_problem(client.post("/v1/calc/led-string", json=calc), 422, "led")
+
+    assert_problem(client.post("/v1/parts/led-amber-3mm/restore", headers=bearer(tokens["edna"])), 428)
+    assert_problem(client.post("/v1/parts/led-amber-3mm/restore", headers={"If-Match": etag}), 401)
+    restored = client.post(
+        "/v1/parts/led-amber-3mm/restore",
+        json={"reason": "still stocked"},
+        headers=bearer(tokens["edna"]) | {"If-Match": etag},
+    )
+    assert restored.status_code == 200 and restored.headers["ETag"] == '"led-amber-3mm-r2"'
+    assert (restored.get_json()["status"], restored.get_json()["parameters"]) == (
+        "draft",
+        retired.get_json()["parameters"],
+    )
+    assert_problem(
+        client.post("/v1/parts/led-amber-3mm/restore", headers=bearer(tokens["edna"]) | {"If-Match": etag}), 412
+    )
+    used = client.post("/v1/calc/led-string", json=calc).get_json()
+    assert used["warnings"] == ["led 'led-amber-3mm' revision 2 is draft, not approved"]
+    assert_problem(approve(client, tokens["edna"], restored.headers["ETag"]), 403)
+    assert approve(client, tokens["rita"], restored.headers["ETag"]).get_json()["status"] == "approved"
+    history = client.get("/v1/parts/led-amber-3mm/revisions").get_json()["revisions"]
+    assert [[(e["action"], e["reason"]) for e in r["events"]] for r in history] == [
+        [("created", None), ("approved", None), ("retired", "replaced by a brighter amber")],
+        [("restored", "still stocked"), ("approved", None)],
+    ]
 
 
 def test_writes_need_a_valid_token(client: FlaskClient, tokens: dict[str, str]) -> None:
@@ -151,12 +223,13 @@ def test_unknown_part_is_404_problem(client: FlaskClient) -> None:
 
 
 def test_a_second_approval_keeps_the_first(client: FlaskClient, tokens: dict[str, str]) -> None:
-    create(client, tokens["edna"])
-    client.post("/v1/parts/led-amber-3mm/approve", headers=bearer(tokens["rita"]))
-    again = client.post("/v1/parts/led-amber-3mm/approve", headers=bearer(tokens["ravi"]))
+    etag = create(client, tokens["edna"]).headers["ETag"]
+    approve(client, tokens["rita"], etag)
+    again = approve(client, tokens["ravi"], etag)
     assert again.status_code == 200 and again.get_json()["approved_by"] == "rita"
     history = client.get("/v1/parts/led-amber-3mm/revisions").get_json()["revisions"]
     assert history[0]["approved_by"] == "rita"
+    assert [e["action"] for e in history[0]["events"]] == ["created", "approved"]
 
 
 def test_text_is_kept_only_within_its_published_length(app: Flask, client: FlaskClient, tokens: dict[str, str]) -> None:

@@ -330,3 +330,31 @@ def test_channel_form_refuses_hostile_unit_strings_at_once(client: FlaskClient, 
     html, _ = page(client, "/review/channel?" + urlencode({**DEMO_CHANNEL, "current_a": hostile}), status=422)
     assert time.perf_counter() - started < 1.0  # generous: 900 digits once took 3.5 s, 100,000 did not finish
     assert "<code>current_a</code>" in html
+
+
+@pytest.mark.parametrize("revision", ["", "\u00b2", "\uff12", "99999999999", "2\n"])
+def test_a_form_that_names_no_revision_approves_nothing(
+    client: FlaskClient, seeded: Any, tokens: dict[str, str], revision: str
+) -> None:
+    edit(client, tokens["edna"], OPAMP_ID, OPAMP_PARAMETERS)
+    _, parsed = page(client, f"/review/parts/{OPAMP_ID}")
+    form = {**parsed.hidden, "token": tokens["rita"], "revision": revision}
+    refused = client.post(f"/review/parts/{OPAMP_ID}/approve", data=form)
+    assert refused.status_code == 400 and refused.mimetype == "text/html"
+    assert "did not say which revision" in refused.get_data(as_text=True)
+    assert status_of(client, OPAMP_ID) == "draft"
+
+
+def test_a_retirement_and_its_reason_are_in_the_page_history(
+    client: FlaskClient, seeded: Any, tokens: dict[str, str]
+) -> None:
+    etag = client.get(f"/v1/parts/{OPAMP_ID}").headers["ETag"]
+    headers = {**bearer(tokens["edna"]), "If-Match": etag}
+    assert (
+        client.delete(f"/v1/parts/{OPAMP_ID}", json={"reason": "no longer stocked"}, headers=headers).status_code == 200
+    )
+    html, parsed = page(client, f"/review/parts/{OPAMP_ID}")
+    assert parsed.text["part-status"] == "retired"
+    assert "Retired by edna on " in html and ": no longer stocked" in html
+    assert "may restore it as a new draft revision" in html
+    assert client.get("/review/parts/opamp-general-1mhz%0A").status_code == 404

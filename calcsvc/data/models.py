@@ -5,7 +5,7 @@ from __future__ import annotations
 from datetime import datetime
 from typing import Any
 
-from sqlalchemy import JSON, DateTime, ForeignKey, Integer, String, Text
+from sqlalchemy import JSON, DateTime, ForeignKey, Index, Integer, String, Text
 from sqlalchemy.orm import DeclarativeBase, Mapped, mapped_column
 
 
@@ -43,6 +43,22 @@ class PartRevision(Base):
     created_at: Mapped[datetime] = mapped_column(DateTime(timezone=True))
     approved_by: Mapped[str | None] = mapped_column(String(64), nullable=True)
     approved_at: Mapped[datetime | None] = mapped_column(DateTime(timezone=True), nullable=True)
+
+
+class PartEvent(Base):
+    """One thing done to a revision (created, edited, approved, retired, restored, renamed), by whom, when and
+    why. Rows are only ever added; the history of a part is its revisions with their events."""
+
+    __tablename__ = "part_events"
+    __table_args__ = (Index("ix_part_events_part_revision", "part_id", "revision"),)
+
+    id: Mapped[int] = mapped_column(Integer, primary_key=True)
+    part_id: Mapped[str] = mapped_column(ForeignKey("parts.part_id"))
+    revision: Mapped[int] = mapped_column(Integer)
+    action: Mapped[str] = mapped_column(String(16))
+    actor: Mapped[str] = mapped_column(String(64))
+    at: Mapped[datetime] = mapped_column(DateTime(timezone=True))
+    reason: Mapped[str | None] = mapped_column(Text, nullable=True)
 
 
 class ApiToken(Base):

@@ -1,5 +1,6 @@
 """The revisioned parts table: every edit adds a revision, approval stamps the revision it names,
-retiring hides a part from new designs. Nothing is ever deleted.
+retiring hides a part from new designs and restoring brings it back as a new draft revision. Every action is
+recorded as an event on the revision it concerns (who, when, why). Nothing is ever deleted.
 
 Concurrent writers are serialised by conditional UPDATEs (``WHERE revision = expected``), which both
 SQLite and PostgreSQL evaluate atomically, so of several editors holding the same ETag exactly one wins.
@@ -12,14 +13,16 @@ from dataclasses import dataclass
 from datetime import UTC, datetime
 from typing import Any
 
-from sqlalchemy import func, select, update
+from sqlalchemy import delete, func, select, update
 from sqlalchemy.exc import IntegrityError
 from sqlalchemy.orm import Session
 
 from calcsvc.data.kinds import validate_part
-from calcsvc.data.models import Part, PartRevision
+from calcsvc.data.models import Part, PartEvent, PartRevision
+from calcsvc.data.part_ids import RULE, is_part_id
 
 STATUSES = ("draft", "approved", "retired")
+ACTIONS = ("created", "edited", "approved", "retired", "restored", "renamed")  # what an event records
 
 
 class StoreError(Exception):
@@ -50,6 +53,14 @@ class PartRetired(StoreError):
     pass
 
 
+class PartNotRetired(StoreError):
+    pass
+
+
+class InvalidPartId(StoreError):
+    pass
+
+
 class InvalidPart(StoreError):
     def __init__(self, errors: dict[str, str]) -> None:
         super().__init__("the part is not valid", next(iter(errors), None))
@@ -76,8 +87,18 @@ class PartView:
 
 
 @dataclass(frozen=True)
+class EventView:
+    """One action on a revision: created, edited, approved, retired, restored or renamed."""
+
+    action: str
+    actor: str
+    at: datetime
+    reason: str | None
+
+
+@dataclass(frozen=True)
 class RevisionView:
-    """One stored revision, as the history lists it."""
+    """One stored revision, as the history lists it, with what was done to it in order."""
 
     part_id: str
     revision: int
@@ -88,6 +109,7 @@ class RevisionView:
     created_at: datetime
     approved_by: str | None
     approved_at: datetime | None
+    events: tuple[EventView, ...]
 
 
 def _now() -> datetime:
@@ -174,6 +196,11 @@ class PartStore:
         rows = self.session.scalars(
             select(PartRevision).where(PartRevision.part_id == part_id).order_by(PartRevision.revision)
         )
+        events: dict[int, list[EventView]] = {}
+        for event in self.session.scalars(
+            select(PartEvent).where(PartEvent.part_id == part_id).order_by(PartEvent.revision, PartEvent.id)
+        ):
+            events.setdefault(event.revision, []).append(EventView(event.action, event.actor, event.at, event.reason))
         return [
             RevisionView(
                 row.part_id,
@@ -185,9 +212,17 @@ class PartStore:
                 row.created_at,
                 row.approved_by,
                 row.approved_at,
+                tuple(events.get(row.revision, ())),
             )
             for row in rows
         ]
+
+    def _event(
+        self, part_id: str, revision: int, action: str, actor: str, at: datetime, reason: str | None = None
+    ) -> None:
+        self.session.add(
+            PartEvent(part_id=part_id, revision=revision, action=action, actor=actor, at=at, reason=reason)
+        )
 
     def create(
         self,
@@ -199,6 +234,8 @@ class PartStore:
         approve: bool = False,
     ) -> PartView:
         """Add a part as revision 1 (draft, or approved by its author when seeding)."""
+        if not is_part_id(part_id):
+            raise InvalidPartId(f"{part_id[:80]!r} is not a valid part_id: {RULE}", "part_id")
         errors = validate_part(kind, description, parameters)
         if errors:
             raise InvalidPart(errors)
@@ -234,6 +271,10 @@ class PartStore:
             )
         )
         self.session.flush()
+        self._event(part_id, 1, "created", author, now)
+        if approve:
+            self._event(part_id, 1, "approved", author, now)
+        self.session.flush()
         return self.get(part_id)
 
     def update(
@@ -242,7 +283,7 @@ class PartStore:
         """Store a new revision if the part is still at ``expected_revision``; it returns to draft."""
         current = self._row(part_id)
         if current.status == "retired":
-            raise PartRetired(f"part '{part_id}' is retired; add a new part instead of reviving it", "part_id")
+            raise PartRetired(f"part '{part_id}' is retired; restore it before revising it", "part_id")
         errors = validate_part(current.kind, description, parameters)
         if errors:
             raise InvalidPart(errors)
@@ -263,6 +304,9 @@ class PartStore:
             .execution_options(synchronize_session=False)
         )
         if result.rowcount != 1:
+            self.session.refresh(current)
+            if current.status == "retired":  # retired meanwhile, at the same revision
+                raise PartRetired(f"part '{part_id}' is retired; restore it before revising it", "part_id")
             raise StaleRevision(f"part '{part_id}' is no longer at revision {expected_revision}", "If-Match")
         self.session.add(
             PartRevision(
@@ -276,6 +320,8 @@ class PartStore:
             )
         )
         self.session.flush()
+        self._event(part_id, new_revision, "edited", author, now)
+        self.session.flush()
         self.session.expire_all()
         return self.get(part_id)
 
@@ -284,7 +330,7 @@ class PartStore:
         current = self._row(part_id)
         row = self.session.get(PartRevision, (part_id, revision))
         if row is None or current.revision != revision:
-            raise StaleRevision(f"revision {revision} of '{part_id}' is not the current revision", "revision")
+            raise StaleRevision(f"revision {revision} of '{part_id}' is not the current revision", "If-Match")
         if current.status == "retired":
             raise PartRetired(f"part '{part_id}' is retired", "part_id")
         if row.author == reviewer:
@@ -299,21 +345,93 @@ class PartStore:
             .execution_options(synchronize_session=False)
         )
         if result.rowcount != 1:
-            raise StaleRevision(f"revision {revision} of '{part_id}' is not the current revision", "revision")
+            raise StaleRevision(f"revision {revision} of '{part_id}' is not the current revision", "If-Match")
         row.approved_by = reviewer
         row.approved_at = now
+        self._event(part_id, revision, "approved", reviewer, now)
         self.session.flush()
         self.session.expire_all()
         return self.get(part_id)
 
-    def retire(self, part_id: str, author: str) -> PartView:
-        """Withdraw a part from new designs; its revisions stay readable and pinnable."""
-        self._row(part_id)
-        self.session.execute(
+    def retire(self, part_id: str, expected_revision: int, actor: str, reason: str | None = None) -> PartView:
+        """Withdraw a part from new designs if it is still at ``expected_revision``; its revisions stay readable
+        and pinnable, and the retirement is an event on that revision. Retiring a retired part changes nothing."""
+        current = self._row(part_id)
+        now = _now()
+        result = self.session.execute(
             update(Part)
-            .where(Part.part_id == part_id)
-            .values(status="retired", updated_at=_now(), updated_by=author)
+            .where(Part.part_id == part_id, Part.revision == expected_revision, Part.status != "retired")
+            .values(status="retired", updated_at=now, updated_by=actor)
             .execution_options(synchronize_session=False)
         )
+        if result.rowcount != 1:
+            self.session.refresh(current)
+            if current.revision != expected_revision:
+                raise StaleRevision(f"part '{part_id}' is no longer at revision {expected_revision}", "If-Match")
+            return _view(current)  # already retired at this revision (a repeated request)
+        self._event(part_id, expected_revision, "retired", actor, now, reason)
+        self.session.flush()
         self.session.expire_all()
         return self.get(part_id)
+
+    def restore(self, part_id: str, expected_revision: int, author: str, reason: str | None = None) -> PartView:
+        """Bring a retired part back as a new draft revision (a copy of the retired one) for a reviewer to
+        approve, if it is still at ``expected_revision``."""
+        current = self._row(part_id)
+        if current.revision != expected_revision:
+            raise StaleRevision(f"part '{part_id}' is no longer at revision {expected_revision}", "If-Match")
+        if current.status != "retired":
+            raise PartNotRetired(f"part '{part_id}' is not retired; there is nothing to restore", "part_id")
+        new_revision = expected_revision + 1
+        now = _now()
+        result = self.session.execute(
+            update(Part)
+            .where(Part.part_id == part_id, Part.revision == expected_revision, Part.status == "retired")
+            .values(status="draft", revision=new_revision, updated_at=now, updated_by=author, approved_by=None)
+            .execution_options(synchronize_session=False)
+        )
+        if result.rowcount != 1:
+            raise StaleRevision(f"part '{part_id}' is no longer at revision {expected_revision}", "If-Match")
+        self.session.add(
+            PartRevision(
+                part_id=part_id,
+                revision=new_revision,
+                kind=current.kind,
+                description=current.description,
+                parameters=current.parameters,
+                author=author,
+                created_at=now,
+            )
+        )
+        self.session.flush()
+        self._event(part_id, new_revision, "restored", author, now, reason)
+        self.session.flush()
+        self.session.expire_all()
+        return self.get(part_id)
+
+    def malformed_ids(self) -> list[str]:
+        """Stored part_ids that break the id rule (written before it was enforced everywhere)."""
+        return [part_id for part_id in self.session.scalars(select(Part.part_id)) if not is_part_id(part_id)]
+
+    def rename(self, old: str, new: str, actor: str) -> PartView:
+        """Move a part, its revisions and its events to a new id; the move is an event on the current revision."""
+        current = self._row(old)
+        if not is_part_id(new):
+            raise InvalidPartId(f"{new[:80]!r} is not a valid part_id: {RULE}", "part_id")
+        if self.session.get(Part, new) is not None:
+            raise PartExists(f"a part '{new}' already exists", "part_id")
+        fields = {column.key: getattr(current, column.key) for column in Part.__table__.columns}
+        self.session.add(Part(**{**fields, "part_id": new}))
+        self.session.flush()
+        for table in (PartRevision, PartEvent):
+            self.session.execute(
+                update(table)
+                .where(table.part_id == old)
+                .values(part_id=new)
+                .execution_options(synchronize_session=False)
+            )
+        self.session.execute(delete(Part).where(Part.part_id == old).execution_options(synchronize_session=False))
+        self.session.expire_all()
+        self._event(new, fields["revision"], "renamed", actor, _now(), f"renamed from {old!r}")
+        self.session.flush()
+        return self.get(new)

@@ -19,8 +19,10 @@ from calcsvc.core.outcome import DomainError
 from calcsvc.data.database import Database
 from calcsvc.data.store import (
     InvalidPart,
+    InvalidPartId,
     PartExists,
     PartNotFound,
+    PartNotRetired,
     PartRetired,
     SelfApproval,
     StaleRevision,
@@ -49,6 +51,8 @@ _STORE_STATUS: dict[type[StoreError], tuple[int, str]] = {
     StaleRevision: (412, "stale-revision"),
     SelfApproval: (403, "self-approval"),
     PartRetired: (409, "part-retired"),
+    PartNotRetired: (409, "part-not-retired"),
+    InvalidPartId: (422, "invalid-part-id"),
 }
 
 
@@ -114,7 +118,7 @@ def _check_body() -> Response | None:
     """Refuse non-JSON bodies, then read the body whole under its route's limits, before anything parses it
     (or asks who sent it)."""
     chunked = "chunked" in request.headers.get("Transfer-Encoding", "").lower()
-    if request.method in {"POST", "PUT", "PATCH"} and (request.content_length or chunked):
+    if request.method in {"POST", "PUT", "PATCH", "DELETE"} and (request.content_length or chunked):
         if request.mimetype not in BODY_MIMETYPES and request.blueprint != review_page.bp.name:  # HTML forms
             return problem_response(
                 Problem(

@@ -8,7 +8,7 @@ from marshmallow import Schema, fields, validate
 
 from calcsvc.data.kinds import KINDS
 from calcsvc.web.calculations import Form, Input, Role
-from calcsvc.web.parts_api import MAX_REVISION, PART_ID
+from calcsvc.web.parts_api import MAX_REVISION, part_id_field
 from calcsvc.web.quantity import Quantity
 
 
@@ -35,9 +35,8 @@ def input_field(spec: Input) -> fields.Field:
 def role_fields(role: Role) -> dict[str, fields.Field]:
     given = ", ".join(f"{parameter} as {name}" if parameter != name else name for parameter, name in role.provides)
     return {
-        role.name: fields.String(
-            validate=validate.Regexp(PART_ID),
-            metadata={"description": f"part_id of a {role.kind} part; supplies {given} unless given explicitly"},
+        role.name: part_id_field(
+            metadata={"description": f"part_id of a {role.kind} part; supplies {given} unless given explicitly"}
         ),
         f"{role.name}_revision": fields.Integer(
             validate=validate.Range(min=1, max=MAX_REVISION),

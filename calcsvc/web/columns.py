@@ -8,19 +8,18 @@ never fails the batch. The checks mirror those the single-request schema applies
 from __future__ import annotations
 
 import math
-import re
 from dataclasses import dataclass, field
 from typing import Any
 
 import numpy as np
 
+from calcsvc.data.part_ids import is_part_id
 from calcsvc.units import UnitError, parse_quantity
 from calcsvc.web.calculations import Calculation, Columns, Input, Role
-from calcsvc.web.parts_api import MAX_REVISION, PART_ID
+from calcsvc.web.parts_api import MAX_REVISION
 from calcsvc.web.problems import Problem
 from calcsvc.web.resolve import PartResolver, resolve
 
-_PART_ID = re.compile(PART_ID)
 _SCALARS = frozenset((int, float, str))  # exact types: bool, a subclass of int, is refused on the slow path
 
 
@@ -190,7 +189,7 @@ def _resolve_role(
             if revision is not None:
                 errors.add(row, f"{role.name}_revision", f"{role.name}_revision needs {role.name} (the part_id)")
             continue
-        if not isinstance(part_id, str) or not _PART_ID.match(part_id):
+        if not is_part_id(part_id):
             errors.add(row, role.name, "must be a part_id")
             continue
         try:

@@ -13,8 +13,9 @@ from flask.views import MethodView
 from flask_smorest import Blueprint
 from marshmallow import RAISE, Schema, ValidationError, fields, validate
 
+from calcsvc.data import part_ids
 from calcsvc.data.kinds import KINDS, MAX_DESCRIPTION_LENGTH, MAX_TEXT_LENGTH, params_of
-from calcsvc.data.store import STATUSES, PartStore, PartView
+from calcsvc.data.store import ACTIONS, STATUSES, PartStore, PartView
 from calcsvc.units import UnitError, parse_quantity
 from calcsvc.web.auth import reads, requires
 from calcsvc.web.metrics import record_parts_write
@@ -22,16 +23,25 @@ from calcsvc.web.problems import Problem, error_response
 
 blp = Blueprint("parts", __name__, url_prefix="/v1/parts", description="The shared parts table")
 
-PART_ID = r"^[a-z0-9][a-z0-9-]{0,63}$"
 MAX_REVISION = 2**31 - 1  # the store keeps revisions in 32-bit integer columns; larger ones cannot be looked up
-_PART_ID = re.compile(PART_ID.removesuffix("$") + r"\Z")  # $ would let a trailing newline through
 # PostgreSQL cannot store a NUL character in a text column (SQLite can): refuse it in the request.
 NO_NUL = validate.ContainsNoneOf("\x00", error="must not contain a NUL character")
-_ETAG = re.compile(r'^(?:W/)?"(?P<part>[a-z0-9-]+)-r(?P<revision>\d{1,10})"$')
+_ETAG = re.compile(r'(?:W/)?"(?P<part>[a-z0-9-]+)-r(?P<revision>[0-9]{1,10})"')  # used with fullmatch
 _KIND_DOC = "; ".join(
     f"{kind}: " + ", ".join(p.name + (" (optional)" if p.optional else "") for p in params)
     for kind, params in KINDS.items()
 )
+
+
+def valid_part_id(value: Any) -> None:
+    """marshmallow validator for the shared id rule."""
+    if not part_ids.is_part_id(value):
+        raise ValidationError(part_ids.RULE)
+
+
+def part_id_field(**kwargs: Any) -> fields.String:
+    metadata = {"pattern": part_ids.PATTERN, "maxLength": part_ids.MAX_LENGTH, **kwargs.pop("metadata", {})}
+    return fields.String(validate=valid_part_id, metadata=metadata, **kwargs)
 
 
 class ParametersField(fields.Dict):
@@ -73,7 +83,7 @@ class UtcDateTime(fields.DateTime):
 
 
 class PartCreateSchema(Schema):
-    part_id = fields.String(required=True, validate=validate.Regexp(PART_ID), metadata={"pattern": PART_ID})
+    part_id = part_id_field(required=True)
     kind = fields.String(required=True, validate=validate.OneOf(list(KINDS)))
     description = fields.String(load_default="", validate=[validate.Length(max=MAX_DESCRIPTION_LENGTH), NO_NUL])
     parameters = ParametersField(required=True)
@@ -84,11 +94,11 @@ class PartUpdateSchema(Schema):
     parameters = ParametersField(required=True)
 
 
-class ApproveSchema(Schema):
-    revision = fields.Integer(
+class ReasonSchema(Schema):
+    reason = fields.String(
         load_default=None,
-        validate=validate.Range(min=1, max=MAX_REVISION),
-        metadata={"description": "the revision being approved; default: the one named by If-Match, else current"},
+        validate=[validate.Length(min=1, max=500), NO_NUL],
+        metadata={"description": "why, kept in the part's history"},
     )
 
 
@@ -118,6 +128,13 @@ class PartQuerySchema(Schema):
     limit = fields.Integer(load_default=50, validate=validate.Range(min=1, max=500))
 
 
+class EventSchema(Schema):
+    action = fields.String(required=True, validate=validate.OneOf(ACTIONS))
+    actor = fields.String(required=True)
+    at = UtcDateTime(required=True)
+    reason = fields.String(allow_none=True, required=True)
+
+
 class RevisionSchema(Schema):
     revision = fields.Integer(required=True)
     kind = fields.String(required=True)
@@ -127,6 +144,9 @@ class RevisionSchema(Schema):
     created_at = UtcDateTime(required=True)
     approved_by = fields.String(allow_none=True, required=True)
     approved_at = UtcDateTime(allow_none=True, required=True)
+    events = fields.List(
+        fields.Nested(EventSchema), required=True, metadata={"description": "what was done to this revision, in order"}
+    )
 
 
 class RevisionListSchema(Schema):
@@ -166,17 +186,17 @@ def part_response(view: PartView, status: int = 200) -> tuple[dict[str, Any], in
     return asdict(view), status, {"ETag": view.etag}
 
 
-def expected_revision(part_id: str, required: bool) -> int | None:
+def expected_revision(part_id: str) -> int:
+    """The revision the request's If-Match names: 428 without one, 412 when it names no revision of the part."""
     header = request.headers.get("If-Match")
     if header is None:
-        if required:
-            raise Problem(
-                428,
-                "send If-Match with the ETag you read, so no one else's edit is overwritten",
-                "if-match-missing",
-            )
-        return None
-    match = _ETAG.match(header.strip())
+        raise Problem(
+            428,
+            "send If-Match with the ETag of the revision you read, so you act on what you saw",
+            "if-match-missing",
+            {"If-Match": ["required"]},
+        )
+    match = _ETAG.fullmatch(header.strip())
     if match is None or match["part"] != part_id or int(match["revision"]) > MAX_REVISION:
         raise Problem(412, f"If-Match {header!r} does not name a revision of '{part_id}'", "stale-revision")
     return int(match["revision"])
@@ -186,8 +206,8 @@ def expected_revision(part_id: str, required: bool) -> int | None:
 def _no_such_shape() -> None:
     """An id no part can have is not looked up (PostgreSQL refuses a NUL in a query with an error)."""
     part_id = (request.view_args or {}).get("part_id")
-    if part_id is not None and _PART_ID.match(part_id) is None:
-        message = f"no part {part_id[:80]!r}: a part_id is {PART_ID}"
+    if part_id is not None and not part_ids.is_part_id(part_id):
+        message = f"no part {part_id[:80]!r}: {part_ids.RULE}"
         raise Problem(404, message, "part-not-found", {"part_id": [message]})
 
 
@@ -256,8 +276,7 @@ class Part(MethodView):
         self, _headers: dict[str, Any], body: dict[str, Any], part_id: str
     ) -> tuple[dict[str, Any], int, dict[str, str]]:
         """Store a new revision (editor); needs If-Match; the part returns to draft until approved."""
-        expected = expected_revision(part_id, required=True)
-        assert expected is not None
+        expected = expected_revision(part_id)
         with _store() as session:
             store = PartStore(session)
             current = store.get(part_id)
@@ -268,14 +287,22 @@ class Part(MethodView):
         return part_response(view)
 
     @requires("editor")
-    @blp.response(200, PartSchema)
+    @blp.arguments(IfMatchSchema, location="headers")
+    @blp.arguments(ReasonSchema, required=False)
+    @blp.response(200, PartSchema, headers={"ETag": {"schema": {"type": "string"}}})
     @error_response(blp, 401, "no valid token")
     @error_response(blp, 403, "the token's role may not retire parts")
     @error_response(blp, 404, "no such part")
-    def delete(self, part_id: str) -> tuple[dict[str, Any], int, dict[str, str]]:
-        """Retire a part (editor): refused in new calculations unless pinned by revision; history stays."""
+    @error_response(blp, 412, "the part changed since the ETag was read")
+    @error_response(blp, 428, "If-Match is missing")
+    def delete(
+        self, _headers: dict[str, Any], body: dict[str, Any] | None, part_id: str
+    ) -> tuple[dict[str, Any], int, dict[str, str]]:
+        """Retire the revision If-Match names (editor), with an optional reason: refused in new calculations
+        unless pinned by revision; recorded in the history; undone only by a restore and a new review."""
+        expected = expected_revision(part_id)
         with _store() as session:
-            view = PartStore(session).retire(part_id, g.identity.name)
+            view = PartStore(session).retire(part_id, expected, g.identity.name, (body or {}).get("reason"))
         record_parts_write("retire")
         return part_response(view)
 
@@ -284,24 +311,44 @@ class Part(MethodView):
 class Approve(MethodView):
     @requires("reviewer")
     @blp.arguments(IfMatchSchema, location="headers")
-    @blp.arguments(ApproveSchema, required=False)
     @blp.response(200, PartSchema, headers={"ETag": {"schema": {"type": "string"}}})
     @error_response(blp, 401, "no valid token")
     @error_response(blp, 403, "not a reviewer, or the reviewer wrote this revision")
     @error_response(blp, 404, "no such part")
     @error_response(blp, 409, "the part is retired")
-    @error_response(blp, 412, "the named revision is no longer current")
-    def post(
-        self, _headers: dict[str, Any], body: dict[str, Any], part_id: str
-    ) -> tuple[dict[str, Any], int, dict[str, str]]:
-        """Approve the current revision (reviewer; not its author)."""
-        revision = (body or {}).get("revision") or expected_revision(part_id, required=False)
+    @error_response(blp, 412, "the revision If-Match names is no longer current")
+    @error_response(blp, 428, "If-Match is missing")
+    @error_response(blp, 415, "a body was sent, and not as JSON (approval takes none)")
+    def post(self, _headers: dict[str, Any], part_id: str) -> tuple[dict[str, Any], int, dict[str, str]]:
+        """Approve the revision If-Match names, if it is still current (reviewer; not its author)."""
+        revision = expected_revision(part_id)
         with _store() as session:
-            store = PartStore(session)
-            if revision is None:
-                revision = store.get(part_id).revision
-            view = store.approve(part_id, revision, g.identity.name)
+            view = PartStore(session).approve(part_id, revision, g.identity.name)
         record_parts_write("approve")
+        return part_response(view)
+
+
+@blp.route("/<string:part_id>/restore")
+class Restore(MethodView):
+    @requires("editor")
+    @blp.arguments(IfMatchSchema, location="headers")
+    @blp.arguments(ReasonSchema, required=False)
+    @blp.response(200, PartSchema, headers={"ETag": {"schema": {"type": "string"}}})
+    @error_response(blp, 401, "no valid token")
+    @error_response(blp, 403, "the token's role may not restore parts")
+    @error_response(blp, 404, "no such part")
+    @error_response(blp, 409, "the part is not retired")
+    @error_response(blp, 412, "the part changed since the ETag was read")
+    @error_response(blp, 428, "If-Match is missing")
+    def post(
+        self, _headers: dict[str, Any], body: dict[str, Any] | None, part_id: str
+    ) -> tuple[dict[str, Any], int, dict[str, str]]:
+        """Bring a retired part back as a new draft revision (editor), with an optional reason; it is used with
+        a draft warning until a reviewer approves it."""
+        expected = expected_revision(part_id)
+        with _store() as session:
+            view = PartStore(session).restore(part_id, expected, g.identity.name, (body or {}).get("reason"))
+        record_parts_write("restore")
         return part_response(view)
 
 

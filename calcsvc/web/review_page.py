@@ -19,11 +19,12 @@ from typing import Any
 
 from flask import Blueprint, Response, current_app, g, jsonify, redirect, render_template, request, url_for
 from markupsafe import Markup
-from marshmallow import Schema, ValidationError, fields, validate
+from marshmallow import Schema, ValidationError
 
 from calcsvc.core import led_string
 from calcsvc.core.outcome import DomainError
 from calcsvc.data.kinds import KINDS, Param, params_of
+from calcsvc.data.part_ids import is_part_id
 from calcsvc.data.store import (
     STATUSES,
     PartNotFound,
@@ -39,7 +40,7 @@ from calcsvc.web import plots_api
 from calcsvc.web.calc_api import run_flat
 from calcsvc.web.calculations import FLAT_CALCULATIONS
 from calcsvc.web.metrics import record_parts_write
-from calcsvc.web.parts_api import PART_ID
+from calcsvc.web.parts_api import MAX_REVISION, part_id_field
 from calcsvc.web.plots import eng, size_px, unit_symbol
 from calcsvc.web.problems import Problem
 from calcsvc.web.quantity import Quantity
@@ -104,7 +105,7 @@ CHANNEL_ROLES: dict[str, tuple[str, str, tuple[str, str] | None]] = {
 
 ChannelForm = Schema.from_dict(
     {
-        **{role: fields.String(required=role != "opamp", validate=validate.Regexp(PART_ID)) for role in CHANNEL_ROLES},
+        **{role: part_id_field(required=role != "opamp") for role in CHANNEL_ROLES},
         "leds_in_series": Quantity("dimensionless", minimum=1, maximum=1000, integer=True),
         "strings": Quantity("dimensionless", minimum=1, maximum=10000, integer=True),
         "channels": Quantity("dimensionless", minimum=1, maximum=10000, integer=True),
@@ -349,6 +350,8 @@ def _led_supply(store: PartStore) -> PartView | None:
 
 
 def _part_page(part_id: str, status: int = 200, error: str | None = None) -> Response:
+    if not is_part_id(part_id):
+        return _error_page(404, f"There is no part {part_id[:80]!r}.")
     try:
         with _store() as session:
             store = PartStore(session)
@@ -392,7 +395,7 @@ def _approve(part_id: str) -> None:
     if not token:
         raise PageError(401, "Paste your reviewer token to approve.")
     revision = request.form.get("revision", "")
-    if not _WHOLE_NUMBER.fullmatch(revision):
+    if not _WHOLE_NUMBER.fullmatch(revision) or not 1 <= int(revision) <= MAX_REVISION:
         raise PageError(400, "The form did not say which revision to approve: reload the page.")
     try:
         with _store() as session:
@@ -413,6 +416,8 @@ def _approve(part_id: str) -> None:
 
 @bp.post("/parts/<string:part_id>/approve")
 def approve(part_id: str) -> Response:
+    if not is_part_id(part_id):
+        return _error_page(404, f"There is no part {part_id[:80]!r}.")
     try:
         _approve(part_id)
     except PartNotFound:

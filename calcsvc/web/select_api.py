@@ -8,7 +8,6 @@ evaluation, one vectorized pass over every candidate, is calcsvc.web.candidates.
 from __future__ import annotations
 
 import dataclasses
-import re
 from collections.abc import Sequence
 from dataclasses import dataclass
 from typing import Any
@@ -21,6 +20,7 @@ from sqlalchemy.orm import Session
 
 from calcsvc.core import channel, tolerance
 from calcsvc.data.kinds import KINDS, Param
+from calcsvc.data.part_ids import MAX_LENGTH, PATTERN, is_part_id
 from calcsvc.data.store import STATUSES, PartStore, PartView
 from calcsvc.web.auth import require_reader
 from calcsvc.web.calc_api import scalar_results
@@ -42,7 +42,6 @@ from calcsvc.web.candidates import (
 )
 from calcsvc.web.envelope import plain
 from calcsvc.web.metrics import record_calculation
-from calcsvc.web.parts_api import PART_ID
 from calcsvc.web.problems import Problem, error_response
 from calcsvc.web.quantity import Quantity
 from calcsvc.web.resolve import PartResolver, resolve
@@ -153,7 +152,7 @@ class Candidates(fields.Field):
 
     def __init__(self, role: Role) -> None:
         self.role = role
-        part_id = {"type": "string", "pattern": PART_ID}
+        part_id = {"type": "string", "pattern": PATTERN, "maxLength": MAX_LENGTH}
         given = ", ".join(name for _, name in role.provides)
         super().__init__(
             metadata={
@@ -169,15 +168,11 @@ class Candidates(fields.Field):
 
     def _deserialize(self, value: Any, attr: str | None, data: Any, **kwargs: Any) -> str | PartFilter:
         if isinstance(value, str):
-            if not re.fullmatch(PART_ID, value):
+            if not is_part_id(value):
                 raise ValidationError("must be a part_id")
             return value
         if isinstance(value, list):
-            bad = {
-                str(k): ["must be a part_id"]
-                for k, v in enumerate(value)
-                if not isinstance(v, str) or not re.fullmatch(PART_ID, v)
-            }
+            bad = {str(k): ["must be a part_id"] for k, v in enumerate(value) if not is_part_id(v)}
             if bad:
                 raise ValidationError(bad)
             if not 1 <= len(value) <= MAX_LISTED or len(set(value)) != len(value):
