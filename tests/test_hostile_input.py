@@ -22,10 +22,10 @@ from helpers import HOSTILE_UNIT_STRINGS, PROBLEM, bearer
 from sqlalchemy import text
 
 from calcsvc import create_app
+from calcsvc.data.part_ids import PATTERN as PART_ID
 from calcsvc.data.seed import load_seed
 from calcsvc.data.tokens import create_token
 from calcsvc.units import MAX_QUANTITY_LENGTH, QUANTITY_PATTERN
-from calcsvc.web.parts_api import PART_ID
 
 REPO = Path(__file__).resolve().parent.parent
 SPEC = json.loads((REPO / "openapi" / "openapi.json").read_text())
