@@ -19,7 +19,7 @@ from calcsvc.core.outcome import Outcome
 from calcsvc.web.auth import require_reader
 from calcsvc.web.calc_schemas import camel, request_schema, response_schema, role_fields
 from calcsvc.web.calculations import FLAT_CALCULATIONS, Calculation, Columns, Form, Role
-from calcsvc.web.envelope import envelope, plain, row_results
+from calcsvc.web.envelope import envelope, plain, row_results, row_sweeps
 from calcsvc.web.metrics import record_calculation
 from calcsvc.web.problems import PROBLEM_MIMETYPE, Problem, error_response
 from calcsvc.web.quantity import Quantity
@@ -74,10 +74,9 @@ def columns_of(calc: Form, rows: list[dict[str, Any]]) -> Columns:
 def flat_results(calc: Calculation, outcome: Outcome, row: int) -> dict[str, Any]:
     names = [name for name, _ in calc.results]
     results = row_results(outcome, row, names)
-    if "sweep_frequency_hz" in outcome.results:
-        results["sweep"] = {
-            key: plain(outcome.results[f"sweep_{key}"][row]) for key in ("frequency_hz", "gain_db", "phase_deg")
-        }
+    sweep = row_sweeps(outcome, row + 1)[row]
+    if sweep is not None:
+        results["sweep"] = {key: plain(values) for key, values in sweep.items()}
     return results
 
 
