@@ -154,3 +154,14 @@ def test_sweep_points_beyond_the_cap_are_refused_before_computing(database_url: 
     assert "1,500" in body["detail"] and "1,000" in body["detail"]
     # A row refused for its own inputs asks for nothing.
     assert capped.post("/v1/batch/closed-loop-bandwidth", json=[row, row, {**row, "gain": -1}]).status_code == 200
+
+
+@pytest.mark.parametrize("lead", ["=", "+", "-", "@"])
+def test_csv_answer_cells_never_start_a_formula(client: FlaskClient, lead: str) -> None:
+    header = f'"{lead}HYPERLINK(""http://example.invalid"",""x"")"'
+    table = f"{header},supply_v\n1,-12 V\n"
+    response = client.post("/v1/batch/led-string", data=table, content_type="text/csv", headers={"Accept": "text/csv"})
+    (line,) = csv.DictReader(io.StringIO(response.get_data(as_text=True)))
+    assert line["ok"] == "false" and line["problem"].startswith(f"'{lead}HYPERLINK(")
+    cells = [cell for row in csv.reader(io.StringIO(response.get_data(as_text=True))) for cell in row]
+    assert not [cell for cell in cells if cell[:1] in ("=", "+", "-", "@", "\t", "\r")]

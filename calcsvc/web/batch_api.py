@@ -12,6 +12,7 @@ from flask import Response, current_app, request
 from flask.views import MethodView
 from flask_smorest import Blueprint
 
+from calcsvc.csv_cells import CellWriter
 from calcsvc.web.auth import require_reader
 from calcsvc.web.calc_schemas import request_schema
 from calcsvc.web.calculations import FLAT_CALCULATIONS, Calculation
@@ -174,7 +175,7 @@ def csv_body(calc: Calculation, parsed: ParsedRows, ok_rows: np.ndarray, outcome
     for row, errors in parsed.errors.by_row.items():
         table[row][-1] = _row_problem(errors)["detail"]
     out = io.StringIO()
-    writer = csv.writer(out, lineterminator="\n")
+    writer = CellWriter(out, lineterminator="\n")  # the problem quotes the caller's column names
     writer.writerow(["row", "ok", *names, "failing_checks", "problem"])
     writer.writerows(table)
     return out.getvalue()

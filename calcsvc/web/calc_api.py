@@ -2,7 +2,6 @@
 
 from __future__ import annotations
 
-import csv
 import io
 import math
 from collections.abc import Mapping
@@ -16,6 +15,7 @@ from marshmallow import RAISE, Schema, ValidationError, fields, validate, valida
 
 from calcsvc.core import duty_power
 from calcsvc.core.outcome import Outcome
+from calcsvc.csv_cells import CellWriter
 from calcsvc.web.auth import require_reader
 from calcsvc.web.calc_schemas import camel, request_schema, response_schema, role_fields
 from calcsvc.web.calculations import FLAT_CALCULATIONS, Calculation, Columns, Form, Role
@@ -121,7 +121,7 @@ def text_answer(calc: Calculation, envelope_: dict[str, Any], pick: str | None, 
     if fmt == "csv":
         names = scalar_results(calc)
         out = io.StringIO()
-        writer = csv.writer(out, lineterminator="\n")
+        writer = CellWriter(out, lineterminator="\n")
         writer.writerow(names)
         writer.writerow(["" if results.get(name) is None else results[name] for name in names])
         return Response(out.getvalue(), mimetype="text/csv")
