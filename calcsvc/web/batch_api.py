@@ -4,6 +4,7 @@ from __future__ import annotations
 
 import csv
 import io
+import itertools
 from typing import Any
 
 import numpy as np
@@ -34,25 +35,49 @@ CSV = "text/csv"
 EXTRA_CELLS = "cells_beyond_the_header"
 
 
-def read_records() -> tuple[list[Any], bool]:
+def _refuse_more_than_rows_hold(calc: Calculation, body: bytes | str, limit: int) -> None:
+    """413 before parsing when the body has more separators than ``limit`` rows of named inputs could: each
+    row holds at most one value per input name, so millions of tiny rows or one huge array inside a cell
+    are refused before Python builds an object for each element."""
+    names = len(calc.inputs) + 2 * len(calc.roles)
+    if body.count("," if isinstance(body, str) else b",") >= (limit + 1) * names:
+        message = f"the body holds more values than {limit:,} rows of at most {names} inputs each"
+        raise Problem(413, message, "batch-size", {"body": [message]})
+
+
+def _too_many_rows(count: int | str, limit: int) -> Problem:
+    return Problem(413, f"{count} rows is more than this server takes in one batch ({limit})", "batch-size")
+
+
+def read_records(calc: Calculation) -> tuple[list[Any], bool]:
     """The rows of the body, and whether blank cells mean "not given" (CSV)."""
+    limit = current_app.config["BATCH_MAX_ROWS"]
     if request.mimetype == CSV:
         text = request.get_data(as_text=True)
+        _refuse_more_than_rows_hold(calc, text, limit)
         # A short row's missing cells are blank (not given); cells beyond the header become an unknown field of
         # their row, which refuses that row instead of dropping data that was likely shifted.
         reader = csv.DictReader(io.StringIO(text, newline=""), skipinitialspace=True, restkey=EXTRA_CELLS, restval="")
         try:
-            records = [{k.strip(): v.strip() if isinstance(v, str) else v for k, v in row.items()} for row in reader]
+            # Reading stops one row past the limit: a body of millions of short lines is never built.
+            rows = list(itertools.islice(reader, limit + 1))
+            records = [{k.strip(): v.strip() if isinstance(v, str) else v for k, v in row.items()} for row in rows]
         except csv.Error as exc:
             raise Problem(400, f"the request body is not a valid CSV table: {exc}", "malformed-body") from exc
+        if len(records) > limit:
+            raise _too_many_rows("more than " + f"{limit}", limit)
         return records, True
+    body = request.get_data()
+    _refuse_more_than_rows_hold(calc, body, limit)
     try:
-        data = orjson.loads(request.get_data())
+        data = orjson.loads(body)
     except orjson.JSONDecodeError as exc:
         raise Problem(400, f"the request body is not valid JSON: {exc}", "malformed-body") from exc
     if not isinstance(data, list):
         message = "the body must be a JSON array of input objects (or a CSV table with Content-Type: text/csv)"
         raise Problem(422, message, "validation", {"body": [message]})
+    if len(data) > limit:
+        raise _too_many_rows(len(data), limit)
     return data, False
 
 
@@ -194,10 +219,7 @@ def _refuse_large_sweeps(parsed: ParsedRows) -> None:
 
 
 def run_batch(calc: Calculation) -> Response:
-    records, blank_is_absent = read_records()
-    limit = current_app.config["BATCH_MAX_ROWS"]
-    if len(records) > limit:
-        raise Problem(413, f"{len(records)} rows is more than this server takes in one batch ({limit})", "batch-size")
+    records, blank_is_absent = read_records(calc)
     if not records:
         raise Problem(422, "the batch holds no rows", "validation", {"body": ["the batch holds no rows"]})
     with current_app.extensions["calcsvc.db"].transaction() as session:

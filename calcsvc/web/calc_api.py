@@ -20,6 +20,7 @@ from calcsvc.web.auth import require_reader
 from calcsvc.web.calc_schemas import camel, request_schema, response_schema, role_fields
 from calcsvc.web.calculations import FLAT_CALCULATIONS, Calculation, Columns, Form, Role
 from calcsvc.web.envelope import envelope, plain, row_results, row_sweeps
+from calcsvc.web.json_limits import LengthCheckingParser
 from calcsvc.web.metrics import record_calculation
 from calcsvc.web.problems import PROBLEM_MIMETYPE, Problem, error_response
 from calcsvc.web.quantity import Quantity
@@ -32,6 +33,7 @@ blp = Blueprint(
     description="Design calculations. Numbers are SI; strings with units are converted. Any input a part "
     "provides may be given as a part reference instead (role name = part_id, <role>_revision pins a revision).",
 )
+blp.ARGUMENTS_PARSER = LengthCheckingParser()  # waveform arrays are counted before their samples are built
 
 MAX_WAVEFORM_SAMPLES = 100_000
 
