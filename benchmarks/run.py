@@ -299,14 +299,14 @@ def sweep_inputs() -> closed_loop.ClosedLoopInputs:
     return closed_loop.ClosedLoopInputs(
         inverting=np.array([False]), gain=one(20.0), rf_ohm=one(math.nan), rg_ohm=one(math.nan), gbw_hz=one(1e6),
         open_loop_gain=one(2e5), stages=one(1.0), signal_hz=one(1e3), sweep_start_hz=one(10.0),
-        sweep_stop_hz=one(1e6), sweep_points=SWEEP_POINTS,
+        sweep_stop_hz=one(1e6), sweep_points=one(SWEEP_POINTS),
     )  # fmt: skip
 
 
 def sweep_loop(inputs: closed_loop.ClosedLoopInputs) -> list[tuple[float, float, float]]:
     """``closed_loop.compute``'s sweep for one non-inverting row, one frequency at a time with ``math``."""
     gain, gbw, a0, stages = float(inputs.gain[0]), float(inputs.gbw_hz[0]), float(inputs.open_loop_gain[0]), 1.0
-    start, stop, points = float(inputs.sweep_start_hz[0]), float(inputs.sweep_stop_hz[0]), inputs.sweep_points
+    start, stop, points = float(inputs.sweep_start_hz[0]), float(inputs.sweep_stop_hz[0]), int(inputs.sweep_points[0])
     dc_gain = gain / (1.0 + gain / a0)
     bandwidth = gbw / gain + gbw / a0
     dc_db = 20.0 * math.log10(abs(dc_gain))
@@ -352,7 +352,7 @@ def core_section(repeats: int) -> tuple[list[Row], list[str]]:
     vectorized, outcome = best_of(repeats * 3, lambda: closed_loop.compute(sweep))
     plain, looped = best_of(repeats * 3, lambda: sweep_loop(sweep))
     for k, name in enumerate(("sweep_frequency_hz", "sweep_gain_db", "sweep_phase_deg")):
-        np.testing.assert_allclose(np.array(looped)[:, k], outcome.results[name][0], rtol=1e-9, err_msg=name)
+        np.testing.assert_allclose(np.array(looped)[:, k], outcome.results[name], rtol=1e-9, err_msg=name)
     rows.append(
         Row(
             "core",

@@ -43,6 +43,9 @@ SETTINGS: dict[str, Setting] = {
         "(a duty-cycle budget with waveforms 8 MiB), or this value if smaller",
     ),
     "BATCH_MAX_ROWS": Setting("CALCSVC_BATCH_MAX_ROWS", "100000", "most rows in one batch request"),
+    "BATCH_MAX_SWEEP_POINTS": Setting(
+        "CALCSVC_BATCH_MAX_SWEEP_POINTS", "200000", "most sweep points (summed over rows) in one batch answer"
+    ),
     "SELECT_MAX_COMBINATIONS": Setting(
         "CALCSVC_SELECT_MAX_COMBINATIONS",
         "100000",
@@ -102,6 +105,7 @@ def load_config(overrides: Mapping[str, Any] | None = None, environ: Mapping[str
         "CORS_ORIGINS": [o.strip() for o in raw["CORS_ORIGINS"].split(",") if o.strip()],
         "MAX_CONTENT_LENGTH": _integer("MAX_CONTENT_LENGTH", raw["MAX_CONTENT_LENGTH"], 1024),
         "BATCH_MAX_ROWS": _integer("BATCH_MAX_ROWS", raw["BATCH_MAX_ROWS"], 1),
+        "BATCH_MAX_SWEEP_POINTS": _integer("BATCH_MAX_SWEEP_POINTS", raw["BATCH_MAX_SWEEP_POINTS"], 2),
         "SELECT_MAX_COMBINATIONS": _integer("SELECT_MAX_COMBINATIONS", raw["SELECT_MAX_COMBINATIONS"], 1),
         "DB_POOL_SIZE": _integer("DB_POOL_SIZE", raw["DB_POOL_SIZE"], 1),
         "LOG_LEVEL": raw["LOG_LEVEL"].strip().upper(),

@@ -24,6 +24,7 @@ from pathlib import Path
 from typing import Any
 
 from calcsvc.client import CalcsvcError, Client, Part
+from calcsvc.csv_cells import CellWriter, original_cell
 from calcsvc.data.kinds import KINDS, validate_parameters
 from calcsvc.web.parts_api import PartCreateSchema, convert_parameters
 from calcsvc.web.problems import Problem
@@ -103,7 +104,7 @@ def write_parts(path: Path, parts: list[Part], kind: str | None = None) -> None:
         return
     columns = parameter_columns([kind] if kind else KINDS)
     with path.open("w", newline="", encoding="utf-8") as file:
-        writer = csv.writer(file)
+        writer = CellWriter(file)
         writer.writerow([*FIXED_COLUMNS, *columns])
         for entry in entries:
             params = entry["parameters"]
@@ -177,7 +178,7 @@ def _read_csv(path: Path) -> tuple[list[PartRow], list[RowError]]:
             if len(cells) > len(header):
                 errors.append(RowError(where, "row", f"{len(cells)} cells for {len(header)} columns"))
                 continue
-            values = {name: cell.strip() for name, cell in zip(header, cells, strict=False)}
+            values = {name: original_cell(cell.strip()) for name, cell in zip(header, cells, strict=False)}
             parameters = {k: v for k, v in values.items() if k not in FIXED_COLUMNS and v}
             description = values.get("description") if "description" in header else None
             row, row_errors = check_row(where, values.get("part_id"), values.get("kind"), description, parameters)

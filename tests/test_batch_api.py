@@ -129,3 +129,39 @@ def test_column_layout_carries_the_same_numbers(client: FlaskClient) -> None:
     first_check = by_row["rows"][0]["checks"][0]
     assert by_column["checks"][first_check["name"]]["value"][0] == first_check["value"]
     assert by_column["problems"]["1"]["errors"].keys() == by_row["rows"][1]["problem"]["errors"].keys()
+
+
+def test_each_sweep_row_gets_its_own_points_at_the_single_endpoints_frequencies(client: FlaskClient) -> None:
+    base = {"gain": 10, "gbw_hz": 1e6, "sweep_start_hz": 10, "sweep_stop_hz": 1e6}
+    rows = [{**base, "sweep_points": 3}, {**base, "sweep_points": 7}, {"gain": 2, "gbw_hz": 1e6}]
+    body = client.post("/v1/batch/closed-loop-bandwidth", json=rows).get_json()
+    columns = client.post("/v1/batch/closed-loop-bandwidth?layout=columns", json=rows).get_json()
+    for index in (0, 1):
+        single = client.post("/v1/calc/closed-loop-bandwidth", json=rows[index]).get_json()["results"]["sweep"]
+        swept = body["rows"][index]["results"]["sweep"]
+        for key in ("frequency_hz", "gain_db", "phase_deg"):
+            assert len(swept[key]) == rows[index]["sweep_points"]
+            assert swept[key] == pytest.approx(single[key], rel=1e-12)
+            assert columns["results"]["sweep"][key][index] == swept[key]
+    assert "sweep" not in body["rows"][2]["results"] and columns["results"]["sweep"]["gain_db"][2] is None
+
+
+def test_sweep_points_beyond_the_cap_are_refused_before_computing(database_url: str) -> None:
+    capped = create_app({"DATABASE_URL": database_url, "BATCH_MAX_SWEEP_POINTS": 1000}).test_client()
+    row = {"gain": 10, "gbw_hz": 1e6, "sweep_start_hz": 10, "sweep_stop_hz": 1e6, "sweep_points": 500}
+    assert capped.post("/v1/batch/closed-loop-bandwidth", json=[row, row]).status_code == 200
+    body = assert_problem(capped.post("/v1/batch/closed-loop-bandwidth", json=[row, row, row]), 413, "sweep_points")
+    assert "1,500" in body["detail"] and "1,000" in body["detail"]
+    # A row refused for its own inputs asks for nothing.
+    assert capped.post("/v1/batch/closed-loop-bandwidth", json=[row, row, {**row, "gain": -1}]).status_code == 200
+
+
+@pytest.mark.parametrize("lead", ["=", "+", "-", "@"])
+def test_csv_answer_cells_never_start_a_formula(client: FlaskClient, lead: str) -> None:
+    header = f'"{lead}HYPERLINK(""http://example.invalid"",""x"")"'
+    table = f"{header},supply_v\n1,-12 V\n"
+    response = client.post("/v1/batch/led-string", data=table, content_type="text/csv", headers={"Accept": "text/csv"})
+    (line,) = csv.DictReader(io.StringIO(response.get_data(as_text=True)))
+    assert line["ok"] == "false" and line["problem"].startswith(f"'{lead}HYPERLINK(")
+    cells = [cell for row in csv.reader(io.StringIO(response.get_data(as_text=True))) for cell in row]
+    assert not [cell for cell in cells if cell[:1] in ("=", "+", "-", "@", "\t", "\r")]

@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import csv
 import io
 import json
 import re
@@ -72,6 +73,26 @@ def test_export_writes_si_columns_for_one_kind(seeded: Flask, live_url: str, tmp
     red = next(line for line in lines if line.startswith("led-red-5mm,"))
     assert red.endswith(",red,2.0,1.8,2.4,0.02,0.03")
     assert len(lines) == 1 + 6
+
+
+def test_export_writes_formula_text_inert_and_reads_it_back_unchanged(
+    seeded: Flask, live_url: str, tokens: dict[str, str], tmp_path: Path, capsys: Any
+) -> None:
+    descriptions = {"led-formula-a": "=cmd|' /C calc'!A0", "led-formula-b": "@SUM(1)", "led-formula-c": "-2+3"}
+    with Client(live_url, token=tokens["edna"]) as client:
+        red, _ = client.get_part("led-red-5mm")
+        for part_id, description in descriptions.items():
+            client.create_part(part_id, "led", red["parameters"], description)
+    path = tmp_path / "leds.csv"
+    assert main(["parts", "export", str(path), "--kind", "led", "--url", live_url]) == 0
+    rows = {row[0]: row for row in csv.reader(io.StringIO(path.read_text()))}
+    for part_id, description in descriptions.items():
+        assert rows[part_id][2] == "'" + description
+    assert rows["led-red-5mm"][4:] == ["2.0", "1.8", "2.4", "0.02", "0.03"]  # numbers stay numbers
+    capsys.readouterr()
+    assert main(["parts", "import", str(path), "--url", live_url, "--token", tokens["edna"]]) == 0
+    assert "created 0, updated 0, unchanged 9" in capsys.readouterr().out
+    assert {part_id: table(live_url)[part_id][1] for part_id in descriptions} == descriptions
 
 
 def test_import_with_bad_rows_writes_nothing_and_names_line_and_field(

@@ -222,6 +222,7 @@ def closed_loop_inputs(i: ChannelInputs) -> closed_loop.ClosedLoopInputs:
         signal_hz=i.signal_hz,
         sweep_start_hz=nan,
         sweep_stop_hz=nan,
+        sweep_points=nan,
     )
 
 

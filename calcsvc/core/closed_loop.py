@@ -58,12 +58,13 @@ RISE_TIME_CONSTANT = 0.35
 
 @dataclass(frozen=True)
 class ClosedLoopInputs:
-    """Per-row inputs (arrays of shape ``(n,)``) plus the sweep size shared by every row.
+    """Per-row inputs (arrays of shape ``(n,)``).
 
     ``inverting``: True for the inverting configuration, False for non-inverting. Give either ``gain``
     (magnitude, V/V) or both ``rf_ohm`` and ``rg_ohm``; the others are NaN. ``open_loop_gain`` (V/V) NaN means
-    ideal at DC. ``stages`` holds whole numbers. ``signal_hz`` NaN means no signal frequency. A sweep needs
-    ``sweep_start_hz`` and ``sweep_stop_hz`` on a row and ``sweep_points`` (2..2000); 0 points means no sweep.
+    ideal at DC. ``stages`` holds whole numbers. ``signal_hz`` NaN means no signal frequency. A row sweeps when
+    it gives ``sweep_start_hz``, ``sweep_stop_hz`` and ``sweep_points`` (a whole number, 2..2000); each row has
+    its own number of points.
     """
 
     inverting: BoolArray
@@ -76,20 +77,15 @@ class ClosedLoopInputs:
     signal_hz: FloatArray
     sweep_start_hz: FloatArray
     sweep_stop_hz: FloatArray
-    sweep_points: int = 0
+    sweep_points: FloatArray
 
 
 _QUANTITIES = ("gain", "rf_ohm", "rg_ohm", "gbw_hz", "open_loop_gain", "signal_hz", "sweep_start_hz", "sweep_stop_hz")
 
 
-def _sweep_points_valid(points: object) -> bool:
-    return isinstance(points, int | np.integer) and not isinstance(points, bool)
-
-
 def validate(inputs: ClosedLoopInputs) -> list[Violation]:
     """Every physical precondition, per row; never raises."""
     v: list[Violation] = []
-    n = inputs.gbw_hz.shape[0]
     inv = np.asarray(inputs.inverting, dtype=bool)
 
     # Optional values: NaN is "not given", but ±inf never makes sense.
@@ -186,25 +182,18 @@ def validate(inputs: ClosedLoopInputs) -> list[Violation]:
     require(v, bad, "signal_hz", f"signal_hz ({first_bad(sig, bad)} Hz) must be above 0 Hz")
 
     require_practical(v, {name: getattr(inputs, name) for name in _QUANTITIES}, ("rg_ohm", "gbw_hz"))
-    v.extend(_validate_sweep(inputs, n))
+    v.extend(_validate_sweep(inputs))
     return v
 
 
-def _validate_sweep(inputs: ClosedLoopInputs, n: int) -> list[Violation]:
+def _validate_sweep(inputs: ClosedLoopInputs) -> list[Violation]:
     v: list[Violation] = []
-    all_rows = np.ones(n, dtype=bool)
     points = inputs.sweep_points
-    if not _sweep_points_valid(points):
-        require(v, all_rows, "sweep_points", f"sweep_points ({points!r}) must be a whole number")
-        return v
-    points = int(points)
-    if points != 0 and not 2 <= points <= MAX_SWEEP_POINTS:
-        require(
-            v,
-            all_rows,
-            "sweep_points",
-            f"sweep_points ({points}) must be 0 (no sweep) or from 2 to {MAX_SWEEP_POINTS}",
-        )
+    points_given = ~np.isnan(points)
+    with np.errstate(invalid="ignore"):
+        bad = points_given & ((points != np.round(points)) | ~(points >= 2) | ~(points <= MAX_SWEEP_POINTS))
+    message = f"sweep_points ({first_bad(points, bad)}) must be a whole number from 2 to {MAX_SWEEP_POINTS}"
+    require(v, bad, "sweep_points", message)
 
     start, stop = inputs.sweep_start_hz, inputs.sweep_stop_hz
     start_given, stop_given = ~np.isnan(start), ~np.isnan(stop)
@@ -224,22 +213,30 @@ def _validate_sweep(inputs: ClosedLoopInputs, n: int) -> list[Violation]:
         "sweep_stop_hz",
         f"sweep_stop_hz ({first_bad(stop, bad)} Hz) must be above sweep_start_hz ({first_bad(start, bad)} Hz)",
     )
-    sweeping = start_given & stop_given
-    if points == 0:
-        require(
-            v,
-            sweeping,
-            "sweep_points",
-            f"sweep_points must be from 2 to {MAX_SWEEP_POINTS} when sweep_start_hz and sweep_stop_hz are given",
-        )
-    elif not sweeping.any():
-        require(
-            v,
-            all_rows,
-            "sweep_start_hz",
-            f"sweep_points is {points} but no row gives sweep_start_hz and sweep_stop_hz",
-        )
+    require(
+        v,
+        start_given & stop_given & ~points_given,
+        "sweep_points",
+        f"sweep_points must be from 2 to {MAX_SWEEP_POINTS} when sweep_start_hz and sweep_stop_hz are given",
+    )
+    require(
+        v,
+        points_given & ~start_given & ~stop_given,
+        "sweep_start_hz",
+        "sweep_points needs sweep_start_hz and sweep_stop_hz",
+    )
     return v
+
+
+def _sweep_frequencies(start: FloatArray, stop: FloatArray, points: np.ndarray) -> FloatArray:
+    """Each row's log-spaced points, row after row; rows of one size share one ``geomspace`` call, so a row
+    gets the same frequencies alone as in any batch."""
+    first = np.concatenate(([0], np.cumsum(points)[:-1]))
+    frequency = np.empty(int(points.sum()))
+    for size in np.unique(points):
+        rows = np.flatnonzero(points == size)
+        frequency[first[rows, None] + np.arange(size)] = np.geomspace(start[rows], stop[rows], int(size), axis=1)
+    return frequency
 
 
 def _stage_response(
@@ -255,8 +252,9 @@ def _stage_response(
 def compute(inputs: ClosedLoopInputs) -> Outcome:
     """Gains, bandwidths, rise times, response at ``signal_hz`` and the optional sweep (model: module doc).
 
-    The sweep results ``sweep_frequency_hz``, ``sweep_gain_db``, ``sweep_phase_deg`` (shape ``(n, points)``)
-    are present only when ``sweep_points > 0``; rows without a sweep hold NaN there.
+    The sweep results are present only when some row sweeps, flat with one entry per point: ``sweep_row`` (the
+    row of each point, ascending), ``sweep_frequency_hz``, ``sweep_gain_db`` and ``sweep_phase_deg``. Rows do
+    not share a size, so output grows with the points asked for, not with rows times the largest sweep.
     """
     raise_violations(validate(inputs))
 
@@ -297,14 +295,14 @@ def compute(inputs: ClosedLoopInputs) -> Outcome:
         "phase_at_signal_deg": phase_at_signal_deg,
     }
 
-    if inputs.sweep_points > 0:
-        sweeping = np.isfinite(inputs.sweep_start_hz) & np.isfinite(inputs.sweep_stop_hz)
-        # Placeholder 1..10 Hz on rows without a sweep keeps geomspace valid; those rows become NaN below.
-        start = np.where(sweeping, inputs.sweep_start_hz, 1.0)
-        stop = np.where(sweeping, inputs.sweep_stop_hz, 10.0)
-        freq = np.geomspace(start, stop, int(inputs.sweep_points), axis=1)
-        freq[~sweeping] = np.nan
-        sweep_gain, sweep_phase = _stage_response(freq, closed_loop_gain[:, None], bandwidth[:, None], stages[:, None])
+    sweeping = ~np.isnan(inputs.sweep_points)
+    if sweeping.any():
+        rows = np.flatnonzero(sweeping)
+        points = inputs.sweep_points[rows].astype(np.int64)
+        row = np.repeat(rows, points)
+        freq = _sweep_frequencies(inputs.sweep_start_hz[rows], inputs.sweep_stop_hz[rows], points)
+        sweep_gain, sweep_phase = _stage_response(freq, closed_loop_gain[row], bandwidth[row], stages[row])
+        results["sweep_row"] = row
         results["sweep_frequency_hz"] = freq
         results["sweep_gain_db"] = sweep_gain
         results["sweep_phase_deg"] = sweep_phase

@@ -1,7 +1,8 @@
 """Result types shared by every calculation.
 
 Conventions:
-- Every per-row input and result is a float64 (or bool) array of shape ``(n,)``; a sweep result is ``(n, k)``.
+- Every per-row input and result is a float64 (or bool) array of shape ``(n,)``; a result with a varying number
+  of values per row (a sweep) is flat, with an index array naming the row of each value.
 - In an input array NaN means "not given" (the value is optional); in a result NaN means "does not apply".
 - A check compares ``value`` with ``limit`` per row; ``sense`` says which side passes.
 """

@@ -4,6 +4,7 @@ from __future__ import annotations
 
 import csv
 import io
+import itertools
 from typing import Any
 
 import numpy as np
@@ -12,11 +13,12 @@ from flask import Response, current_app, request
 from flask.views import MethodView
 from flask_smorest import Blueprint
 
+from calcsvc.csv_cells import CellWriter
 from calcsvc.web.auth import require_reader
 from calcsvc.web.calc_schemas import request_schema
 from calcsvc.web.calculations import FLAT_CALCULATIONS, Calculation
 from calcsvc.web.columns import ParsedRows, parse_rows
-from calcsvc.web.envelope import plain
+from calcsvc.web.envelope import SWEEP_KEYS, plain, row_sweeps
 from calcsvc.web.metrics import record_calculation
 from calcsvc.web.problems import Problem, error_response
 from calcsvc.web.resolve import PartResolver
@@ -33,25 +35,49 @@ CSV = "text/csv"
 EXTRA_CELLS = "cells_beyond_the_header"
 
 
-def read_records() -> tuple[list[Any], bool]:
+def _refuse_more_than_rows_hold(calc: Calculation, body: bytes | str, limit: int) -> None:
+    """413 before parsing when the body has more separators than ``limit`` rows of named inputs could: each
+    row holds at most one value per input name, so millions of tiny rows or one huge array inside a cell
+    are refused before Python builds an object for each element."""
+    names = len(calc.inputs) + 2 * len(calc.roles)
+    if body.count("," if isinstance(body, str) else b",") >= (limit + 1) * names:
+        message = f"the body holds more values than {limit:,} rows of at most {names} inputs each"
+        raise Problem(413, message, "batch-size", {"body": [message]})
+
+
+def _too_many_rows(count: int | str, limit: int) -> Problem:
+    return Problem(413, f"{count} rows is more than this server takes in one batch ({limit})", "batch-size")
+
+
+def read_records(calc: Calculation) -> tuple[list[Any], bool]:
     """The rows of the body, and whether blank cells mean "not given" (CSV)."""
+    limit = current_app.config["BATCH_MAX_ROWS"]
     if request.mimetype == CSV:
         text = request.get_data(as_text=True)
+        _refuse_more_than_rows_hold(calc, text, limit)
         # A short row's missing cells are blank (not given); cells beyond the header become an unknown field of
         # their row, which refuses that row instead of dropping data that was likely shifted.
         reader = csv.DictReader(io.StringIO(text, newline=""), skipinitialspace=True, restkey=EXTRA_CELLS, restval="")
         try:
-            records = [{k.strip(): v.strip() if isinstance(v, str) else v for k, v in row.items()} for row in reader]
+            # Reading stops one row past the limit: a body of millions of short lines is never built.
+            rows = list(itertools.islice(reader, limit + 1))
+            records = [{k.strip(): v.strip() if isinstance(v, str) else v for k, v in row.items()} for row in rows]
         except csv.Error as exc:
             raise Problem(400, f"the request body is not a valid CSV table: {exc}", "malformed-body") from exc
+        if len(records) > limit:
+            raise _too_many_rows("more than " + f"{limit}", limit)
         return records, True
+    body = request.get_data()
+    _refuse_more_than_rows_hold(calc, body, limit)
     try:
-        data = orjson.loads(request.get_data())
+        data = orjson.loads(body)
     except orjson.JSONDecodeError as exc:
         raise Problem(400, f"the request body is not valid JSON: {exc}", "malformed-body") from exc
     if not isinstance(data, list):
         message = "the body must be a JSON array of input objects (or a CSV table with Content-Type: text/csv)"
         raise Problem(422, message, "validation", {"body": [message]})
+    if len(data) > limit:
+        raise _too_many_rows(len(data), limit)
     return data, False
 
 
@@ -59,8 +85,8 @@ def evaluate(calc: Calculation, parsed: ParsedRows) -> tuple[dict[str, Any], np.
     """Run the core once over every row that parsed; physical violations become errors on their rows."""
     n = parsed.n
     ok_rows = np.flatnonzero(~parsed.errors.mask(n))
-    # Some rules run only once a row's other inputs hold (its resistor in range, say), and what rows share (a
-    # sweep size) comes from the rows computed: so the rows left are validated again until none is refused.
+    # Some rules run only once a row's other inputs hold (its resistor in range, say): so the rows left are
+    # validated again until none is refused.
     while True:
         inputs = calc.make_inputs({name: column[ok_rows] for name, column in parsed.columns.items()})
         violations = calc.validate(inputs)
@@ -83,10 +109,7 @@ def json_rows(calc: Calculation, parsed: ParsedRows, ok_rows: np.ndarray, outcom
     n = parsed.n
     names = [name for name, _ in calc.results if name in outcome.results]
     results = [plain(outcome.results[name]) for name in names]
-    sweep = "sweep_frequency_hz" in outcome.results
-    if sweep:
-        sweep_keys = ("frequency_hz", "gain_db", "phase_deg")
-        sweep_columns = [plain(outcome.results[f"sweep_{k}"]) for k in sweep_keys]
+    sweeps = row_sweeps(outcome, ok_rows.size)
     checks = [(c.name, c.ok.tolist(), plain(c.value), plain(c.limit), plain(c.margin())) for c in outcome.checks]
     notices: dict[str, list[list[str]]] = {"warnings": [[] for _ in ok_rows], "cautions": [[] for _ in ok_rows]}
     for kind, found in (("warnings", outcome.warnings), ("cautions", outcome.cautions)):
@@ -96,8 +119,8 @@ def json_rows(calc: Calculation, parsed: ParsedRows, ok_rows: np.ndarray, outcom
     rows: list[dict[str, Any]] = [{}] * n
     for k, row in enumerate(ok_rows.tolist()):
         row_results = dict(zip(names, (column[k] for column in results), strict=True))
-        if sweep:
-            row_results["sweep"] = dict(zip(sweep_keys, (column[k] for column in sweep_columns), strict=True))
+        if sweeps[k] is not None:
+            row_results["sweep"] = {key: plain(values) for key, values in sweeps[k].items()}
         rows[row] = {
             "row": row,
             "ok": True,
@@ -132,8 +155,12 @@ def json_columns(calc: Calculation, parsed: ParsedRows, ok_rows: np.ndarray, out
     ok = np.zeros(n, dtype=bool)
     ok[ok_rows] = True
     results = {name: full(outcome.results[name]) for name, _ in calc.results if name in outcome.results}
-    if "sweep_frequency_hz" in outcome.results:
-        results["sweep"] = {k: full(outcome.results[f"sweep_{k}"]) for k in ("frequency_hz", "gain_db", "phase_deg")}
+    if "sweep_row" in outcome.results:
+        # One array per row that sweeps (its own length), null for the others.
+        sweeps: list[dict[str, np.ndarray] | None] = [None] * n
+        for row, sweep in zip(ok_rows.tolist(), row_sweeps(outcome, ok_rows.size), strict=True):
+            sweeps[row] = sweep
+        results["sweep"] = {key: [None if s is None else s[key] for s in sweeps] for key in SWEEP_KEYS}
     checks = {
         check.name: {
             "ok": full(check.ok, False),
@@ -173,21 +200,31 @@ def csv_body(calc: Calculation, parsed: ParsedRows, ok_rows: np.ndarray, outcome
     for row, errors in parsed.errors.by_row.items():
         table[row][-1] = _row_problem(errors)["detail"]
     out = io.StringIO()
-    writer = csv.writer(out, lineterminator="\n")
+    writer = CellWriter(out, lineterminator="\n")  # the problem quotes the caller's column names
     writer.writerow(["row", "ok", *names, "failing_checks", "problem"])
     writer.writerows(table)
     return out.getvalue()
 
 
+def _refuse_large_sweeps(parsed: ParsedRows) -> None:
+    """413 before computing when the rows that parsed ask for more sweep points in all than the server answers."""
+    points = parsed.columns.get("sweep_points")
+    if points is None:
+        return
+    asked = int(np.nansum(points[~parsed.errors.mask(parsed.n)]))
+    limit = current_app.config["BATCH_MAX_SWEEP_POINTS"]
+    if asked > limit:
+        message = f"the rows ask for {asked:,} sweep points in all; this server answers at most {limit:,} per batch"
+        raise Problem(413, message, "batch-size", {"sweep_points": [message]})
+
+
 def run_batch(calc: Calculation) -> Response:
-    records, blank_is_absent = read_records()
-    limit = current_app.config["BATCH_MAX_ROWS"]
-    if len(records) > limit:
-        raise Problem(413, f"{len(records)} rows is more than this server takes in one batch ({limit})", "batch-size")
+    records, blank_is_absent = read_records(calc)
     if not records:
         raise Problem(422, "the batch holds no rows", "validation", {"body": ["the batch holds no rows"]})
     with current_app.extensions["calcsvc.db"].transaction() as session:
         parsed = parse_rows(calc, records, PartResolver(session), blank_is_absent)
+    _refuse_large_sweeps(parsed)
     _results, ok_rows, outcome = evaluate(calc, parsed)
     record_calculation(calc.name, int(ok_rows.size))
     if (
@@ -252,7 +289,7 @@ def _batch_doc(calc: Calculation) -> dict[str, Any]:
 def _register(calc: Calculation) -> None:
     class BatchView(MethodView):
         @blp.doc(summary=f"{calc.name} over many rows", **_batch_doc(calc))
-        @error_response(blp, 413, "more rows than BATCH_MAX_ROWS")
+        @error_response(blp, 413, "more rows than BATCH_MAX_ROWS, or more sweep points than BATCH_MAX_SWEEP_POINTS")
         @error_response(blp, 422, "the body is not an array of rows")
         def post(self) -> Response:
             return run_batch(calc)

@@ -2,7 +2,6 @@
 
 from __future__ import annotations
 
-import csv
 import io
 import math
 from collections.abc import Mapping
@@ -16,10 +15,12 @@ from marshmallow import RAISE, Schema, ValidationError, fields, validate, valida
 
 from calcsvc.core import duty_power
 from calcsvc.core.outcome import Outcome
+from calcsvc.csv_cells import CellWriter
 from calcsvc.web.auth import require_reader
 from calcsvc.web.calc_schemas import camel, request_schema, response_schema, role_fields
 from calcsvc.web.calculations import FLAT_CALCULATIONS, Calculation, Columns, Form, Role
-from calcsvc.web.envelope import envelope, plain, row_results
+from calcsvc.web.envelope import envelope, plain, row_results, row_sweeps
+from calcsvc.web.json_limits import LengthCheckingParser
 from calcsvc.web.metrics import record_calculation
 from calcsvc.web.problems import PROBLEM_MIMETYPE, Problem, error_response
 from calcsvc.web.quantity import Quantity
@@ -32,6 +33,7 @@ blp = Blueprint(
     description="Design calculations. Numbers are SI; strings with units are converted. Any input a part "
     "provides may be given as a part reference instead (role name = part_id, <role>_revision pins a revision).",
 )
+blp.ARGUMENTS_PARSER = LengthCheckingParser()  # waveform arrays are counted before their samples are built
 
 MAX_WAVEFORM_SAMPLES = 100_000
 
@@ -74,10 +76,9 @@ def columns_of(calc: Form, rows: list[dict[str, Any]]) -> Columns:
 def flat_results(calc: Calculation, outcome: Outcome, row: int) -> dict[str, Any]:
     names = [name for name, _ in calc.results]
     results = row_results(outcome, row, names)
-    if "sweep_frequency_hz" in outcome.results:
-        results["sweep"] = {
-            key: plain(outcome.results[f"sweep_{key}"][row]) for key in ("frequency_hz", "gain_db", "phase_deg")
-        }
+    sweep = row_sweeps(outcome, row + 1)[row]
+    if sweep is not None:
+        results["sweep"] = {key: plain(values) for key, values in sweep.items()}
     return results
 
 
@@ -122,7 +123,7 @@ def text_answer(calc: Calculation, envelope_: dict[str, Any], pick: str | None, 
     if fmt == "csv":
         names = scalar_results(calc)
         out = io.StringIO()
-        writer = csv.writer(out, lineterminator="\n")
+        writer = CellWriter(out, lineterminator="\n")
         writer.writerow(names)
         writer.writerow(["" if results.get(name) is None else results[name] for name in names])
         return Response(out.getvalue(), mimetype="text/csv")

@@ -79,8 +79,6 @@ def fraction(name: str, description: str, **kwargs: Any) -> Input:
 
 
 def _closed_loop_inputs(c: Columns) -> closed_loop.ClosedLoopInputs:
-    points = c["sweep_points"]
-    given = points[~np.isnan(points)]
     return closed_loop.ClosedLoopInputs(
         inverting=c["configuration"] == "inverting",
         gain=c["gain"],
@@ -92,7 +90,7 @@ def _closed_loop_inputs(c: Columns) -> closed_loop.ClosedLoopInputs:
         signal_hz=c["signal_hz"],
         sweep_start_hz=c["sweep_start_hz"],
         sweep_stop_hz=c["sweep_stop_hz"],
-        sweep_points=int(given.max()) if given.size else 0,
+        sweep_points=c["sweep_points"],
     )
 
 

@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import hashlib
+import itertools
 import json
 import math
 from typing import Any
@@ -47,6 +48,21 @@ def fingerprint(calculation: str, version: str, inputs: dict[str, Any], parts: l
 
 def row_results(outcome: Outcome, row: int, names: list[str]) -> dict[str, Any]:
     return {name: plain(outcome.results[name][row]) for name in names if name in outcome.results}
+
+
+SWEEP_KEYS = ("frequency_hz", "gain_db", "phase_deg")
+
+
+def row_sweeps(outcome: Outcome, n: int) -> list[dict[str, np.ndarray] | None]:
+    """Each of the ``n`` computed rows' own sweep (slices of the core's flat arrays), None where it has none."""
+    if "sweep_row" not in outcome.results:
+        return [None] * n
+    bounds = np.searchsorted(outcome.results["sweep_row"], np.arange(n + 1)).tolist()
+    columns = {key: outcome.results[f"sweep_{key}"] for key in SWEEP_KEYS}
+    return [
+        {key: column[low:high] for key, column in columns.items()} if high > low else None
+        for low, high in itertools.pairwise(bounds)
+    ]
 
 
 def row_checks(outcome: Outcome, row: int) -> list[dict[str, Any]]:

@@ -68,9 +68,9 @@ def closed_loop_curves(args: dict[str, Any]) -> plots.ClosedLoopCurves:
     # signal_hz at the corner makes the core report the gain and phase there, for the marker.
     swept = _core(calc, [{**values, **sweep, "signal_hz": corner_hz}]).results
     return plots.ClosedLoopCurves(
-        frequency_hz=swept["sweep_frequency_hz"][0],
-        gain_db=swept["sweep_gain_db"][0],
-        phase_deg=swept["sweep_phase_deg"][0],
+        frequency_hz=swept["sweep_frequency_hz"],  # one row: the whole flat sweep
+        gain_db=swept["sweep_gain_db"],
+        phase_deg=swept["sweep_phase_deg"],
         corner_hz=corner_hz,
         corner_name=corner_name,
         corner_gain_db=float(swept["gain_at_signal_db"][0]),

@@ -29,7 +29,7 @@ def make(
     signal_hz: float = NAN,
     sweep_start_hz: float = NAN,
     sweep_stop_hz: float = NAN,
-    sweep_points: int = 0,
+    sweep_points: float = NAN,
 ) -> ClosedLoopInputs:
     """One row of inputs."""
 
@@ -47,7 +47,7 @@ def make(
         signal_hz=arr(signal_hz),
         sweep_start_hz=arr(sweep_start_hz),
         sweep_stop_hz=arr(sweep_stop_hz),
-        sweep_points=sweep_points,
+        sweep_points=arr(sweep_points),
     )
 
 
@@ -138,11 +138,11 @@ def test_matches_scipy_freqs(inverting, gain, rf, rg, gbw, a0, n):
     assert ((out["phase_at_signal_deg"][0] - lag + 180) % 360) - 180 == pytest.approx(0, abs=1e-9)
 
     # The sweep: log-spaced points, gain and (unwrapped) phase against freqs.
-    f = out["sweep_frequency_hz"][0]
+    f = out["sweep_frequency_hz"]
     np.testing.assert_allclose(f, np.geomspace(gbw * 1e-5, gbw * 10, 300), rtol=1e-12)
     hs = response(bn, an, f)
-    np.testing.assert_allclose(out["sweep_gain_db"][0], 20 * np.log10(np.abs(hs)), atol=1e-9)
-    np.testing.assert_allclose(out["sweep_phase_deg"][0], np.degrees(np.unwrap(np.angle(hs * sign**n))), atol=1e-9)
+    np.testing.assert_allclose(out["sweep_gain_db"], 20 * np.log10(np.abs(hs)), atol=1e-9)
+    np.testing.assert_allclose(out["sweep_phase_deg"], np.degrees(np.unwrap(np.angle(hs * sign**n))), atol=1e-9)
 
 
 def test_textbook_gbw_over_noise_gain():
@@ -278,21 +278,26 @@ def test_violation_message_names_the_rule():
     assert any("20" in m and "cap" in m for m in messages)
 
 
-def test_batch_rows_and_sweep_nan_on_rows_without_sweep():
-    one = make(gain=10.0, sweep_start_hz=10.0, sweep_stop_hz=1e6, sweep_points=50)
-    two = make(inverting=True, gain=3.0, stages=2.0, sweep_points=50)
+def test_each_row_sweeps_its_own_points_as_it_would_alone():
+    rows = [
+        make(gain=10.0, sweep_start_hz=10.0, sweep_stop_hz=1e6, sweep_points=50),
+        make(inverting=True, gain=3.0, stages=2.0),
+        make(gain=2.0, sweep_start_hz=1e3, sweep_stop_hz=1e5, sweep_points=3),
+        make(gain=5.0, sweep_start_hz=1.0, sweep_stop_hz=1e4, sweep_points=50),
+    ]
     batch = ClosedLoopInputs(
-        **{
-            f.name: (np.concatenate([getattr(one, f.name), getattr(two, f.name)]) if f.name != "sweep_points" else 50)
-            for f in dataclasses.fields(ClosedLoopInputs)
-        }
+        **{f.name: np.concatenate([getattr(row, f.name) for row in rows]) for f in dataclasses.fields(ClosedLoopInputs)}
     )
     out = compute(batch).results
-    assert out["sweep_gain_db"].shape == (2, 50)
-    assert np.all(np.isfinite(out["sweep_gain_db"][0]))
-    assert np.all(np.isnan(out["sweep_gain_db"][1]))
-    # Each row equals its own single-row result.
-    assert out["bandwidth_hz"][1] == compute(dataclasses.replace(two, sweep_points=0)).results["bandwidth_hz"][0]
+    assert out["sweep_row"].tolist() == [0] * 50 + [2] * 3 + [3] * 50
+    for index, row in enumerate(rows):
+        alone = compute(row).results
+        assert out["bandwidth_hz"][index] == alone["bandwidth_hz"][0]
+        if index == 1:
+            assert "sweep_row" not in alone
+            continue
+        for name in ("sweep_frequency_hz", "sweep_gain_db", "sweep_phase_deg"):
+            np.testing.assert_allclose(out[name][out["sweep_row"] == index], alone[name], rtol=1e-12, err_msg=name)
 
 
 # --- properties ---------------------------------------------------------------------------------------------
