@@ -88,6 +88,12 @@ _TITLES = {
 
 
 def problem_response(problem: Problem) -> Response:
+    page = g.get("error_page")
+    if page is not None:
+        # A browser page asked (see the review page): the error as a page, with the same status and headers.
+        response: Response = page(problem.status, problem.detail)
+        response.headers.update(problem.headers)
+        return response
     if g.get("plain_errors"):
         # A spreadsheet cell cannot show a JSON document: one short line, same status.
         detail = "; ".join(f"{k}: {v[0]}" for k, v in problem.errors.items()) if problem.errors else problem.detail
