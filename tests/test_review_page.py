@@ -444,3 +444,4 @@ def test_database_outage_is_a_page_saying_when_to_retry(unreachable_url: str, ur
         unreachable.extensions["calcsvc.db"].dispose()
     assert (response.status_code, response.mimetype) == (503, "text/html")
     assert "the database is not reachable" in response.get_data(as_text=True)
+    assert int(response.headers["Retry-After"]) > 0
