@@ -8,6 +8,7 @@ import json
 import math
 import os
 import sys
+import time
 from collections.abc import Callable
 from pathlib import Path
 from typing import Any, TextIO
@@ -17,12 +18,77 @@ from calcsvc.config import ConfigError
 from calcsvc.data.kinds import KINDS
 
 
-def _app_database() -> tuple[str, str]:
-    """The database URL and seed folder the server would use, so commands and server always agree."""
+def _app_settings() -> dict[str, Any]:
+    """The settings the server would use, so commands and server always agree."""
     from calcsvc import create_app
 
-    app = create_app()
-    return app.config["DATABASE_URL"], app.config["SEED_DIR"]
+    return dict(create_app().config)
+
+
+def _app_database() -> tuple[str, str]:
+    """The database URL and seed folder the server would use."""
+    settings = _app_settings()
+    return settings["DATABASE_URL"], settings["SEED_DIR"]
+
+
+def _cause(error: Exception) -> str:
+    """The first line of what the database driver said (its later lines are hints for another audience)."""
+    cause = getattr(error, "orig", None) or error
+    return (str(cause).strip().splitlines() or [type(cause).__name__])[0]
+
+
+def _on_database(command: Callable[[argparse.Namespace], int]) -> Callable[[argparse.Namespace], int]:
+    """A command that uses the database: when it cannot reach it (or a lock stays taken), one line naming the
+    cause and exit 2."""
+
+    def run(args: argparse.Namespace) -> int:
+        from sqlalchemy.exc import OperationalError
+
+        from calcsvc.data.database import is_busy
+
+        try:
+            return command(args)
+        except OperationalError as exc:
+            url, _ = _app_database()
+            state = "busy" if is_busy(exc) else "not reachable"
+            print(f"calcsvc: the database is {state} ({_redact(url)}): {_cause(exc)}", file=sys.stderr)
+            return 2
+
+    return run
+
+
+def _db_wait(_args: argparse.Namespace) -> int:
+    """Wait up to CALCSVC_DB_WAIT_S for a database server that is still starting (containers start together)."""
+    from sqlalchemy.exc import OperationalError
+
+    from calcsvc.data.database import Database
+
+    settings = _app_settings()
+    url, patience = settings["DATABASE_URL"], settings["DB_WAIT_S"]
+    if url.startswith("sqlite"):
+        print("the database is a SQLite file: no server to wait for")
+        return 0
+    database = Database(url, pool_size=1)
+    deadline = time.monotonic() + patience
+    waiting = False
+    try:
+        while True:
+            try:
+                database.ping()
+            except OperationalError as exc:
+                if time.monotonic() >= deadline:
+                    message = f"the database did not answer within {patience} s ({_redact(url)}): {_cause(exc)}"
+                    print(f"calcsvc: {message}", file=sys.stderr)
+                    return 2
+                if not waiting:
+                    print(f"waiting up to {patience} s for the database ({_redact(url)}): {_cause(exc)}", flush=True)
+                    waiting = True
+                time.sleep(min(1.0, max(0.0, deadline - time.monotonic())))
+                continue
+            print(f"the database answers ({_redact(url)})")
+            return 0
+    finally:
+        database.dispose()
 
 
 def _db_upgrade(_args: argparse.Namespace) -> int:
@@ -401,10 +467,13 @@ def build_parser() -> argparse.ArgumentParser:
     commands.add_parser("serve", help="serve the API with gunicorn (HOST, PORT)").set_defaults(run=_serve)
 
     db = commands.add_parser("db", help="database schema and seed parts").add_subparsers(dest="db", required=True)
-    db.add_parser("upgrade", help="create or upgrade the schema, keeping data").set_defaults(run=_db_upgrade)
+    db.add_parser("wait", help="wait up to CALCSVC_DB_WAIT_S for the database server").set_defaults(run=_db_wait)
+    db.add_parser("upgrade", help="create or upgrade the schema, keeping data").set_defaults(
+        run=_on_database(_db_upgrade)
+    )
     seed = db.add_parser("seed", help="add the seed parts not yet in the table (never overwrites)")
     seed.add_argument("--if-empty", action="store_true", help="only seed a table that holds no parts")
-    seed.set_defaults(run=_db_seed)
+    seed.set_defaults(run=_on_database(_db_seed))
     check = db.add_parser(
         "check",
         help="find stored part_ids that break the id rule (exit 1 when any)",
@@ -412,16 +481,16 @@ def build_parser() -> argparse.ArgumentParser:
         "other characters) with the valid id it would get. --fix renames them in one transaction.",
     )
     check.add_argument("--fix", action="store_true", help="rename each to the suggested id when that id is free")
-    check.set_defaults(run=_db_check)
+    check.set_defaults(run=_on_database(_db_check))
 
     token = commands.add_parser("token", help="API tokens").add_subparsers(dest="token", required=True)
     create = token.add_parser("create", help="make a token; prints it once")
     create.add_argument("--name", required=True)
     create.add_argument("--role", required=True, choices=("editor", "reviewer"))
-    create.set_defaults(run=_token_create)
+    create.set_defaults(run=_on_database(_token_create))
     revoke = token.add_parser("revoke", help="remove a token")
     revoke.add_argument("name")
-    revoke.set_defaults(run=_token_revoke)
+    revoke.set_defaults(run=_on_database(_token_revoke))
 
     http = argparse.ArgumentParser(add_help=False)
     http.add_argument("--url", help=f"service URL (default: $CALCSVC_URL, else {DEFAULT_URL})")

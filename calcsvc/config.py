@@ -20,6 +20,7 @@ class Setting:
     env: str
     default: str
     description: str
+    shown_default: str | None = None  # the README's words for a default that depends on the machine
 
 
 # One table drives parsing, validation and the README's settings table.
@@ -54,8 +55,16 @@ SETTINGS: dict[str, Setting] = {
     "DB_POOL_SIZE": Setting(
         "CALCSVC_DB_POOL_SIZE", "5", "database connections a worker keeps open; under load it may open as many again"
     ),
+    "DB_WAIT_S": Setting(
+        "CALCSVC_DB_WAIT_S",
+        "60",
+        "seconds `calcsvc db wait` (the container's first start-up step) waits for a database server to answer; "
+        "0: one try",
+    ),
     "LOG_LEVEL": Setting("CALCSVC_LOG_LEVEL", "INFO", "DEBUG, INFO, WARNING or ERROR"),
-    "SEED_DIR": Setting("CALCSVC_SEED_DIR", str(REPO_SEED_DIR), "folder of seed part files"),
+    "SEED_DIR": Setting(
+        "CALCSVC_SEED_DIR", str(REPO_SEED_DIR), "folder of seed part files", "the checkout's `seed_parts/`"
+    ),
     # The server process around the app, read by calcsvc.gunicorn_conf (`calcsvc serve`).
     "HOST": Setting("HOST", "127.0.0.1", "address the server listens on; the container image sets 0.0.0.0"),
     "PORT": Setting("PORT", "8000", "port the server listens on"),
@@ -108,6 +117,7 @@ def load_config(overrides: Mapping[str, Any] | None = None, environ: Mapping[str
         "BATCH_MAX_SWEEP_POINTS": _integer("BATCH_MAX_SWEEP_POINTS", raw["BATCH_MAX_SWEEP_POINTS"], 2),
         "SELECT_MAX_COMBINATIONS": _integer("SELECT_MAX_COMBINATIONS", raw["SELECT_MAX_COMBINATIONS"], 1),
         "DB_POOL_SIZE": _integer("DB_POOL_SIZE", raw["DB_POOL_SIZE"], 1),
+        "DB_WAIT_S": _integer("DB_WAIT_S", raw["DB_WAIT_S"], 0),
         "LOG_LEVEL": raw["LOG_LEVEL"].strip().upper(),
         "SEED_DIR": raw["SEED_DIR"],
         "HOST": raw["HOST"].strip() or SETTINGS["HOST"].default,
@@ -134,15 +144,9 @@ def load_config(overrides: Mapping[str, Any] | None = None, environ: Mapping[str
 
 
 def settings_table() -> str:
-    """The README's settings table, in Markdown (a test keeps the README equal to it)."""
-    lines = ["| Variable | Default | Meaning |", "| --- | --- | --- |"]
-    for key, setting in SETTINGS.items():
-        default = (
-            "the checkout's `seed_parts/`"
-            if key == "SEED_DIR"
-            else f"`{setting.default}`"
-            if setting.default
-            else "(empty)"
-        )
-        lines.append(f"| `{setting.env}` | {default} | {setting.description} |")
-    return "\n".join(lines)
+    """The README's settings table (Markdown), from SETTINGS."""
+    rows = ["| Variable | Default | Meaning |", "| --- | --- | --- |"]
+    for setting in SETTINGS.values():
+        default = setting.shown_default or (f"`{setting.default}`" if setting.default else "(empty)")
+        rows.append(f"| `{setting.env}` | {default} | {setting.description} |")
+    return "\n".join(rows)

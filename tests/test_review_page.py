@@ -6,15 +6,15 @@ import re
 import time
 from html.parser import HTMLParser
 from typing import Any
-from urllib.parse import urlencode
+from urllib.parse import quote, urlencode
 
 import pytest
 from flask import Flask
 from flask.testing import FlaskClient
-from helpers import bearer
+from helpers import assert_problem, bearer
 
 from calcsvc import create_app
-from calcsvc.web.review_page import CSRF_COOKIE, DEMO_CHANNEL, channel_body
+from calcsvc.web.review_page import CSRF_COOKIE, DEMO_CHANNEL, channel_body, whole_number
 
 OPAMP_ID = "opamp-general-1mhz"
 
@@ -83,7 +83,7 @@ def edit(client: FlaskClient, token: str, part_id: str, parameters: dict[str, An
     assert response.status_code == 200, response.get_json()
 
 
-def approve(client: FlaskClient, part_id: str, token: str, revision: int | str | None = None) -> Any:
+def approve(client: FlaskClient, part_id: str, token: str, revision: int | None = None) -> Any:
     """Post the part page's approval form as a browser would, with the page's CSRF token and cookie."""
     _, parsed = page(client, f"/review/parts/{part_id}")
     form = {**parsed.hidden, "token": token}
@@ -235,26 +235,6 @@ def test_a_revision_changed_since_the_page_loaded_is_not_approved(
     assert status_of(client, OPAMP_ID) == "draft"
 
 
-@pytest.mark.parametrize("revision", ["\u0662", "\u00b2", "9" * 30])  # an Arabic-Indic 2, a superscript 2
-def test_approval_takes_the_revision_in_ascii_digits_only(
-    client: FlaskClient, seeded: Any, tokens: dict[str, str], revision: str
-) -> None:
-    edit(client, tokens["edna"], OPAMP_ID, OPAMP_PARAMETERS)
-    response = approve(client, OPAMP_ID, tokens["rita"], revision=revision)
-    assert response.status_code == 400
-    assert "did not say which revision" in response.get_data(as_text=True)
-    assert status_of(client, OPAMP_ID) == "draft"
-
-
-@pytest.mark.parametrize("offset", ["\u0662", "\u00b2", "9" * 30])
-def test_list_offsets_in_other_digits_or_too_long_show_the_first_page(
-    client: FlaskClient, seeded: Any, offset: str
-) -> None:
-    first, _ = page(client, "/review/")
-    html, _ = page(client, "/review/?" + urlencode({"offset": offset}))
-    assert re.findall(r'href="/review/parts/[^"]+"', html) == re.findall(r'href="/review/parts/[^"]+"', first)
-
-
 def test_approval_needs_the_pages_csrf_token(client: FlaskClient, seeded: Any, tokens: dict[str, str]) -> None:
     edit(client, tokens["edna"], OPAMP_ID, OPAMP_PARAMETERS)
     url = f"/review/parts/{OPAMP_ID}/approve"
@@ -323,6 +303,151 @@ def test_channel_form_errors_name_the_field(client: FlaskClient, seeded: Any) ->
     assert without_opamp["leds_in_series"] == 3 and without_opamp["current_a"] == 0.02
 
 
+# --- hostile addresses, query strings and forms: always a page, never a 500 or a JSON problem ------------------
+
+# Numbers the page must refuse: non-ASCII digits (str.isdigit() takes them, int() takes some), too large for the
+# store's integers, signs, spaces, separators, other notations, NUL bytes, and length.
+HOSTILE_NUMBERS = ["²", "٣", "３", "9" * 30, "9" * 5000, "-1", "+1", " 1", "1 ", "1_0", "1e3", "0x10", "1\x00", "\x00"]
+HOSTILE_TEXT = ["\x00", "led\x00", "x" * 5000, "a" * 65, "LED", "led-rød", "led-red-5mm\n", "-led", "<script>"]
+
+
+def test_number_parsing_is_ascii_and_bounded() -> None:
+    assert whole_number("0042", 0, 100) == 42
+    assert whole_number("100", 0, 100) == 100 and whole_number("101", 0, 100) is None
+    assert all(whole_number(text, 0, 10**12) is None for text in [*HOSTILE_NUMBERS, "", None])
+
+
+@pytest.mark.parametrize("offset", HOSTILE_NUMBERS)
+def test_list_refuses_a_hostile_offset_on_the_page_and_shows_the_first_page(
+    client: FlaskClient, seeded: Any, offset: str
+) -> None:
+    html, _ = page(client, "/review/?" + urlencode({"kind": "opamp", "offset": offset}), status=422)
+    assert "The offset must be a whole number from 0 to 1000000" in html
+    assert OPAMP_ID in html  # the first page of the filter that was asked for
+    assert "9" * 41 not in html  # what was sent is quoted short
+
+
+def test_list_pages_up_to_the_largest_offset(client: FlaskClient, seeded: Any) -> None:
+    html, _ = page(client, "/review/?offset=1000000")
+    assert "No part matches." in html
+    page(client, "/review/?offset=1000001", status=422)
+    page(client, "/review/?offset=")  # an empty field is the first page, as an empty filter is any kind
+
+
+@pytest.mark.parametrize("text", HOSTILE_TEXT)
+def test_list_refuses_hostile_filters_on_the_page(client: FlaskClient, seeded: Any, text: str) -> None:
+    html, _ = page(client, "/review/?" + urlencode({"kind": text, "status": text}), status=422)
+    assert "There is no part kind" in html and "There is no status" in html
+    assert "x" * 41 not in html and "\x00" not in html and "<script>" not in html
+
+
+@pytest.mark.parametrize("approved", HOSTILE_NUMBERS)
+def test_part_page_ignores_a_hostile_approved_notice(client: FlaskClient, seeded: Any, approved: str) -> None:
+    html, _ = page(client, f"/review/parts/{OPAMP_ID}?" + urlencode({"approved": approved}))
+    assert "approved." not in html
+
+
+@pytest.mark.parametrize("part_id", HOSTILE_TEXT)
+def test_hostile_part_ids_are_pages_not_found(client: FlaskClient, seeded: Any, part_id: str) -> None:
+    url = "/review/parts/" + quote(part_id, safe="")
+    html, _ = page(client, url, status=404)
+    assert "There is no part" in html and "x" * 41 not in html
+    response = client.post(url + "/approve", data={"revision": "1", "token": "cs_x"})
+    assert (response.status_code, response.mimetype) == (404, "text/html")
+
+
+@pytest.mark.parametrize("revision", HOSTILE_NUMBERS)
+def test_approval_refuses_a_hostile_revision_on_the_page(
+    client: FlaskClient, seeded: Any, tokens: dict[str, str], revision: str
+) -> None:
+    edit(client, tokens["edna"], OPAMP_ID, OPAMP_PARAMETERS)
+    _, parsed = page(client, f"/review/parts/{OPAMP_ID}")
+    form = {**parsed.hidden, "token": tokens["rita"], "revision": revision}
+    response = client.post(f"/review/parts/{OPAMP_ID}/approve", data=form)
+    assert (response.status_code, response.mimetype) == (400, "text/html")
+    assert "did not say which revision" in response.get_data(as_text=True)
+    assert status_of(client, OPAMP_ID) == "draft"
+
+
+def test_approval_refuses_hostile_tokens_and_form_tokens_on_the_page(
+    client: FlaskClient, seeded: Any, tokens: dict[str, str]
+) -> None:
+    edit(client, tokens["edna"], OPAMP_ID, OPAMP_PARAMETERS)
+    url = f"/review/parts/{OPAMP_ID}/approve"
+    for token in ("\x00", "cs_\x00" + "x" * 5000, "²"):
+        response = approve(client, OPAMP_ID, token)
+        assert (response.status_code, response.mimetype) == (401, "text/html")
+    for csrf in ("\x00", "x" * 5000, "é" * 43):
+        response = client.post(url, data={"csrf_token": csrf, "token": tokens["rita"], "revision": "2"})
+        assert (response.status_code, response.mimetype) == (400, "text/html")
+    # A multipart field over the form memory limit is refused as it is read.
+    response = client.post(url, data={"token": "x" * 600_000, "revision": "2"}, content_type="multipart/form-data")
+    assert (response.status_code, response.mimetype) == (413, "text/html")
+    assert status_of(client, OPAMP_ID) == "draft"
+
+
+@pytest.mark.parametrize(
+    ("name", "value"),
+    [
+        *((name, value) for name in ("leds_in_series", "current_a", "led") for value in ("²", "٣", "３", "1\x00")),
+        *((name, "9" * 30) for name in ("leds_in_series", "strings", "channels", "duty_cycle")),
+        *((name, "1" * 5000) for name in ("current_a", "gain", "supply")),
+        ("signal_hz", "1e999"),
+        ("current_a", "20 mA\x00"),
+        ("opamp", "o" * 81),
+    ],
+)
+def test_channel_form_refuses_hostile_values_naming_the_field(
+    client: FlaskClient, seeded: Any, name: str, value: str
+) -> None:
+    html, _ = page(client, "/review/channel?" + urlencode({**DEMO_CHANNEL, name: value}), status=422)
+    assert f"<code>{name}</code>" in html and "Verdict" not in html
+    answer = client.get("/review/channel.json?" + urlencode({**DEMO_CHANNEL, name: value}))
+    assert_problem(answer, 422, name)  # the JSON view answers as the API does
+
+
+def test_channel_form_takes_unit_symbols(client: FlaskClient, seeded: Any) -> None:
+    _, parsed = page(client, "/review/channel?" + urlencode({**DEMO_CHANNEL, "current_a": "20000 µA"}))
+    assert parsed.text["verdict"]
+
+
+@pytest.mark.parametrize(
+    ("method", "url", "status"),
+    [
+        ("GET", "/review/no-such-page", 404),
+        ("GET", "/review/parts/", 404),
+        ("GET", f"/review/parts/{OPAMP_ID}/approve", 405),
+        ("DELETE", f"/review/parts/{OPAMP_ID}", 405),
+        ("GET", "/review/static/no-such.css", 404),
+    ],
+)
+def test_unknown_page_addresses_and_methods_are_pages(
+    client: FlaskClient, seeded: Any, method: str, url: str, status: int
+) -> None:
+    response = client.open(url, method=method)
+    assert (response.status_code, response.mimetype) == (status, "text/html")
+    assert f"Not shown ({status})" in response.get_data(as_text=True)
+    if status == 405:
+        assert "Allow" in response.headers
+
+
+@pytest.mark.parametrize(
+    "unreachable_url",
+    ["sqlite:////nonexistent/calcsvc/calcsvc.sqlite", "postgresql+psycopg://calcsvc@127.0.0.1:1/calcsvc"],
+    ids=["sqlite-file-missing", "postgresql-refused"],
+)
+@pytest.mark.parametrize("url", ["/review/", f"/review/parts/{OPAMP_ID}", "/review/channel"])
+def test_database_outage_is_a_page_saying_when_to_retry(unreachable_url: str, url: str) -> None:
+    unreachable = create_app({"DATABASE_URL": unreachable_url})
+    try:
+        response = unreachable.test_client().get(url)
+    finally:
+        unreachable.extensions["calcsvc.db"].dispose()
+    assert (response.status_code, response.mimetype) == (503, "text/html")
+    assert "the database is not reachable" in response.get_data(as_text=True)
+    assert int(response.headers["Retry-After"]) > 0
+
+
 # The same field as the API's: tests/test_hostile_input.py puts every hostile unit string through it.
 @pytest.mark.parametrize("hostile", ["1" * 100_000 + "!", "\u0662\u0660 mA"], ids=["100,001 chars", "Arabic-Indic 20"])
 def test_channel_form_refuses_hostile_unit_strings_at_once(client: FlaskClient, seeded: Any, hostile: str) -> None:
@@ -330,19 +455,6 @@ def test_channel_form_refuses_hostile_unit_strings_at_once(client: FlaskClient, 
     html, _ = page(client, "/review/channel?" + urlencode({**DEMO_CHANNEL, "current_a": hostile}), status=422)
     assert time.perf_counter() - started < 1.0  # generous: 900 digits once took 3.5 s, 100,000 did not finish
     assert "<code>current_a</code>" in html
-
-
-@pytest.mark.parametrize("revision", ["", "\u00b2", "\uff12", "99999999999", "2\n"])
-def test_a_form_that_names_no_revision_approves_nothing(
-    client: FlaskClient, seeded: Any, tokens: dict[str, str], revision: str
-) -> None:
-    edit(client, tokens["edna"], OPAMP_ID, OPAMP_PARAMETERS)
-    _, parsed = page(client, f"/review/parts/{OPAMP_ID}")
-    form = {**parsed.hidden, "token": tokens["rita"], "revision": revision}
-    refused = client.post(f"/review/parts/{OPAMP_ID}/approve", data=form)
-    assert refused.status_code == 400 and refused.mimetype == "text/html"
-    assert "did not say which revision" in refused.get_data(as_text=True)
-    assert status_of(client, OPAMP_ID) == "draft"
 
 
 def test_a_retirement_and_its_reason_are_in_the_page_history(

@@ -10,16 +10,23 @@ from typing import Any
 from alembic import command
 from alembic.config import Config
 from sqlalchemy import Engine, create_engine, event, text
+from sqlalchemy.exc import OperationalError
 from sqlalchemy.orm import Session, sessionmaker
 
 MIGRATIONS = Path(__file__).with_name("migrations")
 CONNECT_TIMEOUT_S = 5
+# How long a write waits for a lock another connection holds before the request is answered "busy, retry".
+# A sync worker is held for the whole wait and this service's own transactions take milliseconds, so a lock
+# held longer belongs to something else (a backup, an admin's open transaction): a few seconds ride out
+# concurrent edits, and a quick 503 with Retry-After frees the worker and lets the client retry or report.
+LOCK_WAIT_S = 5
+_LOCK_NOT_AVAILABLE = "55P03"  # PostgreSQL's SQLSTATE once lock_timeout has passed
 
 
 def make_engine(url: str, pool_size: int = 5) -> Engine:
     if url.startswith("sqlite"):
-        # A writer waits up to 30 s for the file lock instead of failing at once under concurrent edits.
-        engine = create_engine(url, connect_args={"timeout": 30, "check_same_thread": False})
+        # A writer waits for the file lock instead of failing at once under concurrent edits, but not for long.
+        engine = create_engine(url, connect_args={"timeout": LOCK_WAIT_S, "check_same_thread": False})
 
         @event.listens_for(engine, "connect")
         def _sqlite_pragmas(dbapi_connection: Any, _record: Any) -> None:
@@ -37,6 +44,8 @@ def make_engine(url: str, pool_size: int = 5) -> Engine:
         # libpq waits forever for a server that accepts but never answers, hanging /readyz and every request;
         # a connect_timeout given in the URL wins.
         cparams.setdefault("connect_timeout", CONNECT_TIMEOUT_S)
+        # Without lock_timeout a write blocked by a lock waits until the worker is killed; options in the URL win.
+        cparams.setdefault("options", f"-c lock_timeout={LOCK_WAIT_S * 1000}")
 
     return engine
 
@@ -53,16 +62,28 @@ class Database:
         with self._sessions() as session, session.begin():
             yield session
 
+    def ping(self) -> None:
+        """Raise what connecting and asking one question raises (an OperationalError when unreachable)."""
+        with self.engine.connect() as connection:
+            connection.execute(text("SELECT 1"))
+
     def reachable(self) -> bool:
         try:
-            with self.engine.connect() as connection:
-                connection.execute(text("SELECT 1"))
+            self.ping()
             return True
         except Exception:
             return False
 
     def dispose(self) -> None:
         self.engine.dispose()
+
+
+def is_busy(error: OperationalError) -> bool:
+    """Whether the database refused because a lock stayed taken for LOCK_WAIT_S (it answers; retry soon)."""
+    cause = error.orig
+    return str(getattr(cause, "sqlite_errorname", "")).startswith(("SQLITE_BUSY", "SQLITE_LOCKED")) or (
+        getattr(cause, "sqlstate", None) == _LOCK_NOT_AVAILABLE
+    )
 
 
 def alembic_config(url: str) -> Config:

@@ -16,7 +16,7 @@ from werkzeug.exceptions import HTTPException
 
 from calcsvc.config import load_config
 from calcsvc.core.outcome import DomainError
-from calcsvc.data.database import Database
+from calcsvc.data.database import Database, is_busy
 from calcsvc.data.store import (
     InvalidPart,
     InvalidPartId,
@@ -35,6 +35,7 @@ from calcsvc.web.problems import (
     BodyErrorsPlugin,
     Problem,
     ProblemSchema,
+    database_problem,
     from_http_exception,
     problem_response,
 )
@@ -95,8 +96,10 @@ def _domain_problem(error: DomainError) -> Response:
 
 
 def _database_down(error: OperationalError) -> Response:
-    log.error("database unavailable on %s %s: %s", request.method, request.path, type(error).__name__)
-    return problem_response(Problem(503, "the database is not reachable; try again shortly", "database-unavailable"))
+    busy = is_busy(error)
+    level, state = (logging.WARNING, "busy") if busy else (logging.ERROR, "unavailable")
+    log.log(level, "database %s on %s %s: %s", state, request.method, request.path, type(error).__name__)
+    return problem_response(database_problem(busy))
 
 
 def _unexpected(error: Exception) -> Response:

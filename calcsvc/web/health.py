@@ -7,7 +7,7 @@ from flask.views import MethodView
 from flask_smorest import Blueprint
 from marshmallow import Schema, fields
 
-from calcsvc.web.problems import Problem, error_response
+from calcsvc.web.problems import RETRY_AFTER_HEADER, database_problem, error_response
 
 blp = Blueprint("health", __name__, description="Process and database health")
 
@@ -27,9 +27,9 @@ class Liveness(MethodView):
 @blp.route("/readyz")
 class Readiness(MethodView):
     @blp.response(200, HealthSchema)
-    @error_response(blp, 503, "the database is unreachable")
+    @error_response(blp, 503, "the database is unreachable", RETRY_AFTER_HEADER)
     def get(self) -> dict[str, str]:
         """The database answers; 503 otherwise."""
         if not current_app.extensions["calcsvc.db"].reachable():
-            raise Problem(503, "the database is not reachable", "database-unavailable")
+            raise database_problem(busy=False)
         return {"status": "ready"}

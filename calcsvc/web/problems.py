@@ -30,9 +30,16 @@ class ProblemSchema(Schema):
     )
 
 
-def error_response(blp: Any, status: int, description: str) -> Any:
+RETRY_AFTER_HEADER = {
+    "Retry-After": {"description": "seconds to wait before trying again", "schema": {"type": "integer", "minimum": 1}}
+}
+
+
+def error_response(blp: Any, status: int, description: str, headers: dict[str, Any] | None = None) -> Any:
     """Document an error status of an operation as a problem document."""
-    return blp.alt_response(status, schema=ProblemSchema, content_type=PROBLEM_MIMETYPE, description=description)
+    return blp.alt_response(
+        status, schema=ProblemSchema, content_type=PROBLEM_MIMETYPE, description=description, headers=headers
+    )
 
 
 class BodyErrorsPlugin(BasePlugin):
@@ -87,7 +94,36 @@ _TITLES = {
 }
 
 
+RETRY_BUSY_S = 2  # a lock that outlasted LOCK_WAIT_S is usually released within moments
+RETRY_UNREACHABLE_S = 5  # a server restart or fail-over takes some seconds
+
+
+def database_problem(busy: bool) -> Problem:
+    """The 503 of a database that is busy (a lock held too long) or unreachable, telling clients when to retry."""
+    if busy:
+        return Problem(
+            503,
+            "the database is busy (another writer holds a lock); try again in a moment",
+            "database-busy",
+            headers={"Retry-After": str(RETRY_BUSY_S)},
+            title="Database busy",
+        )
+    return Problem(
+        503,
+        "the database is not reachable; try again shortly",
+        "database-unavailable",
+        headers={"Retry-After": str(RETRY_UNREACHABLE_S)},
+        title="Database unavailable",
+    )
+
+
 def problem_response(problem: Problem) -> Response:
+    page = g.get("error_page")
+    if page is not None:
+        # A browser page asked (see the review page): the error as a page, with the same status and headers.
+        response: Response = page(problem.status, problem.detail)
+        response.headers.update(problem.headers)
+        return response
     if g.get("plain_errors"):
         # A spreadsheet cell cannot show a JSON document: one short line, same status.
         detail = "; ".join(f"{k}: {v[0]}" for k, v in problem.errors.items()) if problem.errors else problem.detail

@@ -58,11 +58,14 @@ bp = Blueprint(
 
 PAGE_SIZE = 100
 DRAFTS_SHOWN = 50
+MAX_OFFSET = 1_000_000  # as the parts API's
+_WHOLE = re.compile(r"[0-9]{1,10}")  # ASCII only: str.isdigit() and int() also take "²" and "٣"
+# What a value of the channel form may hold: printable ASCII and the unit symbols, 80 characters at most
+# (no control characters or NUL, which PostgreSQL refuses, and nothing worth parsing at length).
+_FORM_VALUE = re.compile(r"[\x20-\x7eµμΩ·]{1,80}")
 CSRF_COOKIE = "calcsvc_review_csrf"
 CSRF_FIELD = "csrf_token"
 _CSRF_FORMAT = re.compile(r"[A-Za-z0-9_-]{43}")  # secrets.token_urlsafe(32)
-# ASCII digits only (str.isdigit also takes "²", which int() refuses), few enough for the store's integer columns.
-_WHOLE_NUMBER = re.compile(r"[0-9]{1,9}")
 PAGE_POLICY = (
     "default-src 'none'; img-src 'self'; style-src 'self'; form-action 'self'; frame-ancestors 'none'; base-uri 'none'"
 )
@@ -150,6 +153,20 @@ def _store() -> Any:
     return current_app.extensions["calcsvc.db"].transaction()
 
 
+def whole_number(text: str | None, low: int, high: int) -> int | None:
+    """The page's one rule for numbers it is sent: ASCII digits only (no sign, space or separator), from
+    ``low`` to ``high``; None for anything else."""
+    if text is None or _WHOLE.fullmatch(text) is None:
+        return None
+    value = int(text)
+    return value if low <= value <= high else None
+
+
+def shown(text: str) -> str:
+    """Text a visitor sent, quoted and cut short for a message (any control character made visible)."""
+    return repr(text if len(text) <= 40 else text[:40] + "…")
+
+
 # --- formatting -----------------------------------------------------------------------------------------------
 
 
@@ -198,11 +215,28 @@ def csrf_valid() -> bool:
     return bool(_CSRF_FORMAT.fullmatch(cookie)) and hmac.compare_digest(cookie.encode(), sent.encode())
 
 
+@bp.before_app_request
+def _errors_as_pages() -> None:
+    """Every error under the page's prefix, a mistyped address or a database outage too, is a page for the
+    browser; the channel's JSON view answers problem documents like the rest of the API."""
+    if request.path.startswith(f"{bp.url_prefix}/") and request.endpoint != "review_page.channel_json":
+        g.error_page = _error_page
+
+
 @bp.before_request
 def _reads_allowed() -> Response | None:
     if current_app.config["READ_REQUIRES_TOKEN"]:
         message = "This server requires a token for every read; the review page holds no tokens, so it is off."
         return _error_page(403, message)
+    return None
+
+
+@bp.before_request
+def _no_such_part() -> Response | None:
+    """An id no part can have is not looked up (PostgreSQL refuses a NUL in a query with an error)."""
+    part_id = (request.view_args or {}).get("part_id")
+    if part_id is not None and not is_part_id(part_id):
+        return _error_page(404, f"There is no part {shown(part_id)}.")
     return None
 
 
@@ -239,13 +273,16 @@ def parts_list() -> Response:
     status = request.args.get("status") or None
     problems = []
     if kind is not None and kind not in KINDS:
-        problems.append(f"There is no part kind '{kind}'.")
+        problems.append(f"There is no part kind {shown(kind)}. The filter was ignored.")
         kind = None
     if status is not None and status not in STATUSES:
-        problems.append(f"There is no status '{status}'.")
+        problems.append(f"There is no status {shown(status)}. The filter was ignored.")
         status = None
-    offset = request.args.get("offset", "0")
-    start = int(offset) if _WHOLE_NUMBER.fullmatch(offset) else 0
+    offset = request.args.get("offset") or "0"
+    start = whole_number(offset, 0, MAX_OFFSET)
+    if start is None:
+        problems.append(f"The offset must be a whole number from 0 to {MAX_OFFSET}, not {shown(offset)}.")
+        start = 0
     with _store() as session:
         store = PartStore(session)
         parts, total = store.list(kind, status, start, PAGE_SIZE)
@@ -365,7 +402,7 @@ def _part_page(part_id: str, status: int = 200, error: str | None = None) -> Res
     history = [
         (revision, differences(revisions[k - 1], revision) if k else None) for k, revision in enumerate(revisions)
     ]
-    approved = request.args.get("approved", type=int)
+    approved = whole_number(request.args.get("approved"), 1, MAX_REVISION)
     page = render_template(
         "review/part.html",
         part=part,
@@ -394,8 +431,8 @@ def _approve(part_id: str) -> None:
     token = request.form.get("token", "").strip()
     if not token:
         raise PageError(401, "Paste your reviewer token to approve.")
-    revision = request.form.get("revision", "")
-    if not _WHOLE_NUMBER.fullmatch(revision) or not 1 <= int(revision) <= MAX_REVISION:
+    revision = whole_number(request.form.get("revision"), 1, MAX_REVISION)
+    if revision is None:
         raise PageError(400, "The form did not say which revision to approve: reload the page.")
     try:
         with _store() as session:
@@ -404,7 +441,7 @@ def _approve(part_id: str) -> None:
                 raise PageError(401, "That token is not valid (revoked or mistyped).")
             if not identity.may("reviewer"):
                 raise PageError(403, f"Token '{identity.name}' is an {identity.role}'s; approving needs a reviewer.")
-            PartStore(session).approve(part_id, int(revision), identity.name)
+            PartStore(session).approve(part_id, revision, identity.name)
     except SelfApproval as exc:
         raise PageError(403, f"{exc}: another reviewer must approve it.") from exc
     except StaleRevision as exc:
@@ -416,8 +453,6 @@ def _approve(part_id: str) -> None:
 
 @bp.post("/parts/<string:part_id>/approve")
 def approve(part_id: str) -> Response:
-    if not is_part_id(part_id):
-        return _error_page(404, f"There is no part {part_id[:80]!r}.")
     try:
         _approve(part_id)
     except PartNotFound:
@@ -451,6 +486,13 @@ CHANNEL_FIELDS: dict[str, tuple[tuple[str, str, str], ...]] = {
 def channel_body(form: Mapping[str, str]) -> dict[str, Any]:
     """The review's request body from the form; a Problem naming each bad field."""
     given = {k: v.strip() for k, v in form.items() if k in ChannelForm._declared_fields and v.strip()}
+    unreadable = {
+        k: [f"{shown(v)} is not a value: at most 80 characters of text, digits and units"]
+        for k, v in given.items()
+        if _FORM_VALUE.fullmatch(v) is None
+    }
+    if unreadable:
+        raise Problem(422, "invalid input: " + ", ".join(sorted(unreadable)), "validation", unreadable)
     if "opamp" not in given:
         given = {k: v for k, v in given.items() if k not in FRONT_STAGE}
     try:
