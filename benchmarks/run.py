@@ -41,10 +41,11 @@ from traffic import Client, Tally, drive
 
 from calcsvc.core import closed_loop, eseries, led_string, tolerance
 from calcsvc.core.channel import ChannelInputs
+from calcsvc.core.led_string import SPEC as LED_STRING
 from calcsvc.core.outcome import DomainError
+from calcsvc.core.spec import InputSet, Role
 from calcsvc.data.store import PartView
-from calcsvc.web.calc_api import columns_of, complete
-from calcsvc.web.calculations import LED_STRING, Form, Role
+from calcsvc.service.calculate import columns_of, complete
 from calcsvc.web.candidates import ChannelSearch, RoleSearch, search_channel, search_role
 from calcsvc.web.review_api import REVIEW, channel_inputs
 
@@ -619,12 +620,12 @@ def provided(role: Role, part: PartView) -> dict[str, Any]:
     return {name: part.parameters[parameter] for parameter, name in role.provides if parameter in part.parameters}
 
 
-def role_of(form: Form, name: str) -> Role:
+def role_of(form: InputSet, name: str) -> Role:
     return next(role for role in form.roles if role.name == name)
 
 
 def led_singles(search: RoleSearch) -> Callable[[], list[Any]]:
-    """The single-row path of ``POST /v1/calc/led-string`` (calc_api.run_flat's core call) over every
+    """The single-row path of ``POST /v1/calc/led-string`` (service.calculate.run_calculation's core call) over every
     candidate, one part at a time; the inputs are resolved and completed beforehand, outside the timing."""
     rows = [complete(LED_STRING, {**LED_SEARCH, **provided(search.role, part)}) for part in search.parts]
 

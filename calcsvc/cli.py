@@ -414,9 +414,9 @@ def calc_inputs(tokens: list[str]) -> dict[str, Any]:
 
 def _calculation_names() -> list[str]:
     from calcsvc.core import duty_power
-    from calcsvc.web.calculations import FLAT_CALCULATIONS
+    from calcsvc.core.registry import CALCULATIONS
 
-    return [*FLAT_CALCULATIONS, duty_power.NAME]
+    return [*CALCULATIONS, duty_power.NAME]
 
 
 def _calc(args: argparse.Namespace) -> int:

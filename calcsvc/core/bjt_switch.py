@@ -43,6 +43,7 @@ from calcsvc.core.outcome import (
     require_practical,
     rows,
 )
+from calcsvc.core.spec import E_SERIES, CalculationSpec, Input, Result, Role, columns_as, fraction, positive
 
 NAME = "bjt-switch"
 VERSION = "1"
@@ -299,3 +300,59 @@ def compute(inputs: BjtSwitchInputs) -> Outcome:
         "output; use a larger base resistor with a higher-gain transistor, or a buffer.",
     )
     return Outcome(results=results, checks=checks, warnings=warnings, cautions=cautions)
+
+
+# ---- declaration --------------------------------------------------------------------------------------------
+
+SPEC = CalculationSpec(
+    name=NAME,
+    summary="Base resistor for a saturated NPN low-side switch, with drive, rating and dissipation checks",
+    version=VERSION,
+    inputs=(
+        positive("hfe_min", "dimensionless", "lowest DC current gain at the operating current"),
+        positive("vbe_sat_v", "V", "base-emitter voltage in saturation"),
+        Input("vce_sat_v", "V", "collector-emitter voltage in saturation", minimum=0),
+        positive("ic_max_a", "A", "transistor's collector current rating"),
+        positive("power_max_w", "W", "transistor's dissipation rating"),
+        positive("collector_current_a", "A", "load current when on"),
+        Input("drive_high_v", "V", "driver output voltage when on"),
+        Input("drive_low_v", "V", "driver output voltage when off", 0.0),
+        Input("forced_beta", "dimensionless", "Ic/Ib to design for (10: common practice)", 10.0, minimum=1),
+        Input("e_series", "", "standard resistor series", "E24", choices=E_SERIES),
+        positive("rbe_ohm", "ohm", "base-emitter pull-down resistor", optional=True),
+        positive("driver_current_max_a", "A", "largest current the driver may source", optional=True),
+        fraction("duty_cycle", "fraction of time on", default=1.0),
+    ),
+    roles=(
+        Role(
+            "transistor",
+            "bjt",
+            (
+                ("hfe_min", "hfe_min"),
+                ("vbe_sat_v", "vbe_sat_v"),
+                ("vce_sat_v", "vce_sat_v"),
+                ("ic_max_a", "ic_max_a"),
+                ("power_max_w", "power_max_w"),
+            ),
+            must_have=(("polarity", "npn"),),
+        ),
+        Role(
+            "driver",
+            "driver",
+            (("voh_v", "drive_high_v"), ("vol_v", "drive_low_v"), ("source_current_max_a", "driver_current_max_a")),
+        ),
+    ),
+    results=(
+        Result("base_current_required_a", "A", "collector current / forced beta"),
+        Result("rb_exact_ohm", "ohm", "base resistor giving exactly the required base current"),
+        Result("rb_ohm", "ohm", "largest standard value not above the exact one"),
+        Result("drive_current_a", "A", "current the driver sources through rb_ohm"),
+        Result("base_current_a", "A", "current into the base after the pull-down's share"),
+        Result("forced_beta_actual", "A/A", "collector current / base current with rb_ohm"),
+        Result("saturation_margin", "", "hfe_min / forced_beta_actual"),
+        Result("transistor_power_w", "W", "(Vce_sat Ic + Vbe_sat Ib) x duty cycle"),
+    ),
+    make_inputs=lambda c: columns_as(BjtSwitchInputs, c),
+    validate=validate,
+    compute=compute,
+)

@@ -42,6 +42,7 @@ from calcsvc.core.outcome import (
     require,
     require_practical,
 )
+from calcsvc.core.spec import CalculationSpec, Columns, Input, Result, Role, positive
 
 NAME = "closed-loop-bandwidth"
 VERSION = "1"
@@ -348,3 +349,68 @@ def compute(inputs: ClosedLoopInputs) -> Outcome:
     )
 
     return Outcome(results=results, checks=checks, warnings=warnings)
+
+
+# ---- declaration --------------------------------------------------------------------------------------------
+
+
+def _inputs_from_columns(c: Columns) -> ClosedLoopInputs:
+    return ClosedLoopInputs(
+        inverting=c["configuration"] == "inverting",
+        gain=c["gain"],
+        rf_ohm=c["rf_ohm"],
+        rg_ohm=c["rg_ohm"],
+        gbw_hz=c["gbw_hz"],
+        open_loop_gain=c["open_loop_gain"],
+        stages=c["stages"],
+        signal_hz=c["signal_hz"],
+        sweep_start_hz=c["sweep_start_hz"],
+        sweep_stop_hz=c["sweep_stop_hz"],
+        sweep_points=c["sweep_points"],
+    )
+
+
+SPEC = CalculationSpec(
+    name=NAME,
+    summary="Closed-loop gain, bandwidth, rise time and response of a single-pole op-amp gain stage",
+    version=VERSION,
+    inputs=(
+        Input(
+            "configuration", "", "non_inverting or inverting", "non_inverting", choices=("non_inverting", "inverting")
+        ),
+        positive("gain", "dimensionless", "closed-loop gain magnitude (or give rf_ohm and rg_ohm)", optional=True),
+        positive("rf_ohm", "ohm", "feedback resistor", optional=True),
+        positive("rg_ohm", "ohm", "gain-setting resistor to ground (or input resistor when inverting)", optional=True),
+        positive("gbw_hz", "Hz", "op-amp gain-bandwidth product"),
+        positive("open_loop_gain", "dimensionless", "DC open-loop gain; absent: ideal at DC", optional=True),
+        Input("stages", "dimensionless", "identical cascaded stages", 1, minimum=1, maximum=20, integer=True),
+        positive("signal_hz", "Hz", "signal frequency to evaluate", optional=True),
+        positive("sweep_start_hz", "Hz", "first frequency of a log sweep", optional=True),
+        positive("sweep_stop_hz", "Hz", "last frequency of a log sweep", optional=True),
+        Input(
+            "sweep_points", "dimensionless", "points in the sweep", optional=True, minimum=2, maximum=2000, integer=True
+        ),
+    ),
+    roles=(Role("opamp", "opamp", (("gbw_hz", "gbw_hz"), ("open_loop_gain", "open_loop_gain"))),),
+    results=(
+        Result("noise_gain", "V/V", "1 + Rf/Rg, the gain the loop sees"),
+        Result("signal_gain", "V/V", "ideal signed signal gain"),
+        Result("closed_loop_gain", "V/V", "signed DC gain with the finite open-loop gain"),
+        Result("gain_error_pct", "%", "(closed_loop_gain - ideal)/ideal x 100"),
+        Result("bandwidth_hz", "Hz", "-3 dB frequency of one stage"),
+        Result("cascade_bandwidth_hz", "Hz", "-3 dB frequency of all stages"),
+        Result("rise_time_s", "s", "10-90 % rise time of one stage"),
+        Result("cascade_rise_time_s", "s", "10-90 % rise time of all stages"),
+        Result("gain_at_signal_db", "dB", "gain of all stages at signal_hz"),
+        Result("phase_at_signal_deg", "deg", "phase lag from finite bandwidth at signal_hz"),
+        Result(
+            "sweep",
+            "",
+            "frequency_hz [Hz], gain_db [dB] and phase_deg [deg] arrays, when a sweep was asked for",
+            "sweep",
+        ),
+    ),
+    make_inputs=_inputs_from_columns,
+    validate=validate,
+    compute=compute,
+)

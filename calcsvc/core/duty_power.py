@@ -43,6 +43,7 @@ from calcsvc.core.outcome import (
     require,
     require_practical,
 )
+from calcsvc.core.spec import Result
 
 NAME = "duty-cycle-power"
 VERSION = "1"
@@ -407,3 +408,21 @@ def compute(inputs: DutyPowerInputs) -> Outcome:
         "the supply's pulse rating and bulk capacitance",
     )
     return Outcome(results=results, checks=checks, warnings=warnings, cautions=cautions)
+
+
+# ---- declaration --------------------------------------------------------------------------------------------
+
+RESULTS = (
+    Result(
+        "loads",
+        "",
+        "per load, for one unit: average_current_a, rms_current_a, average_power_w, peak_power_w",
+        "records",
+    ),
+    Result("average_current_a", "A", "average supply current of all loads"),
+    Result("average_power_w", "W", "average supply power"),
+    Result("peak_current_a", "A", "supply current with every load on at once"),
+    Result("supply_utilization", "", "average current / supply rating"),
+    Result("runtime_h", "h", "battery capacity / average current"),
+    Result("max_common_duty_cycle", "", "largest duty cycle all loads could share within the supply rating"),
+)

@@ -46,6 +46,7 @@ from calcsvc.core.outcome import (
     require_practical,
     rows,
 )
+from calcsvc.core.spec import E_SERIES, CalculationSpec, Input, Result, Role, columns_as, positive
 
 NAME = "led-string"
 VERSION = "1"
@@ -291,3 +292,67 @@ def compute(inputs: LedStringInputs) -> Outcome:
         "supply voltage, more LEDs per string, or a constant-current driver.",
     )
     return Outcome(results=results, checks=checks, warnings=warnings, cautions=cautions)
+
+
+# ---- declaration --------------------------------------------------------------------------------------------
+
+SPEC = CalculationSpec(
+    name=NAME,
+    summary="Series resistor, worst-case current and dissipation of LED strings on one supply",
+    version=VERSION,
+    inputs=(
+        positive("supply_v", "V", "supply voltage"),
+        Input("supply_tolerance", "dimensionless", "supply tolerance as a fraction", 0.0, minimum=0, maximum=1),
+        positive("vf_typ_v", "V", "typical LED forward voltage"),
+        positive("vf_min_v", "V", "lowest LED forward voltage"),
+        positive("vf_max_v", "V", "highest LED forward voltage"),
+        positive("if_max_a", "A", "LED continuous current rating"),
+        Input("leds_in_series", "dimensionless", "LEDs in each string", minimum=1, maximum=1000, integer=True),
+        Input(
+            "strings",
+            "dimensionless",
+            "parallel strings, each with its own resistor",
+            1,
+            minimum=1,
+            maximum=10000,
+            integer=True,
+        ),
+        positive("current_a", "A", "target current per string"),
+        Input("switch_drop_v", "V", "voltage lost in the switch (a transistor's Vce_sat)", 0.0, minimum=0),
+        Input("e_series", "", "standard resistor series", "E24", choices=E_SERIES),
+        Input(
+            "resistor_tolerance",
+            "dimensionless",
+            "resistor tolerance; absent: the series' own",
+            optional=True,
+            minimum=0,
+            maximum=1,
+        ),
+    ),
+    roles=(
+        Role("supply", "supply", (("supply_v", "supply_v"), ("supply_tolerance", "supply_tolerance"))),
+        Role(
+            "led",
+            "led",
+            (("vf_typ_v", "vf_typ_v"), ("vf_min_v", "vf_min_v"), ("vf_max_v", "vf_max_v"), ("if_max_a", "if_max_a")),
+        ),
+        Role("transistor", "bjt", (("vce_sat_v", "switch_drop_v"),)),
+    ),
+    results=(
+        Result("resistor_exact_ohm", "ohm", "resistor giving exactly the target current"),
+        Result("resistor_ohm", "ohm", "smallest standard value not below the exact one"),
+        Result("current_a", "A", "nominal current per string with resistor_ohm"),
+        Result("current_min_a", "A", "worst-case lowest current per string"),
+        Result("current_max_a", "A", "worst-case highest current per string"),
+        Result("resistor_power_w", "W", "nominal resistor dissipation"),
+        Result("resistor_power_max_w", "W", "worst-case resistor dissipation"),
+        Result("resistor_rating_w", "W", "smallest standard rating of at least twice the worst case"),
+        Result("led_power_w", "W", "power in the LEDs of one string"),
+        Result("total_current_a", "A", "current of all strings"),
+        Result("efficiency", "", "LED power / supply power"),
+        Result("headroom_v", "V", "nominal voltage across the resistor"),
+    ),
+    make_inputs=lambda c: columns_as(LedStringInputs, c),
+    validate=validate,
+    compute=compute,
+)

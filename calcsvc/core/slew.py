@@ -40,6 +40,7 @@ from calcsvc.core.outcome import (
     require,
     require_practical,
 )
+from calcsvc.core.spec import CalculationSpec, Input, Result, Role, positive
 
 NAME = "slew-limit"
 VERSION = "1"
@@ -186,3 +187,42 @@ def compute(inputs: SlewInputs) -> Outcome:
         "(0 V headroom), so it is an upper bound",
     )
     return Outcome(results=results, checks=checks, warnings=warnings)
+
+
+# ---- declaration --------------------------------------------------------------------------------------------
+
+SPEC = CalculationSpec(
+    name=NAME,
+    summary="Largest undistorted amplitude, full-power bandwidth and required slew rate of an op-amp output",
+    version=VERSION,
+    inputs=(
+        positive("slew_rate_v_per_s", "V/s", "op-amp slew rate"),
+        Input("output_headroom_v", "V", "how close the output swings to each rail", optional=True, minimum=0),
+        positive("frequency_hz", "Hz", "signal frequency", optional=True),
+        positive("amplitude_v", "V", "peak amplitude", optional=True),
+        Input("waveform", "", "sine or triangle", "sine", choices=("sine", "triangle")),
+        positive("supply_v", "V", "total rail-to-rail supply span", optional=True),
+        Input("step_v", "V", "size of a step to slew through", optional=True),
+    ),
+    roles=(
+        Role(
+            "opamp", "opamp", (("slew_rate_v_per_s", "slew_rate_v_per_s"), ("output_headroom_v", "output_headroom_v"))
+        ),
+    ),
+    results=(
+        Result("slew_limited_amplitude_v", "V", "largest peak amplitude the slew rate allows at frequency_hz"),
+        Result("swing_limited_amplitude_v", "V", "largest peak amplitude the supply and headroom allow"),
+        Result("max_amplitude_v", "V", "the smaller of the two"),
+        Result("max_amplitude_vpp", "V", "the same, peak to peak"),
+        Result("full_power_bandwidth_hz", "Hz", "highest frequency at which amplitude_v is undistorted"),
+        Result("required_slew_rate_v_per_s", "V/s", "slew rate amplitude_v at frequency_hz needs"),
+        Result("slew_limited", "", "true when the required slew rate exceeds the op-amp's", "boolean"),
+        Result("step_slew_time_s", "s", "time to slew through step_v"),
+    ),
+    make_inputs=lambda c: SlewInputs(
+        **{k: c[k] for k in SlewInputs.__dataclass_fields__ if k != "triangle"},
+        triangle=c["waveform"] == "triangle",
+    ),
+    validate=validate,
+    compute=compute,
+)

@@ -28,6 +28,7 @@ from calcsvc.data.store import (
     StaleRevision,
     StoreError,
 )
+from calcsvc.service.errors import ServiceError
 from calcsvc.web import batch_api, calc_api, health, parts_api, plots_api, review_api, review_page, select_api
 from calcsvc.web.observability import install_observability
 from calcsvc.web.problems import (
@@ -38,6 +39,7 @@ from calcsvc.web.problems import (
     database_problem,
     from_http_exception,
     problem_response,
+    service_problem,
 )
 from calcsvc.web.request_body import buffer_body
 
@@ -183,6 +185,7 @@ def create_app(config: Mapping[str, Any] | None = None) -> Flask:
     app.register_blueprint(review_page.bp)
 
     app.register_error_handler(Problem, problem_response)
+    app.register_error_handler(ServiceError, lambda error: problem_response(service_problem(error)))
     app.register_error_handler(StoreError, _store_problem)
     app.register_error_handler(DomainError, _domain_problem)
     app.register_error_handler(OperationalError, _database_down)

@@ -13,15 +13,16 @@ from flask import Response, current_app, request
 from flask.views import MethodView
 from flask_smorest import Blueprint
 
+from calcsvc.core.registry import CALCULATIONS
+from calcsvc.core.spec import CalculationSpec
 from calcsvc.csv_cells import CellWriter
+from calcsvc.service.envelope import SWEEP_KEYS, plain, row_sweeps
+from calcsvc.service.resolve import PartResolver
 from calcsvc.web.auth import require_reader
 from calcsvc.web.calc_schemas import request_schema
-from calcsvc.web.calculations import FLAT_CALCULATIONS, Calculation
 from calcsvc.web.columns import ParsedRows, parse_rows
-from calcsvc.web.envelope import SWEEP_KEYS, plain, row_sweeps
 from calcsvc.web.metrics import record_calculation
 from calcsvc.web.problems import Problem, error_response
-from calcsvc.web.resolve import PartResolver
 
 blp = Blueprint(
     "batch",
@@ -35,7 +36,7 @@ CSV = "text/csv"
 EXTRA_CELLS = "cells_beyond_the_header"
 
 
-def _refuse_more_than_rows_hold(calc: Calculation, body: bytes | str, limit: int) -> None:
+def _refuse_more_than_rows_hold(calc: CalculationSpec, body: bytes | str, limit: int) -> None:
     """413 before parsing when the body has more separators than ``limit`` rows of named inputs could: each
     row holds at most one value per input name, so millions of tiny rows or one huge array inside a cell
     are refused before Python builds an object for each element."""
@@ -49,7 +50,7 @@ def _too_many_rows(count: int | str, limit: int) -> Problem:
     return Problem(413, f"{count} rows is more than this server takes in one batch ({limit})", "batch-size")
 
 
-def read_records(calc: Calculation) -> tuple[list[Any], bool]:
+def read_records(calc: CalculationSpec) -> tuple[list[Any], bool]:
     """The rows of the body, and whether blank cells mean "not given" (CSV)."""
     limit = current_app.config["BATCH_MAX_ROWS"]
     if request.mimetype == CSV:
@@ -81,7 +82,7 @@ def read_records(calc: Calculation) -> tuple[list[Any], bool]:
     return data, False
 
 
-def evaluate(calc: Calculation, parsed: ParsedRows) -> tuple[dict[str, Any], np.ndarray, Any]:
+def evaluate(calc: CalculationSpec, parsed: ParsedRows) -> tuple[dict[str, Any], np.ndarray, Any]:
     """Run the core once over every row that parsed; physical violations become errors on their rows."""
     n = parsed.n
     ok_rows = np.flatnonzero(~parsed.errors.mask(n))
@@ -105,9 +106,9 @@ def _row_problem(errors: dict[str, list[str]]) -> dict[str, Any]:
             "detail": detail, "errors": errors}  # fmt: skip
 
 
-def json_rows(calc: Calculation, parsed: ParsedRows, ok_rows: np.ndarray, outcome: Any) -> list[dict[str, Any]]:
+def json_rows(calc: CalculationSpec, parsed: ParsedRows, ok_rows: np.ndarray, outcome: Any) -> list[dict[str, Any]]:
     n = parsed.n
-    names = [name for name, _ in calc.results if name in outcome.results]
+    names = [name for name in calc.scalar_results() if name in outcome.results]
     results = [plain(outcome.results[name]) for name in names]
     sweeps = row_sweeps(outcome, ok_rows.size)
     checks = [(c.name, c.ok.tolist(), plain(c.value), plain(c.limit), plain(c.margin())) for c in outcome.checks]
@@ -139,7 +140,7 @@ def json_rows(calc: Calculation, parsed: ParsedRows, ok_rows: np.ndarray, outcom
     return rows
 
 
-def json_columns(calc: Calculation, parsed: ParsedRows, ok_rows: np.ndarray, outcome: Any) -> dict[str, Any]:
+def json_columns(calc: CalculationSpec, parsed: ParsedRows, ok_rows: np.ndarray, outcome: Any) -> dict[str, Any]:
     """The same answer as ``json_rows``, one array per result and check (element i belongs to row i).
 
     Arrays go to the serializer as they are, with no object per row, which is what makes large batches fast.
@@ -154,7 +155,7 @@ def json_columns(calc: Calculation, parsed: ParsedRows, ok_rows: np.ndarray, out
 
     ok = np.zeros(n, dtype=bool)
     ok[ok_rows] = True
-    results = {name: full(outcome.results[name]) for name, _ in calc.results if name in outcome.results}
+    results = {name: full(outcome.results[name]) for name in calc.scalar_results() if name in outcome.results}
     if "sweep_row" in outcome.results:
         # One array per row that sweeps (its own length), null for the others.
         sweeps: list[dict[str, np.ndarray] | None] = [None] * n
@@ -187,9 +188,9 @@ def json_columns(calc: Calculation, parsed: ParsedRows, ok_rows: np.ndarray, out
     }
 
 
-def csv_body(calc: Calculation, parsed: ParsedRows, ok_rows: np.ndarray, outcome: Any) -> str:
+def csv_body(calc: CalculationSpec, parsed: ParsedRows, ok_rows: np.ndarray, outcome: Any) -> str:
     """One line per row: every scalar result, the failing checks, and the problem of a bad row."""
-    names = [name for name, _ in calc.results if name in outcome.results and outcome.results[name].ndim == 1]
+    names = [name for name in calc.scalar_results() if name in outcome.results]
     n = parsed.n
     table: list[list[Any]] = [[row, "false"] + [""] * len(names) + ["", ""] for row in range(n)]
     columns = [outcome.results[name].tolist() for name in names]
@@ -218,7 +219,7 @@ def _refuse_large_sweeps(parsed: ParsedRows) -> None:
         raise Problem(413, message, "batch-size", {"sweep_points": [message]})
 
 
-def run_batch(calc: Calculation) -> Response:
+def run_batch(calc: CalculationSpec) -> Response:
     records, blank_is_absent = read_records(calc)
     if not records:
         raise Problem(422, "the batch holds no rows", "validation", {"body": ["the batch holds no rows"]})
@@ -246,7 +247,7 @@ def run_batch(calc: Calculation) -> Response:
     return Response(orjson.dumps(body, option=orjson.OPT_SERIALIZE_NUMPY), mimetype="application/json")
 
 
-def _batch_doc(calc: Calculation) -> dict[str, Any]:
+def _batch_doc(calc: CalculationSpec) -> dict[str, Any]:
     schema_name = request_schema(calc).__name__
     return {
         "requestBody": {
@@ -286,7 +287,7 @@ def _batch_doc(calc: Calculation) -> dict[str, Any]:
     }
 
 
-def _register(calc: Calculation) -> None:
+def _register(calc: CalculationSpec) -> None:
     class BatchView(MethodView):
         @blp.doc(summary=f"{calc.name} over many rows", **_batch_doc(calc))
         @error_response(blp, 413, "more rows than BATCH_MAX_ROWS, or more sweep points than BATCH_MAX_SWEEP_POINTS")
@@ -298,7 +299,7 @@ def _register(calc: Calculation) -> None:
     blp.route(f"/{calc.name}", endpoint=calc.name)(BatchView)
 
 
-for _calc in FLAT_CALCULATIONS.values():
+for _calc in CALCULATIONS.values():
     _register(_calc)
 
 

@@ -14,17 +14,18 @@ from flask_smorest import Blueprint
 from marshmallow import RAISE, Schema, ValidationError, fields, validate, validates_schema
 
 from calcsvc.core import duty_power
-from calcsvc.core.outcome import Outcome
+from calcsvc.core.registry import CALCULATIONS
+from calcsvc.core.spec import CalculationSpec, Role
 from calcsvc.csv_cells import CellWriter
+from calcsvc.service.calculate import run_calculation
+from calcsvc.service.envelope import envelope, plain, row_results
+from calcsvc.service.resolve import resolve_parts
 from calcsvc.web.auth import require_reader
 from calcsvc.web.calc_schemas import camel, request_schema, response_schema, role_fields
-from calcsvc.web.calculations import FLAT_CALCULATIONS, Calculation, Columns, Form, Role
-from calcsvc.web.envelope import envelope, plain, row_results, row_sweeps
 from calcsvc.web.json_limits import LengthCheckingParser
 from calcsvc.web.metrics import record_calculation
 from calcsvc.web.problems import PROBLEM_MIMETYPE, Problem, error_response
 from calcsvc.web.quantity import Quantity
-from calcsvc.web.resolve import PartResolver, Resolved, resolve
 
 blp = Blueprint(
     "calculations",
@@ -38,71 +39,18 @@ blp.ARGUMENTS_PARSER = LengthCheckingParser()  # waveform arrays are counted bef
 MAX_WAVEFORM_SAMPLES = 100_000
 
 
-def resolve_parts(roles: tuple[Role, ...], body: Mapping[str, Any]) -> Resolved:
-    if not any(role.name in body or f"{role.name}_revision" in body for role in roles):
-        return resolve(roles, body, PartResolver(None))  # all values explicit: no database round trip
-    with current_app.extensions["calcsvc.db"].transaction() as session:
-        return resolve(roles, body, PartResolver(session))
-
-
-def complete(calc: Form, values: dict[str, Any]) -> dict[str, Any]:
-    """Fill defaults; a required input neither given nor supplied by a part is a 422 naming it."""
-    missing = {
-        spec.name: [f"required: give {spec.name} or reference a part that provides it"]
-        for spec in calc.inputs
-        if spec.required and spec.name not in values
-    }
-    if missing:
-        raise Problem(422, "missing inputs: " + ", ".join(missing), "validation", missing)
-    filled = {spec.name: spec.default for spec in calc.inputs if spec.default is not None}
-    filled.update({k: v for k, v in values.items() if k in {spec.name for spec in calc.inputs}})
-    for spec in calc.inputs:
-        if spec.integer and spec.name in filled:
-            filled[spec.name] = int(filled[spec.name])
-    return filled
-
-
-def columns_of(calc: Form, rows: list[dict[str, Any]]) -> Columns:
-    """Input columns for the core: floats with NaN for absent optional inputs, strings for choices."""
-    columns: Columns = {}
-    for spec in calc.inputs:
-        if spec.choices:
-            columns[spec.name] = np.array([row[spec.name] for row in rows], dtype=str)
-        else:
-            columns[spec.name] = np.array([row.get(spec.name, math.nan) for row in rows], dtype=np.float64)
-    return columns
-
-
-def flat_results(calc: Calculation, outcome: Outcome, row: int) -> dict[str, Any]:
-    names = [name for name, _ in calc.results]
-    results = row_results(outcome, row, names)
-    sweep = row_sweeps(outcome, row + 1)[row]
-    if sweep is not None:
-        results["sweep"] = {key: plain(values) for key, values in sweep.items()}
-    return results
-
-
-def run_flat(calc: Calculation, body: Mapping[str, Any]) -> dict[str, Any]:
-    resolved = resolve_parts(calc.roles, body)
-    values = complete(calc, resolved.values)
-    outcome = calc.compute(calc.make_inputs(columns_of(calc, [values])))
+def _run(calc: CalculationSpec, body: Mapping[str, Any]) -> dict[str, Any]:
     record_calculation(calc.name, 1)
-    return envelope(
-        calc.name, calc.version, values, resolved.parts, flat_results(calc, outcome, 0), outcome, 0, resolved.warnings
-    )
+    return run_calculation(current_app.extensions["calcsvc.db"], calc, body)
 
 
-def scalar_results(calc: Calculation) -> list[str]:
-    return [name for name, _ in calc.results if name != "sweep"]
-
-
-def query_schema(calc: Calculation) -> type[Schema]:
+def query_schema(calc: CalculationSpec) -> type[Schema]:
     """The POST inputs as query parameters, plus the spreadsheet-friendly output choices."""
     return Schema.from_dict(
         {
             **request_schema(calc)._declared_fields,
             "pick": fields.String(
-                validate=validate.OneOf(scalar_results(calc)),
+                validate=validate.OneOf(calc.scalar_results()),
                 metadata={"description": "answer only this result, as text/plain (a bare number, true or false)"},
             ),
             "format": fields.String(
@@ -114,14 +62,14 @@ def query_schema(calc: Calculation) -> type[Schema]:
     )
 
 
-def text_answer(calc: Calculation, envelope_: dict[str, Any], pick: str | None, fmt: str | None) -> Response | None:
+def text_answer(calc: CalculationSpec, envelope_: dict[str, Any], pick: str | None, fmt: str | None) -> Response | None:
     results = envelope_["results"]
     if pick:
         value = results.get(pick)
         text = "n/a" if value is None else ("true" if value is True else "false" if value is False else repr(value))
         return Response(text, mimetype="text/plain")
     if fmt == "csv":
-        names = scalar_results(calc)
+        names = calc.scalar_results()
         out = io.StringIO()
         writer = CellWriter(out, lineterminator="\n")
         writer.writerow(names)
@@ -147,7 +95,7 @@ def _cell_error(description: str) -> dict[str, Any]:
     }
 
 
-def _register_flat(calc: Calculation) -> None:
+def _register_flat(calc: CalculationSpec) -> None:
     # Instances, not classes: webargs would build a new schema object on every request.
     request = request_schema(calc)()
     response = response_schema(calc.name, calc.results)()
@@ -159,7 +107,7 @@ def _register_flat(calc: Calculation) -> None:
         @error_response(blp, 404, "a referenced part does not exist")
         @blp.doc(summary=calc.summary)
         def post(self, body: dict[str, Any]) -> dict[str, Any]:
-            return run_flat(calc, body)
+            return _run(calc, body)
 
         @blp.arguments(query, location="query", unknown=RAISE)  # a misspelt input is refused, not dropped
         @blp.response(200, response)
@@ -184,14 +132,14 @@ def _register_flat(calc: Calculation) -> None:
         )
         def get(self, args: dict[str, Any]) -> Any:
             pick, fmt = args.pop("pick", None), args.pop("format", None)
-            answer = run_flat(calc, args)
+            answer = _run(calc, args)
             return text_answer(calc, answer, pick, fmt) or answer
 
     CalculationView.__name__ = f"{camel(calc.name)}View"
     blp.route(f"/{calc.name}", endpoint=calc.name)(CalculationView)
 
 
-for _calc in FLAT_CALCULATIONS.values():
+for _calc in CALCULATIONS.values():
     _register_flat(_calc)
 
 
@@ -269,16 +217,7 @@ DutyRequest = Schema.from_dict(
     },
     name="DutyCyclePowerRequest",
 )
-DUTY_RESULTS = (
-    ("loads", "per load, for one unit: average_current_a, rms_current_a, average_power_w, peak_power_w"),
-    ("average_current_a", "average supply current of all loads [A]"),
-    ("average_power_w", "average supply power [W]"),
-    ("peak_current_a", "supply current with every load on at once [A]"),
-    ("supply_utilization", "average current / supply rating"),
-    ("runtime_h", "battery capacity / average current [h]"),
-    ("max_common_duty_cycle", "largest duty cycle all loads could share within the supply rating"),
-)
-DutyResponse = response_schema(duty_power.NAME, DUTY_RESULTS)
+DutyResponse = response_schema(duty_power.NAME, duty_power.RESULTS)
 
 
 def _load_currents(load: dict[str, Any]) -> dict[str, Any]:
@@ -291,7 +230,7 @@ def _load_currents(load: dict[str, Any]) -> dict[str, Any]:
 
 
 def run_duty(body: Mapping[str, Any]) -> dict[str, Any]:
-    resolved = resolve_parts((SUPPLY_ROLE,), body)
+    resolved = resolve_parts(current_app.extensions["calcsvc.db"], (SUPPLY_ROLE,), body)
     values = resolved.values
     if "supply_v" not in values:
         message = "required: give supply_v or reference a supply part"
@@ -336,7 +275,7 @@ def run_duty(body: Mapping[str, Any]) -> dict[str, Any]:
         }
         for k, load in enumerate(loads)
     ]
-    results = {"loads": per_load, **row_results(outcome, 0, [name for name, _ in DUTY_RESULTS[1:]])}
+    results = {"loads": per_load, **row_results(outcome, 0, [r.name for r in duty_power.RESULTS if r.scalar])}
     resolved_inputs = {k: values[k] for k in ("supply_v", "current_max_a", "capacity_ah") if k in values}
     resolved_inputs["loads"] = [
         {k: load[k] for k in ("name", "count", "peak_current_a", "duty_cycle")} for load in loads

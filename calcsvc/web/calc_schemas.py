@@ -6,8 +6,7 @@ from typing import Any
 
 from marshmallow import Schema, fields, validate
 
-from calcsvc.data.kinds import KINDS
-from calcsvc.web.calculations import Form, Input, Role
+from calcsvc.core.spec import Input, InputSet, Result, Role
 from calcsvc.web.parts_api import MAX_REVISION, part_id_field
 from calcsvc.web.quantity import Quantity
 
@@ -45,7 +44,7 @@ def role_fields(role: Role) -> dict[str, fields.Field]:
     }
 
 
-def request_schema(calc: Form) -> type[Schema]:
+def request_schema(calc: InputSet) -> type[Schema]:
     attributes: dict[str, Any] = {spec.name: input_field(spec) for spec in calc.inputs}
     for role in calc.roles:
         attributes.update(role_fields(role))
@@ -70,22 +69,23 @@ class CheckSchema(Schema):
     detail = fields.String(required=True)
 
 
-def result_field(name: str, description: str) -> fields.Field:
-    if name == "slew_limited":
+def result_field(result: Result) -> fields.Field:
+    description = result.text
+    if result.type == "boolean":
         return fields.Boolean(metadata={"description": description})
-    if name == "sweep":
+    if result.type == "sweep":
         return fields.Dict(
             keys=fields.String(), values=fields.List(fields.Float()), metadata={"description": description}
         )
-    if name == "loads":
+    if result.type == "records":
         return fields.List(fields.Dict(), metadata={"description": description})
     return fields.Float(allow_none=True, metadata={"description": description + " (null: does not apply)"})
 
 
-def response_schema(calc_name: str, results: tuple[tuple[str, str], ...]) -> type[Schema]:
+def response_schema(calc_name: str, results: tuple[Result, ...]) -> type[Schema]:
     prefix = camel(calc_name)
     results_schema = Schema.from_dict(
-        {name: result_field(name, description) for name, description in results}, name=f"{prefix}Results"
+        {result.name: result_field(result) for result in results}, name=f"{prefix}Results"
     )
     return Schema.from_dict(
         {
@@ -102,6 +102,3 @@ def response_schema(calc_name: str, results: tuple[tuple[str, str], ...]) -> typ
         },
         name=f"{prefix}Response",
     )
-
-
-KIND_NAMES = tuple(KINDS)

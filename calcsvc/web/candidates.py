@@ -30,10 +30,10 @@ import numpy.typing as npt
 
 from calcsvc.core import channel, tolerance
 from calcsvc.core.outcome import BoolArray, DomainError, FloatArray, Outcome, Violation, row_count, take
+from calcsvc.core.spec import CalculationSpec, Columns, InputSet, Role
 from calcsvc.data.store import PartView
-from calcsvc.web.calc_api import columns_of, complete, scalar_results
-from calcsvc.web.calculations import Calculation, Columns, Form, Role
-from calcsvc.web.envelope import plain, row_notices, row_results
+from calcsvc.service.calculate import columns_of, complete
+from calcsvc.service.envelope import plain, row_notices, row_results
 from calcsvc.web.review_api import REVIEW, YieldSchema, channel_inputs
 
 T = TypeVar("T")
@@ -107,7 +107,7 @@ def choose(
     return kept, excluded
 
 
-def part_columns(form: Form, role: Role, parts: Sequence[PartView], given: Collection[str]) -> Columns:
+def part_columns(form: InputSet, role: Role, parts: Sequence[PartView], given: Collection[str]) -> Columns:
     """The inputs ``role`` provides, one value per part, leaving out those in ``given`` (explicit values and
     other roles' parts win, as in a single request). A part without an optional parameter leaves the
     input's default, or NaN (not given)."""
@@ -124,7 +124,7 @@ def part_columns(form: Form, role: Role, parts: Sequence[PartView], given: Colle
     return columns
 
 
-def shared_inputs(form: Form, values: dict[str, Any], provided: Collection[str]) -> dict[str, Any]:
+def shared_inputs(form: InputSet, values: dict[str, Any], provided: Collection[str]) -> dict[str, Any]:
     """The inputs every row shares, completed as a single request completes them (a 422 names a required
     input nobody gives). Inputs the candidates provide hold a placeholder until their columns replace it."""
     return complete(form, {**dict.fromkeys(provided, 0.0), **values})
@@ -273,7 +273,7 @@ class Requirement:
     """A calculation whose checks every candidate must also pass, with its own resolved inputs; ``field``
     prefixes the names of its inputs in errors (e.g. "require.0.inputs.")."""
 
-    calc: Calculation
+    calc: CalculationSpec
     values: dict[str, Any]
     field: str = ""
 
@@ -282,7 +282,7 @@ class Requirement:
 class Evaluated:
     """One calculation over every candidate: the core's inputs, the rows it accepted and their outcome."""
 
-    calc: Calculation
+    calc: CalculationSpec
     prefix: str  # "" for the searched calculation, "<name>." for a required one
     inputs: Any
     shared: dict[str, Any]  # the inputs every row shares
@@ -311,7 +311,12 @@ class Evaluated:
 
 
 def evaluate(
-    calc: Calculation, values: dict[str, Any], role: Role, parts: Sequence[PartView], prefix: str = "", field: str = ""
+    calc: CalculationSpec,
+    values: dict[str, Any],
+    role: Role,
+    parts: Sequence[PartView],
+    prefix: str = "",
+    field: str = "",
 ) -> Evaluated:
     """``calc`` with each part in ``role`` in turn, as one vectorized pass of the core."""
     provided = part_columns(calc, role, parts, values.keys())
@@ -365,7 +370,7 @@ class RoleSearch:
                 continue
             k = e.position(row)
             entry["failing"] += [e.prefix + c.name for c in e.outcome.checks if not bool(c.ok[k])]
-            results.append(row_results(e.outcome, k, scalar_results(e.calc)))
+            results.append(row_results(e.outcome, k, e.calc.scalar_results()))
             warnings += row_notices(e.outcome.warnings, k)
             cautions += row_notices(e.outcome.cautions, k)
         entry["results"] = results[0]
@@ -381,7 +386,7 @@ class RoleSearch:
 
 
 def search_role(
-    calc: Calculation,
+    calc: CalculationSpec,
     values: dict[str, Any],
     role: Role,
     parts: Sequence[PartView],

@@ -13,12 +13,12 @@ from typing import Any
 
 import numpy as np
 
+from calcsvc.core.spec import CalculationSpec, Columns, Input, Role
 from calcsvc.data.part_ids import is_part_id
+from calcsvc.service.errors import ServiceError
+from calcsvc.service.resolve import PartResolver, resolve
 from calcsvc.units import UnitError, parse_quantity
-from calcsvc.web.calculations import Calculation, Columns, Input, Role
 from calcsvc.web.parts_api import MAX_REVISION
-from calcsvc.web.problems import Problem
-from calcsvc.web.resolve import PartResolver, resolve
 
 _SCALARS = frozenset((int, float, str))  # exact types: bool, a subclass of int, is refused on the slow path
 
@@ -110,7 +110,7 @@ def _check_range(spec: Input, column: np.ndarray, errors: RowErrors) -> None:
 
 
 def parse_rows(
-    calc: Calculation, records: list[dict[str, Any]], resolver: PartResolver, blank_is_absent: bool = False
+    calc: CalculationSpec, records: list[dict[str, Any]], resolver: PartResolver, blank_is_absent: bool = False
 ) -> ParsedRows:
     """Typed columns of every input, parts resolved once per distinct reference, errors per row."""
     n = len(records)
@@ -206,7 +206,7 @@ def _resolve_role(
         body: dict[str, Any] = {role.name: part_id, f"{role.name}_revision": revision}
         try:
             resolved = resolve((role,), body, resolver)
-        except Problem as problem:
+        except ServiceError as problem:
             for row in rows:
                 for name, messages in (problem.errors or {role.name: [problem.detail]}).items():
                     for message in messages:

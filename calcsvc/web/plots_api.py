@@ -1,6 +1,6 @@
 """``/v1/plots/<name>.svg|png``: calculations drawn as images, from the same query inputs as ``GET /v1/calc/<name>``.
 
-Each plot runs the calculation exactly as the JSON endpoint does (``run_flat``: part references, defaults,
+Each plot runs the calculation exactly as the JSON endpoint does (``run_calculation``: part references, defaults,
 checks), then asks the core for the curves around that answer, so a marked point is the calculation's number.
 """
 
@@ -11,17 +11,19 @@ from collections.abc import Callable
 from typing import Any
 
 import numpy as np
-from flask import Response
+from flask import Response, current_app
 from flask.views import MethodView
 from flask_smorest import Blueprint
 from marshmallow import RAISE, Schema
 
 from calcsvc.core import closed_loop, eseries, led_string, slew
 from calcsvc.core.outcome import Outcome
+from calcsvc.core.registry import CALCULATIONS
+from calcsvc.core.spec import CalculationSpec
+from calcsvc.service.calculate import columns_of, run_calculation
 from calcsvc.web import plots
-from calcsvc.web.calc_api import columns_of, run_flat
 from calcsvc.web.calc_schemas import camel, request_schema
-from calcsvc.web.calculations import FLAT_CALCULATIONS, Calculation
+from calcsvc.web.metrics import record_calculation
 from calcsvc.web.problems import Problem, error_response
 
 blp = Blueprint(
@@ -47,14 +49,15 @@ def _span(low: float, high: float, field: str) -> None:
         raise Problem(422, message, "validation", {field: [message]})
 
 
-def _core(calc: Calculation, rows: list[dict[str, Any]]) -> Outcome:
+def _core(calc: CalculationSpec, rows: list[dict[str, Any]]) -> Outcome:
     """The core over rows of already completed inputs (one row per point of a curve)."""
     return calc.compute(calc.make_inputs(columns_of(calc, rows)))
 
 
 def closed_loop_curves(args: dict[str, Any]) -> plots.ClosedLoopCurves:
-    calc = FLAT_CALCULATIONS[closed_loop.NAME]
-    answer = run_flat(calc, args)
+    calc = CALCULATIONS[closed_loop.NAME]
+    record_calculation(calc.name, 1)
+    answer = run_calculation(current_app.extensions["calcsvc.db"], calc, args)
     values, results = answer["inputs"], answer["results"]
     stages = int(values["stages"])
     corner_name = "bandwidth_hz" if stages == 1 else "cascade_bandwidth_hz"
@@ -83,8 +86,9 @@ def closed_loop_curves(args: dict[str, Any]) -> plots.ClosedLoopCurves:
 
 
 def slew_curves(args: dict[str, Any]) -> plots.SlewCurves:
-    calc = FLAT_CALCULATIONS[slew.NAME]
-    answer = run_flat(calc, args)
+    calc = CALCULATIONS[slew.NAME]
+    record_calculation(calc.name, 1)
+    answer = run_calculation(current_app.extensions["calcsvc.db"], calc, args)
     values, results = answer["inputs"], answer["results"]
     swing = results["swing_limited_amplitude_v"]
     frequency, amplitude = values.get("frequency_hz"), values.get("amplitude_v")
@@ -108,8 +112,9 @@ def slew_curves(args: dict[str, Any]) -> plots.SlewCurves:
 
 
 def led_curves(args: dict[str, Any]) -> plots.LedCurves:
-    calc = FLAT_CALCULATIONS[led_string.NAME]
-    answer = run_flat(calc, args)
+    calc = CALCULATIONS[led_string.NAME]
+    record_calculation(calc.name, 1)
+    answer = run_calculation(current_app.extensions["calcsvc.db"], calc, args)
     values, results = answer["inputs"], answer["results"]
     leds, switch_v, supply_v = values["leds_in_series"], values["switch_drop_v"], values["supply_v"]
     tolerance = values.get("resistor_tolerance")
@@ -184,7 +189,7 @@ def endpoint(name: str, fmt: str) -> str:
 
 
 def _register(name: str, calc_name: str, draw: Callable[[dict[str, Any], str], plots.Plot], summary: str) -> None:
-    calc = FLAT_CALCULATIONS[calc_name]
+    calc = CALCULATIONS[calc_name]
     query = Schema.from_dict(dict(request_schema(calc)._declared_fields), name=f"{camel(name)}PlotQuery")
     for fmt, mimetype in plots.FORMATS.items():
         schema = {"type": "string"} if fmt == "svg" else {"type": "string", "contentMediaType": mimetype}

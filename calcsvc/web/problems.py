@@ -11,6 +11,8 @@ from flask import Response, g, json, request
 from marshmallow import Schema, fields
 from werkzeug.exceptions import HTTPException
 
+from calcsvc.service.errors import MalformedBody, PhysicallyImpossible, ServiceError, TooLarge, UnknownPart
+
 PROBLEM_MIMETYPE = "application/problem+json"
 log = logging.getLogger("calcsvc")
 
@@ -189,3 +191,18 @@ def from_http_exception(error: HTTPException) -> Problem:
     elif code >= 500:
         detail = "the server failed to answer this request; the failure has been logged"
     return Problem(code, detail, headers=headers)
+
+
+_SERVICE_STATUS: tuple[tuple[type[ServiceError], int], ...] = (
+    (UnknownPart, 404),
+    (TooLarge, 413),
+    (MalformedBody, 400),
+    (ServiceError, 422),  # invalid input, wrong part kind, retired part, physically impossible
+)
+
+
+def service_problem(error: ServiceError) -> Problem:
+    """The one mapping of the application layer's refusals to HTTP."""
+    status = next(status for kind, status in _SERVICE_STATUS if isinstance(error, kind))
+    title = "Physically impossible input" if isinstance(error, PhysicallyImpossible) else None
+    return Problem(status, error.detail, error.slug, error.errors, title=title)

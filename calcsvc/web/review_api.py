@@ -7,19 +7,20 @@ from collections.abc import Mapping
 from typing import Any
 
 import numpy as np
-from flask import Response, request
+from flask import Response, current_app, request
 from flask.views import MethodView
 from flask_smorest import Blueprint
 from marshmallow import Schema, fields
 
 from calcsvc.core import channel, tolerance
 from calcsvc.core.outcome import Outcome, raise_violations
+from calcsvc.core.spec import E_SERIES, Input, InputSet, Role, fraction, positive
+from calcsvc.service.calculate import columns_of, complete
+from calcsvc.service.envelope import fingerprint, plain, row_notices
+from calcsvc.service.resolve import resolve_parts
 from calcsvc.web import plots
 from calcsvc.web.auth import require_reader
-from calcsvc.web.calc_api import columns_of, complete, resolve_parts
 from calcsvc.web.calc_schemas import CheckSchema, PartUsedSchema, request_schema
-from calcsvc.web.calculations import E_SERIES, Form, Input, Role, fraction, positive
-from calcsvc.web.envelope import fingerprint, plain, row_notices
 from calcsvc.web.metrics import record_calculation
 from calcsvc.web.plots_api import image_response
 from calcsvc.web.problems import Problem, error_response
@@ -38,7 +39,7 @@ def count(name: str, description: str, default: int | None = None, maximum: floa
     return Input(name, "dimensionless", description, default, minimum=1, maximum=maximum, integer=True)
 
 
-REVIEW = Form(
+REVIEW = InputSet(
     name=channel.NAME,
     summary="Review a whole LED channel: string resistor, NPN switch, supply budget and front stage, "
     "nominal, worst case and yield",
@@ -250,7 +251,7 @@ CHECK_UNITS = {
 
 def yield_histogram(body: Mapping[str, Any], fmt: str) -> plots.Plot:
     """The Monte Carlo distribution of the check that fails most often, with its limit marked."""
-    resolved = resolve_parts(REVIEW.roles, body)
+    resolved = resolve_parts(current_app.extensions["calcsvc.db"], REVIEW.roles, body)
     values = complete(REVIEW, resolved.values)
     samples = int(values["samples"]) or tolerance.DEFAULT_SAMPLES
     found = tolerance.monte_carlo(channel_inputs(values), samples, int(values["seed"]))
@@ -267,7 +268,7 @@ def yield_histogram(body: Mapping[str, Any], fmt: str) -> plots.Plot:
 
 def run_review(body: Mapping[str, Any]) -> dict[str, Any]:
     """The review of one channel, as JSON-ready data (also used by the parts-review page)."""
-    resolved = resolve_parts(REVIEW.roles, body)
+    resolved = resolve_parts(current_app.extensions["calcsvc.db"], REVIEW.roles, body)
     return review_document(complete(REVIEW, resolved.values), resolved.parts, resolved.warnings)
 
 

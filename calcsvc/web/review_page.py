@@ -23,6 +23,7 @@ from marshmallow import Schema, ValidationError
 
 from calcsvc.core import led_string
 from calcsvc.core.outcome import DomainError
+from calcsvc.core.registry import CALCULATIONS
 from calcsvc.data.kinds import KINDS, Param, params_of
 from calcsvc.data.part_ids import is_part_id
 from calcsvc.data.store import (
@@ -36,13 +37,13 @@ from calcsvc.data.store import (
     StaleRevision,
 )
 from calcsvc.data.tokens import identify
+from calcsvc.service.calculate import run_calculation
+from calcsvc.service.errors import ServiceError
 from calcsvc.web import plots_api
-from calcsvc.web.calc_api import run_flat
-from calcsvc.web.calculations import FLAT_CALCULATIONS
-from calcsvc.web.metrics import record_parts_write
+from calcsvc.web.metrics import record_calculation, record_parts_write
 from calcsvc.web.parts_api import MAX_REVISION, part_id_field
 from calcsvc.web.plots import eng, size_px, unit_symbol
-from calcsvc.web.problems import Problem
+from calcsvc.web.problems import Problem, service_problem
 from calcsvc.web.quantity import Quantity
 from calcsvc.web.review_api import run_review
 from calcsvc.web.review_report import number, render_markdown, render_table_html
@@ -327,7 +328,8 @@ def differences(before: RevisionView, after: RevisionView) -> list[Change]:
 def _fits(body: dict[str, Any]) -> bool:
     """Whether the LEDs fit on the supply: the calculation accepts them and leaves it headroom to regulate."""
     try:
-        answer = run_flat(FLAT_CALCULATIONS[led_string.NAME], body)
+        record_calculation(led_string.NAME, 1)
+        answer = run_calculation(current_app.extensions["calcsvc.db"], CALCULATIONS[led_string.NAME], body)
     except (DomainError, Problem):
         return False
     return all(check["ok"] for check in answer["checks"] if check["name"] == "headroom")
@@ -525,8 +527,9 @@ def channel() -> Response:
     if submitted:
         try:
             review = run_review(channel_body(form))
-        except Problem as exc:
-            errors, message, status = exc.errors or {}, exc.detail, exc.status
+        except (Problem, ServiceError) as exc:
+            problem = exc if isinstance(exc, Problem) else service_problem(exc)
+            errors, message, status = problem.errors or {}, problem.detail, problem.status
         except DomainError as exc:
             for violation in exc.violations:
                 errors.setdefault(violation.field, []).append(violation.message)

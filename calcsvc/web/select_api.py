@@ -19,13 +19,16 @@ from marshmallow import Schema, ValidationError, fields, validate
 from sqlalchemy.orm import Session
 
 from calcsvc.core import channel, tolerance
+from calcsvc.core.registry import CALCULATIONS
+from calcsvc.core.spec import CalculationSpec, Role
 from calcsvc.data.kinds import KINDS, Param
 from calcsvc.data.part_ids import MAX_LENGTH, PATTERN, is_part_id
 from calcsvc.data.store import STATUSES, PartStore, PartView
+from calcsvc.service.envelope import plain
+from calcsvc.service.errors import ServiceError
+from calcsvc.service.resolve import PartResolver, resolve
 from calcsvc.web.auth import require_reader
-from calcsvc.web.calc_api import scalar_results
 from calcsvc.web.calc_schemas import PartUsedSchema, camel, input_field, request_schema
-from calcsvc.web.calculations import FLAT_CALCULATIONS, Calculation, Role
 from calcsvc.web.candidates import (
     CHANNEL_RANKINGS,
     DEFAULT_STATUSES,
@@ -40,11 +43,9 @@ from calcsvc.web.candidates import (
     search_channel,
     search_role,
 )
-from calcsvc.web.envelope import plain
 from calcsvc.web.metrics import record_calculation
 from calcsvc.web.problems import Problem, error_response
 from calcsvc.web.quantity import Quantity
-from calcsvc.web.resolve import PartResolver, resolve
 from calcsvc.web.review_api import REVIEW, YieldSchema
 
 FILTER_FORM = (
@@ -206,7 +207,7 @@ def _options(rankings: Sequence[str], order: bool) -> dict[str, fields.Field]:
 
 RequirementSchema = Schema.from_dict(
     {
-        "calculation": fields.String(required=True, validate=validate.OneOf(tuple(FLAT_CALCULATIONS))),
+        "calculation": fields.String(required=True, validate=validate.OneOf(tuple(CALCULATIONS))),
         "inputs": fields.Dict(
             keys=fields.String(),
             required=True,
@@ -215,21 +216,21 @@ RequirementSchema = Schema.from_dict(
     },
     name="SelectRequirement",
 )
-_INPUTS = {name: request_schema(calc) for name, calc in FLAT_CALCULATIONS.items()}
-_QUALIFIED = tuple(f"{name}.{result}" for name, calc in FLAT_CALCULATIONS.items() for result in scalar_results(calc))
+_INPUTS = {name: request_schema(calc) for name, calc in CALCULATIONS.items()}
+_QUALIFIED = tuple(f"{name}.{result}" for name, calc in CALCULATIONS.items() for result in calc.scalar_results())
 
 
-def select_schema(calc: Calculation) -> type[Schema]:
+def select_schema(calc: CalculationSpec) -> type[Schema]:
     attributes: dict[str, fields.Field] = dict(request_schema(calc)._declared_fields)
     attributes.update({role.name: Candidates(role) for role in calc.roles})
-    attributes.update(_options(("margin", *scalar_results(calc), *_QUALIFIED), order=True))
+    attributes.update(_options(("margin", *calc.scalar_results(), *_QUALIFIED), order=True))
     attributes["search"] = fields.String(
         validate=validate.OneOf([role.name for role in calc.roles]),
         metadata={"description": "the role to search when it is left out of the body (all parts, default filter)"},
     )
     attributes["require"] = fields.List(
         fields.Nested(RequirementSchema),
-        validate=validate.Length(max=len(FLAT_CALCULATIONS)),
+        validate=validate.Length(max=len(CALCULATIONS)),
         metadata={"description": "calculations whose checks every candidate must also pass (same role)"},
     )
     return Schema.from_dict(attributes, name=f"Select{camel(calc.name)}Request")
@@ -418,7 +419,7 @@ def _searched(roles: tuple[Role, ...], body: dict[str, Any], search: str | None)
 
 
 def _requirement(index: int, item: dict[str, Any], searched: Role, resolver: PartResolver) -> _Required:
-    calc = FLAT_CALCULATIONS[item["calculation"]]
+    calc = CALCULATIONS[item["calculation"]]
     where = f"require.{index}"
     role = next((r for r in calc.roles if r.name == searched.name and r.kind == searched.kind), None)
     if role is None:
@@ -433,16 +434,16 @@ def _requirement(index: int, item: dict[str, Any], searched: Role, resolver: Par
         raise _refuse(f"{where}.inputs.{role.name}", f"the {role.name} parts come from the search; leave it out")
     try:
         fixed = resolve(tuple(r for r in calc.roles if r is not role), inputs, resolver)
-    except Problem as problem:
-        errors = {f"{where}.inputs.{k}": v for k, v in (problem.errors or {}).items()}
-        raise Problem(problem.status, problem.detail, problem.slug, errors) from problem
+    except ServiceError as error:
+        errors = {f"{where}.inputs.{k}": v for k, v in (error.errors or {}).items()}
+        raise type(error)(error.detail, errors, error.slug) from error
     return _Required(Requirement(calc, fixed.values, f"{where}.inputs."), role, fixed.parts, fixed.warnings)
 
 
-def _ranking(calc: Calculation, options: dict[str, Any], required: list[_Required]) -> Ranking:
+def _ranking(calc: CalculationSpec, options: dict[str, Any], required: list[_Required]) -> Ranking:
     rank_by = options.get("rank_by", "margin")
-    allowed = {"margin", *scalar_results(calc)}
-    allowed |= {f"{r.requirement.calc.name}.{name}" for r in required for name in scalar_results(r.requirement.calc)}
+    allowed = {"margin", *calc.scalar_results()}
+    allowed |= {f"{r.requirement.calc.name}.{name}" for r in required for name in r.requirement.calc.scalar_results()}
     if rank_by not in allowed:
         raise _refuse("rank_by", f"{rank_by} is not a result of this search: require its calculation")
     return Ranking(
@@ -453,7 +454,7 @@ def _ranking(calc: Calculation, options: dict[str, Any], required: list[_Require
     )
 
 
-def run_select(calc: Calculation, body: dict[str, Any]) -> dict[str, Any]:
+def run_select(calc: CalculationSpec, body: dict[str, Any]) -> dict[str, Any]:
     options = {
         name: body.pop(name)
         for name in ("search", "require", "rank_by", "order", "limit", "only_passing")
@@ -524,7 +525,7 @@ SELECT_DOC = (
 )
 
 
-def _register(calc: Calculation) -> None:
+def _register(calc: CalculationSpec) -> None:
     class SelectView(MethodView):
         @blp.arguments(select_schema(calc))
         @blp.response(200, SelectionSchema)
@@ -538,7 +539,7 @@ def _register(calc: Calculation) -> None:
     blp.route(f"/{calc.name}", endpoint=calc.name)(SelectView)
 
 
-for _calc in FLAT_CALCULATIONS.values():
+for _calc in CALCULATIONS.values():
     _register(_calc)
 
 

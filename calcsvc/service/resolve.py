@@ -8,9 +8,10 @@ from typing import Any
 
 from sqlalchemy.orm import Session
 
+from calcsvc.core.spec import Role
+from calcsvc.data.database import Database
 from calcsvc.data.store import PartNotFound, PartStore, PartView
-from calcsvc.web.calculations import Role
-from calcsvc.web.problems import Problem
+from calcsvc.service.errors import InvalidInput, RetiredPartReference, UnknownPart, WrongPartKind
 
 
 @dataclass
@@ -29,7 +30,7 @@ class PartResolver:
                 self.cache[key] = store.get(part_id) if revision is None else store.get_revision(part_id, revision)
             except PartNotFound as exc:
                 field_name = role if revision is None or "revision" not in str(exc) else f"{role}_revision"
-                raise Problem(404, str(exc), "part-not-found", {field_name: [str(exc)]}) from exc
+                raise UnknownPart.on(field_name, str(exc)) from exc
         return self.cache[key]
 
 
@@ -51,21 +52,21 @@ def resolve(roles: tuple[Role, ...], body: Mapping[str, Any], resolver: PartReso
         if part_id is None:
             if revision is not None:
                 message = f"{role.name}_revision needs {role.name} (the part_id)"
-                raise Problem(422, message, "validation", {f"{role.name}_revision": [message]})
+                raise InvalidInput.on(f"{role.name}_revision", message)
             continue
         values.pop(role.name, None)
         values.pop(f"{role.name}_revision", None)
         part = resolver.part(role.name, part_id, revision)
         if part.kind != role.kind:
             message = f"part '{part_id}' is a {part.kind}; {role.name} needs a {role.kind}"
-            raise Problem(422, message, "wrong-part-kind", {role.name: [message]})
+            raise WrongPartKind.on(role.name, message)
         for parameter, wanted in role.must_have:
             if part.parameters.get(parameter) != wanted:
                 message = f"part '{part_id}' has {parameter} {part.parameters.get(parameter)!r}; {wanted!r} is needed"
-                raise Problem(422, message, "wrong-part-kind", {role.name: [message]})
+                raise WrongPartKind.on(role.name, message)
         if part.status == "retired" and revision is None:
             message = f"part '{part_id}' is retired; pin {role.name}_revision to re-run an old design"
-            raise Problem(422, message, "part-retired", {role.name: [message]})
+            raise RetiredPartReference.on(role.name, message)
         if part.status != "approved":
             warnings.append(f"{role.name} '{part_id}' revision {part.revision} is {part.status}, not approved")
         for parameter, input_name in role.provides:
@@ -73,3 +74,11 @@ def resolve(roles: tuple[Role, ...], body: Mapping[str, Any], resolver: PartReso
                 values[input_name] = part.parameters[parameter]
         parts.append({"role": role.name, "part_id": part.part_id, "revision": part.revision, "status": part.status})
     return Resolved(values, parts, warnings)
+
+
+def resolve_parts(database: Database, roles: tuple[Role, ...], body: Mapping[str, Any]) -> Resolved:
+    """``resolve`` in one short read transaction, or without touching the database when no part is named."""
+    if not any(role.name in body or f"{role.name}_revision" in body for role in roles):
+        return resolve(roles, body, PartResolver(None))
+    with database.transaction() as session:
+        return resolve(roles, body, PartResolver(session))

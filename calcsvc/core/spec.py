@@ -1,0 +1,105 @@
+"""What a calculation declares about itself: inputs with units and ranges, the part roles that may supply them,
+and results with their type and unit. The HTTP schemas, the OpenAPI document, batch columns, CSV headers, the
+query-string form, the command line, the searches and the plots are all derived from these declarations.
+"""
+
+from __future__ import annotations
+
+from collections.abc import Callable
+from dataclasses import dataclass
+from typing import Any, Literal
+
+import numpy as np
+
+from calcsvc.core.eseries import SERIES
+from calcsvc.core.outcome import Outcome, Violation
+
+Columns = dict[str, np.ndarray]
+E_SERIES = tuple(SERIES)
+
+
+@dataclass(frozen=True)
+class Input:
+    name: str
+    unit: str  # pint spelling of the SI unit; "" for a choice
+    description: str
+    default: float | str | None = None
+    optional: bool = False  # may stay absent (NaN to the core)
+    minimum: float | None = None
+    exclusive_minimum: bool = False
+    maximum: float | None = None
+    integer: bool = False
+    choices: tuple[str, ...] = ()
+
+    @property
+    def required(self) -> bool:
+        return self.default is None and not self.optional
+
+
+@dataclass(frozen=True)
+class Role:
+    """A part that may supply some inputs: ``provides`` maps part parameters to input names."""
+
+    name: str
+    kind: str
+    provides: tuple[tuple[str, str], ...]
+    must_have: tuple[tuple[str, str], ...] = ()  # (parameter, value) the part must carry, e.g. polarity npn
+
+
+ResultType = Literal["number", "boolean", "sweep", "records"]
+
+
+@dataclass(frozen=True)
+class Result:
+    """A declared result: a number per row (NaN: does not apply), a flag per row, a sweep of arrays per row, or
+    records (one object per item of a list input, such as the loads of a supply budget)."""
+
+    name: str
+    unit: str  # as people read it ("V", "ohm", "%"); "" for a plain ratio
+    description: str
+    type: ResultType = "number"
+
+    @property
+    def scalar(self) -> bool:
+        return self.type in ("number", "boolean")
+
+    @property
+    def text(self) -> str:
+        return f"{self.description} [{self.unit}]" if self.unit else self.description
+
+
+@dataclass(frozen=True)
+class InputSet:
+    """The inputs of an operation and the part roles that may supply them."""
+
+    name: str
+    summary: str
+    version: str
+    inputs: tuple[Input, ...]
+    roles: tuple[Role, ...]
+
+
+@dataclass(frozen=True)
+class CalculationSpec(InputSet):
+    """A row-wise calculation of the core: every input is one column, every result one column (or a sweep)."""
+
+    results: tuple[Result, ...]
+    make_inputs: Callable[[Columns], Any]
+    validate: Callable[[Any], list[Violation]]
+    compute: Callable[[Any], Outcome]
+
+    def scalar_results(self) -> list[str]:
+        return [result.name for result in self.results if result.scalar]
+
+
+def positive(name: str, unit: str, description: str, **kwargs: Any) -> Input:
+    return Input(name, unit, description, minimum=0, exclusive_minimum=True, **kwargs)
+
+
+def fraction(name: str, description: str, **kwargs: Any) -> Input:
+    return Input(name, "dimensionless", description, minimum=0, maximum=1, **kwargs)
+
+
+def columns_as(cls: type, columns: Columns) -> Any:
+    """The core's input dataclass from the columns named like its fields."""
+    return cls(**{name: columns[name] for name in cls.__dataclass_fields__})
