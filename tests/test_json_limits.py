@@ -60,6 +60,16 @@ def test_a_huge_sample_array_is_refused_without_building_its_samples(client: Fla
     assert peak < 3 * len(data), f"peak {peak / 1e6:.1f} MB for a {len(data) / 1e6:.1f} MB body"
 
 
+@pytest.mark.parametrize("path", ["/v1/calc/closed-loop-bandwidth", "/v1/calc/duty-cycle-power"])
+def test_deep_nesting_is_refused_without_a_path_per_level(client: FlaskClient, path: str) -> None:
+    """100,000 nested brackets once cost the scan a path string per level: gigabytes, then a 500."""
+    data = b"[" * 100_000 + b"]" * 100_000
+    answers = []
+    peak = peak_growth(lambda: answers.append(client.post(path, data=data, content_type="application/json")))
+    assert answers[0].status_code == 400 and answers[0].json["type"].endswith(":malformed-body")
+    assert peak < 3 * len(data), f"peak {peak / 1e6:.1f} MB for a {len(data) / 1e6:.1f} MB body"
+
+
 def test_a_batch_of_millions_of_tiny_rows_is_refused_before_building_them(database_url: str) -> None:
     small = create_app({"DATABASE_URL": database_url, "BATCH_MAX_ROWS": 1000}).test_client()
     data = ("[" + ",".join(["{}"] * 200_000) + "]").encode()

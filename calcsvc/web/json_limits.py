@@ -22,6 +22,9 @@ from calcsvc.web.problems import Problem
 
 # Members allowed in an array or object whose schema states no maximum: far above any object of named inputs.
 UNDECLARED = 1000
+# Nesting deeper than any request body has (the deepest, a load's waveform, is 4): the scan keeps a path per
+# level, so a body of 100,000 brackets would otherwise cost memory quadratic in its depth.
+MAX_DEPTH = 32
 
 _STRUCTURE = re.compile(rb'[\[\]{}"]')
 _STRING_REST = re.compile(rb'[^"\\]*(?:\\.[^"\\]*)*"', re.DOTALL)  # one way to match each byte: linear
@@ -31,6 +34,10 @@ _STRING_REST = re.compile(rb'[^"\\]*(?:\\.[^"\\]*)*"', re.DOTALL)  # one way to 
 class TooLong:
     path: str  # dotted, with array indices: "loads.0.waveform.time_s"; "" for the whole body
     limit: int
+
+
+class TooDeep(ValueError):
+    """The body nests arrays and objects deeper than :data:`MAX_DEPTH`."""
 
 
 @dataclass
@@ -51,7 +58,8 @@ def _child(parent: str, step: str) -> str:
 def first_too_long(body: bytes, limit_of: Callable[[str], int]) -> TooLong | None:
     """The first array or object with more members than ``limit_of(pattern)`` allows, or None.
 
-    Invalid JSON is left to the parser: the scan only has to be right for what a parser would build.
+    Invalid JSON is left to the parser: the scan only has to be right for what a parser would build. Raises
+    :class:`TooDeep` past :data:`MAX_DEPTH` levels.
     """
     stack: list[_Container] = []
     position = 0
@@ -79,6 +87,8 @@ def first_too_long(body: bytes, limit_of: Callable[[str], int]) -> TooLong | Non
                 stack[-1].expect_key = False
             position = rest.end()
         elif char in (b"[", b"{"):
+            if len(stack) >= MAX_DEPTH:
+                raise TooDeep(f"the request body nests arrays and objects more than {MAX_DEPTH} deep")
             pattern = path = ""
             if stack:
                 parent = stack[-1]
@@ -122,7 +132,10 @@ class LengthCheckingParser(FlaskParser):
     def load_json(self, req: Request, schema: Schema) -> Any:
         if is_json_request(req):
             limits = declared_limits(schema)
-            found = first_too_long(req.get_data(cache=True), lambda pattern: limits.get(pattern, UNDECLARED))
+            try:
+                found = first_too_long(req.get_data(cache=True), lambda pattern: limits.get(pattern, UNDECLARED))
+            except TooDeep as exc:
+                raise Problem(400, str(exc), "malformed-body") from exc
             if found is not None:
                 message = f"more than {found.limit:,} items"
                 raise Problem(

@@ -130,3 +130,4 @@ def buffer_body(req: Request) -> None:
     environ["wsgi.input_terminated"] = True
     for cached in ("stream", "content_length"):  # werkzeug caches both on first access
         req.__dict__.pop(cached, None)
+    req._cached_data = body  # get_data() then hands out this body instead of reading a second copy
