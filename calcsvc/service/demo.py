@@ -10,6 +10,9 @@ import json
 from pathlib import Path
 from typing import Any
 
+from calcsvc.core.channel_spec import CHANNEL_INPUTS
+from calcsvc.units import parse_quantity
+
 DEMO_FILE = Path(__file__).with_name("greenhouse-channel.json")
 
 
@@ -22,3 +25,12 @@ def _demo() -> dict[str, Any]:
 def demo_channel() -> dict[str, Any]:
     """The demo's ``POST /v1/review/channel`` body: part ids, and values as numbers or strings with units."""
     return dict(_demo())
+
+
+def demo_si() -> dict[str, Any]:
+    """The demo's body with every value in SI (strings with units parsed), part references as given."""
+    units = {spec.name: spec.unit for spec in CHANNEL_INPUTS.inputs if not spec.choices}
+    return {
+        name: parse_quantity(value, units[name]) if name in units and isinstance(value, str) else value
+        for name, value in _demo().items()
+    }
