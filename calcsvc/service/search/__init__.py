@@ -13,6 +13,7 @@ every check (descending) or by a chosen result; ties by that margin descending, 
 margin and so on, then by part_id (for a channel: the parts' ids in role order). Failing and refused rows by
 margin in the same way (the nearest miss first).
 
-Nothing here needs the database: ``search_role`` and ``search_channel`` take in-memory ``PartView`` lists,
-which is also how a benchmark calls them.
+Modules: ``common`` (filters, candidates' columns, refusals), ``ranking``, ``role`` and ``channel`` (the searches
+themselves, on in-memory ``PartView`` lists, which is also how a benchmark calls them) and ``select`` (a loaded
+request: the parts read from the table, the fixed roles resolved, the answer).
 """
