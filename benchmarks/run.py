@@ -5,7 +5,7 @@
 2. Batch: a 100,000-row LED-string batch over HTTP (JSON in the rows and the columns layout, and CSV, end to
    end) against the core in-process, the 200,000 rows/s target and single-row requests.
 3. Candidate search: 1,000 synthetic LEDs in one role of an LED string, and 100,000 combinations of synthetic
-   supplies, NPN transistors and LEDs for a whole channel, in-process (calcsvc.web.candidates) against loops of
+   supplies, NPN transistors and LEDs for a whole channel, in-process (calcsvc.service.search) against loops of
    the single-row path, and end to end over HTTP with the same parts in the server's database.
 4. Core: closed-loop sweep and LED string against plain Python loops of the same formulas; channel Monte Carlo.
 5. Memory: peak RSS (VmHWM) of the gunicorn workers after the batches.
@@ -41,13 +41,16 @@ from traffic import Client, Tally, drive
 
 from calcsvc.core import closed_loop, eseries, led_string, tolerance
 from calcsvc.core.channel import ChannelInputs
+from calcsvc.core.channel_spec import CHANNEL_INPUTS
 from calcsvc.core.led_string import SPEC as LED_STRING
 from calcsvc.core.outcome import DomainError
 from calcsvc.core.spec import InputSet, Role
 from calcsvc.data.store import PartView
 from calcsvc.service.calculate import columns_of, complete
-from calcsvc.web.candidates import ChannelSearch, RoleSearch, search_channel, search_role
-from calcsvc.web.review_api import REVIEW, channel_inputs
+from calcsvc.service.demo import demo_si
+from calcsvc.service.review import channel_inputs
+from calcsvc.service.search.channel import ChannelSearch, search_channel
+from calcsvc.service.search.role import RoleSearch, search_role
 
 RESULTS = REPO / "benchmarks" / "RESULTS.md"
 JSON = {"Content-Type": "application/json"}
@@ -61,17 +64,13 @@ LOOP_ROWS = 10_000  # the plain Python loop runs on these and is extrapolated
 SWEEP_POINTS = closed_loop.MAX_SWEEP_POINTS
 MONTE_CARLO_SAMPLES = (1_000_000, 100_000)
 
-# The greenhouse grow-light demo: three red LEDs in each of two strings at 20 mA, from a 12 V adapter, switched
-# by a small-signal NPN from a 3.3 V microcontroller pin; six such channels at 50 % duty.
-LED = {"vf_typ_v": 2.0, "vf_min_v": 1.8, "vf_max_v": 2.4, "if_max_a": 0.03}
-SINGLE_BODY = {
-    "supply_v": 12.0, "supply_tolerance": 0.05, **LED, "leds_in_series": 3, "strings": 2, "current_a": 0.02,
-    "switch_drop_v": 0.2,
-}  # fmt: skip
-PARTS_BODY = {
-    "supply": "supply-adapter-12v-2a", "led": "led-red-5mm", "transistor": "npn-small-signal",
-    "leds_in_series": 3, "strings": 2, "current_a": 0.02,
-}  # fmt: skip
+# The greenhouse grow-light demo (calcsvc.service.demo): three red LEDs in each of two strings at 20 mA, from a
+# 12 V adapter, switched by a small-signal NPN from a 3.3 V microcontroller pin; six such channels at 50 % duty.
+DEMO = demo_si()
+ARRANGEMENT = {name: DEMO[name] for name in ("leds_in_series", "strings", "current_a")}
+LED = {"vf_typ_v": 2.0, "vf_min_v": 1.8, "vf_max_v": 2.4, "if_max_a": 0.03}  # the seed red LED's
+SINGLE_BODY = {"supply_v": 12.0, "supply_tolerance": 0.05, **LED, **ARRANGEMENT, "switch_drop_v": 0.2}
+PARTS_BODY = {role: DEMO[role] for role in ("supply", "led", "transistor")} | ARRANGEMENT
 
 # Candidate search. The single LED string above with the LED open; the whole greenhouse channel from numbers
 # (the 3.3 V pin and the 1 MHz preamp at gain 20) with supply, transistor and LED open.
@@ -81,10 +80,12 @@ CHANNEL_PARTS = {"supply": 50, "transistor": 40, "led": 50}  # 100,000 combinati
 REVIEW_SAMPLE = 500  # single reviews timed and extrapolated per combination
 SEARCH_REQUESTS = 5  # per search over HTTP, after the warm-up
 LED_SEARCH = {name: value for name, value in SINGLE_BODY.items() if name not in LED}
+ROLES = {role.name for role in CHANNEL_INPUTS.roles}
 CHANNEL_SEARCH = {
-    "drive_high_v": 2.9, "drive_low_v": 0.4, "source_current_max_a": 0.008, "leds_in_series": 3, "strings": 2,
-    "current_a": 0.02, "duty_cycle": 0.5, "channels": 6, "e_series": "E24", "gain": 20, "gbw_hz": 1e6,
-    "open_loop_gain": 2e5, "slew_rate_v_per_s": 5e5, "output_headroom_v": 1.5, "signal_hz": 1e3, "amplitude_v": 2.0,
+    **{name: value for name, value in DEMO.items() if name not in ROLES and name not in ("samples", "seed")},
+    # The seed 3.3 V pin's and 1 MHz op-amp's values.
+    "drive_high_v": 2.9, "drive_low_v": 0.4, "source_current_max_a": 0.008,
+    "gbw_hz": 1e6, "open_loop_gain": 2e5, "slew_rate_v_per_s": 5e5, "output_headroom_v": 1.5,
 }  # fmt: skip
 
 
@@ -643,7 +644,7 @@ def review_singles(search: ChannelSearch, sample: np.ndarray) -> Callable[[], li
         given: dict[str, Any] = {**CHANNEL_SEARCH, "samples": 0}
         for role, part in zip(search.roles, search.parts_of(row), strict=True):
             given.update(provided(role, part))
-        return complete(REVIEW, given)
+        return complete(CHANNEL_INPUTS, given)
 
     rows = [values(row) for row in sample.tolist()]
 

@@ -19,7 +19,7 @@ from calcsvc import create_app
 from calcsvc.data.database import upgrade
 from calcsvc.data.seed import load_seed
 from calcsvc.data.tokens import create_token
-from calcsvc.web.review_page import DEMO_CHANNEL
+from calcsvc.web.pages.channel import DEMO_CHANNEL
 
 CHROMIUM = "/usr/bin/chromium"
 if not os.access(CHROMIUM, os.X_OK):

@@ -16,8 +16,10 @@ from flask.testing import FlaskClient
 from helpers import assert_problem
 from PIL import Image
 
+from calcsvc.core.curves import open_loop
 from calcsvc.openapi_spec import generated_spec
-from calcsvc.web import plots, plots_api
+from calcsvc.service import curves as service_curves
+from calcsvc.web import plots
 
 PNG_MAGIC = b"\x89PNG\r\n\x1a\n"
 DC = "{http://purl.org/dc/elements/1.1/}"
@@ -84,12 +86,12 @@ def test_cascade_without_open_loop_gain_marks_the_cascade_bandwidth(client: Flas
 
 def test_open_loop_curve_is_the_single_pole_or_the_gbw_asymptote() -> None:
     f = np.array([1.0, 5.0, 1e3, 1e6])
-    gain_db, phase_deg = plots.open_loop(f, 1e6, 2e5)
+    gain_db, phase_deg = open_loop(f, 1e6, 2e5)
     # The pole sits at GBW/A0 = 5 Hz: 3 dB down and 45° there, unity gain at the GBW.
     assert gain_db[1] == pytest.approx(20 * math.log10(2e5) - 10 * math.log10(2))
     assert phase_deg[1] == pytest.approx(-45.0)
     assert gain_db[3] == pytest.approx(0.0, abs=1e-4)
-    asymptote_db, asymptote_phase = plots.open_loop(f, 1e6, None)
+    asymptote_db, asymptote_phase = open_loop(f, 1e6, None)
     assert asymptote_db.tolist() == pytest.approx([120.0, 20 * math.log10(2e5), 60.0, 0.0])
     assert set(asymptote_phase) == {-90.0}
 
@@ -102,8 +104,7 @@ def test_slew_limit_plot_draws_both_limits_and_the_operating_point(
     markers = svg_markers(get_plot(client, "slew-limit.svg", query).data)
     # Swing: 12 V / 2 - 1.5 V headroom of the seed op-amp.
     assert markers == {"swing_limited_amplitude_v": 4.5, "frequency_hz": 1000.0, "amplitude_v": 1.0}
-    with app.test_request_context():
-        curves = plots_api.slew_curves(query)
+    curves = service_curves.slew_curves(app.extensions["calcsvc.db"], query)
     f = curves.frequency_hz
     assert f[0] < 1000.0 < f[-1]
     # A sine's steepest slope is 2π·f·Vp, so the slew-limited peak is SR/(2π·f) with SR = 0.5 V/µs.
@@ -115,8 +116,7 @@ def test_slew_limit_plot_draws_both_limits_and_the_operating_point(
 def test_slew_limit_operating_point_that_distorts(app: Flask, client: FlaskClient) -> None:
     query = {"slew_rate_v_per_s": 5e5, "supply_v": 12.0, "frequency_hz": 50e3, "amplitude_v": 4.0}
     assert get_plot(client, "slew-limit.png", query).data.startswith(PNG_MAGIC)
-    with app.test_request_context():
-        assert not plots_api.slew_curves(query).operating_ok
+    assert not service_curves.slew_curves(app.extensions["calcsvc.db"], query).operating_ok
 
 
 def test_led_string_band_meets_the_calculations_worst_case(app: Flask, client: FlaskClient, seeded: Any) -> None:
@@ -128,8 +128,7 @@ def test_led_string_band_meets_the_calculations_worst_case(app: Flask, client: F
     assert markers["resistor_ohm"] == results["resistor_ohm"] == 300.0
     assert markers["current_a"] == results["current_a"]
     assert markers["if_max_a"] == 0.03
-    with app.test_request_context():
-        curves = plots_api.led_curves(query)
+    curves = service_curves.led_curves(app.extensions["calcsvc.db"], query)
     vs, tolerance = curves.operating_supply_v, curves.supply_tolerance
     # The shaded band's edges at the supply's tolerance limits are the calculation's worst-case currents.
     assert np.interp(vs * (1 - tolerance), curves.supply_v, curves.current_low_a) == pytest.approx(
@@ -175,8 +174,7 @@ def test_histogram_marks_the_limit_and_leaves_out_nans() -> None:
 def test_concurrent_renders_are_identical(app: Flask) -> None:
     """One lock around matplotlib: threads drawing at once get the same bytes as one drawing alone."""
     query = {"gbw_hz": 1e6, "gain": 10}
-    with app.test_request_context():
-        curves = plots_api.closed_loop_curves(query)
+    curves = service_curves.closed_loop_curves(app.extensions["calcsvc.db"], query)
     alone = plots.closed_loop_plot(curves, "svg").content
     results: list[bytes] = []
 

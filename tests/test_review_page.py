@@ -14,7 +14,8 @@ from flask.testing import FlaskClient
 from helpers import assert_problem, bearer
 
 from calcsvc import create_app
-from calcsvc.web.review_page import CSRF_COOKIE, DEMO_CHANNEL, channel_body, whole_number
+from calcsvc.web.pages.channel import DEMO_CHANNEL, channel_body
+from calcsvc.web.pages.common import CSRF_COOKIE, whole_number
 
 OPAMP_ID = "opamp-general-1mhz"
 
@@ -279,11 +280,10 @@ def test_channel_form_starts_with_the_demo(client: FlaskClient, seeded: Any) -> 
 
 
 def test_demo_channel_review_shows_the_verdict_checks_and_report(app: Flask, client: FlaskClient, seeded: Any) -> None:
-    from calcsvc.web.review_api import run_review
+    from calcsvc.service.review import run_review
 
     html, parsed = page(client, "/review/channel?" + urlencode(DEMO_CHANNEL))
-    with app.test_request_context():
-        expected = run_review(channel_body(DEMO_CHANNEL))
+    expected = run_review(app.extensions["calcsvc.db"], channel_body(DEMO_CHANNEL))
     assert parsed.text["verdict"] == expected["verdict"]
     assert "<table class='checks'>" in html and '<pre class="report"># Channel review:' in html
     assert all(check["name"] in html for check in expected["checks"])

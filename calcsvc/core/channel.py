@@ -239,6 +239,12 @@ def slew_inputs(i: ChannelInputs, supply_v: FloatArray) -> slew.SlewInputs:
     )
 
 
+def collector_currents(strings: FloatArray, led: Outcome) -> tuple[FloatArray, FloatArray]:
+    """The switch carries every string: nominal Ic from the nominal string current, Ic_max from the worst-case
+    highest (the base is sized for it: module docstring)."""
+    return led.results["total_current_a"], strings * led.results["current_max_a"]
+
+
 def has_front_stage(inputs: ChannelInputs) -> BoolArray:
     return ~np.isnan(inputs.gbw_hz)
 
@@ -347,9 +353,9 @@ def validate(inputs: ChannelInputs) -> list[Violation]:
     # The switch and supply stages need the LED stage's currents; rows it rejects get a harmless 1 A.
     ic_nominal, ic_max = np.ones(n), np.ones(n)
     if led_ok.any():
-        out = led_string.compute(take(led_in, led_ok))
-        ic_nominal[led_ok] = out.results["total_current_a"]
-        ic_max[led_ok] = i.strings[led_ok] * out.results["current_max_a"]
+        ic_nominal[led_ok], ic_max[led_ok] = collector_currents(
+            i.strings[led_ok], led_string.compute(take(led_in, led_ok))
+        )
     switch_found = bjt_switch.validate(switch_inputs(i, ic_max))
     for v in switch_found:
         if v.field == "collector_current_a":  # derived from current_a; meaningless where that was replaced
@@ -421,16 +427,17 @@ def front_stage(inputs: ChannelInputs) -> Outcome:
     return _expand(merged, front)
 
 
-def review(inputs: ChannelInputs) -> ChannelReview:
+def review(inputs: ChannelInputs, validated: bool = False) -> ChannelReview:
     """Review every row's channel at nominal values (chain: module docstring).
 
-    Raises DomainError when any row violates ``validate``.
+    Raises DomainError when any row violates ``validate``; ``validated``: the caller has just run ``validate``
+    on these inputs and found nothing, so it is not run again.
     """
-    raise_violations(validate(inputs))
+    if not validated:
+        raise_violations(validate(inputs))
     i = inputs
     led = led_string.compute(led_inputs(i))
-    ic_nominal = led.results["total_current_a"]
-    ic_max = i.strings * led.results["current_max_a"]
+    ic_nominal, ic_max = collector_currents(i.strings, led)
     switch = bjt_switch.compute(switch_inputs(i, ic_max))
     supply = duty_power.compute(supply_inputs(i, ic_nominal))
     front = front_stage(i)

@@ -75,6 +75,11 @@ class LedStringInputs:
     resistor_tolerance: FloatArray  # fraction; NaN → the series' default
 
 
+def string_current(headroom_v: np.ndarray, resistor_ohm: np.ndarray | float) -> np.ndarray:
+    """Ohm's law across a string's resistor, zero where the supply does not reach the string's drop (dark)."""
+    return np.maximum(headroom_v, 0.0) / resistor_ohm
+
+
 def _string_drop(inputs: LedStringInputs) -> FloatArray:
     """Nominal forward voltage of one string plus the switch drop (V)."""
     return inputs.leds_in_series * inputs.vf_typ_v + inputs.switch_drop_v
@@ -195,13 +200,13 @@ def compute(inputs: LedStringInputs) -> Outcome:
     v_r = vs - _string_drop(i)
     r_exact = v_r / i.current_a
     r = eseries.pick_at_or_above_rows(r_exact, i.e_series)
-    current = v_r / r
+    current = string_current(v_r, r)
 
     v_r_low = vs * (1.0 - ts) - nl * i.vf_max_v - i.switch_drop_v
     v_r_high = vs * (1.0 + ts) - nl * i.vf_min_v - i.switch_drop_v  # > 0: Vs > N·Vf_typ + Vsw ≥ N·Vf_min + Vsw
     r_low, r_high = r * (1.0 - tr), r * (1.0 + tr)
-    current_min = np.maximum(v_r_low / r_high, 0.0)
-    current_max = v_r_high / r_low
+    current_min = string_current(v_r_low, r_high)
+    current_max = string_current(v_r_high, r_low)
     power = current**2 * r
     power_max = v_r_high**2 / r_low
     need_w = DERATING_FACTOR * power_max

@@ -172,7 +172,7 @@ def _evaluate(inputs: ChannelInputs, nominal: ChannelReview, at: _Point) -> list
     i = inputs
     row = at.row
     v_r = at.supply_v[..., None] - at.string_vf_v - row(i.vce_sat_v)[..., None]
-    current = np.maximum(v_r, 0.0) / at.led_resistor_ohm
+    current = led_string.string_current(v_r, at.led_resistor_ohm)
     # Each of the s evaluated strings stands for strings/s real ones.
     ic = row(i.strings / at.string_vf_v.shape[-1]) * _per_string(current, np.sum)
     ib = row(i.drive_high_v - i.vbe_sat_v) / at.base_resistor_ohm
@@ -322,12 +322,13 @@ def _worst(check: Check) -> WorstCheck:
     return WorstCheck(worst, corner, DEPENDS_ON[check.name])
 
 
-def worst_case(inputs: ChannelInputs) -> WorstCase:
+def worst_case(inputs: ChannelInputs, nominal: ChannelReview | None = None) -> WorstCase:
     """Every check at its worst tolerance corner, for every row (model: module docstring).
 
-    Raises DomainError when any row violates ``channel.validate``.
+    ``nominal``: the review of ``inputs`` when the caller has made it already. Without it the inputs are
+    reviewed here, which raises DomainError when any row violates ``channel.validate``.
     """
-    nominal = review(inputs)
+    nominal = review(inputs) if nominal is None else nominal
     checks = [_worst(c) for c in _evaluate(inputs, nominal, _corners(inputs, nominal))]
     ok = np.ones(row_count(inputs), dtype=bool)
     for c in checks:
@@ -361,9 +362,15 @@ def _whole(x: object) -> bool:
 
 
 def validate_monte_carlo(inputs: ChannelInputs, samples: int, seed: int) -> list[Violation]:
-    """``channel.validate`` plus the run's own limits (fields ``samples`` and ``seed``, checked to be whole
-    numbers whatever their type); never raises."""
-    v = validate(inputs)
+    """``channel.validate`` plus the run's own limits (``run_limits``); never raises."""
+    return run_limits(inputs, samples, seed, validate(inputs))
+
+
+def run_limits(inputs: ChannelInputs, samples: int, seed: int, found: list[Violation] | None = None) -> list[Violation]:
+    """The run's own limits (fields ``samples`` and ``seed``, checked to be whole numbers whatever their type)
+    added to ``found``, the channel's violations (the LED-draw bound applies only to a valid channel); never
+    raises."""
+    v = [] if found is None else found
     every = np.ones(row_count(inputs), dtype=bool)
     if not _whole(samples) or not 1 <= samples <= MAX_SAMPLES:
         require(v, every, "samples", f"samples ({samples!r}) must be a whole number from 1 to {MAX_SAMPLES:,}")
@@ -409,16 +416,22 @@ def _every_sample(check: Check, count: int) -> tuple[np.ndarray, np.ndarray, np.
     return np.broadcast_to(check.ok, shape), np.broadcast_to(check.value, shape), np.broadcast_to(check.limit, shape)
 
 
-def monte_carlo(inputs: ChannelInputs, samples: int = DEFAULT_SAMPLES, seed: int = 0) -> Yield:
+def monte_carlo(
+    inputs: ChannelInputs, samples: int = DEFAULT_SAMPLES, seed: int = 0, nominal: ChannelReview | None = None
+) -> Yield:
     """Yield of one row's design over ``samples`` random builds (model: module docstring).
 
     ``inputs`` must hold exactly one row (ValueError otherwise). Raises DomainError when
-    ``validate_monte_carlo`` finds a violation.
+    ``validate_monte_carlo`` finds a violation; ``nominal``, the review of ``inputs`` when the caller has made
+    it already, leaves only the run's own limits to check.
     """
     if row_count(inputs) != 1:
         raise ValueError("monte_carlo reviews exactly one row")
-    raise_violations(validate_monte_carlo(inputs, samples, seed))
-    nominal = review(inputs)
+    if nominal is None:
+        raise_violations(validate_monte_carlo(inputs, samples, seed))
+        nominal = review(inputs, validated=True)
+    else:
+        raise_violations(run_limits(inputs, samples, seed))
     rng = np.random.default_rng(seed)
     chunk = max(1, _CHUNK_DRAWS // int(inputs.strings[0] * inputs.leds_in_series[0]))
 

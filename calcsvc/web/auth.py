@@ -8,12 +8,18 @@ from typing import Any, TypeVar
 
 from flask import current_app, g, request
 
+from calcsvc.data.database import Database
 from calcsvc.data.tokens import Identity, identify
 from calcsvc.web.problems import Problem
 
 F = TypeVar("F", bound=Callable[..., Any])
 
 _CHALLENGE = {"WWW-Authenticate": 'Bearer realm="calcsvc"'}
+
+
+def database() -> Database:
+    """The application's database; its sessions are ``database().transaction()``."""
+    return current_app.extensions["calcsvc.db"]  # type: ignore[no-any-return]
 
 
 def _token() -> str | None:
@@ -29,7 +35,7 @@ def require_role(role: str) -> Identity:
     token = _token()
     if token is None:
         raise Problem(401, "this request needs an 'Authorization: Bearer <token>' header", headers=_CHALLENGE)
-    with current_app.extensions["calcsvc.db"].transaction() as session:
+    with database().transaction() as session:
         identity = identify(session, token)
     if identity is None:
         raise Problem(401, "the bearer token is not valid (revoked or mistyped)", headers=_CHALLENGE)
@@ -41,6 +47,11 @@ def require_role(role: str) -> Identity:
 def require_reader() -> None:
     if current_app.config["READ_REQUIRES_TOKEN"]:
         require_role("editor")
+
+
+def guard_reads(blueprint: Any) -> None:
+    """Every route of ``blueprint`` reads the parts table, so it follows the server's read protection."""
+    blueprint.before_request(require_reader)
 
 
 def requires(role: str) -> Callable[[F], F]:

@@ -18,7 +18,7 @@ from calcsvc.core.spec import CalculationSpec
 from calcsvc.csv_cells import CellWriter
 from calcsvc.service.envelope import SWEEP_KEYS, plain, row_sweeps
 from calcsvc.service.resolve import PartResolver
-from calcsvc.web.auth import require_reader
+from calcsvc.web.auth import database, guard_reads
 from calcsvc.web.calc_schemas import request_schema
 from calcsvc.web.columns import ParsedRows, parse_rows
 from calcsvc.web.metrics import record_calculation
@@ -31,6 +31,7 @@ blp = Blueprint(
     description="Many rows of one calculation in one request: a JSON array of input objects or a CSV table "
     "(header row = input names; cells may carry units such as '9 V'). A bad row does not fail the batch.",
 )
+guard_reads(blp)  # calculations read the parts table
 
 CSV = "text/csv"
 EXTRA_CELLS = "cells_beyond_the_header"
@@ -223,7 +224,7 @@ def run_batch(calc: CalculationSpec) -> Response:
     records, blank_is_absent = read_records(calc)
     if not records:
         raise Problem(422, "the batch holds no rows", "validation", {"body": ["the batch holds no rows"]})
-    with current_app.extensions["calcsvc.db"].transaction() as session:
+    with database().transaction() as session:
         parsed = parse_rows(calc, records, PartResolver(session), blank_is_absent)
     _refuse_large_sweeps(parsed)
     _results, ok_rows, outcome = evaluate(calc, parsed)
@@ -301,9 +302,3 @@ def _register(calc: CalculationSpec) -> None:
 
 for _calc in CALCULATIONS.values():
     _register(_calc)
-
-
-@blp.before_request
-def _reads_may_need_a_token() -> None:
-    # Calculations read the parts table, so they follow its read protection.
-    require_reader()

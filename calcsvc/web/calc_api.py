@@ -8,7 +8,7 @@ from collections.abc import Mapping
 from typing import Any
 
 import numpy as np
-from flask import Response, current_app, g, request
+from flask import Response, g, request
 from flask.views import MethodView
 from flask_smorest import Blueprint
 from marshmallow import RAISE, Schema, ValidationError, fields, validate, validates_schema
@@ -20,7 +20,7 @@ from calcsvc.csv_cells import CellWriter
 from calcsvc.service.calculate import run_calculation
 from calcsvc.service.envelope import envelope, plain, row_results
 from calcsvc.service.resolve import resolve_parts
-from calcsvc.web.auth import require_reader
+from calcsvc.web.auth import database, guard_reads
 from calcsvc.web.calc_schemas import camel, request_schema, response_schema, role_fields
 from calcsvc.web.json_limits import LengthCheckingParser
 from calcsvc.web.metrics import record_calculation
@@ -34,6 +34,7 @@ blp = Blueprint(
     description="Design calculations. Numbers are SI; strings with units are converted. Any input a part "
     "provides may be given as a part reference instead (role name = part_id, <role>_revision pins a revision).",
 )
+guard_reads(blp)  # calculations read the parts table
 blp.ARGUMENTS_PARSER = LengthCheckingParser()  # waveform arrays are counted before their samples are built
 
 MAX_WAVEFORM_SAMPLES = 100_000
@@ -41,7 +42,7 @@ MAX_WAVEFORM_SAMPLES = 100_000
 
 def _run(calc: CalculationSpec, body: Mapping[str, Any]) -> dict[str, Any]:
     record_calculation(calc.name, 1)
-    return run_calculation(current_app.extensions["calcsvc.db"], calc, body)
+    return run_calculation(database(), calc, body)
 
 
 def query_schema(calc: CalculationSpec) -> type[Schema]:
@@ -230,7 +231,7 @@ def _load_currents(load: dict[str, Any]) -> dict[str, Any]:
 
 
 def run_duty(body: Mapping[str, Any]) -> dict[str, Any]:
-    resolved = resolve_parts(current_app.extensions["calcsvc.db"], (SUPPLY_ROLE,), body)
+    resolved = resolve_parts(database(), (SUPPLY_ROLE,), body)
     values = resolved.values
     if "supply_v" not in values:
         message = "required: give supply_v or reference a supply part"
@@ -293,9 +294,3 @@ class DutyCyclePower(MethodView):
     def post(self, body: dict[str, Any]) -> dict[str, Any]:
         """Average and peak supply current and power of duty-cycled loads, with runtime and duty headroom."""
         return run_duty(body)
-
-
-@blp.before_request
-def _reads_may_need_a_token() -> None:
-    # Calculations read the parts table, so they follow its read protection.
-    require_reader()

@@ -2,11 +2,11 @@
 
 from __future__ import annotations
 
-from flask import current_app
 from flask.views import MethodView
 from flask_smorest import Blueprint
 from marshmallow import Schema, fields
 
+from calcsvc.web.auth import database
 from calcsvc.web.problems import RETRY_AFTER_HEADER, database_problem, error_response
 
 blp = Blueprint("health", __name__, description="Process and database health")
@@ -30,6 +30,6 @@ class Readiness(MethodView):
     @error_response(blp, 503, "the database is unreachable", RETRY_AFTER_HEADER)
     def get(self) -> dict[str, str]:
         """The database answers; 503 otherwise."""
-        if not current_app.extensions["calcsvc.db"].reachable():
+        if not database().reachable():
             raise database_problem(busy=False)
         return {"status": "ready"}

@@ -8,7 +8,7 @@ from dataclasses import asdict
 from datetime import UTC, datetime
 from typing import Any
 
-from flask import current_app, g, request, url_for
+from flask import g, request, url_for
 from flask.views import MethodView
 from flask_smorest import Blueprint
 from marshmallow import RAISE, Schema, ValidationError, fields, validate
@@ -17,7 +17,7 @@ from calcsvc.data import part_ids
 from calcsvc.data.kinds import KINDS, MAX_DESCRIPTION_LENGTH, MAX_TEXT_LENGTH, params_of
 from calcsvc.data.store import ACTIONS, STATUSES, PartStore, PartView
 from calcsvc.units import UnitError, parse_quantity
-from calcsvc.web.auth import reads, requires
+from calcsvc.web.auth import database, reads, requires
 from calcsvc.web.metrics import record_parts_write
 from calcsvc.web.problems import Problem, error_response
 
@@ -211,10 +211,6 @@ def _no_such_shape() -> None:
         raise Problem(404, message, "part-not-found", {"part_id": [message]})
 
 
-def _store() -> Any:
-    return current_app.extensions["calcsvc.db"].transaction()
-
-
 @blp.route("")
 class Parts(MethodView):
     @reads
@@ -222,7 +218,7 @@ class Parts(MethodView):
     @blp.response(200, PartListSchema)
     def get(self, query: dict[str, Any]) -> dict[str, Any]:
         """List parts, filtered by kind and status, in pages."""
-        with _store() as session:
+        with database().transaction() as session:
             views, total = PartStore(session).list(
                 query.get("kind"), query.get("status"), query["offset"], query["limit"]
             )
@@ -242,7 +238,7 @@ class Parts(MethodView):
     def post(self, body: dict[str, Any]) -> tuple[dict[str, Any], int, dict[str, str]]:
         """Add a part as a draft at revision 1 (editor)."""
         parameters = convert_parameters(body["kind"], body["parameters"])
-        with _store() as session:
+        with database().transaction() as session:
             view = PartStore(session).create(
                 body["part_id"], body["kind"], body["description"], parameters, g.identity.name
             )
@@ -259,7 +255,7 @@ class Part(MethodView):
     @error_response(blp, 404, "no such part")
     def get(self, part_id: str) -> tuple[dict[str, Any], int, dict[str, str]]:
         """One part at its current revision, with the revision's ETag."""
-        with _store() as session:
+        with database().transaction() as session:
             return part_response(PartStore(session).get(part_id))
 
     @requires("editor")
@@ -277,7 +273,7 @@ class Part(MethodView):
     ) -> tuple[dict[str, Any], int, dict[str, str]]:
         """Store a new revision (editor); needs If-Match; the part returns to draft until approved."""
         expected = expected_revision(part_id)
-        with _store() as session:
+        with database().transaction() as session:
             store = PartStore(session)
             current = store.get(part_id)
             parameters = convert_parameters(current.kind, body["parameters"])
@@ -301,7 +297,7 @@ class Part(MethodView):
         """Retire the revision If-Match names (editor), with an optional reason: refused in new calculations
         unless pinned by revision; recorded in the history; undone only by a restore and a new review."""
         expected = expected_revision(part_id)
-        with _store() as session:
+        with database().transaction() as session:
             view = PartStore(session).retire(part_id, expected, g.identity.name, (body or {}).get("reason"))
         record_parts_write("retire")
         return part_response(view)
@@ -322,7 +318,7 @@ class Approve(MethodView):
     def post(self, _headers: dict[str, Any], part_id: str) -> tuple[dict[str, Any], int, dict[str, str]]:
         """Approve the revision If-Match names, if it is still current (reviewer; not its author)."""
         revision = expected_revision(part_id)
-        with _store() as session:
+        with database().transaction() as session:
             view = PartStore(session).approve(part_id, revision, g.identity.name)
         record_parts_write("approve")
         return part_response(view)
@@ -346,7 +342,7 @@ class Restore(MethodView):
         """Bring a retired part back as a new draft revision (editor), with an optional reason; it is used with
         a draft warning until a reviewer approves it."""
         expected = expected_revision(part_id)
-        with _store() as session:
+        with database().transaction() as session:
             view = PartStore(session).restore(part_id, expected, g.identity.name, (body or {}).get("reason"))
         record_parts_write("restore")
         return part_response(view)
@@ -359,6 +355,6 @@ class Revisions(MethodView):
     @error_response(blp, 404, "no such part")
     def get(self, part_id: str) -> dict[str, Any]:
         """Every revision of a part, oldest first, with its parameters, author and approval."""
-        with _store() as session:
+        with database().transaction() as session:
             revisions = PartStore(session).revisions(part_id)
         return {"part_id": part_id, "revisions": [asdict(r) for r in revisions]}

@@ -1,9 +1,10 @@
 """Server-side plots of the calculations as SVG or PNG bytes.
 
 Drawn with matplotlib's object API on figures of their own (no pyplot, so no global figure state). matplotlib
-documents that it is not thread-safe, so every drawing holds one lock; the curves come from the core and the
-plots only draw them. Each image carries the values it marks in its metadata (SVG ``dc:description``, PNG
-``Description``) as ``name=value`` pairs with the exact floats, so a client can read back what was drawn.
+documents that it is not thread-safe, so every drawing holds one lock; the curves come from the core
+(calcsvc.core.curves) and the plots only draw them. Each image carries the values it marks in its metadata (SVG
+``dc:description``, PNG ``Description``) as ``name=value`` pairs with the exact floats, so a client can read back
+what was drawn.
 """
 
 from __future__ import annotations
@@ -22,6 +23,8 @@ from matplotlib.axes import Axes
 from matplotlib.backends.backend_agg import FigureCanvasAgg
 from matplotlib.figure import Figure
 from matplotlib.ticker import EngFormatter, NullFormatter
+
+from calcsvc.core.curves import ClosedLoopCurves, LedCurves, SlewCurves
 
 FORMATS = {"svg": "image/svg+xml", "png": "image/png"}
 
@@ -139,41 +142,11 @@ def _render(figure: Figure, fmt: str, title: str, markers: dict[str, float]) -> 
     return Plot(buffer.getvalue(), FORMATS[fmt], markers)
 
 
-@dataclass(frozen=True)
-class ClosedLoopCurves:
-    """The core's sweep of the closed-loop response and its -3 dB point (the calculation's numbers)."""
-
-    frequency_hz: np.ndarray
-    gain_db: np.ndarray
-    phase_deg: np.ndarray
-    corner_hz: float
-    corner_name: str  # bandwidth_hz (one stage) or cascade_bandwidth_hz
-    corner_gain_db: float
-    corner_phase_deg: float
-    gbw_hz: float
-    open_loop_gain: float | None  # None: ideal at DC, only the GBW asymptote is drawn
-    stages: int
-    signal_hz: float | None
-
-
-def open_loop(frequency_hz: np.ndarray, gbw_hz: float, open_loop_gain: float | None) -> tuple[np.ndarray, np.ndarray]:
-    """Gain (dB) and phase (deg) of the single-pole op-amp model of ``calcsvc.core.closed_loop``.
-
-    Without a DC gain the model is the integrator GBW/f (the GBW asymptote) with a constant -90° phase.
-    """
-    if open_loop_gain is None:
-        return 20.0 * np.log10(gbw_hz / frequency_hz), np.full_like(frequency_hz, -90.0)
-    pole_hz = gbw_hz / open_loop_gain
-    ratio = frequency_hz / pole_hz
-    gain_db = 20.0 * np.log10(open_loop_gain) - 10.0 * np.log10(1.0 + ratio**2)
-    return gain_db, -np.degrees(np.arctan(ratio))
-
-
 @_locked
 def closed_loop_plot(curves: ClosedLoopCurves, fmt: str) -> Plot:
     figure, (gain_ax, phase_ax) = _figure(rows=CLOSED_LOOP_PANELS)
     f = curves.frequency_hz
-    ol_gain, ol_phase = open_loop(f, curves.gbw_hz, curves.open_loop_gain)
+    ol_gain, ol_phase = curves.open_loop_gain_db, curves.open_loop_phase_deg
     ol_label = "open loop (GBW asymptote)" if curves.open_loop_gain is None else "open loop"
     closed_label = "closed loop" if curves.stages == 1 else f"closed loop, {curves.stages} stages"
 
@@ -220,19 +193,6 @@ def closed_loop_plot(curves: ClosedLoopCurves, fmt: str) -> Plot:
     return _render(figure, fmt, title, markers)
 
 
-@dataclass(frozen=True)
-class SlewCurves:
-    """The core's slew and swing limits over a frequency grid, and the operating point if one was given."""
-
-    frequency_hz: np.ndarray
-    slew_limited_amplitude_v: np.ndarray
-    swing_limited_amplitude_v: float | None
-    max_amplitude_v: np.ndarray
-    operating_hz: float | None
-    operating_amplitude_v: float | None
-    operating_ok: bool
-
-
 @_locked
 def slew_limit_plot(curves: SlewCurves, fmt: str) -> Plot:
     figure, (ax,) = _figure()
@@ -272,28 +232,6 @@ def slew_limit_plot(curves: SlewCurves, fmt: str) -> Plot:
     title = "Largest undistorted output amplitude"
     _title(figure, title)
     return _render(figure, fmt, title, markers)
-
-
-@dataclass(frozen=True)
-class LedCurves:
-    """String current against supply voltage for one fixed resistor, nominal and worst case."""
-
-    supply_v: np.ndarray
-    current_a: np.ndarray
-    current_low_a: np.ndarray
-    current_high_a: np.ndarray
-    resistor_ohm: float
-    operating_supply_v: float
-    supply_tolerance: float
-    operating_current_a: float  # the core's nominal current at the operating supply
-    worst_min_a: float  # the core's worst-case currents at the supply's tolerance limits
-    worst_max_a: float
-    if_max_a: float
-
-
-def string_current(supply_v: np.ndarray, drop_v: float, resistor_ohm: float) -> np.ndarray:
-    """Ohm's law across the resistor of ``calcsvc.core.led_string``'s model, zero where the LEDs stay dark."""
-    return np.maximum(supply_v - drop_v, 0.0) / resistor_ohm
 
 
 @_locked

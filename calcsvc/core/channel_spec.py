@@ -1,0 +1,118 @@
+"""The channel review's entry in the registry: the inputs of ``channel.review`` and its Monte Carlo run, with units,
+ranges and the part roles that may supply them, and the unit of each check. The HTTP schema, the searches and the
+page are derived from it, as the calculations' are from their ``SPEC``."""
+
+from __future__ import annotations
+
+from calcsvc.core import channel, tolerance
+from calcsvc.core.spec import E_SERIES, Input, InputSet, Role, fraction, positive
+
+
+def _count(name: str, description: str, default: int | None = None, maximum: float = 1000) -> Input:
+    return Input(name, "dimensionless", description, default, minimum=1, maximum=maximum, integer=True)
+
+
+CHANNEL_INPUTS = InputSet(
+    name=channel.NAME,
+    summary="Review a whole LED channel: string resistor, NPN switch, supply budget and front stage, "
+    "nominal, worst case and yield",
+    version=channel.VERSION,
+    inputs=(
+        positive("supply_v", "V", "supply voltage"),
+        Input("supply_tolerance", "dimensionless", "supply tolerance as a fraction", 0.0, minimum=0, maximum=1),
+        positive("current_max_a", "A", "supply current rating"),
+        positive("capacity_ah", "A*h", "battery capacity", optional=True),
+        Input("drive_high_v", "V", "driver output voltage when on"),
+        Input("drive_low_v", "V", "driver output voltage when off", 0.0),
+        positive("source_current_max_a", "A", "largest current the driver pin may source", optional=True),
+        positive("hfe_min", "dimensionless", "lowest DC current gain"),
+        positive("hfe_typ", "dimensionless", "typical DC current gain"),
+        positive("vbe_sat_v", "V", "base-emitter voltage in saturation"),
+        Input("vce_sat_v", "V", "collector-emitter voltage in saturation", minimum=0),
+        positive("ic_max_a", "A", "transistor's collector current rating"),
+        positive("power_max_w", "W", "transistor's dissipation rating"),
+        positive("vf_typ_v", "V", "typical LED forward voltage"),
+        positive("vf_min_v", "V", "lowest LED forward voltage"),
+        positive("vf_max_v", "V", "highest LED forward voltage"),
+        positive("if_max_a", "A", "LED continuous current rating"),
+        _count("leds_in_series", "LEDs in each string"),
+        _count("strings", "parallel strings per channel, each with its own resistor", 1, 10_000),
+        positive("current_a", "A", "target current per string"),
+        fraction("duty_cycle", "PWM duty cycle (or give on_time_s and period_s)", optional=True),
+        Input("on_time_s", "s", "PWM on time per period", optional=True, minimum=0),
+        positive("period_s", "s", "PWM period", optional=True),
+        _count("channels", "identical channels sharing the supply", 1),
+        Input("e_series", "", "standard resistor series", "E24", choices=E_SERIES),
+        Input("forced_beta", "dimensionless", "Ic/Ib to design for (10: common practice)", 10.0, minimum=1),
+        Input(
+            "resistor_tolerance",
+            "dimensionless",
+            "tolerance of both resistors; absent: the series' own",
+            optional=True,
+            minimum=0,
+            maximum=1,
+        ),
+        Input(
+            "configuration",
+            "",
+            "front stage: non_inverting or inverting",
+            "non_inverting",
+            choices=("non_inverting", "inverting"),
+        ),
+        positive("gain", "dimensionless", "front stage closed-loop gain magnitude", optional=True),
+        positive("gbw_hz", "Hz", "front stage op-amp gain-bandwidth product", optional=True),
+        positive("open_loop_gain", "dimensionless", "front stage op-amp DC open-loop gain", optional=True),
+        positive("slew_rate_v_per_s", "V/s", "front stage op-amp slew rate", optional=True),
+        Input("output_headroom_v", "V", "front stage output headroom to each rail", optional=True, minimum=0),
+        positive("signal_hz", "Hz", "front stage signal frequency", optional=True),
+        positive("amplitude_v", "V", "front stage output peak amplitude", optional=True),
+        Input(
+            "samples",
+            "dimensionless",
+            "Monte Carlo builds for the yield (0: no yield)",
+            tolerance.DEFAULT_SAMPLES,
+            minimum=0,
+            maximum=tolerance.MAX_SAMPLES,
+            integer=True,
+        ),
+        Input("seed", "dimensionless", "Monte Carlo seed", 0, minimum=0, maximum=2**32 - 1, integer=True),
+    ),
+    roles=(
+        Role(
+            "supply",
+            "supply",
+            (
+                ("supply_v", "supply_v"),
+                ("supply_tolerance", "supply_tolerance"),
+                ("current_max_a", "current_max_a"),
+                ("capacity_ah", "capacity_ah"),
+            ),
+        ),
+        Role(
+            "driver",
+            "driver",
+            (("voh_v", "drive_high_v"), ("vol_v", "drive_low_v"), ("source_current_max_a", "source_current_max_a")),
+        ),
+        Role(
+            "transistor",
+            "bjt",
+            tuple((p, p) for p in ("hfe_min", "hfe_typ", "vbe_sat_v", "vce_sat_v", "ic_max_a", "power_max_w")),
+            must_have=(("polarity", "npn"),),
+        ),
+        Role("led", "led", tuple((p, p) for p in ("vf_typ_v", "vf_min_v", "vf_max_v", "if_max_a"))),
+        Role(
+            "opamp",
+            "opamp",
+            tuple((p, p) for p in ("gbw_hz", "open_loop_gain", "slew_rate_v_per_s", "output_headroom_v")),
+        ),
+    ),
+)
+# The review's sections (``channel.ChannelReview``), in chain order.
+STAGES = ("led_string", "switch", "supply", "front_stage")
+
+# The unit of each check's value, for axes and reports.
+CHECK_UNITS = {
+    "led_current_rating": "A", "headroom": "V", "resistor_rating": "W", "saturation": "", "driver_current": "A",
+    "collector_current_rating": "A", "power_rating": "W", "off_state": "V", "supply_average_current": "A",
+    "supply_peak_current": "A", "gain_achievable": "", "signal_in_band": "Hz", "slew_rate": "V/s", "output_swing": "V",
+}  # fmt: skip

@@ -1,0 +1,183 @@
+"""The whole-channel review for one request: parts resolved, the channel validated once, reviewed at nominal
+values, taken to its worst tolerance corner and, with samples, through Monte Carlo; and the distribution of the
+check that fails most often, for the histogram."""
+
+from __future__ import annotations
+
+import math
+from collections.abc import Mapping
+from dataclasses import dataclass
+from typing import Any
+
+import numpy as np
+
+from calcsvc.core import channel, tolerance
+from calcsvc.core.channel_spec import CHANNEL_INPUTS, CHECK_UNITS, STAGES
+from calcsvc.core.outcome import Check, FloatArray, Outcome, raise_violations
+from calcsvc.data.database import Database
+from calcsvc.service.calculate import columns_of, complete
+from calcsvc.service.envelope import fingerprint, plain, row_notices
+from calcsvc.service.errors import InvalidInput
+from calcsvc.service.resolve import resolve_parts
+
+
+def duty_of(values: Mapping[str, Any]) -> float:
+    """The duty cycle as given, or from on-time and period; neither: always on."""
+    timed = [name for name in ("on_time_s", "period_s") if name in values]
+    if "duty_cycle" in values and timed:
+        raise InvalidInput.on("duty_cycle", "give duty_cycle or on_time_s with period_s, not both")
+    if len(timed) == 1:
+        missing = "period_s" if timed == ["on_time_s"] else "on_time_s"
+        raise InvalidInput.on(missing, f"{missing} is required with {timed[0]}")
+    if timed:
+        if values["on_time_s"] > values["period_s"]:
+            raise InvalidInput.on("on_time_s", f"on_time_s ({values['on_time_s']:g} s) cannot exceed period_s")
+        return float(values["on_time_s"] / values["period_s"])
+    return float(values.get("duty_cycle", 1.0))
+
+
+def channel_inputs(values: Mapping[str, Any]) -> channel.ChannelInputs:
+    """The core's one-row inputs from completed values (``complete(CHANNEL_INPUTS, ...)``)."""
+    columns = columns_of(CHANNEL_INPUTS, [dict(values)])
+    columns["duty_cycle"] = np.array([duty_of(values)])
+    columns["inverting"] = columns["configuration"] == "inverting"
+    return channel.ChannelInputs(**{name: columns[name] for name in channel.ChannelInputs.__dataclass_fields__})
+
+
+@dataclass(frozen=True)
+class Reviewed:
+    """One channel through the core: validated once, then each stage evaluated once at nominal values and the
+    checks once per corner; ``found`` is the Monte Carlo run (None without samples)."""
+
+    inputs: channel.ChannelInputs
+    worst: tolerance.WorstCase
+    found: tolerance.Yield | None
+
+
+def _nominal(values: Mapping[str, Any], samples: int, seed: int) -> tuple[channel.ChannelInputs, channel.ChannelReview]:
+    """The channel validated once (with the run's limits) and reviewed at nominal values; raises DomainError
+    naming the fields when it (or the run) is physically impossible."""
+    inputs = channel_inputs(values)
+    raise_violations(tolerance.validate_monte_carlo(inputs, max(samples, 1), seed))
+    return inputs, channel.review(inputs, validated=True)
+
+
+def review_channel(values: Mapping[str, Any], samples: int, seed: int) -> Reviewed:
+    """Raises DomainError naming the fields when the channel (or the run) is physically impossible."""
+    inputs, nominal = _nominal(values, samples, seed)
+    worst = tolerance.worst_case(inputs, nominal)
+    found = tolerance.monte_carlo(inputs, samples, seed, nominal) if samples else None
+    return Reviewed(inputs, worst, found)
+
+
+def _stage_results(outcome: Outcome) -> dict[str, Any]:
+    return {
+        name: plain(values[0])
+        for name, values in outcome.results.items()
+        if values.ndim == 1 and not name.startswith("load_")
+    }
+
+
+def _check_entry(nominal: Check, worst: tolerance.WorstCheck, stage: str) -> dict[str, Any] | None:
+    limit = float(nominal.limit[0])
+    if math.isnan(limit):
+        return None  # does not apply to this design (e.g. no front stage, pin rating unknown)
+    return {
+        "name": nominal.name,
+        "stage": stage,
+        "ok": bool(worst.check.ok[0]),
+        "value": plain(float(nominal.value[0])),
+        "limit": limit,
+        "margin": plain(float(nominal.margin()[0])),
+        "detail": nominal.detail,
+        "nominal_ok": bool(nominal.ok[0]),
+        "worst_case": {
+            "value": plain(float(worst.check.value[0])),
+            "limit": plain(float(worst.check.limit[0])),
+            "margin": plain(float(worst.margin()[0])),
+            "corner": worst.corner(0),
+        },
+    }
+
+
+def yield_entry(found: tolerance.Yield) -> dict[str, Any]:
+    """A Monte Carlo run as the review (and a channel search) answers it."""
+    return {
+        "fraction": found.fraction,
+        "ci_low": found.ci_low,
+        "ci_high": found.ci_high,
+        "samples": found.samples,
+        "seed": found.seed,
+        "most_failing_check": found.most_failing_check,
+        "failures": found.failures,
+    }
+
+
+def review_document(values: dict[str, Any], parts: list[dict[str, Any]], warnings: list[str]) -> dict[str, Any]:
+    """The review of one channel from completed values, as JSON-ready data."""
+    done = review_channel(values, int(values["samples"]), int(values["seed"]))
+    worst = done.worst
+    nominal = worst.nominal
+    stage_of = {check.name: stage for stage in STAGES for check in getattr(nominal, stage).checks}
+    checks = [
+        entry
+        for check, wc in zip(nominal.checks, worst.checks, strict=True)
+        if (entry := _check_entry(check, wc, stage_of[check.name])) is not None
+    ]
+    stages: dict[str, Any] = {stage: _stage_results(getattr(nominal, stage)) for stage in STAGES}
+    if not bool(nominal.has_front_stage[0]):
+        stages["front_stage"] = None
+    stages["supply"]["max_duty_cycle"] = plain(float(nominal.max_duty_cycle[0]))
+    document: dict[str, Any] = {
+        "review": channel.NAME,
+        "inputs": {k: plain(v) for k, v in values.items()},
+        "parts": parts,
+        "verdict": "pass" if all(c["ok"] for c in checks) else "fail",
+        "failing": [c["name"] for c in checks if not c["ok"]],
+        "failing_nominal": [c["name"] for c in checks if not c["nominal_ok"]],
+        "max_duty_cycle": plain(float(nominal.max_duty_cycle[0])),
+        "stages": stages,
+        "checks": checks,
+        "yield": None if done.found is None else yield_entry(done.found),
+        "warnings": warnings + row_notices(nominal.warnings, 0),
+        "cautions": row_notices(nominal.cautions, 0),
+    }
+    document["fingerprint"] = fingerprint(channel.NAME, channel.VERSION, document["inputs"], parts)
+    return document
+
+
+def run_review(database: Database, body: Mapping[str, Any]) -> dict[str, Any]:
+    """The review of one channel request (values in SI, part references by role name), as JSON-ready data."""
+    resolved = resolve_parts(database, CHANNEL_INPUTS.roles, body)
+    return review_document(complete(CHANNEL_INPUTS, resolved.values), resolved.parts, resolved.warnings)
+
+
+@dataclass(frozen=True)
+class Distribution:
+    """The Monte Carlo values of one check, with its limit. ``relative``: the limit varies per build (the hfe of
+    each transistor, the supply of each build), so the values are each build's value over its own limit and the
+    limit is 1."""
+
+    check: str
+    values: FloatArray
+    limit: float
+    unit: str
+    relative: bool
+
+
+def most_failing(database: Database, body: Mapping[str, Any]) -> Distribution:
+    """The distribution of the check that fails most often over the request's Monte Carlo run (samples 0: the
+    default count); refused when every build passes."""
+    resolved = resolve_parts(database, CHANNEL_INPUTS.roles, body)
+    values = complete(CHANNEL_INPUTS, resolved.values)
+    samples = int(values["samples"]) or tolerance.DEFAULT_SAMPLES
+    seed = int(values["seed"])
+    inputs, nominal = _nominal(values, samples, seed)
+    found = tolerance.monte_carlo(inputs, samples, seed, nominal)
+    name, drawn, limits = found.most_failing_check, found.most_failing_values, found.most_failing_limits
+    if name is None or drawn is None or limits is None:
+        message = f"every one of the {samples} simulated builds passes every check: there is no failing check to plot"
+        raise InvalidInput(message, {"samples": [message]}, "nothing-fails")
+    if np.ptp(limits) > 1e-9 * np.abs(limits).max():
+        return Distribution(name, drawn / limits, 1.0, "", relative=True)
+    return Distribution(name, drawn, float(limits[0]), CHECK_UNITS[name], relative=False)

@@ -1,0 +1,164 @@
+"""``/review/channel``: the whole-channel review as a form, starting with the greenhouse demo channel, and its
+answer as a page or JSON (rules: calcsvc.web.pages.common)."""
+
+from __future__ import annotations
+
+import re
+from collections.abc import Mapping
+from typing import Any
+
+from flask import Response, jsonify, render_template, request, url_for
+from markupsafe import Markup
+from marshmallow import Schema, ValidationError
+
+from calcsvc.core import channel as channel_review
+from calcsvc.core import tolerance
+from calcsvc.core.outcome import DomainError
+from calcsvc.data.store import PartStore, PartView
+from calcsvc.service.demo import demo_channel
+from calcsvc.service.errors import ServiceError
+from calcsvc.service.review import run_review
+from calcsvc.web.auth import database
+from calcsvc.web.metrics import record_calculation
+from calcsvc.web.pages.common import bp, shown
+from calcsvc.web.parts_api import part_id_field
+from calcsvc.web.problems import Problem, service_problem
+from calcsvc.web.quantity import Quantity
+from calcsvc.web.review_report import number, render_markdown, render_table_html
+
+# What a value of the channel form may hold: printable ASCII and the unit symbols, 80 characters at most
+# (no control characters or NUL, which PostgreSQL refuses, and nothing worth parsing at length).
+_FORM_VALUE = re.compile(r"[\x20-\x7eµμΩ·]{1,80}")
+
+FRONT_STAGE = ("gain", "signal_hz", "amplitude_v")
+# Selects of the channel form: role → (label, part kind, required parameter value).
+CHANNEL_ROLES: dict[str, tuple[str, str, tuple[str, str] | None]] = {
+    "supply": ("Supply", "supply", None),
+    "driver": ("Driver pin", "driver", None),
+    "transistor": ("Switch transistor", "bjt", ("polarity", "npn")),
+    "led": ("LED", "led", None),
+    "opamp": ("Front-stage op-amp", "opamp", None),
+}
+
+ChannelForm = Schema.from_dict(
+    {
+        **{role: part_id_field(required=role != "opamp") for role in CHANNEL_ROLES},
+        "leds_in_series": Quantity("dimensionless", minimum=1, maximum=1000, integer=True),
+        "strings": Quantity("dimensionless", minimum=1, maximum=10000, integer=True),
+        "channels": Quantity("dimensionless", minimum=1, maximum=10000, integer=True),
+        "current_a": Quantity("A", minimum=0, exclusive_minimum=True),
+        "duty_cycle": Quantity("dimensionless", minimum=0, maximum=1),
+        "gain": Quantity("dimensionless", minimum=0, exclusive_minimum=True),
+        "signal_hz": Quantity("Hz", minimum=0, exclusive_minimum=True),
+        "amplitude_v": Quantity("V", minimum=0, exclusive_minimum=True),
+        "samples": Quantity("dimensionless", minimum=0, maximum=tolerance.MAX_SAMPLES, integer=True),
+        "seed": Quantity("dimensionless", minimum=0, maximum=2**32 - 1, integer=True),
+    },
+    name="ChannelForm",
+)
+
+# The form as the demo fills it: the greenhouse channel (calcsvc.service.demo), every value as text.
+DEMO_CHANNEL: dict[str, str] = {k: str(v) for k, v in demo_channel().items() if k in ChannelForm._declared_fields}
+
+
+# --- the channel review ---------------------------------------------------------------------------------------
+
+# The form's number fields: (name, label, hint).
+CHANNEL_FIELDS: dict[str, tuple[tuple[str, str, str], ...]] = {
+    "Arrangement": (
+        ("leds_in_series", "LEDs in series per string", "a whole number"),
+        ("strings", "Strings per channel", "a whole number; each string has its own resistor"),
+        ("current_a", "Current per string", "in A, or with a unit: 20 mA"),
+        ("duty_cycle", "PWM duty cycle", "a fraction from 0 to 1"),
+        ("channels", "Channels on the supply", "a whole number"),
+    ),
+    "Front stage (used with an op-amp)": (
+        ("gain", "Preamp gain", "V/V, non-inverting"),
+        ("signal_hz", "Signal frequency", "in Hz, or with a unit: 1 kHz"),
+        ("amplitude_v", "Output amplitude, peak", "in V, or with a unit: 500 mV"),
+    ),
+    "Production yield": (
+        ("samples", "Simulated builds", "a whole number; 0: no yield"),
+        ("seed", "Random seed", "a whole number; the same seed gives the same builds"),
+    ),
+}
+
+
+def channel_body(form: Mapping[str, str]) -> dict[str, Any]:
+    """The review's request body from the form; a Problem naming each bad field."""
+    given = {k: v.strip() for k, v in form.items() if k in ChannelForm._declared_fields and v.strip()}
+    unreadable = {
+        k: [f"{shown(v)} is not a value: at most 80 characters of text, digits and units"]
+        for k, v in given.items()
+        if _FORM_VALUE.fullmatch(v) is None
+    }
+    if unreadable:
+        raise Problem(422, "invalid input: " + ", ".join(sorted(unreadable)), "validation", unreadable)
+    if "opamp" not in given:
+        given = {k: v for k, v in given.items() if k not in FRONT_STAGE}
+    try:
+        body: dict[str, Any] = ChannelForm().load(given)
+    except ValidationError as exc:
+        errors = {k: list(v) for k, v in exc.normalized_messages().items()}
+        raise Problem(422, "invalid input: " + ", ".join(sorted(errors)), "validation", errors) from exc
+    for name in ("leds_in_series", "strings", "channels", "samples", "seed"):
+        if name in body:
+            body[name] = int(body[name])
+    return body
+
+
+def _options(store: PartStore) -> dict[str, list[PartView]]:
+    options: dict[str, list[PartView]] = {}
+    for role, (_, kind, needs) in CHANNEL_ROLES.items():
+        parts, _ = store.list(kind, None, 0, 500)
+        options[role] = [
+            p for p in parts if p.status != "retired" and (needs is None or p.parameters.get(needs[0]) == needs[1])
+        ]
+    return options
+
+
+def _reviewed(body: dict[str, Any]) -> dict[str, Any]:
+    review = run_review(database(), body)
+    record_calculation(channel_review.NAME, 1)
+    return review
+
+
+@bp.get("/channel")
+def channel() -> Response:
+    submitted = "supply" in request.args
+    form: Mapping[str, str] = request.args if submitted else DEMO_CHANNEL
+    with database().transaction() as session:
+        options = _options(PartStore(session))
+    review, errors, message, status = None, {}, None, 200
+    if submitted:
+        try:
+            review = _reviewed(channel_body(form))
+        except (Problem, ServiceError) as exc:
+            problem = exc if isinstance(exc, Problem) else service_problem(exc)
+            errors, message, status = problem.errors or {}, problem.detail, problem.status
+        except DomainError as exc:
+            for violation in exc.violations:
+                errors.setdefault(violation.field, []).append(violation.message)
+            message, status = "the inputs are physically impossible", 422
+    query = {k: v for k, v in form.items() if k in ChannelForm._declared_fields}
+    page = render_template(
+        "review/channel.html",
+        form=form,
+        options=options,
+        roles=CHANNEL_ROLES,
+        fields=CHANNEL_FIELDS,
+        review=review,
+        checks_table=Markup(render_table_html(review)) if review else None,  # the report's table, escaped there
+        report=render_markdown(review) if review else None,
+        number=number,
+        errors=errors,
+        message=message,
+        json_url=url_for(".channel_json", **query) if review else None,
+    )
+    return Response(page, status=status)
+
+
+@bp.get("/channel.json")
+def channel_json() -> Response:
+    """The review of the form's channel as JSON (errors as problem documents, as everywhere in the API)."""
+    return jsonify(_reviewed(channel_body(request.args)))

@@ -1,0 +1,50 @@
+"""The channel review's request and response schemas, shared by the review, the channel search and the page."""
+
+from __future__ import annotations
+
+from marshmallow import Schema, fields
+
+from calcsvc.core.channel_spec import CHANNEL_INPUTS
+from calcsvc.web.calc_schemas import CheckSchema, PartUsedSchema, request_schema
+
+# An instance, not a class: webargs would build a new schema object on every request.
+REVIEW_REQUEST = request_schema(CHANNEL_INPUTS)()
+
+
+class CornerCheckSchema(Schema):
+    value = fields.Float(allow_none=True)
+    limit = fields.Float(allow_none=True)
+    margin = fields.Float(allow_none=True)
+    corner = fields.Dict(keys=fields.String(), values=fields.String())
+
+
+class ReviewCheckSchema(CheckSchema):
+    stage = fields.String(required=True)
+    nominal_ok = fields.Boolean(required=True)
+    worst_case = fields.Nested(CornerCheckSchema, required=True)
+
+
+class YieldSchema(Schema):
+    fraction = fields.Float(required=True)
+    ci_low = fields.Float(required=True, metadata={"description": "95 % Wilson interval, low end"})
+    ci_high = fields.Float(required=True, metadata={"description": "95 % Wilson interval, high end"})
+    samples = fields.Integer(required=True)
+    seed = fields.Integer(required=True)
+    most_failing_check = fields.String(allow_none=True, required=True)
+    failures = fields.Dict(keys=fields.String(), values=fields.Integer(), required=True)
+
+
+class ReviewSchema(Schema):
+    review = fields.String(required=True)
+    inputs = fields.Dict(required=True)
+    parts = fields.List(fields.Nested(PartUsedSchema), required=True)
+    verdict = fields.String(required=True, metadata={"description": "pass when every check passes at every corner"})
+    failing = fields.List(fields.String(), required=True, metadata={"description": "checks failing at some corner"})
+    failing_nominal = fields.List(fields.String(), required=True)
+    max_duty_cycle = fields.Float(allow_none=True, required=True)
+    stages = fields.Dict(required=True, metadata={"description": "results of each stage (front_stage null if none)"})
+    checks = fields.List(fields.Nested(ReviewCheckSchema), required=True)
+    yield_ = fields.Nested(YieldSchema, allow_none=True, required=True, attribute="yield", data_key="yield")
+    warnings = fields.List(fields.String(), required=True)
+    cautions = fields.List(fields.String(), required=True)
+    fingerprint = fields.String(required=True)

@@ -1,0 +1,93 @@
+"""The channel review in the service layer, without a server: one validation and one nominal review per request,
+the same answer as the endpoint, and refusals named by field."""
+
+from __future__ import annotations
+
+from collections.abc import Callable
+from typing import Any
+
+import pytest
+from flask import Flask
+
+from calcsvc.core import channel, tolerance
+from calcsvc.core.outcome import DomainError
+from calcsvc.service import review
+from calcsvc.service.demo import demo_si
+from calcsvc.service.errors import InvalidInput
+from calcsvc.web.review_schemas import REVIEW_REQUEST
+
+
+def _counting(monkeypatch: pytest.MonkeyPatch, calls: dict[str, int], name: str) -> None:
+    """Count calls of ``channel.<name>`` however they are reached (tolerance imports it by name)."""
+    original: Callable[..., Any] = getattr(channel, name)
+
+    def counted(*args: Any, **kwargs: Any) -> Any:
+        calls[name] += 1
+        return original(*args, **kwargs)
+
+    monkeypatch.setattr(channel, name, counted)
+    monkeypatch.setattr(tolerance, name, counted)
+
+
+@pytest.fixture
+def calls(monkeypatch: pytest.MonkeyPatch) -> dict[str, int]:
+    found = {"validate": 0, "review": 0}
+    for name in found:
+        _counting(monkeypatch, found, name)
+    return found
+
+
+def test_review_validates_once(seeded: Flask, calls: dict[str, int]) -> None:
+    # Before: the worst case and the Monte Carlo run each validated and reviewed again (4 validations, 2 reviews).
+    document = review.run_review(seeded.extensions["calcsvc.db"], {**demo_si(), "samples": 500})
+    assert document["verdict"] == "pass" and document["yield"]["samples"] == 500
+    assert calls == {"validate": 1, "review": 1}
+
+
+def test_histogram_validates_once(seeded: Flask, calls: dict[str, int]) -> None:
+    # Pushed to 27 mA per string, the LEDs' 30 mA rating fails in the builds with the highest current.
+    body = {**demo_si(), "current_a": 0.027}
+    found = review.most_failing(seeded.extensions["calcsvc.db"], {**body, "samples": 500})
+    assert found.check == "led_current_rating" and found.values.shape == (500,)
+    assert calls == {"validate": 1, "review": 1}
+
+
+def test_service_review_is_the_endpoints(seeded: Flask) -> None:
+    body = {**demo_si(), "samples": 300}
+    # The body as the endpoint loads it (integers stay integers, strings with units become SI numbers).
+    document = review.run_review(seeded.extensions["calcsvc.db"], REVIEW_REQUEST.load(body))
+    answer = seeded.test_client().post("/v1/review/channel", json=body).get_json()
+    assert answer == document
+
+
+def test_demo_is_the_example_and_reads_in_si() -> None:
+    demo = demo_si()
+    assert demo["gain"] == 20 and demo["amplitude_v"] == 2.0 and demo["seed"] == 1
+    assert demo["current_a"] == pytest.approx(0.02) and demo["signal_hz"] == 1000.0
+
+
+@pytest.mark.parametrize(
+    ("given", "field"),
+    [
+        ({"duty_cycle": 0.5, "on_time_s": 1e-3, "period_s": 2e-3}, "duty_cycle"),
+        ({"on_time_s": 1e-3}, "period_s"),
+        ({"on_time_s": 3e-3, "period_s": 2e-3}, "on_time_s"),
+    ],
+)
+def test_duty_refusals_name_the_field(given: dict[str, float], field: str) -> None:
+    with pytest.raises(InvalidInput) as refused:
+        review.duty_of(given)
+    assert refused.value.errors is not None and list(refused.value.errors) == [field]
+
+
+def test_duty_from_on_time_and_period() -> None:
+    assert review.duty_of({"on_time_s": 1e-3, "period_s": 4e-3}) == 0.25
+    assert review.duty_of({}) == 1.0
+
+
+def test_impossible_channel_is_refused_by_the_core_naming_the_field(seeded: Flask, calls: dict[str, int]) -> None:
+    body = {**demo_si(), "leds_in_series": 6, "samples": 0}  # 6 × 2.0 V leaves nothing of 12 V
+    with pytest.raises(DomainError) as refused:
+        review.run_review(seeded.extensions["calcsvc.db"], body)
+    assert "supply_v" in {v.field for v in refused.value.violations}
+    assert calls == {"validate": 1, "review": 0}
