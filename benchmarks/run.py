@@ -39,7 +39,7 @@ import synthetic_parts
 from server import REPO, Server, gunicorn, peak_rss_bytes
 from traffic import Client, Tally, drive
 
-from calcsvc.core import closed_loop, eseries, led_string, tolerance
+from calcsvc.core import closed_loop, eseries, led_string, monte_carlo, tolerance
 from calcsvc.core.channel import ChannelInputs
 from calcsvc.core.channel_spec import CHANNEL_INPUTS
 from calcsvc.core.led_string import SPEC as LED_STRING
@@ -388,7 +388,7 @@ def core_section(repeats: int) -> tuple[list[Row], list[str]]:
     times = {}
     for samples in MONTE_CARLO_SAMPLES:
         runs = 1 if samples >= 1_000_000 else repeats
-        times[samples], result = best_of(runs, lambda s=samples: tolerance.monte_carlo(one, samples=s, seed=1))
+        times[samples], result = best_of(runs, lambda s=samples: monte_carlo.monte_carlo(one, samples=s, seed=1))
         notes.append(
             f"Monte Carlo of one greenhouse channel at 27 mA per string, {samples:,} samples (best of {runs}): "
             f"yield {result.fraction:.4f} (95 % interval {result.ci_low:.4f}–{result.ci_high:.4f}); most failing "

@@ -4,7 +4,7 @@ page are derived from it, as the calculations' are from their ``SPEC``."""
 
 from __future__ import annotations
 
-from calcsvc.core import channel, tolerance
+from calcsvc.core import channel, monte_carlo
 from calcsvc.core.spec import E_SERIES, Input, InputSet, Role, fraction, positive
 
 
@@ -70,9 +70,9 @@ CHANNEL_INPUTS = InputSet(
             "samples",
             "dimensionless",
             "Monte Carlo builds for the yield (0: no yield)",
-            tolerance.DEFAULT_SAMPLES,
+            monte_carlo.DEFAULT_SAMPLES,
             minimum=0,
-            maximum=tolerance.MAX_SAMPLES,
+            maximum=monte_carlo.MAX_SAMPLES,
             integer=True,
         ),
         Input("seed", "dimensionless", "Monte Carlo seed", 0, minimum=0, maximum=2**32 - 1, integer=True),

@@ -11,7 +11,7 @@ from typing import Any
 
 import numpy as np
 
-from calcsvc.core import channel, tolerance
+from calcsvc.core import channel, monte_carlo, tolerance
 from calcsvc.core.channel_spec import CHANNEL_INPUTS, CHECK_UNITS, STAGES
 from calcsvc.core.outcome import Check, FloatArray, Outcome, raise_violations
 from calcsvc.data.database import Database
@@ -51,14 +51,14 @@ class Reviewed:
 
     inputs: channel.ChannelInputs
     worst: tolerance.WorstCase
-    found: tolerance.Yield | None
+    found: monte_carlo.Yield | None
 
 
 def _nominal(values: Mapping[str, Any], samples: int, seed: int) -> tuple[channel.ChannelInputs, channel.ChannelReview]:
     """The channel validated once (with the run's limits) and reviewed at nominal values; raises DomainError
     naming the fields when it (or the run) is physically impossible."""
     inputs = channel_inputs(values)
-    raise_violations(tolerance.validate_monte_carlo(inputs, max(samples, 1), seed))
+    raise_violations(monte_carlo.validate_monte_carlo(inputs, max(samples, 1), seed))
     return inputs, channel.review(inputs, validated=True)
 
 
@@ -66,7 +66,7 @@ def review_channel(values: Mapping[str, Any], samples: int, seed: int) -> Review
     """Raises DomainError naming the fields when the channel (or the run) is physically impossible."""
     inputs, nominal = _nominal(values, samples, seed)
     worst = tolerance.worst_case(inputs, nominal)
-    found = tolerance.monte_carlo(inputs, samples, seed, nominal) if samples else None
+    found = monte_carlo.monte_carlo(inputs, samples, seed, nominal) if samples else None
     return Reviewed(inputs, worst, found)
 
 
@@ -100,7 +100,7 @@ def _check_entry(nominal: Check, worst: tolerance.WorstCheck, stage: str) -> dic
     }
 
 
-def yield_entry(found: tolerance.Yield) -> dict[str, Any]:
+def yield_entry(found: monte_carlo.Yield) -> dict[str, Any]:
     """A Monte Carlo run as the review (and a channel search) answers it."""
     return {
         "fraction": found.fraction,
@@ -170,10 +170,10 @@ def most_failing(database: Database, body: Mapping[str, Any]) -> Distribution:
     default count); refused when every build passes."""
     resolved = resolve_parts(database, CHANNEL_INPUTS.roles, body)
     values = complete(CHANNEL_INPUTS, resolved.values)
-    samples = int(values["samples"]) or tolerance.DEFAULT_SAMPLES
+    samples = int(values["samples"]) or monte_carlo.DEFAULT_SAMPLES
     seed = int(values["seed"])
     inputs, nominal = _nominal(values, samples, seed)
-    found = tolerance.monte_carlo(inputs, samples, seed, nominal)
+    found = monte_carlo.monte_carlo(inputs, samples, seed, nominal)
     name, drawn, limits = found.most_failing_check, found.most_failing_values, found.most_failing_limits
     if name is None or drawn is None or limits is None:
         message = f"every one of the {samples} simulated builds passes every check: there is no failing check to plot"

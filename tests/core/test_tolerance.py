@@ -14,19 +14,9 @@ from scipy.stats import binomtest
 from test_channel import DEMO, FRONT_CHECKS, NO_FRONT_STAGE, channel_rows, make, rows_to_inputs
 
 from calcsvc.core.channel import review
+from calcsvc.core.monte_carlo import MAX_SAMPLES, Z_95, monte_carlo, validate_monte_carlo, wilson_interval
 from calcsvc.core.outcome import DomainError
-from calcsvc.core.tolerance import (
-    CORNERS,
-    DEPENDS_ON,
-    MAX_SAMPLES,
-    QUANTITIES,
-    SETTINGS,
-    Z_95,
-    monte_carlo,
-    validate_monte_carlo,
-    wilson_interval,
-    worst_case,
-)
+from calcsvc.core.tolerance import CORNERS, DEPENDS_ON, QUANTITIES, SETTINGS, worst_case
 
 # ---- an independent scalar model of one built channel, for brute-force corner enumeration -------------
 

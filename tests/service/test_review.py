@@ -9,7 +9,7 @@ from typing import Any
 import pytest
 from flask import Flask
 
-from calcsvc.core import channel, tolerance
+from calcsvc.core import channel, monte_carlo, tolerance
 from calcsvc.core.outcome import DomainError
 from calcsvc.service import review
 from calcsvc.service.demo import demo_si
@@ -18,15 +18,16 @@ from calcsvc.web.review_schemas import REVIEW_REQUEST
 
 
 def _counting(monkeypatch: pytest.MonkeyPatch, calls: dict[str, int], name: str) -> None:
-    """Count calls of ``channel.<name>`` however they are reached (tolerance imports it by name)."""
+    """Count calls of ``channel.<name>`` however they are reached (tolerance and monte_carlo import it by name)."""
     original: Callable[..., Any] = getattr(channel, name)
 
     def counted(*args: Any, **kwargs: Any) -> Any:
         calls[name] += 1
         return original(*args, **kwargs)
 
-    monkeypatch.setattr(channel, name, counted)
-    monkeypatch.setattr(tolerance, name, counted)
+    for module in (channel, tolerance, monte_carlo):
+        if hasattr(module, name):
+            monkeypatch.setattr(module, name, counted)
 
 
 @pytest.fixture

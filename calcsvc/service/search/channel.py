@@ -11,7 +11,7 @@ from typing import Any
 
 import numpy as np
 
-from calcsvc.core import channel, tolerance
+from calcsvc.core import channel, monte_carlo, tolerance
 from calcsvc.core.channel_spec import CHANNEL_INPUTS
 from calcsvc.core.outcome import BoolArray, take
 from calcsvc.core.spec import Role
@@ -54,7 +54,7 @@ class ChannelSearch:
     worst: tolerance.WorstCase | None  # over the accepted rows
     scores: Scores
     rows: IntArray
-    yields: dict[int, tolerance.Yield]
+    yields: dict[int, monte_carlo.Yield]
 
     def position(self, row: int) -> int:
         return int(np.count_nonzero(self.accepted[:row]))
@@ -147,11 +147,11 @@ def search_channel(
             key[accepted] = worst.nominal.supply.results["average_power_w"]
     count = max(ranking.limit, YIELD_SHORTLIST) if samples else ranking.limit
     rows = rank(scores, key, ranking.rank_by != "supply_power_w", count, ranking.only_passing)
-    yields: dict[int, tolerance.Yield] = {}
+    yields: dict[int, monte_carlo.Yield] = {}
     if samples:
         shortlist = [int(row) for row in rows[accepted[rows]][:YIELD_SHORTLIST]]
         for row in shortlist:
-            yields[row] = tolerance.monte_carlo(take(inputs, np.array([row])), samples, seed)
+            yields[row] = monte_carlo.monte_carlo(take(inputs, np.array([row])), samples, seed)
         if ranking.rank_by == "yield":
             # The shortlist re-ranked by yield (a stable sort: ties keep their order); the rest after it.
             first = sorted(shortlist, key=lambda row: -yields[row].fraction)

@@ -10,7 +10,7 @@ from typing import Any
 
 from sqlalchemy.orm import Session
 
-from calcsvc.core import channel, tolerance
+from calcsvc.core import channel, monte_carlo
 from calcsvc.core.channel_spec import CHANNEL_INPUTS
 from calcsvc.core.registry import CALCULATIONS
 from calcsvc.core.spec import CalculationSpec, Role
@@ -228,11 +228,11 @@ def run_channel_select(database: Database, body: dict[str, Any], max_combination
     by_role = {name: kept for name, (kept, _) in chosen.items()}
     _bound(combinations(by_role), "combinations", max_combinations)
     leds = int(fixed.values.get("strings", 1)) * int(fixed.values.get("leds_in_series", 1))
-    if samples * leds * YIELD_SHORTLIST > tolerance.MAX_LED_DRAWS:
-        most = tolerance.MAX_LED_DRAWS // (leds * YIELD_SHORTLIST)
+    if samples * leds * YIELD_SHORTLIST > monte_carlo.MAX_LED_DRAWS:
+        most = monte_carlo.MAX_LED_DRAWS // (leds * YIELD_SHORTLIST)
         message = f"samples × strings × leds_in_series × {YIELD_SHORTLIST} designs exceeds the LED draws one search "
         raise InvalidInput.on(
-            "samples", message + f"may take ({tolerance.MAX_LED_DRAWS:,}): use at most {most:,} samples"
+            "samples", message + f"may take ({monte_carlo.MAX_LED_DRAWS:,}): use at most {most:,} samples"
         )
     ranking = Ranking(
         rank_by, limit=options.get("limit", DEFAULT_LIMIT), only_passing=options.get("only_passing", False)

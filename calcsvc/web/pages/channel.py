@@ -12,7 +12,7 @@ from markupsafe import Markup
 from marshmallow import Schema, ValidationError
 
 from calcsvc.core import channel as channel_review
-from calcsvc.core import tolerance
+from calcsvc.core import monte_carlo
 from calcsvc.core.outcome import DomainError
 from calcsvc.data.store import PartStore, PartView
 from calcsvc.service.demo import demo_channel
@@ -51,7 +51,7 @@ ChannelForm = Schema.from_dict(
         "gain": Quantity("dimensionless", minimum=0, exclusive_minimum=True),
         "signal_hz": Quantity("Hz", minimum=0, exclusive_minimum=True),
         "amplitude_v": Quantity("V", minimum=0, exclusive_minimum=True),
-        "samples": Quantity("dimensionless", minimum=0, maximum=tolerance.MAX_SAMPLES, integer=True),
+        "samples": Quantity("dimensionless", minimum=0, maximum=monte_carlo.MAX_SAMPLES, integer=True),
         "seed": Quantity("dimensionless", minimum=0, maximum=2**32 - 1, integer=True),
     },
     name="ChannelForm",

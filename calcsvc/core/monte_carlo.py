@@ -1,0 +1,175 @@
+"""Monte Carlo yield of a reviewed LED channel: the share of built channels that pass every check.
+
+The resistors are chosen once, at nominal values, by ``channel.review``; every sample is evaluated with them
+held fixed, exactly as the worst-case corners are (calcsvc.core.tolerance, whose docstring states the model).
+
+``np.random.default_rng(seed)`` draws, per sample: the supply uniform within its tolerance; every LED's
+forward voltage independently uniform in [vf_min_v, vf_max_v] (each string's drop is the sum of its own
+LEDs' draws — more realistic than one draw per string, whose spread would be √N times too wide); each
+string's resistor and the base resistor independently uniform within their tolerance; the gain
+log-uniform between hfe_min and hfe_max (gain spreads are multiplicative). The other channels on the
+supply are taken as copies of the sampled one, which overstates the spread of the total supply current
+(conservative). Each sample stays inside the corners' box, so a design that passes the worst case
+yields exactly 1. The passing fraction carries a Wilson score interval (Wilson 1927).
+Samples are drawn in chunks of about a million LED draws, so the same seed, inputs and sample count
+always give the same result.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+import numpy as np
+import numpy.typing as npt
+
+from calcsvc.core.channel import ChannelInputs, ChannelReview, resistor_tolerance, review, validate
+from calcsvc.core.outcome import Check, FloatArray, Violation, raise_violations, require, row_count
+from calcsvc.core.tolerance import Point, evaluate_at, hfe_max
+
+Z_95 = 1.959963984540054  # standard normal quantile for a two-sided 95 % interval
+DEFAULT_SAMPLES = 10_000
+MAX_SAMPLES = 1_000_000
+MAX_LED_DRAWS = 100_000_000  # samples × strings × leds_in_series: bounds the run time (≈2 s measured at the cap)
+_CHUNK_DRAWS = 1 << 20  # LED draws per chunk: bounds memory
+
+
+def wilson_interval(successes: npt.ArrayLike, trials: npt.ArrayLike, z: float = Z_95) -> tuple[FloatArray, FloatArray]:
+    """Wilson score interval for a binomial proportion (E. B. Wilson, JASA 22, 1927), without continuity
+    correction; broadcasts. The exact interval always contains successes/trials; the bounds are kept there
+    against rounding at 0 and 1."""
+    k = np.asarray(successes, dtype=np.float64)
+    n = np.asarray(trials, dtype=np.float64)
+    p = k / n
+    z2n = z * z / n
+    centre = (p + z2n / 2.0) / (1.0 + z2n)
+    half = z / (1.0 + z2n) * np.sqrt(p * (1.0 - p) / n + z2n / (4.0 * n))
+    return np.clip(np.minimum(centre - half, p), 0.0, 1.0), np.clip(np.maximum(centre + half, p), 0.0, 1.0)
+
+
+@dataclass(frozen=True)
+class Yield:
+    """Monte Carlo result for one row. ``failures`` counts the failing samples per check (every check, in
+    the review's order). The per-sample values and limits of the most-failing check (most failures; ties:
+    the first in order) are kept for plotting; all three are None when every sample passes."""
+
+    samples: int
+    seed: int
+    passed: int
+    fraction: float
+    ci_low: float
+    ci_high: float
+    failures: dict[str, int]
+    most_failing_check: str | None
+    most_failing_values: FloatArray | None
+    most_failing_limits: FloatArray | None
+
+
+def _whole(x: object) -> bool:
+    return isinstance(x, int | np.integer) and not isinstance(x, bool)
+
+
+def validate_monte_carlo(inputs: ChannelInputs, samples: int, seed: int) -> list[Violation]:
+    """``channel.validate`` plus the run's own limits (``run_limits``); never raises."""
+    return run_limits(inputs, samples, seed, validate(inputs))
+
+
+def run_limits(inputs: ChannelInputs, samples: int, seed: int, found: list[Violation] | None = None) -> list[Violation]:
+    """The run's own limits (fields ``samples`` and ``seed``, checked to be whole numbers whatever their type)
+    added to ``found``, the channel's violations (the LED-draw bound applies only to a valid channel); never
+    raises."""
+    v = [] if found is None else found
+    every = np.ones(row_count(inputs), dtype=bool)
+    if not _whole(samples) or not 1 <= samples <= MAX_SAMPLES:
+        require(v, every, "samples", f"samples ({samples!r}) must be a whole number from 1 to {MAX_SAMPLES:,}")
+    elif not v:
+        draws = samples * inputs.strings * inputs.leds_in_series
+        bad = draws > MAX_LED_DRAWS
+        if bad.any():
+            k = int(np.argmax(bad))
+            per_sample = int(inputs.strings[k] * inputs.leds_in_series[k])
+            require(
+                v,
+                bad,
+                "samples",
+                f"samples ({samples}) × strings × leds_in_series ({per_sample}) LED draws exceed "
+                f"{MAX_LED_DRAWS:,}: use at most {MAX_LED_DRAWS // per_sample:,} samples for this design",
+            )
+    if not _whole(seed) or seed < 0:
+        require(v, every, "seed", f"seed ({seed!r}) must be a whole number of at least 0")
+    return v
+
+
+def _draw(inputs: ChannelInputs, nominal: ChannelReview, rng: np.random.Generator, count: int) -> Point:
+    """``count`` samples of the single row's toleranced values, drawn in a fixed order."""
+    i = inputs
+    strings, leds = int(i.strings[0]), int(i.leds_in_series[0])
+    tol = resistor_tolerance(i)[0]
+
+    def spread(nominal_value: float, fraction: float, shape: tuple[int, ...]) -> FloatArray:
+        return nominal_value * (1.0 + fraction * rng.uniform(-1.0, 1.0, shape))
+
+    supply = spread(i.supply_v[0], i.supply_tolerance[0], (1, count))
+    vf = rng.uniform(i.vf_min_v[0], i.vf_max_v[0], (1, count, strings, leds)).sum(axis=-1)
+    led_r = spread(nominal.led_string.results["resistor_ohm"][0], tol, (1, count, strings))
+    base_r = spread(nominal.switch.results["rb_ohm"][0], tol, (1, count))
+    low, high = np.log(i.hfe_min[0]), np.log(hfe_max(i)[0])
+    hfe = np.exp(rng.uniform(low, high, (1, count)))
+    return Point((count,), supply, vf, led_r, base_r, hfe)
+
+
+def _every_sample(check: Check, count: int) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """ok, value and limit of a one-row check at each of ``count`` samples, shape ``(1, count)``."""
+    shape = (1, count)
+    return np.broadcast_to(check.ok, shape), np.broadcast_to(check.value, shape), np.broadcast_to(check.limit, shape)
+
+
+def monte_carlo(
+    inputs: ChannelInputs, samples: int = DEFAULT_SAMPLES, seed: int = 0, nominal: ChannelReview | None = None
+) -> Yield:
+    """Yield of one row's design over ``samples`` random builds (model: module docstring).
+
+    ``inputs`` must hold exactly one row (ValueError otherwise). Raises DomainError when
+    ``validate_monte_carlo`` finds a violation; ``nominal``, the review of ``inputs`` when the caller has made
+    it already, leaves only the run's own limits to check.
+    """
+    if row_count(inputs) != 1:
+        raise ValueError("monte_carlo reviews exactly one row")
+    if nominal is None:
+        raise_violations(validate_monte_carlo(inputs, samples, seed))
+        nominal = review(inputs, validated=True)
+    else:
+        raise_violations(run_limits(inputs, samples, seed))
+    rng = np.random.default_rng(seed)
+    chunk = max(1, _CHUNK_DRAWS // int(inputs.strings[0] * inputs.leds_in_series[0]))
+
+    parts: list[list[Check]] = []
+    for start in range(0, samples, chunk):
+        count = min(chunk, samples - start)
+        checks = evaluate_at(inputs, nominal, _draw(inputs, nominal, rng, count))
+        parts.append([Check(c.name, *_every_sample(c, count), c.sense, c.detail) for c in checks])
+
+    names = [c.name for c in nominal.checks]
+    ok = {name: np.concatenate([p[j].ok[0] for p in parts]) for j, name in enumerate(names)}
+    passing = np.logical_and.reduce(list(ok.values()))
+    failures = {name: int(samples - np.count_nonzero(ok[name])) for name in names}
+    passed = int(np.count_nonzero(passing))
+    low, high = wilson_interval(passed, samples)
+
+    worst = max(range(len(names)), key=lambda j: (failures[names[j]], -j))
+    most = names[worst] if failures[names[worst]] else None
+    values = limits = None
+    if most is not None:
+        values = np.concatenate([p[worst].value[0] for p in parts])
+        limits = np.concatenate([p[worst].limit[0] for p in parts])
+    return Yield(
+        samples=samples,
+        seed=seed,
+        passed=passed,
+        fraction=passed / samples,
+        ci_low=float(low),
+        ci_high=float(high),
+        failures=failures,
+        most_failing_check=most,
+        most_failing_values=values,
+        most_failing_limits=limits,
+    )
