@@ -35,6 +35,31 @@ class Input:
     def required(self) -> bool:
         return self.default is None and not self.optional
 
+    def refusals(self, values: np.ndarray) -> list[tuple[np.ndarray, str]]:
+        """The range rules over a column of given values (NaN: not given): (rows, message) pairs, each row
+        refused once, for its first broken rule. Single requests and batches both take their messages from here.
+        """
+        unit = "" if self.unit == "dimensionless" else f" {self.unit}"
+        finite = np.isfinite(values)
+        rules: list[tuple[np.ndarray, str]] = []
+        with np.errstate(invalid="ignore"):
+            if self.integer:
+                rules.append((values != np.round(values), "must be a whole number"))
+            if self.minimum is not None:
+                low = values <= self.minimum if self.exclusive_minimum else values < self.minimum
+                relation = "greater than" if self.exclusive_minimum else "at least"
+                rules.append((low, f"must be {relation} {self.minimum:g}{unit}"))
+            if self.maximum is not None:
+                rules.append((values > self.maximum, f"must be at most {self.maximum:g}{unit}"))
+        refused = np.isinf(values)
+        found = [(refused, "must be a finite number")] if refused.any() else []
+        for rows, message in rules:
+            rows = rows & finite & ~refused
+            if rows.any():
+                found.append((rows, message))
+                refused |= rows
+        return found
+
 
 @dataclass(frozen=True)
 class Role:

@@ -11,6 +11,18 @@ from flask import Response, g, json, request
 from marshmallow import Schema, fields
 from werkzeug.exceptions import HTTPException
 
+from calcsvc.core.outcome import DomainError
+from calcsvc.data.store import (
+    InvalidPart,
+    InvalidPartId,
+    PartExists,
+    PartNotFound,
+    PartNotRetired,
+    PartRetired,
+    SelfApproval,
+    StaleRevision,
+    StoreError,
+)
 from calcsvc.service.errors import MalformedBody, PhysicallyImpossible, ServiceError, TooLarge, UnknownPart
 
 PROBLEM_MIMETYPE = "application/problem+json"
@@ -206,3 +218,27 @@ def service_problem(error: ServiceError) -> Problem:
     status = next(status for kind, status in _SERVICE_STATUS if isinstance(error, kind))
     title = "Physically impossible input" if isinstance(error, PhysicallyImpossible) else None
     return Problem(status, error.detail, error.slug, error.errors, title=title)
+
+
+def domain_problem(error: DomainError) -> Problem:
+    return service_problem(PhysicallyImpossible.of(error.violations))
+
+
+_STORE_STATUS: dict[type[StoreError], tuple[int, str]] = {
+    PartNotFound: (404, "part-not-found"),
+    PartExists: (409, "part-exists"),
+    StaleRevision: (412, "stale-revision"),
+    SelfApproval: (403, "self-approval"),
+    PartRetired: (409, "part-retired"),
+    PartNotRetired: (409, "part-not-retired"),
+    InvalidPartId: (422, "invalid-part-id"),
+}
+
+
+def store_problem(error: StoreError) -> Problem:
+    """The one mapping of the parts store's refusals to HTTP."""
+    if isinstance(error, InvalidPart):
+        errors = {k if k in ("kind", "description") else f"parameters.{k}": [v] for k, v in error.errors.items()}
+        return Problem(422, "the part's parameters are not valid", "invalid-part", errors)
+    status, slug = _STORE_STATUS.get(type(error), (400, "store"))
+    return Problem(status, str(error), slug, {error.field: [str(error)]} if error.field else None)
