@@ -7,7 +7,7 @@ from typing import Any
 from marshmallow import Schema, fields, validate
 
 from calcsvc.core.spec import Input, InputSet, Result, Role
-from calcsvc.web.parts_api import MAX_REVISION, part_id_field
+from calcsvc.service.parts import MAX_REVISION, part_id_field
 from calcsvc.web.quantity import Quantity
 
 

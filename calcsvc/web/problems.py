@@ -131,6 +131,21 @@ def database_problem(busy: bool) -> Problem:
     )
 
 
+def problem_document(problem: Problem, instance: str | None = None) -> dict[str, Any]:
+    """The RFC 9457 body of ``problem`` (``instance``: the request path, when it answers a whole request)."""
+    body: dict[str, Any] = {
+        "type": f"urn:calcsvc:problem:{problem.slug}" if problem.slug else "about:blank",
+        "title": problem.title or _TITLES.get(problem.status, "Error"),
+        "status": problem.status,
+        "detail": problem.detail,
+    }
+    if instance is not None:
+        body["instance"] = instance
+    if problem.errors:
+        body["errors"] = problem.errors
+    return body
+
+
 def problem_response(problem: Problem) -> Response:
     page = g.get("error_page")
     if page is not None:
@@ -143,15 +158,7 @@ def problem_response(problem: Problem) -> Response:
         detail = "; ".join(f"{k}: {v[0]}" for k, v in problem.errors.items()) if problem.errors else problem.detail
         line = f"error: {detail}".replace("\n", " ")[:300]
         return Response(line, status=problem.status, mimetype="text/plain", headers=problem.headers)
-    body: dict[str, Any] = {
-        "type": f"urn:calcsvc:problem:{problem.slug}" if problem.slug else "about:blank",
-        "title": problem.title or _TITLES.get(problem.status, "Error"),
-        "status": problem.status,
-        "detail": problem.detail,
-        "instance": request.path,
-    }
-    if problem.errors:
-        body["errors"] = problem.errors
+    body = problem_document(problem, request.path)
     response = Response(json.dumps(body), status=problem.status, mimetype=PROBLEM_MIMETYPE)
     for name, value in problem.headers.items():
         response.headers[name] = value
