@@ -123,9 +123,7 @@ def parse_rows(
     """Typed columns of every input, parts resolved once per distinct reference, errors per row."""
     n = len(records)
     errors = RowErrors()
-    allowed = {spec.name for spec in calc.inputs}
-    for role in calc.roles:
-        allowed |= {role.name, f"{role.name}_revision"}
+    allowed = set(calc.accepted())
     if set(map(type, records)) != {dict}:
         for row, record in enumerate(records):
             if not isinstance(record, dict):
