@@ -412,17 +412,34 @@ def calc_inputs(tokens: list[str]) -> dict[str, Any]:
     return body
 
 
-def _calculation_names() -> list[str]:
-    from calcsvc.core import duty_power
-    from calcsvc.core.registry import CALCULATIONS
+def _calculation_options() -> str:
+    """Each calculation and the options it takes, from the calculations' own declarations."""
+    from calcsvc.core.registry import EVERY
 
-    return [*CALCULATIONS, duty_power.NAME]
+    return "\n".join(
+        f"  {name}: " + " ".join(f"--{option}" for option in spec.accepted()) for name, spec in EVERY.items()
+    )
+
+
+def calc_body(name: str, tokens: list[str]) -> dict[str, Any]:
+    """The request body of calculation ``name``, refusing an option it does not declare before asking a server."""
+    from calcsvc.core.registry import EVERY
+
+    spec = EVERY.get(name)
+    if spec is None:
+        raise ValueError(f"no calculation {name!r}; choose from {', '.join(EVERY)}")
+    body = calc_inputs(tokens)
+    unknown = [key for key in body if key not in spec.accepted()]
+    if unknown:
+        raise ValueError(f"{name} takes no --{unknown[0]}; it takes " + " ".join(f"--{o}" for o in spec.accepted()))
+    return body
 
 
 def _calc(args: argparse.Namespace) -> int:
-    body = calc_inputs(args.inputs)
+    name = args.name.replace("_", "-")
+    body = calc_body(name, args.inputs)
     with _client(args) as client:
-        result = client.calc(args.name.replace("_", "-"), **body)
+        result = client.calc(name, **body)
     failed = [check for check in result["checks"] if not check["ok"]]
     if args.json:
         print(json.dumps(result, indent=2))
@@ -533,10 +550,11 @@ def build_parser() -> argparse.ArgumentParser:
         description="Every --INPUT VALUE pair becomes an input: numbers as numbers, other text as strings\n"
         "(units such as '20 mA' are converted by the server), [..] and {..} as JSON.\n"
         "Exit status: 0 all checks pass, 1 a check fails, 2 error.",
-        epilog="example:\n  calcsvc calc led-string --supply supply-adapter-12v-2a --led led-red-5mm \\\n"
+        epilog=f"calculations and their inputs:\n{_calculation_options()}\n\n"
+        "example:\n  calcsvc calc led-string --supply supply-adapter-12v-2a --led led-red-5mm \\\n"
         '      --leds_in_series 3 --current_a "20 mA"',
     )
-    calc.add_argument("name", help=", ".join(_calculation_names()))
+    calc.add_argument("name", help="the calculation (listed below)")
     calc.add_argument("--json", action="store_true", help="print the raw response envelope")
     calc.set_defaults(run=_calc, takes_inputs=True)
     return parser

@@ -26,8 +26,8 @@ from typing import Any
 from calcsvc.client import CalcsvcError, Client, Part
 from calcsvc.csv_cells import CellWriter, original_cell
 from calcsvc.data.kinds import KINDS, validate_parameters
-from calcsvc.web.parts_api import PartCreateSchema, convert_parameters
-from calcsvc.web.problems import Problem
+from calcsvc.service.errors import InvalidInput
+from calcsvc.service.parts import PartCreateSchema, convert_parameters
 
 FIXED_COLUMNS = ("part_id", "kind", "description")
 ENTRY_KEYS = frozenset({"part_id", "kind", "description", "parameters"})
@@ -141,7 +141,7 @@ def check_row(
         return None, errors
     try:
         converted = convert_parameters(kind, parameters)
-    except Problem as problem:
+    except InvalidInput as problem:
         return None, [
             RowError(where, name.removeprefix("parameters."), " ".join(messages))
             for name, messages in (problem.errors or {}).items()

@@ -165,3 +165,14 @@ def test_csv_answer_cells_never_start_a_formula(client: FlaskClient, lead: str) 
     assert line["ok"] == "false" and line["problem"].startswith(f"'{lead}HYPERLINK(")
     cells = [cell for row in csv.reader(io.StringIO(response.get_data(as_text=True))) for cell in row]
     assert not [cell for cell in cells if cell[:1] in ("=", "+", "-", "@", "\t", "\r")]
+
+
+def test_a_bad_row_is_refused_as_the_single_request_would_be(client: FlaskClient, seeded: Any) -> None:
+    good = {**LED, "supply_v": 12, "current_a": 0.02}
+    cases = [{**good, "supply_v": 5}, {**good, "current_a": 0}, {**good, "led": "led-missing"}]
+    body = client.post("/v1/batch/led-string", json=cases).get_json()
+    for case, entry in zip(cases, body["rows"], strict=True):
+        single = client.post("/v1/calc/led-string", json=case).get_json()
+        row = entry["problem"]
+        assert (row["type"], row["title"], row["status"]) == (single["type"], single["title"], single["status"])
+        assert row["errors"] == single["errors"]

@@ -14,7 +14,7 @@ import pytest
 from flask import Flask
 from sqlalchemy import text
 
-from calcsvc.cli import calc_inputs, main
+from calcsvc.cli import calc_body, calc_inputs, main
 from calcsvc.client import Client
 
 pytest_plugins = ("live_server",)
@@ -314,3 +314,16 @@ def test_a_token_made_by_the_command_line_writes_through_it(
     assert main(["parts", "import", str(path), "--url", live_url, "--token", token]) == 0
     with Client(live_url) as client:
         assert client.get_part("led-amber-3mm")[0]["updated_by"] == "tess"
+
+
+def test_calc_options_come_from_the_declared_calculations(capsys: Any) -> None:
+    assert calc_body("duty-cycle-power", ["--supply_v", "12", "--loads", "[]"]) == {"supply_v": 12, "loads": []}
+    for name, tokens in (("led-string", ["--colour", "red"]), ("no-such-calculation", [])):
+        with pytest.raises(ValueError):
+            calc_body(name, tokens)
+    # Refused before any server is asked (nothing listens on port 1).
+    assert main(["calc", "led-string", "--colour", "red", "--url", "http://127.0.0.1:1"]) == 2
+    assert "led-string takes no --colour" in capsys.readouterr().err
+    with pytest.raises(SystemExit):
+        main(["calc", "--help"])
+    assert "duty-cycle-power: --supply_v" in capsys.readouterr().out

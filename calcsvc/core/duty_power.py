@@ -24,6 +24,7 @@ belongs to. (``outcome.take`` selects rows of same-length fields only, so it doe
 
 from __future__ import annotations
 
+from collections.abc import Collection
 from dataclasses import dataclass
 
 import numpy as np
@@ -43,7 +44,7 @@ from calcsvc.core.outcome import (
     require,
     require_practical,
 )
-from calcsvc.core.spec import Result
+from calcsvc.core.spec import BudgetSpec, Input, Items, Result, Role, Samples, fraction, positive
 
 NAME = "duty-cycle-power"
 VERSION = "1"
@@ -152,6 +153,27 @@ def on_time_duty(on_time_s: npt.ArrayLike, period_s: npt.ArrayLike) -> FloatArra
     )
     raise_violations(v)
     return on / period
+
+
+_TIMED = ("on_time_s", "period_s")
+
+
+def describe_load(given: Collection[str]) -> tuple[str, str] | None:
+    """The field and fault of a load not described by exactly one of: a waveform; peak_current_a with duty_cycle;
+    peak_current_a with on_time_s and period_s. None when the load is described once."""
+    if "waveform" in given:
+        extra = [k for k in ("peak_current_a", "duty_cycle", *_TIMED) if k in given]
+        return (extra[0], f"a load with a waveform takes its currents from it; drop {extra[0]}") if extra else None
+    if "peak_current_a" not in given:
+        return "peak_current_a", "give peak_current_a with a duty cycle, or a waveform"
+    timed = any(k in given for k in _TIMED)
+    if "duty_cycle" in given and timed:
+        return "duty_cycle", "give duty_cycle or on_time_s with period_s, not both"
+    if timed and not all(k in given for k in _TIMED):
+        return "period_s", "on_time_s and period_s go together"
+    if "duty_cycle" not in given and not timed:
+        return "duty_cycle", "give duty_cycle, or on_time_s with period_s"
+    return None
 
 
 def _first_load(bad: BoolArray) -> str:
@@ -425,4 +447,46 @@ RESULTS = (
     Result("supply_utilization", "", "average current / supply rating"),
     Result("runtime_h", "h", "battery capacity / average current"),
     Result("max_common_duty_cycle", "", "largest duty cycle all loads could share within the supply rating"),
+)
+
+MAX_WAVEFORM_SAMPLES = 100_000
+SPEC = BudgetSpec(
+    name=NAME,
+    summary="Average and peak supply current and power of duty-cycled loads, with runtime and duty headroom",
+    version=VERSION,
+    inputs=(
+        positive("supply_v", "V", "supply voltage"),
+        positive("current_max_a", "A", "supply current rating", optional=True),
+        positive("capacity_ah", "A*h", "battery capacity", optional=True),
+    ),
+    roles=(
+        Role(
+            "supply",
+            "supply",
+            (("supply_v", "supply_v"), ("current_max_a", "current_max_a"), ("capacity_ah", "capacity_ah")),
+        ),
+    ),
+    items=Items(
+        "loads",
+        "the loads on the supply, each a rectangular pulse train or a sampled waveform",
+        (
+            Input("name", "", "what the load is", "", max_length=100),
+            Input("peak_current_a", "A", "current while on (rectangular load)", optional=True, minimum=0),
+            fraction("duty_cycle", "fraction of time on", optional=True),
+            Input("on_time_s", "s", "on time per period (instead of duty_cycle)", optional=True, minimum=0),
+            positive("period_s", "s", "PWM period (with on_time_s)", optional=True),
+            Input("count", "dimensionless", "identical units", 1, minimum=1, maximum=100_000, integer=True),
+        ),
+        Samples(
+            "waveform",
+            "samples over exactly one period",
+            (Input("time_s", "s", "sample times"), Input("current_a", "A", "currents at those times")),
+            2,
+            MAX_WAVEFORM_SAMPLES,
+        ),
+        1,
+        1000,
+        describe_load,
+    ),
+    results=RESULTS,
 )

@@ -5,7 +5,7 @@ query-string form, the command line, the searches and the plots are all derived 
 
 from __future__ import annotations
 
-from collections.abc import Callable
+from collections.abc import Callable, Collection
 from dataclasses import dataclass
 from typing import Any, Literal
 
@@ -30,10 +30,36 @@ class Input:
     maximum: float | None = None
     integer: bool = False
     choices: tuple[str, ...] = ()
+    max_length: int | None = None  # a text input (a name), not a quantity
 
     @property
     def required(self) -> bool:
         return self.default is None and not self.optional
+
+    def refusals(self, values: np.ndarray) -> list[tuple[np.ndarray, str]]:
+        """The range rules over a column of given values (NaN: not given): (rows, message) pairs, each row
+        refused once, for its first broken rule. Single requests and batches both take their messages from here.
+        """
+        unit = "" if self.unit == "dimensionless" else f" {self.unit}"
+        finite = np.isfinite(values)
+        rules: list[tuple[np.ndarray, str]] = []
+        with np.errstate(invalid="ignore"):
+            if self.integer:
+                rules.append((values != np.round(values), "must be a whole number"))
+            if self.minimum is not None:
+                low = values <= self.minimum if self.exclusive_minimum else values < self.minimum
+                relation = "greater than" if self.exclusive_minimum else "at least"
+                rules.append((low, f"must be {relation} {self.minimum:g}{unit}"))
+            if self.maximum is not None:
+                rules.append((values > self.maximum, f"must be at most {self.maximum:g}{unit}"))
+        refused = np.isinf(values)
+        found = [(refused, "must be a finite number")] if refused.any() else []
+        for rows, message in rules:
+            rows = rows & finite & ~refused
+            if rows.any():
+                found.append((rows, message))
+                refused |= rows
+        return found
 
 
 @dataclass(frozen=True)
@@ -78,6 +104,13 @@ class InputSet:
     inputs: tuple[Input, ...]
     roles: tuple[Role, ...]
 
+    def accepted(self) -> list[str]:
+        """Every name a request may give: the inputs, and each role's part_id and revision."""
+        names = [spec.name for spec in self.inputs]
+        for role in self.roles:
+            names += [role.name, f"{role.name}_revision"]
+        return names
+
 
 @dataclass(frozen=True)
 class CalculationSpec(InputSet):
@@ -90,6 +123,43 @@ class CalculationSpec(InputSet):
 
     def scalar_results(self) -> list[str]:
         return [result.name for result in self.results if result.scalar]
+
+
+@dataclass(frozen=True)
+class Samples:
+    """Equal-length arrays that sample one period (a load's current waveform)."""
+
+    name: str
+    description: str
+    arrays: tuple[Input, ...]
+    min_length: int
+    max_length: int
+
+
+@dataclass(frozen=True)
+class Items:
+    """A list input whose items carry inputs of their own (the loads on a supply). ``describe`` is the rule of
+    which inputs together describe one item: it names the field and the fault of an item described wrongly."""
+
+    name: str
+    description: str
+    inputs: tuple[Input, ...]
+    samples: Samples
+    min_items: int
+    max_items: int
+    describe: Callable[[Collection[str]], tuple[str, str] | None]
+
+
+@dataclass(frozen=True)
+class BudgetSpec(InputSet):
+    """A calculation over one row of inputs and a list of items (a supply and its loads); results per row, and
+    per item as records."""
+
+    items: Items
+    results: tuple[Result, ...]
+
+    def accepted(self) -> list[str]:
+        return [*super().accepted(), self.items.name]
 
 
 def positive(name: str, unit: str, description: str, **kwargs: Any) -> Input:

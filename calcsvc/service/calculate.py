@@ -8,11 +8,11 @@ from typing import Any
 
 import numpy as np
 
-from calcsvc.core.outcome import Outcome
+from calcsvc.core.outcome import DomainError, Outcome
 from calcsvc.core.spec import CalculationSpec, Columns, InputSet
 from calcsvc.data.database import Database
 from calcsvc.service.envelope import envelope, plain, row_results, row_sweeps
-from calcsvc.service.errors import InvalidInput
+from calcsvc.service.errors import InvalidInput, PhysicallyImpossible
 from calcsvc.service.resolve import resolve_parts
 
 
@@ -57,7 +57,10 @@ def run_calculation(database: Database, calc: CalculationSpec, body: Mapping[str
     """The envelope of ``calc`` for one request body (values in SI, part references by role name)."""
     resolved = resolve_parts(database, calc.roles, body)
     values = complete(calc, resolved.values)
-    outcome = calc.compute(calc.make_inputs(columns_of(calc, [values])))
+    try:
+        outcome = calc.compute(calc.make_inputs(columns_of(calc, [values])))
+    except DomainError as exc:
+        raise PhysicallyImpossible.of(exc.violations) from exc
     return envelope(
         calc.name, calc.version, values, resolved.parts, results_of_row(calc, outcome, 0), outcome, 0, resolved.warnings
     )

@@ -3,7 +3,18 @@ status (calcsvc.web.problems), the command line and the parts tool print them as
 
 from __future__ import annotations
 
+from collections.abc import Iterable
 from typing import ClassVar
+
+from calcsvc.core.outcome import Violation
+
+
+def errors_of(violations: Iterable[Violation], prefix: str = "") -> dict[str, list[str]]:
+    """The core's violations as messages keyed by field (``prefix`` names where a nested item sits)."""
+    errors: dict[str, list[str]] = {}
+    for violation in violations:
+        errors.setdefault(prefix + violation.field, []).append(violation.message)
+    return errors
 
 
 class ServiceError(Exception):
@@ -32,6 +43,11 @@ class PhysicallyImpossible(ServiceError):
     """Inputs that are each valid but together describe no real circuit (the core's preconditions)."""
 
     slug = "physically-impossible"
+
+    @classmethod
+    def of(cls, violations: Iterable[Violation], prefix: str = "") -> PhysicallyImpossible:
+        errors = errors_of(violations, prefix)
+        return cls("; ".join(f"{field}: {' '.join(messages)}" for field, messages in errors.items()), errors)
 
 
 class UnknownPart(ServiceError):

@@ -17,17 +17,7 @@ from werkzeug.exceptions import HTTPException
 from calcsvc.config import load_config
 from calcsvc.core.outcome import DomainError
 from calcsvc.data.database import Database, is_busy
-from calcsvc.data.store import (
-    InvalidPart,
-    InvalidPartId,
-    PartExists,
-    PartNotFound,
-    PartNotRetired,
-    PartRetired,
-    SelfApproval,
-    StaleRevision,
-    StoreError,
-)
+from calcsvc.data.store import StoreError
 from calcsvc.service.errors import ServiceError
 from calcsvc.web import batch_api, calc_api, health, parts_api, plots_api, review_api, review_page, select_api
 from calcsvc.web.observability import install_observability
@@ -37,9 +27,11 @@ from calcsvc.web.problems import (
     Problem,
     ProblemSchema,
     database_problem,
+    domain_problem,
     from_http_exception,
     problem_response,
     service_problem,
+    store_problem,
 )
 from calcsvc.web.request_body import buffer_body
 
@@ -47,16 +39,6 @@ log = logging.getLogger("calcsvc")
 
 API_VERSION = "1.0.0"
 BODY_MIMETYPES = {"application/json", "text/csv"}
-
-_STORE_STATUS: dict[type[StoreError], tuple[int, str]] = {
-    PartNotFound: (404, "part-not-found"),
-    PartExists: (409, "part-exists"),
-    StaleRevision: (412, "stale-revision"),
-    SelfApproval: (403, "self-approval"),
-    PartRetired: (409, "part-retired"),
-    PartNotRetired: (409, "part-not-retired"),
-    InvalidPartId: (422, "invalid-part-id"),
-}
 
 
 class ProblemApi(Api):
@@ -78,23 +60,6 @@ class ProblemApi(Api):
         response = {"description": "Any other error, as a problem document", "schema": self.ERROR_SCHEMA}
         prepare_response(response, self.spec, PROBLEM_MIMETYPE)
         self.spec.components.response(self.DEFAULT_ERROR_RESPONSE_NAME, response, lazy=True)
-
-
-def _store_problem(error: StoreError) -> Response:
-    if isinstance(error, InvalidPart):
-        errors = {k if k in ("kind", "description") else f"parameters.{k}": [v] for k, v in error.errors.items()}
-        return problem_response(Problem(422, "the part's parameters are not valid", "invalid-part", errors))
-    status, slug = _STORE_STATUS.get(type(error), (400, "store"))
-    errors = {error.field: [str(error)]} if error.field else None
-    return problem_response(Problem(status, str(error), slug, errors))
-
-
-def _domain_problem(error: DomainError) -> Response:
-    errors: dict[str, list[str]] = {}
-    for violation in error.violations:
-        errors.setdefault(violation.field, []).append(violation.message)
-    detail = "; ".join(f"{field}: {' '.join(messages)}" for field, messages in errors.items())
-    return problem_response(Problem(422, detail, "physically-impossible", errors, title="Physically impossible input"))
 
 
 def _database_down(error: OperationalError) -> Response:
@@ -186,8 +151,8 @@ def create_app(config: Mapping[str, Any] | None = None) -> Flask:
 
     app.register_error_handler(Problem, problem_response)
     app.register_error_handler(ServiceError, lambda error: problem_response(service_problem(error)))
-    app.register_error_handler(StoreError, _store_problem)
-    app.register_error_handler(DomainError, _domain_problem)
+    app.register_error_handler(StoreError, lambda error: problem_response(store_problem(error)))
+    app.register_error_handler(DomainError, lambda error: problem_response(domain_problem(error)))
     app.register_error_handler(OperationalError, _database_down)
     app.register_error_handler(Exception, _unexpected)
     app.before_request(_check_body)

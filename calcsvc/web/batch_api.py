@@ -2,9 +2,7 @@
 
 from __future__ import annotations
 
-import csv
 import io
-import itertools
 from typing import Any
 
 import numpy as np
@@ -16,13 +14,12 @@ from flask_smorest import Blueprint
 from calcsvc.core.registry import CALCULATIONS
 from calcsvc.core.spec import CalculationSpec
 from calcsvc.csv_cells import CellWriter
+from calcsvc.service.batch import ParsedRows, run_batch
 from calcsvc.service.envelope import SWEEP_KEYS, plain, row_sweeps
-from calcsvc.service.resolve import PartResolver
 from calcsvc.web.auth import database, guard_reads
 from calcsvc.web.calc_schemas import request_schema
-from calcsvc.web.columns import ParsedRows, parse_rows
 from calcsvc.web.metrics import record_calculation
-from calcsvc.web.problems import Problem, error_response
+from calcsvc.web.problems import error_response, problem_document, service_problem
 
 blp = Blueprint(
     "batch",
@@ -34,77 +31,11 @@ blp = Blueprint(
 guard_reads(blp)  # calculations read the parts table
 
 CSV = "text/csv"
-EXTRA_CELLS = "cells_beyond_the_header"
 
 
-def _refuse_more_than_rows_hold(calc: CalculationSpec, body: bytes | str, limit: int) -> None:
-    """413 before parsing when the body has more separators than ``limit`` rows of named inputs could: each
-    row holds at most one value per input name, so millions of tiny rows or one huge array inside a cell
-    are refused before Python builds an object for each element."""
-    names = len(calc.inputs) + 2 * len(calc.roles)
-    if body.count("," if isinstance(body, str) else b",") >= (limit + 1) * names:
-        message = f"the body holds more values than {limit:,} rows of at most {names} inputs each"
-        raise Problem(413, message, "batch-size", {"body": [message]})
-
-
-def _too_many_rows(count: int | str, limit: int) -> Problem:
-    return Problem(413, f"{count} rows is more than this server takes in one batch ({limit})", "batch-size")
-
-
-def read_records(calc: CalculationSpec) -> tuple[list[Any], bool]:
-    """The rows of the body, and whether blank cells mean "not given" (CSV)."""
-    limit = current_app.config["BATCH_MAX_ROWS"]
-    if request.mimetype == CSV:
-        text = request.get_data(as_text=True)
-        _refuse_more_than_rows_hold(calc, text, limit)
-        # A short row's missing cells are blank (not given); cells beyond the header become an unknown field of
-        # their row, which refuses that row instead of dropping data that was likely shifted.
-        reader = csv.DictReader(io.StringIO(text, newline=""), skipinitialspace=True, restkey=EXTRA_CELLS, restval="")
-        try:
-            # Reading stops one row past the limit: a body of millions of short lines is never built.
-            rows = list(itertools.islice(reader, limit + 1))
-            records = [{k.strip(): v.strip() if isinstance(v, str) else v for k, v in row.items()} for row in rows]
-        except csv.Error as exc:
-            raise Problem(400, f"the request body is not a valid CSV table: {exc}", "malformed-body") from exc
-        if len(records) > limit:
-            raise _too_many_rows("more than " + f"{limit}", limit)
-        return records, True
-    body = request.get_data()
-    _refuse_more_than_rows_hold(calc, body, limit)
-    try:
-        data = orjson.loads(body)
-    except orjson.JSONDecodeError as exc:
-        raise Problem(400, f"the request body is not valid JSON: {exc}", "malformed-body") from exc
-    if not isinstance(data, list):
-        message = "the body must be a JSON array of input objects (or a CSV table with Content-Type: text/csv)"
-        raise Problem(422, message, "validation", {"body": [message]})
-    if len(data) > limit:
-        raise _too_many_rows(len(data), limit)
-    return data, False
-
-
-def evaluate(calc: CalculationSpec, parsed: ParsedRows) -> tuple[dict[str, Any], np.ndarray, Any]:
-    """Run the core once over every row that parsed; physical violations become errors on their rows."""
-    n = parsed.n
-    ok_rows = np.flatnonzero(~parsed.errors.mask(n))
-    # Some rules run only once a row's other inputs hold (its resistor in range, say): so the rows left are
-    # validated again until none is refused.
-    while True:
-        inputs = calc.make_inputs({name: column[ok_rows] for name, column in parsed.columns.items()})
-        violations = calc.validate(inputs)
-        if not violations:
-            break
-        for violation in violations:
-            parsed.errors.add_rows(np.isin(np.arange(n), ok_rows[violation.rows]), violation.field, violation.message)
-        ok_rows = np.flatnonzero(~parsed.errors.mask(n))
-    outcome = calc.compute(inputs)
-    return outcome.results, ok_rows, outcome
-
-
-def _row_problem(errors: dict[str, list[str]]) -> dict[str, Any]:
-    detail = "; ".join(f"{name}: {' '.join(messages)}" for name, messages in errors.items())
-    return {"type": "urn:calcsvc:problem:validation", "title": "Unprocessable content", "status": 422,
-            "detail": detail, "errors": errors}  # fmt: skip
+def _row_problem(parsed: ParsedRows, row: int) -> dict[str, Any]:
+    """A bad row's problem document, as a single request with its inputs would have been answered."""
+    return problem_document(service_problem(parsed.errors.refusal(row)))
 
 
 def json_rows(calc: CalculationSpec, parsed: ParsedRows, ok_rows: np.ndarray, outcome: Any) -> list[dict[str, Any]]:
@@ -136,8 +67,8 @@ def json_rows(calc: CalculationSpec, parsed: ParsedRows, ok_rows: np.ndarray, ou
             "cautions": notices["cautions"][k],
             "parts": parsed.parts.get(row, []),
         }
-    for row, errors in parsed.errors.by_row.items():
-        rows[row] = {"row": row, "ok": False, "problem": _row_problem(errors)}
+    for row in parsed.errors.by_row:
+        rows[row] = {"row": row, "ok": False, "problem": _row_problem(parsed, row)}
     return rows
 
 
@@ -185,7 +116,7 @@ def json_columns(calc: CalculationSpec, parsed: ParsedRows, ok_rows: np.ndarray,
         "checks": checks,
         **notices,
         "parts": {str(row): used for row, used in parsed.parts.items()},
-        "problems": {str(row): _row_problem(errors) for row, errors in parsed.errors.by_row.items()},
+        "problems": {str(row): _row_problem(parsed, row) for row in parsed.errors.by_row},
     }
 
 
@@ -199,8 +130,8 @@ def csv_body(calc: CalculationSpec, parsed: ParsedRows, ok_rows: np.ndarray, out
     for k, row in enumerate(ok_rows.tolist()):
         cells = [("" if value != value else value) for value in (column[k] for column in columns)]
         table[row] = [row, "true", *cells, ";".join(name for name, bad in failing if bad[k]), ""]
-    for row, errors in parsed.errors.by_row.items():
-        table[row][-1] = _row_problem(errors)["detail"]
+    for row in parsed.errors.by_row:
+        table[row][-1] = parsed.errors.refusal(row).detail
     out = io.StringIO()
     writer = CellWriter(out, lineterminator="\n")  # the problem quotes the caller's column names
     writer.writerow(["row", "ok", *names, "failing_checks", "problem"])
@@ -208,26 +139,16 @@ def csv_body(calc: CalculationSpec, parsed: ParsedRows, ok_rows: np.ndarray, out
     return out.getvalue()
 
 
-def _refuse_large_sweeps(parsed: ParsedRows) -> None:
-    """413 before computing when the rows that parsed ask for more sweep points in all than the server answers."""
-    points = parsed.columns.get("sweep_points")
-    if points is None:
-        return
-    asked = int(np.nansum(points[~parsed.errors.mask(parsed.n)]))
-    limit = current_app.config["BATCH_MAX_SWEEP_POINTS"]
-    if asked > limit:
-        message = f"the rows ask for {asked:,} sweep points in all; this server answers at most {limit:,} per batch"
-        raise Problem(413, message, "batch-size", {"sweep_points": [message]})
-
-
-def run_batch(calc: CalculationSpec) -> Response:
-    records, blank_is_absent = read_records(calc)
-    if not records:
-        raise Problem(422, "the batch holds no rows", "validation", {"body": ["the batch holds no rows"]})
-    with database().transaction() as session:
-        parsed = parse_rows(calc, records, PartResolver(session), blank_is_absent)
-    _refuse_large_sweeps(parsed)
-    _results, ok_rows, outcome = evaluate(calc, parsed)
+def answer(calc: CalculationSpec) -> Response:
+    batch = run_batch(
+        database(),
+        calc,
+        request.get_data(),
+        request.mimetype == CSV,
+        current_app.config["BATCH_MAX_ROWS"],
+        current_app.config["BATCH_MAX_SWEEP_POINTS"],
+    )
+    parsed, ok_rows, outcome = batch.parsed, batch.ok_rows, batch.outcome
     record_calculation(calc.name, int(ok_rows.size))
     if (
         CSV in request.accept_mimetypes.values()
@@ -237,7 +158,7 @@ def run_batch(calc: CalculationSpec) -> Response:
     body = {
         "calculation": calc.name,
         "version": calc.version,
-        "count": len(records),
+        "count": parsed.n,
         "ok_count": int(ok_rows.size),
         "check_details": {check.name: check.detail for check in outcome.checks},
     }
@@ -294,7 +215,7 @@ def _register(calc: CalculationSpec) -> None:
         @error_response(blp, 413, "more rows than BATCH_MAX_ROWS, or more sweep points than BATCH_MAX_SWEEP_POINTS")
         @error_response(blp, 422, "the body is not an array of rows")
         def post(self) -> Response:
-            return run_batch(calc)
+            return answer(calc)
 
     BatchView.__name__ = f"Batch{calc.name.title().replace('-', '')}View"
     blp.route(f"/{calc.name}", endpoint=calc.name)(BatchView)

@@ -4,10 +4,10 @@ from __future__ import annotations
 
 from typing import Any
 
-from marshmallow import Schema, fields, validate
+from marshmallow import Schema, ValidationError, fields, validate, validates_schema
 
-from calcsvc.core.spec import Input, InputSet, Result, Role
-from calcsvc.web.parts_api import MAX_REVISION, part_id_field
+from calcsvc.core.spec import BudgetSpec, Input, InputSet, Items, Result, Role, Samples
+from calcsvc.service.parts import MAX_REVISION, part_id_field
 from calcsvc.web.quantity import Quantity
 
 
@@ -16,6 +16,12 @@ def camel(name: str) -> str:
 
 
 def input_field(spec: Input) -> fields.Field:
+    if spec.max_length is not None:
+        return fields.String(
+            load_default=spec.default,
+            validate=validate.Length(max=spec.max_length),
+            metadata={"description": spec.description},
+        )
     if spec.choices:
         return fields.String(
             validate=validate.OneOf(spec.choices), metadata={"description": spec.description, "default": spec.default}
@@ -49,6 +55,57 @@ def request_schema(calc: InputSet) -> type[Schema]:
     for role in calc.roles:
         attributes.update(role_fields(role))
     return Schema.from_dict(attributes, name=f"{camel(calc.name)}Request")
+
+
+class _SamplesSchema(Schema):
+    samples: Samples
+
+    @validates_schema
+    def same_length(self, data: dict[str, Any], **_kwargs: Any) -> None:
+        first, *others = (array.name for array in self.samples.arrays)
+        for name in others:
+            if len(data[name]) != len(data[first]):
+                raise ValidationError(f"{first} and {name} must have the same length", name)
+
+
+def samples_schema(samples: Samples) -> type[Schema]:
+    length = validate.Length(min=samples.min_length, max=samples.max_length)
+    attributes: dict[str, Any] = {
+        array.name: fields.List(fields.Float(), required=True, validate=length, metadata={"x-unit": array.unit})
+        for array in samples.arrays
+    }
+    return type(camel(samples.name), (_SamplesSchema,), {**attributes, "samples": samples})
+
+
+class _ItemSchema(Schema):
+    items: Items
+
+    @validates_schema
+    def described_once(self, data: dict[str, Any], **_kwargs: Any) -> None:
+        fault = self.items.describe(data.keys())
+        if fault is not None:
+            raise ValidationError(fault[1], fault[0])
+
+
+def items_field(items: Items) -> fields.Field:
+    """A list of items, each checked by the declared rule of what describes one."""
+    attributes: dict[str, Any] = {spec.name: input_field(spec) for spec in items.inputs}
+    attributes[items.samples.name] = fields.Nested(
+        samples_schema(items.samples), metadata={"description": items.samples.description}
+    )
+    item = type(camel(items.name.removesuffix("s")), (_ItemSchema,), {**attributes, "items": items})
+    return fields.List(
+        fields.Nested(item),
+        required=True,
+        validate=validate.Length(min=items.min_items, max=items.max_items),
+        metadata={"description": items.description},
+    )
+
+
+def budget_request_schema(spec: BudgetSpec) -> type[Schema]:
+    attributes = dict(request_schema(spec)._declared_fields)
+    attributes[spec.items.name] = items_field(spec.items)
+    return Schema.from_dict(attributes, name=f"{camel(spec.name)}Request")
 
 
 class PartUsedSchema(Schema):

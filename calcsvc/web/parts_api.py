@@ -3,7 +3,6 @@
 from __future__ import annotations
 
 import re
-import sys
 from dataclasses import asdict
 from datetime import UTC, datetime
 from typing import Any
@@ -11,66 +10,26 @@ from typing import Any
 from flask import g, request, url_for
 from flask.views import MethodView
 from flask_smorest import Blueprint
-from marshmallow import RAISE, Schema, ValidationError, fields, validate
+from marshmallow import RAISE, Schema, fields, validate
 
 from calcsvc.data import part_ids
-from calcsvc.data.kinds import KINDS, MAX_DESCRIPTION_LENGTH, MAX_TEXT_LENGTH, params_of
+from calcsvc.data.kinds import KINDS, MAX_DESCRIPTION_LENGTH
 from calcsvc.data.store import ACTIONS, STATUSES, PartStore, PartView
-from calcsvc.units import UnitError, parse_quantity
+from calcsvc.service.parts import (
+    MAX_REVISION,
+    NO_NUL,
+    ParametersField,
+    PartCreateSchema,
+    convert_parameters,
+)
+from calcsvc.service.parts import part_id_field as part_id_field  # the review page's import
 from calcsvc.web.auth import database, reads, requires
 from calcsvc.web.metrics import record_parts_write
 from calcsvc.web.problems import Problem, error_response
 
 blp = Blueprint("parts", __name__, url_prefix="/v1/parts", description="The shared parts table")
 
-MAX_REVISION = 2**31 - 1  # the store keeps revisions in 32-bit integer columns; larger ones cannot be looked up
-# PostgreSQL cannot store a NUL character in a text column (SQLite can): refuse it in the request.
-NO_NUL = validate.ContainsNoneOf("\x00", error="must not contain a NUL character")
 _ETAG = re.compile(r'(?:W/)?"(?P<part>[a-z0-9-]+)-r(?P<revision>[0-9]{1,10})"')  # used with fullmatch
-_KIND_DOC = "; ".join(
-    f"{kind}: " + ", ".join(p.name + (" (optional)" if p.optional else "") for p in params)
-    for kind, params in KINDS.items()
-)
-
-
-def valid_part_id(value: Any) -> None:
-    """marshmallow validator for the shared id rule."""
-    if not part_ids.is_part_id(value):
-        raise ValidationError(part_ids.RULE)
-
-
-def part_id_field(**kwargs: Any) -> fields.String:
-    metadata = {"pattern": part_ids.PATTERN, "maxLength": part_ids.MAX_LENGTH, **kwargs.pop("metadata", {})}
-    return fields.String(validate=valid_part_id, metadata=metadata, **kwargs)
-
-
-class ParametersField(fields.Dict):
-    """Parameter values as published: a number, or a string of at most MAX_TEXT_LENGTH characters (a unit
-    quantity or text), refused here, before If-Match or the kind's rules, and keyed by the parameter's name."""
-
-    def __init__(self, **kwargs: Any) -> None:
-        text = {"type": "string", "maxLength": MAX_TEXT_LENGTH}
-        super().__init__(
-            keys=fields.String(),
-            values=fields.Raw(metadata={"oneOf": [{"type": "number"}, text]}),
-            metadata={
-                "description": "Parameters in SI units (numbers) or as strings with units ('4.7 kohm'). "
-                f"By kind: {_KIND_DOC}",
-            },
-            **kwargs,
-        )
-
-    def _deserialize(self, value: Any, attr: str | None, data: Any, **kwargs: Any) -> dict[str, Any]:
-        parameters: dict[str, Any] = super()._deserialize(value, attr, data, **kwargs)
-        errors = {}
-        for name, each in parameters.items():
-            if isinstance(each, bool) or not isinstance(each, int | float | str):
-                errors[name] = ["must be a number or a string"]
-            elif isinstance(each, str) and len(each) > MAX_TEXT_LENGTH:
-                errors[name] = [f"must be at most {MAX_TEXT_LENGTH} characters"]
-        if errors:
-            raise ValidationError(errors)
-        return parameters
 
 
 class UtcDateTime(fields.DateTime):
@@ -80,13 +39,6 @@ class UtcDateTime(fields.DateTime):
         if value is not None and value.tzinfo is None:
             value = value.replace(tzinfo=UTC)
         return super()._serialize(value, attr, obj, **kwargs)
-
-
-class PartCreateSchema(Schema):
-    part_id = part_id_field(required=True)
-    kind = fields.String(required=True, validate=validate.OneOf(list(KINDS)))
-    description = fields.String(load_default="", validate=[validate.Length(max=MAX_DESCRIPTION_LENGTH), NO_NUL])
-    parameters = ParametersField(required=True)
 
 
 class PartUpdateSchema(Schema):
@@ -156,30 +108,6 @@ class RevisionListSchema(Schema):
 
 class IfMatchSchema(Schema):
     if_match = fields.String(data_key="If-Match", metadata={"description": "the ETag of the revision you read"})
-
-
-def convert_parameters(kind: str, raw: dict[str, Any]) -> dict[str, Any]:
-    """Parameters in SI floats; strings with units are converted, a wrong dimension names the field."""
-    spec = params_of(kind)
-    converted: dict[str, Any] = {}
-    errors: dict[str, list[str]] = {}
-    for name, value in raw.items():
-        param = spec.get(name)
-        if param is None or not param.numeric:
-            converted[name] = value  # unknown names and text are judged by the kind's rules
-            continue
-        if isinstance(value, str):
-            try:
-                converted[name] = parse_quantity(value, param.unit)
-            except UnitError as exc:
-                errors[f"parameters.{name}"] = [str(exc)]
-        elif isinstance(value, int) and abs(value) > sys.float_info.max:
-            errors[f"parameters.{name}"] = ["number is too large"]  # a JSON integer of 400 digits, say
-        else:
-            converted[name] = value
-    if errors:
-        raise Problem(422, "invalid parameters: " + ", ".join(errors), "validation", errors)
-    return converted
 
 
 def part_response(view: PartView, status: int = 200) -> tuple[dict[str, Any], int, dict[str, str]]:

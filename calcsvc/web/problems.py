@@ -11,6 +11,18 @@ from flask import Response, g, json, request
 from marshmallow import Schema, fields
 from werkzeug.exceptions import HTTPException
 
+from calcsvc.core.outcome import DomainError
+from calcsvc.data.store import (
+    InvalidPart,
+    InvalidPartId,
+    PartExists,
+    PartNotFound,
+    PartNotRetired,
+    PartRetired,
+    SelfApproval,
+    StaleRevision,
+    StoreError,
+)
 from calcsvc.service.errors import MalformedBody, PhysicallyImpossible, ServiceError, TooLarge, UnknownPart
 
 PROBLEM_MIMETYPE = "application/problem+json"
@@ -119,6 +131,21 @@ def database_problem(busy: bool) -> Problem:
     )
 
 
+def problem_document(problem: Problem, instance: str | None = None) -> dict[str, Any]:
+    """The RFC 9457 body of ``problem`` (``instance``: the request path, when it answers a whole request)."""
+    body: dict[str, Any] = {
+        "type": f"urn:calcsvc:problem:{problem.slug}" if problem.slug else "about:blank",
+        "title": problem.title or _TITLES.get(problem.status, "Error"),
+        "status": problem.status,
+        "detail": problem.detail,
+    }
+    if instance is not None:
+        body["instance"] = instance
+    if problem.errors:
+        body["errors"] = problem.errors
+    return body
+
+
 def problem_response(problem: Problem) -> Response:
     page = g.get("error_page")
     if page is not None:
@@ -131,15 +158,7 @@ def problem_response(problem: Problem) -> Response:
         detail = "; ".join(f"{k}: {v[0]}" for k, v in problem.errors.items()) if problem.errors else problem.detail
         line = f"error: {detail}".replace("\n", " ")[:300]
         return Response(line, status=problem.status, mimetype="text/plain", headers=problem.headers)
-    body: dict[str, Any] = {
-        "type": f"urn:calcsvc:problem:{problem.slug}" if problem.slug else "about:blank",
-        "title": problem.title or _TITLES.get(problem.status, "Error"),
-        "status": problem.status,
-        "detail": problem.detail,
-        "instance": request.path,
-    }
-    if problem.errors:
-        body["errors"] = problem.errors
+    body = problem_document(problem, request.path)
     response = Response(json.dumps(body), status=problem.status, mimetype=PROBLEM_MIMETYPE)
     for name, value in problem.headers.items():
         response.headers[name] = value
@@ -206,3 +225,27 @@ def service_problem(error: ServiceError) -> Problem:
     status = next(status for kind, status in _SERVICE_STATUS if isinstance(error, kind))
     title = "Physically impossible input" if isinstance(error, PhysicallyImpossible) else None
     return Problem(status, error.detail, error.slug, error.errors, title=title)
+
+
+def domain_problem(error: DomainError) -> Problem:
+    return service_problem(PhysicallyImpossible.of(error.violations))
+
+
+_STORE_STATUS: dict[type[StoreError], tuple[int, str]] = {
+    PartNotFound: (404, "part-not-found"),
+    PartExists: (409, "part-exists"),
+    StaleRevision: (412, "stale-revision"),
+    SelfApproval: (403, "self-approval"),
+    PartRetired: (409, "part-retired"),
+    PartNotRetired: (409, "part-not-retired"),
+    InvalidPartId: (422, "invalid-part-id"),
+}
+
+
+def store_problem(error: StoreError) -> Problem:
+    """The one mapping of the parts store's refusals to HTTP."""
+    if isinstance(error, InvalidPart):
+        errors = {k if k in ("kind", "description") else f"parameters.{k}": [v] for k, v in error.errors.items()}
+        return Problem(422, "the part's parameters are not valid", "invalid-part", errors)
+    status, slug = _STORE_STATUS.get(type(error), (400, "store"))
+    return Problem(status, str(error), slug, {error.field: [str(error)]} if error.field else None)

@@ -5,15 +5,18 @@ from __future__ import annotations
 import math
 from typing import Any
 
+import numpy as np
 from marshmallow import ValidationError, fields
 
+from calcsvc.core.spec import Input
 from calcsvc.units import MAX_QUANTITY_LENGTH, QUANTITY_PATTERN, UnitError, parse_quantity
 
 
 class Quantity(fields.Field):
     """Float in ``unit`` (SI), or a string such as ``"4.7 kohm"`` converted to it.
 
-    ``minimum``/``exclusive_minimum``/``maximum`` are enforced after conversion and published in the spec.
+    ``minimum``/``exclusive_minimum``/``maximum`` are enforced after conversion (by ``Input.refusals``) and
+    published in the spec.
     """
 
     def __init__(
@@ -23,22 +26,26 @@ class Quantity(fields.Field):
         minimum: float | None = None,
         exclusive_minimum: bool = False,
         maximum: float | None = None,
-        exclusive_maximum: bool = False,
         integer: bool = False,
         description: str = "",
         **kwargs: Any,
     ) -> None:
         self.unit = unit
-        self.minimum = minimum
-        self.exclusive_minimum = exclusive_minimum
-        self.maximum = maximum
-        self.exclusive_maximum = exclusive_maximum
-        self.integer = integer
+        # The declared range, so the message comes from the one checker batches use too.
+        self.range = Input(
+            "",
+            unit,
+            description,
+            minimum=minimum,
+            exclusive_minimum=exclusive_minimum,
+            maximum=maximum,
+            integer=integer,
+        )
         number: dict[str, Any] = {"type": "integer" if integer else "number"}
         if minimum is not None:
             number["exclusiveMinimum" if exclusive_minimum else "minimum"] = minimum
         if maximum is not None:
-            number["exclusiveMaximum" if exclusive_maximum else "maximum"] = maximum
+            number["maximum"] = maximum
         unit_text = "V/V" if unit == "dimensionless" else unit
         metadata = dict(kwargs.pop("metadata", {}))
         metadata.setdefault("description", f"{description} [{unit_text}]".strip())
@@ -66,20 +73,12 @@ class Quantity(fields.Field):
                 raise ValidationError(str(exc)) from exc
         else:
             raise ValidationError("must be a number or a string with a unit")
-        if not math.isfinite(number):
+        if math.isnan(number):  # NaN means "not given" to the checker; a caller who sends one is refused here
             raise ValidationError("must be a finite number")
-        if self.integer and number != int(number):
-            raise ValidationError("must be a whole number")
-        if self.minimum is not None and (number <= self.minimum if self.exclusive_minimum else number < self.minimum):
-            relation = "greater than" if self.exclusive_minimum else "at least"
-            raise ValidationError(f"must be {relation} {self.minimum:g} {self._unit_text()}".rstrip())
-        if self.maximum is not None and (number >= self.maximum if self.exclusive_maximum else number > self.maximum):
-            relation = "less than" if self.exclusive_maximum else "at most"
-            raise ValidationError(f"must be {relation} {self.maximum:g} {self._unit_text()}".rstrip())
+        refusals = self.range.refusals(np.array([number]))
+        if refusals:
+            raise ValidationError(refusals[0][1])
         return number
 
     def _serialize(self, value: Any, attr: str | None, obj: Any, **kwargs: Any) -> float | None:
         return None if value is None else float(value)
-
-    def _unit_text(self) -> str:
-        return "" if self.unit == "dimensionless" else self.unit

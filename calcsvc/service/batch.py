@@ -1,40 +1,63 @@
-"""Many rows of calculation inputs as typed columns, checked column by column.
+"""Many rows of one calculation: the body read as rows, the rows as typed columns, one pass of the core.
 
 A batch is parsed without a per-row schema: each input becomes one numpy column, unit strings are
 converted once per distinct string, and every bad cell becomes an error on its own row, so one bad row
-never fails the batch. The checks mirror those the single-request schema applies.
+never fails the batch. A row is refused with the same kind of error and the same messages a single request
+with its inputs would get.
 """
 
 from __future__ import annotations
 
+import csv
+import io
+import itertools
 import math
 from dataclasses import dataclass, field
 from typing import Any
 
 import numpy as np
+import orjson
 
+from calcsvc.core.outcome import DomainError, Outcome
 from calcsvc.core.spec import CalculationSpec, Columns, Input, Role
+from calcsvc.data.database import Database
 from calcsvc.data.part_ids import is_part_id
-from calcsvc.service.errors import ServiceError
+from calcsvc.service.errors import (
+    InvalidInput,
+    MalformedBody,
+    PhysicallyImpossible,
+    ServiceError,
+    TooLarge,
+)
+from calcsvc.service.parts import MAX_REVISION
 from calcsvc.service.resolve import PartResolver, resolve
 from calcsvc.units import UnitError, parse_quantity
-from calcsvc.web.parts_api import MAX_REVISION
 
+EXTRA_CELLS = "cells_beyond_the_header"
+BATCH_SIZE = "batch-size"  # the kind of TooLarge a batch answers
 _SCALARS = frozenset((int, float, str))  # exact types: bool, a subclass of int, is refused on the slow path
 
 
 @dataclass
 class RowErrors:
-    """Field errors per row number; a row with any error is not computed."""
+    """Field errors per row number; a row with any error is not computed. A row's refusal is of the kind of its
+    first error, the stage a single request with its inputs would have stopped at."""
 
     by_row: dict[int, dict[str, list[str]]] = field(default_factory=dict)
+    kinds: dict[int, type[ServiceError]] = field(default_factory=dict)
 
-    def add(self, row: int, name: str, message: str) -> None:
+    def add(self, row: int, name: str, message: str, kind: type[ServiceError] = InvalidInput) -> None:
         self.by_row.setdefault(row, {}).setdefault(name, []).append(message)
+        self.kinds.setdefault(row, kind)
 
-    def add_rows(self, rows: np.ndarray, name: str, message: str) -> None:
+    def add_rows(self, rows: np.ndarray, name: str, message: str, kind: type[ServiceError] = InvalidInput) -> None:
         for row in np.flatnonzero(rows):
-            self.add(int(row), name, message)
+            self.add(int(row), name, message, kind)
+
+    def refusal(self, row: int) -> ServiceError:
+        errors = self.by_row[row]
+        detail = "; ".join(f"{name}: {' '.join(messages)}" for name, messages in errors.items())
+        return self.kinds[row](detail, errors)
 
     def mask(self, n: int) -> np.ndarray:
         bad = np.zeros(n, dtype=bool)
@@ -94,30 +117,13 @@ def _number_column(spec: Input, raw: list[Any], errors: RowErrors, blank_is_abse
     return column
 
 
-def _check_range(spec: Input, column: np.ndarray, errors: RowErrors) -> None:
-    given = ~np.isnan(column)
-    with np.errstate(invalid="ignore"):
-        errors.add_rows(given & ~np.isfinite(column), spec.name, "must be a finite number")
-        finite = given & np.isfinite(column)
-        if spec.minimum is not None:
-            low = column <= spec.minimum if spec.exclusive_minimum else column < spec.minimum
-            relation = "greater than" if spec.exclusive_minimum else "at least"
-            errors.add_rows(finite & low, spec.name, f"must be {relation} {spec.minimum:g}")
-        if spec.maximum is not None:
-            errors.add_rows(finite & (column > spec.maximum), spec.name, f"must be at most {spec.maximum:g}")
-        if spec.integer:
-            errors.add_rows(finite & (column != np.round(column)), spec.name, "must be a whole number")
-
-
 def parse_rows(
     calc: CalculationSpec, records: list[dict[str, Any]], resolver: PartResolver, blank_is_absent: bool = False
 ) -> ParsedRows:
     """Typed columns of every input, parts resolved once per distinct reference, errors per row."""
     n = len(records)
     errors = RowErrors()
-    allowed = {spec.name for spec in calc.inputs}
-    for role in calc.roles:
-        allowed |= {role.name, f"{role.name}_revision"}
+    allowed = set(calc.accepted())
     if set(map(type, records)) != {dict}:
         for row, record in enumerate(records):
             if not isinstance(record, dict):
@@ -143,7 +149,8 @@ def parse_rows(
             columns[spec.name] = values
         else:
             column = _number_column(spec, raw, errors, blank_is_absent)
-            _check_range(spec, column, errors)
+            for rows, message in spec.refusals(column):
+                errors.add_rows(rows, spec.name, message)
             columns[spec.name] = column
 
     parts: dict[int, list[dict[str, Any]]] = {}
@@ -210,7 +217,7 @@ def _resolve_role(
             for row in rows:
                 for name, messages in (problem.errors or {role.name: [problem.detail]}).items():
                     for message in messages:
-                        errors.add(row, name, message)
+                        errors.add(row, name, message, type(problem))
             continue
         index = np.array(rows)
         for _parameter, input_name in role.provides:
@@ -222,3 +229,100 @@ def _resolve_role(
             parts.setdefault(row, []).extend(resolved.parts)
             if resolved.warnings:
                 warnings.setdefault(row, []).extend(resolved.warnings)
+
+
+# ---- a whole batch ------------------------------------------------------------------------------------------
+
+
+def _refuse_more_than_rows_hold(calc: CalculationSpec, body: bytes | str, limit: int) -> None:
+    """Refused before parsing when the body has more separators than ``limit`` rows of named inputs could: each
+    row holds at most one value per input name, so millions of tiny rows or one huge array inside a cell
+    are refused before Python builds an object for each element."""
+    names = len(calc.inputs) + 2 * len(calc.roles)
+    if body.count("," if isinstance(body, str) else b",") >= (limit + 1) * names:
+        message = f"the body holds more values than {limit:,} rows of at most {names} inputs each"
+        raise TooLarge.on("body", message, BATCH_SIZE)
+
+
+def _too_many_rows(count: int | str, limit: int) -> TooLarge:
+    return TooLarge(f"{count} rows is more than this server takes in one batch ({limit})", slug=BATCH_SIZE)
+
+
+def read_records(calc: CalculationSpec, body: bytes, is_csv: bool, limit: int) -> tuple[list[Any], bool]:
+    """The rows of a JSON array or a CSV table, and whether blank cells mean "not given" (CSV)."""
+    if is_csv:
+        text = body.decode("utf-8", "replace")
+        _refuse_more_than_rows_hold(calc, text, limit)
+        # A short row's missing cells are blank (not given); cells beyond the header become an unknown field of
+        # their row, which refuses that row instead of dropping data that was likely shifted.
+        reader = csv.DictReader(io.StringIO(text, newline=""), skipinitialspace=True, restkey=EXTRA_CELLS, restval="")
+        try:
+            # Reading stops one row past the limit: a body of millions of short lines is never built.
+            rows = list(itertools.islice(reader, limit + 1))
+            records = [{k.strip(): v.strip() if isinstance(v, str) else v for k, v in row.items()} for row in rows]
+        except csv.Error as exc:
+            raise MalformedBody(f"the request body is not a valid CSV table: {exc}") from exc
+        if len(records) > limit:
+            raise _too_many_rows(f"more than {limit}", limit)
+        return records, True
+    _refuse_more_than_rows_hold(calc, body, limit)
+    try:
+        data = orjson.loads(body)
+    except orjson.JSONDecodeError as exc:
+        raise MalformedBody(f"the request body is not valid JSON: {exc}") from exc
+    if not isinstance(data, list):
+        raise InvalidInput.on(
+            "body", "the body must be a JSON array of input objects (or a CSV table with Content-Type: text/csv)"
+        )
+    if len(data) > limit:
+        raise _too_many_rows(len(data), limit)
+    return data, False
+
+
+def _refuse_large_sweeps(parsed: ParsedRows, limit: int) -> None:
+    """Refused before computing when the rows that parsed ask for more sweep points in all than ``limit``."""
+    points = parsed.columns.get("sweep_points")
+    if points is None:
+        return
+    asked = int(np.nansum(points[~parsed.errors.mask(parsed.n)]))
+    if asked > limit:
+        message = f"the rows ask for {asked:,} sweep points in all; this server answers at most {limit:,} per batch"
+        raise TooLarge.on("sweep_points", message, BATCH_SIZE)
+
+
+@dataclass
+class Batch:
+    parsed: ParsedRows
+    ok_rows: np.ndarray  # the rows computed, in order
+    outcome: Outcome  # over ok_rows only
+
+
+def evaluate(calc: CalculationSpec, parsed: ParsedRows) -> Batch:
+    """Run the core once over every row that parsed; physical violations become errors on their rows."""
+    n = parsed.n
+    ok_rows = np.flatnonzero(~parsed.errors.mask(n))
+    # Some rules run only once a row's other inputs hold (its resistor in range, say): so the rows left are
+    # computed again until none is refused.
+    while True:
+        try:
+            outcome = calc.compute(calc.make_inputs({name: column[ok_rows] for name, column in parsed.columns.items()}))
+        except DomainError as exc:
+            for violation in exc.violations:
+                rows = np.isin(np.arange(n), ok_rows[violation.rows])
+                parsed.errors.add_rows(rows, violation.field, violation.message, PhysicallyImpossible)
+            ok_rows = np.flatnonzero(~parsed.errors.mask(n))
+            continue
+        return Batch(parsed, ok_rows, outcome)
+
+
+def run_batch(
+    database: Database, calc: CalculationSpec, body: bytes, is_csv: bool, max_rows: int, max_sweep_points: int
+) -> Batch:
+    """Every row of ``body`` (a JSON array or a CSV table) through ``calc``; a bad row carries its refusal."""
+    records, blank_is_absent = read_records(calc, body, is_csv, max_rows)
+    if not records:
+        raise InvalidInput.on("body", "the batch holds no rows")
+    with database.transaction() as session:
+        parsed = parse_rows(calc, records, PartResolver(session), blank_is_absent)
+    _refuse_large_sweeps(parsed, max_sweep_points)
+    return evaluate(calc, parsed)

@@ -1,0 +1,71 @@
+"""Batch rows as typed columns, called directly: units in cells, parts per row, bad rows isolated with the
+refusal a single request would get."""
+
+from __future__ import annotations
+
+import json
+
+import numpy as np
+import pytest
+
+from calcsvc.core import led_string
+from calcsvc.data.database import Database
+from calcsvc.service.batch import parse_rows, read_records, run_batch
+from calcsvc.service.errors import InvalidInput, MalformedBody, PhysicallyImpossible, TooLarge, UnknownPart
+from calcsvc.service.resolve import PartResolver
+
+CALC = led_string.SPEC
+LED = {"vf_typ_v": 2.0, "vf_min_v": 1.8, "vf_max_v": 2.4, "if_max_a": 0.03, "leds_in_series": 3}
+
+
+def test_units_in_cells_are_converted_to_si() -> None:
+    parsed = parse_rows(CALC, [{**LED, "supply_v": "12 V", "current_a": "20 mA"}], PartResolver(None))
+    assert not parsed.errors.by_row
+    assert parsed.columns["current_a"].tolist() == [pytest.approx(0.02)]
+    assert parsed.columns["strings"].tolist() == [1.0]  # the declared default fills the blank
+
+
+def test_range_messages_carry_the_unit_as_a_single_request_does() -> None:
+    parsed = parse_rows(CALC, [{**LED, "supply_v": 12, "current_a": 0}], PartResolver(None))
+    assert parsed.errors.by_row[0] == {"current_a": ["must be greater than 0 A"]}
+    assert isinstance(parsed.errors.refusal(0), InvalidInput)
+
+
+def test_each_row_names_its_own_part(database: Database) -> None:
+    rows = [
+        {"supply": "supply-adapter-12v-2a", "led": "led-red-5mm", "leds_in_series": 3, "current_a": 0.02},
+        {"supply_v": 9, "led": "led-red-5mm", "leds_in_series": 3, "current_a": 0.015, "vf_typ_v": 2.1},
+        {"supply_v": 9, "led": "led-missing", "leds_in_series": 3, "current_a": 0.015},
+    ]
+    with database.transaction() as session:
+        parsed = parse_rows(CALC, rows, PartResolver(session))
+    assert parsed.columns["supply_v"][:2].tolist() == [12.0, 9.0]
+    assert parsed.columns["vf_typ_v"][1] == 2.1  # an explicit value wins over the part's
+    assert [p["part_id"] for p in parsed.parts[0]] == ["supply-adapter-12v-2a", "led-red-5mm"]
+    refusal = parsed.errors.refusal(2)
+    assert isinstance(refusal, UnknownPart) and "led" in (refusal.errors or {})
+
+
+def test_a_physically_impossible_row_is_refused_as_such_and_the_others_computed(database: Database) -> None:
+    good = {**LED, "supply_v": 12, "current_a": 0.02}
+    body = json.dumps([good, {**good, "supply_v": 5}, {**good, "colour": "red"}]).encode()
+    batch = run_batch(database, CALC, body, False, 10, 10)
+    assert batch.ok_rows.tolist() == [0]
+    impossible = batch.parsed.errors.refusal(1)
+    assert isinstance(impossible, PhysicallyImpossible) and "forward voltage" in impossible.errors["supply_v"][0]
+    assert isinstance(batch.parsed.errors.refusal(2), InvalidInput)
+    assert batch.outcome.results["resistor_ohm"].tolist() == [300.0]
+
+
+def test_csv_blanks_are_absent_and_bad_bodies_refused() -> None:
+    records, blank_is_absent = read_records(CALC, b"supply_v,strings\n12 V,\n", True, 5)
+    assert records == [{"supply_v": "12 V", "strings": ""}] and blank_is_absent
+    parsed = parse_rows(CALC, records, PartResolver(None), blank_is_absent)
+    assert np.isnan(parsed.columns["current_a"][0]) and parsed.columns["strings"][0] == 1.0
+    with pytest.raises(MalformedBody):
+        read_records(CALC, b"[{", False, 5)
+    with pytest.raises(InvalidInput):
+        read_records(CALC, b'{"supply_v": 12}', False, 5)
+    with pytest.raises(TooLarge) as too_many:
+        read_records(CALC, b"[{}, {}, {}]", False, 2)
+    assert too_many.value.slug == "batch-size"
