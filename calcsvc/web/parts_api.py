@@ -22,7 +22,6 @@ from calcsvc.service.parts import (
     PartCreateSchema,
     convert_parameters,
 )
-from calcsvc.service.parts import part_id_field as part_id_field  # the review page's import
 from calcsvc.web.auth import database, reads, requires
 from calcsvc.web.metrics import record_parts_write
 from calcsvc.web.problems import Problem, error_response

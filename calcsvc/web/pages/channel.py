@@ -17,11 +17,11 @@ from calcsvc.core.outcome import DomainError
 from calcsvc.data.store import PartStore, PartView
 from calcsvc.service.demo import demo_channel
 from calcsvc.service.errors import ServiceError
+from calcsvc.service.parts import part_id_field
 from calcsvc.service.review import run_review
 from calcsvc.web.auth import database
 from calcsvc.web.metrics import record_calculation
 from calcsvc.web.pages.common import bp, shown
-from calcsvc.web.parts_api import part_id_field
 from calcsvc.web.problems import Problem, service_problem
 from calcsvc.web.quantity import Quantity
 from calcsvc.web.review_report import number, render_markdown, render_table_html

@@ -25,6 +25,7 @@ from calcsvc.data.store import (
 from calcsvc.data.tokens import identify
 from calcsvc.service.curves import core_inputs
 from calcsvc.service.errors import ServiceError
+from calcsvc.service.parts import MAX_REVISION
 from calcsvc.web.auth import database
 from calcsvc.web.images import PANELS, endpoint
 from calcsvc.web.metrics import record_calculation, record_parts_write
@@ -42,7 +43,6 @@ from calcsvc.web.pages.common import (
     value_text,
     whole_number,
 )
-from calcsvc.web.parts_api import MAX_REVISION
 from calcsvc.web.plots import eng, size_px, unit_symbol
 
 # Plots on a part's page, at the demo's operating points: a sensor preamp of gain 10 giving 1 V peak at 1 kHz,
