@@ -27,7 +27,7 @@ from calcsvc.data.part_ids import PATTERN
 from calcsvc.data.seed import load_seed
 from calcsvc.data.tokens import create_token
 
-REPO = Path(__file__).resolve().parent.parent
+REPO = Path(__file__).resolve().parents[2]
 SPEC = REPO / "openapi" / "openapi.json"
 SEED_DIR = REPO / "seed_parts"
 SEED_PARTS = {

@@ -12,7 +12,7 @@ import pytest
 from flask.testing import FlaskClient
 from helpers import assert_problem
 
-DEMO = json.loads((Path(__file__).resolve().parent.parent / "examples" / "greenhouse-channel.json").read_text())
+DEMO = json.loads((Path(__file__).resolve().parents[2] / "examples" / "greenhouse-channel.json").read_text())
 EXPLICIT = {
     "supply_v": 12, "supply_tolerance": 0.05, "current_max_a": 2,
     "drive_high_v": 2.9, "drive_low_v": 0.2, "source_current_max_a": 0.008,

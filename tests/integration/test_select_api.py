@@ -17,7 +17,7 @@ from flask import Flask
 from flask.testing import FlaskClient
 from helpers import assert_problem, bearer
 
-DEMO = json.loads((Path(__file__).resolve().parent.parent / "examples" / "greenhouse-channel.json").read_text())
+DEMO = json.loads((Path(__file__).resolve().parents[2] / "examples" / "greenhouse-channel.json").read_text())
 SLEW_20K_5V = {"calculation": "slew-limit", "inputs": {"frequency_hz": "20 kHz", "amplitude_v": 5}}
 OPAMPS_GAIN_50 = {"opamp": {}, "gain": 50, "signal_hz": "20 kHz", "require": [SLEW_20K_5V]}
 SWITCH_150MA = {

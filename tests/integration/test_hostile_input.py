@@ -27,7 +27,7 @@ from calcsvc.data.seed import load_seed
 from calcsvc.data.tokens import create_token
 from calcsvc.units import MAX_QUANTITY_LENGTH, QUANTITY_PATTERN
 
-REPO = Path(__file__).resolve().parent.parent
+REPO = Path(__file__).resolve().parents[2]
 SPEC = json.loads((REPO / "openapi" / "openapi.json").read_text())
 SEED_DIR = REPO / "seed_parts"
 PART = "npn-small-signal"  # a seeded, approved part

@@ -19,7 +19,7 @@ from test_entrypoint import Server, entrypoint
 
 SOFFICE = "/usr/bin/soffice"
 SYSTEM_PYTHON = "/usr/bin/python3"
-DRIVER = Path(__file__).with_name("sheet_driver.py")
+DRIVER = Path(__file__).resolve().parents[1] / "sheet_driver.py"
 DRIVER_TIMEOUT_S = 60
 
 

@@ -30,7 +30,7 @@ if not os.access(CHROMIUM, os.X_OK):
     pytest.skip(message, allow_module_level=True)
 sync_api = pytest.importorskip("playwright.sync_api", reason="the playwright Python package is not installed")
 
-REPO = Path(__file__).resolve().parent.parent
+REPO = Path(__file__).resolve().parents[2]
 OPAMP_ID = "opamp-general-1mhz"
 STEP_MS = 10_000  # a step waits at most this long
 

@@ -23,14 +23,14 @@ import requests
 from helpers import bearer
 from prometheus_client.parser import text_string_to_metric_families
 from sqlalchemy.engine import make_url
-from test_db_faults import TcpProxy
+from tcp_proxy import TcpProxy
 
 from calcsvc.cli import main
 from calcsvc.config import ConfigError, load_config, settings_table
 from calcsvc.data.database import Database
 from calcsvc.data.tokens import create_token
 
-REPO = Path(__file__).resolve().parent.parent
+REPO = Path(__file__).resolve().parents[2]
 ENTRYPOINT = REPO / "deploy" / "entrypoint.sh"
 DOCKERFILE = REPO / "Dockerfile"
 DOCKERIGNORE = REPO / ".dockerignore"

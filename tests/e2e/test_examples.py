@@ -9,7 +9,7 @@ from typing import Any
 
 pytest_plugins = ("live_server",)
 
-EXAMPLES = Path(__file__).resolve().parent.parent / "examples"
+EXAMPLES = Path(__file__).resolve().parents[2] / "examples"
 
 
 def _channel_batch() -> Any:
