@@ -44,15 +44,8 @@ import numpy as np
 import numpy.typing as npt
 
 from calcsvc.core import duty_power, led_string, slew
-from calcsvc.core.channel import (
-    ChannelInputs,
-    ChannelReview,
-    failing_names,
-    has_front_stage,
-    resistor_tolerance,
-    review,
-    slew_inputs,
-)
+from calcsvc.core.channel import ChannelInputs, ChannelReview, failing_names, review
+from calcsvc.core.channel_stages import has_front_stage, resistor_tolerance, slew_inputs
 from calcsvc.core.outcome import (
     BoolArray,
     Check,
