@@ -9,7 +9,7 @@ from typing import Any
 
 import numpy as np
 
-from calcsvc.core import duty_power
+from calcsvc.core import duty_power, load_current
 from calcsvc.core.outcome import DomainError
 from calcsvc.data.database import Database
 from calcsvc.service.calculate import complete
@@ -24,12 +24,14 @@ _LOAD_DEFAULTS = {spec.name: spec.default for spec in SPEC.items.inputs if spec.
 def _load_currents(load: Mapping[str, Any]) -> dict[str, Any]:
     """Peak, duty, average and RMS of one load, from its duty cycle, its on time and period, or its waveform."""
     if "waveform" in load:
-        average, rms, peak, duty = duty_power.waveform_stats(load["waveform"]["time_s"], load["waveform"]["current_a"])
+        average, rms, peak, duty = load_current.waveform_stats(
+            load["waveform"]["time_s"], load["waveform"]["current_a"]
+        )
         return {"peak_current_a": peak, "duty_cycle": duty, "average_current_a": average, "rms_current_a": rms}
     if "duty_cycle" in load:
         duty = load["duty_cycle"]
     else:
-        duty = float(duty_power.on_time_duty(load["on_time_s"], load["period_s"])[0])
+        duty = float(load_current.on_time_duty(load["on_time_s"], load["period_s"])[0])
     return {"peak_current_a": load["peak_current_a"], "duty_cycle": duty}
 
 
