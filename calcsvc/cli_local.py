@@ -113,7 +113,8 @@ def db_check(args: argparse.Namespace) -> int:
     """Report stored part_ids that break the id rule (no request can reach them); ``--fix`` renames them."""
     from calcsvc.data.database import Database
     from calcsvc.data.part_ids import RULE, suggest
-    from calcsvc.data.store import PartStore, StoreError
+    from calcsvc.data.store import PartStore
+    from calcsvc.data.store_errors import StoreError
 
     url, _ = _app_database()
     database = Database(url)
