@@ -13,7 +13,7 @@ from calcsvc.core import duty_power, load_current
 from calcsvc.core.outcome import DomainError
 from calcsvc.data.database import Database
 from calcsvc.service.calculate import complete
-from calcsvc.service.envelope import envelope, plain, row_results
+from calcsvc.service.envelope import envelope, row_results, to_json_value
 from calcsvc.service.errors import PhysicallyImpossible
 from calcsvc.service.resolve import resolve_parts
 
@@ -71,12 +71,12 @@ def run_duty(database: Database, body: Mapping[str, Any]) -> dict[str, Any]:
         {
             "name": load["name"],
             "count": load["count"],
-            "duty_cycle": plain(load["duty_cycle"]),
-            "peak_current_a": plain(load["peak_current_a"]),
-            "average_current_a": plain(outcome.results["load_average_current_a"][k]),
-            "rms_current_a": plain(outcome.results["load_rms_current_a"][k]),
-            "average_power_w": plain(outcome.results["load_average_power_w"][k]),
-            "peak_power_w": plain(outcome.results["load_peak_power_w"][k]),
+            "duty_cycle": to_json_value(load["duty_cycle"]),
+            "peak_current_a": to_json_value(load["peak_current_a"]),
+            "average_current_a": to_json_value(outcome.results["load_average_current_a"][k]),
+            "rms_current_a": to_json_value(outcome.results["load_rms_current_a"][k]),
+            "average_power_w": to_json_value(outcome.results["load_average_power_w"][k]),
+            "peak_power_w": to_json_value(outcome.results["load_peak_power_w"][k]),
         }
         for k, load in enumerate(loads)
     ]
