@@ -39,7 +39,16 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from calcsvc.core import bjt_switch, closed_loop, duty_power, eseries, led_string, slew
+from calcsvc.core import bjt_switch, closed_loop, duty_power, led_string, slew
+from calcsvc.core.channel_stages import (
+    closed_loop_inputs,
+    collector_currents,
+    has_front_stage,
+    led_inputs,
+    slew_inputs,
+    supply_inputs,
+    switch_inputs,
+)
 from calcsvc.core.outcome import (
     BoolArray,
     Check,
@@ -143,110 +152,6 @@ def failing_names(checks: list[Check]) -> list[list[str]]:
     failed = ~np.stack([c.ok for c in checks], axis=1)
     names = [c.name for c in checks]
     return [[names[j] for j in np.flatnonzero(row)] for row in failed]
-
-
-# ---- the stages' inputs ----------------------------------------------------------------------------------
-
-
-def resistor_tolerance(inputs: ChannelInputs) -> FloatArray:
-    """The tolerance of both resistors per row: as given, or the series' default."""
-    return np.where(
-        np.isnan(inputs.resistor_tolerance),
-        eseries.default_tolerance_rows(inputs.e_series),
-        inputs.resistor_tolerance,
-    )
-
-
-def led_inputs(i: ChannelInputs) -> led_string.LedStringInputs:
-    return led_string.LedStringInputs(
-        supply_v=i.supply_v,
-        supply_tolerance=i.supply_tolerance,
-        vf_typ_v=i.vf_typ_v,
-        vf_min_v=i.vf_min_v,
-        vf_max_v=i.vf_max_v,
-        if_max_a=i.if_max_a,
-        leds_in_series=i.leds_in_series,
-        strings=i.strings,
-        current_a=i.current_a,
-        switch_drop_v=i.vce_sat_v,
-        e_series=i.e_series,
-        resistor_tolerance=i.resistor_tolerance,
-    )
-
-
-def switch_inputs(i: ChannelInputs, collector_current_a: FloatArray) -> bjt_switch.BjtSwitchInputs:
-    return bjt_switch.BjtSwitchInputs(
-        hfe_min=i.hfe_min,
-        vbe_sat_v=i.vbe_sat_v,
-        vce_sat_v=i.vce_sat_v,
-        ic_max_a=i.ic_max_a,
-        power_max_w=i.power_max_w,
-        collector_current_a=collector_current_a,
-        drive_high_v=i.drive_high_v,
-        drive_low_v=i.drive_low_v,
-        forced_beta=i.forced_beta,
-        e_series=i.e_series,
-        rbe_ohm=np.full(i.supply_v.shape, np.nan),
-        driver_current_max_a=i.source_current_max_a,
-        duty_cycle=i.duty_cycle,
-    )
-
-
-def supply_inputs(i: ChannelInputs, collector_current_a: FloatArray) -> duty_power.DutyPowerInputs:
-    n = i.supply_v.shape[0]
-    nan = np.full(n, np.nan)
-    return duty_power.DutyPowerInputs(
-        supply_v=i.supply_v,
-        current_max_a=i.current_max_a,
-        capacity_ah=i.capacity_ah,
-        load_row=np.arange(n, dtype=np.int64),
-        peak_current_a=collector_current_a,
-        duty_cycle=i.duty_cycle,
-        average_current_a=nan,
-        rms_current_a=nan,
-        count=i.channels,
-    )
-
-
-def closed_loop_inputs(i: ChannelInputs) -> closed_loop.ClosedLoopInputs:
-    n = i.supply_v.shape[0]
-    nan = np.full(n, np.nan)
-    return closed_loop.ClosedLoopInputs(
-        inverting=np.asarray(i.inverting, dtype=bool),
-        gain=i.gain,
-        rf_ohm=nan,
-        rg_ohm=nan,
-        gbw_hz=i.gbw_hz,
-        open_loop_gain=i.open_loop_gain,
-        stages=np.ones(n),
-        signal_hz=i.signal_hz,
-        sweep_start_hz=nan,
-        sweep_stop_hz=nan,
-        sweep_points=nan,
-    )
-
-
-def slew_inputs(i: ChannelInputs, supply_v: FloatArray) -> slew.SlewInputs:
-    """The front stage's output for a sine at ``signal_hz``; ``supply_v`` is its rail span."""
-    return slew.SlewInputs(
-        slew_rate_v_per_s=i.slew_rate_v_per_s,
-        output_headroom_v=i.output_headroom_v,
-        frequency_hz=i.signal_hz,
-        amplitude_v=i.amplitude_v,
-        triangle=np.zeros(supply_v.shape, dtype=bool),
-        supply_v=supply_v,
-        step_v=np.full(supply_v.shape, np.nan),
-    )
-
-
-def collector_currents(strings: FloatArray, led: Outcome) -> tuple[FloatArray, FloatArray]:
-    """The switch carries every string: nominal Ic from the nominal string current, Ic_max from the worst-case
-    highest (the base is sized for it: module docstring)."""
-    return led.results["total_current_a"], strings * led.results["current_max_a"]
-
-
-def has_front_stage(inputs: ChannelInputs) -> BoolArray:
-    return ~np.isnan(inputs.gbw_hz)
 
 
 # ---- validation ------------------------------------------------------------------------------------------

@@ -22,7 +22,8 @@ from dataclasses import dataclass
 import numpy as np
 import numpy.typing as npt
 
-from calcsvc.core.channel import ChannelInputs, ChannelReview, resistor_tolerance, review, validate
+from calcsvc.core.channel import ChannelInputs, ChannelReview, review, validate
+from calcsvc.core.channel_stages import resistor_tolerance
 from calcsvc.core.outcome import Check, FloatArray, Violation, raise_violations, require, row_count
 from calcsvc.core.tolerance import Point, evaluate_at, hfe_max
 

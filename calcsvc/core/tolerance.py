@@ -43,16 +43,9 @@ from dataclasses import dataclass
 import numpy as np
 import numpy.typing as npt
 
-from calcsvc.core import duty_power, led_string, slew
-from calcsvc.core.channel import (
-    ChannelInputs,
-    ChannelReview,
-    failing_names,
-    has_front_stage,
-    resistor_tolerance,
-    review,
-    slew_inputs,
-)
+from calcsvc.core import led_string, load_current, slew
+from calcsvc.core.channel import ChannelInputs, ChannelReview, failing_names, review
+from calcsvc.core.channel_stages import has_front_stage, resistor_tolerance, slew_inputs
 from calcsvc.core.outcome import (
     BoolArray,
     Check,
@@ -146,7 +139,7 @@ def evaluate_at(inputs: ChannelInputs, nominal: ChannelReview, at: Point) -> lis
     beta = ic / ib
     duty = row(i.duty_cycle)
     power = (row(i.vce_sat_v) * ic + row(i.vbe_sat_v) * ib) * duty
-    channel_average, _ = duty_power.rectangular_load(ic, duty)
+    channel_average, _ = load_current.rectangular_load(ic, duty)
     supply_average = row(i.channels) * channel_average
     supply_peak = row(i.channels) * ic
 

@@ -19,52 +19,20 @@ from sqlalchemy.orm import Session
 
 from calcsvc.data.kinds import validate_part
 from calcsvc.data.models import Part, PartEvent, PartRevision
+from calcsvc.data.part_history import EventView, RevisionView
 from calcsvc.data.part_ids import RULE, is_part_id
+from calcsvc.data.store_errors import (
+    InvalidPart,
+    InvalidPartId,
+    PartExists,
+    PartNotFound,
+    PartNotRetired,
+    PartRetired,
+    SelfApproval,
+    StaleRevision,
+)
 
 STATUSES = ("draft", "approved", "retired")
-ACTIONS = ("created", "edited", "approved", "retired", "restored", "renamed")  # what an event records
-
-
-class StoreError(Exception):
-    """Base of the store's refusals; ``field`` names the input at fault where there is one."""
-
-    def __init__(self, message: str, field: str | None = None) -> None:
-        super().__init__(message)
-        self.field = field
-
-
-class PartNotFound(StoreError):
-    pass
-
-
-class PartExists(StoreError):
-    pass
-
-
-class StaleRevision(StoreError):
-    pass
-
-
-class SelfApproval(StoreError):
-    pass
-
-
-class PartRetired(StoreError):
-    pass
-
-
-class PartNotRetired(StoreError):
-    pass
-
-
-class InvalidPartId(StoreError):
-    pass
-
-
-class InvalidPart(StoreError):
-    def __init__(self, errors: dict[str, str]) -> None:
-        super().__init__("the part is not valid", next(iter(errors), None))
-        self.errors = errors
 
 
 @dataclass(frozen=True)
@@ -84,32 +52,6 @@ class PartView:
     @property
     def etag(self) -> str:
         return f'"{self.part_id}-r{self.revision}"'
-
-
-@dataclass(frozen=True)
-class EventView:
-    """One action on a revision: created, edited, approved, retired, restored or renamed."""
-
-    action: str
-    actor: str
-    at: datetime
-    reason: str | None
-
-
-@dataclass(frozen=True)
-class RevisionView:
-    """One stored revision, as the history lists it, with what was done to it in order."""
-
-    part_id: str
-    revision: int
-    kind: str
-    description: str
-    parameters: dict[str, Any]
-    author: str
-    created_at: datetime
-    approved_by: str | None
-    approved_at: datetime | None
-    events: tuple[EventView, ...]
 
 
 def _now() -> datetime:

@@ -11,7 +11,7 @@ import numpy as np
 from calcsvc.core.outcome import DomainError, Outcome
 from calcsvc.core.spec import CalculationSpec, Columns, InputSet
 from calcsvc.data.database import Database
-from calcsvc.service.envelope import envelope, plain, row_results, row_sweeps
+from calcsvc.service.envelope import envelope, row_results, row_sweeps, to_json_value
 from calcsvc.service.errors import InvalidInput, PhysicallyImpossible
 from calcsvc.service.resolve import resolve_parts
 
@@ -49,7 +49,7 @@ def results_of_row(calc: CalculationSpec, outcome: Outcome, row: int) -> dict[st
     results = row_results(outcome, row, calc.scalar_results())
     sweep = row_sweeps(outcome, row + 1)[row]
     if sweep is not None:
-        results["sweep"] = {key: plain(values) for key, values in sweep.items()}
+        results["sweep"] = {key: to_json_value(values) for key, values in sweep.items()}
     return results
 
 

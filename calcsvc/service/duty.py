@@ -9,11 +9,11 @@ from typing import Any
 
 import numpy as np
 
-from calcsvc.core import duty_power
+from calcsvc.core import duty_power, load_current
 from calcsvc.core.outcome import DomainError
 from calcsvc.data.database import Database
 from calcsvc.service.calculate import complete
-from calcsvc.service.envelope import envelope, plain, row_results
+from calcsvc.service.envelope import envelope, row_results, to_json_value
 from calcsvc.service.errors import PhysicallyImpossible
 from calcsvc.service.resolve import resolve_parts
 
@@ -24,12 +24,14 @@ _LOAD_DEFAULTS = {spec.name: spec.default for spec in SPEC.items.inputs if spec.
 def _load_currents(load: Mapping[str, Any]) -> dict[str, Any]:
     """Peak, duty, average and RMS of one load, from its duty cycle, its on time and period, or its waveform."""
     if "waveform" in load:
-        average, rms, peak, duty = duty_power.waveform_stats(load["waveform"]["time_s"], load["waveform"]["current_a"])
+        average, rms, peak, duty = load_current.waveform_stats(
+            load["waveform"]["time_s"], load["waveform"]["current_a"]
+        )
         return {"peak_current_a": peak, "duty_cycle": duty, "average_current_a": average, "rms_current_a": rms}
     if "duty_cycle" in load:
         duty = load["duty_cycle"]
     else:
-        duty = float(duty_power.on_time_duty(load["on_time_s"], load["period_s"])[0])
+        duty = float(load_current.on_time_duty(load["on_time_s"], load["period_s"])[0])
     return {"peak_current_a": load["peak_current_a"], "duty_cycle": duty}
 
 
@@ -69,12 +71,12 @@ def run_duty(database: Database, body: Mapping[str, Any]) -> dict[str, Any]:
         {
             "name": load["name"],
             "count": load["count"],
-            "duty_cycle": plain(load["duty_cycle"]),
-            "peak_current_a": plain(load["peak_current_a"]),
-            "average_current_a": plain(outcome.results["load_average_current_a"][k]),
-            "rms_current_a": plain(outcome.results["load_rms_current_a"][k]),
-            "average_power_w": plain(outcome.results["load_average_power_w"][k]),
-            "peak_power_w": plain(outcome.results["load_peak_power_w"][k]),
+            "duty_cycle": to_json_value(load["duty_cycle"]),
+            "peak_current_a": to_json_value(load["peak_current_a"]),
+            "average_current_a": to_json_value(outcome.results["load_average_current_a"][k]),
+            "rms_current_a": to_json_value(outcome.results["load_rms_current_a"][k]),
+            "average_power_w": to_json_value(outcome.results["load_average_power_w"][k]),
+            "peak_power_w": to_json_value(outcome.results["load_peak_power_w"][k]),
         }
         for k, load in enumerate(loads)
     ]

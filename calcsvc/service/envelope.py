@@ -13,7 +13,7 @@ import numpy as np
 from calcsvc.core.outcome import Outcome
 
 
-def plain(value: Any) -> Any:
+def to_json_value(value: Any) -> Any:
     """JSON-ready: numpy scalars to Python, NaN (does not apply) to null, arrays to lists."""
     if isinstance(value, np.ndarray):
         if value.dtype.kind == "f":
@@ -23,7 +23,7 @@ def plain(value: Any) -> Any:
             return boxed.tolist()
         return value.tolist()
     if isinstance(value, list | tuple):
-        return [plain(v) for v in value]
+        return [to_json_value(v) for v in value]
     if isinstance(value, np.generic):
         value = value.item()
     if isinstance(value, float) and not math.isfinite(value):
@@ -47,7 +47,7 @@ def fingerprint(calculation: str, version: str, inputs: dict[str, Any], parts: l
 
 
 def row_results(outcome: Outcome, row: int, names: list[str]) -> dict[str, Any]:
-    return {name: plain(outcome.results[name][row]) for name in names if name in outcome.results}
+    return {name: to_json_value(outcome.results[name][row]) for name in names if name in outcome.results}
 
 
 SWEEP_KEYS = ("frequency_hz", "gain_db", "phase_deg")
@@ -76,9 +76,9 @@ def row_checks(outcome: Outcome, row: int) -> list[dict[str, Any]]:
             {
                 "name": check.name,
                 "ok": bool(check.ok[row]),
-                "value": plain(float(check.value[row])),
+                "value": to_json_value(float(check.value[row])),
                 "limit": limit,
-                "margin": plain(float(check.margin()[row])),
+                "margin": to_json_value(float(check.margin()[row])),
                 "detail": check.detail,
             }
         )
@@ -99,7 +99,7 @@ def envelope(
     row: int,
     warnings: list[str],
 ) -> dict[str, Any]:
-    inputs = {k: plain(v) for k, v in inputs.items()}
+    inputs = {k: to_json_value(v) for k, v in inputs.items()}
     return {
         "calculation": calculation,
         "inputs": inputs,

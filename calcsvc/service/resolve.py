@@ -10,7 +10,8 @@ from sqlalchemy.orm import Session
 
 from calcsvc.core.spec import Role
 from calcsvc.data.database import Database
-from calcsvc.data.store import PartNotFound, PartStore, PartView
+from calcsvc.data.store import PartStore, PartView
+from calcsvc.data.store_errors import PartNotFound
 from calcsvc.service.errors import InvalidInput, RetiredPartReference, UnknownPart, WrongPartKind
 
 

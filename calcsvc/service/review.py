@@ -16,7 +16,7 @@ from calcsvc.core.channel_spec import CHANNEL_INPUTS, CHECK_UNITS, STAGES
 from calcsvc.core.outcome import Check, FloatArray, Outcome, raise_violations
 from calcsvc.data.database import Database
 from calcsvc.service.calculate import columns_of, complete
-from calcsvc.service.envelope import fingerprint, plain, row_notices
+from calcsvc.service.envelope import fingerprint, row_notices, to_json_value
 from calcsvc.service.errors import InvalidInput
 from calcsvc.service.resolve import resolve_parts
 
@@ -72,7 +72,7 @@ def review_channel(values: Mapping[str, Any], samples: int, seed: int) -> Review
 
 def _stage_results(outcome: Outcome) -> dict[str, Any]:
     return {
-        name: plain(values[0])
+        name: to_json_value(values[0])
         for name, values in outcome.results.items()
         if values.ndim == 1 and not name.startswith("load_")
     }
@@ -86,15 +86,15 @@ def _check_entry(nominal: Check, worst: tolerance.WorstCheck, stage: str) -> dic
         "name": nominal.name,
         "stage": stage,
         "ok": bool(worst.check.ok[0]),
-        "value": plain(float(nominal.value[0])),
+        "value": to_json_value(float(nominal.value[0])),
         "limit": limit,
-        "margin": plain(float(nominal.margin()[0])),
+        "margin": to_json_value(float(nominal.margin()[0])),
         "detail": nominal.detail,
         "nominal_ok": bool(nominal.ok[0]),
         "worst_case": {
-            "value": plain(float(worst.check.value[0])),
-            "limit": plain(float(worst.check.limit[0])),
-            "margin": plain(float(worst.margin()[0])),
+            "value": to_json_value(float(worst.check.value[0])),
+            "limit": to_json_value(float(worst.check.limit[0])),
+            "margin": to_json_value(float(worst.margin()[0])),
             "corner": worst.corner(0),
         },
     }
@@ -127,15 +127,15 @@ def review_document(values: dict[str, Any], parts: list[dict[str, Any]], warning
     stages: dict[str, Any] = {stage: _stage_results(getattr(nominal, stage)) for stage in STAGES}
     if not bool(nominal.has_front_stage[0]):
         stages["front_stage"] = None
-    stages["supply"]["max_duty_cycle"] = plain(float(nominal.max_duty_cycle[0]))
+    stages["supply"]["max_duty_cycle"] = to_json_value(float(nominal.max_duty_cycle[0]))
     document: dict[str, Any] = {
         "review": channel.NAME,
-        "inputs": {k: plain(v) for k, v in values.items()},
+        "inputs": {k: to_json_value(v) for k, v in values.items()},
         "parts": parts,
         "verdict": "pass" if all(c["ok"] for c in checks) else "fail",
         "failing": [c["name"] for c in checks if not c["ok"]],
         "failing_nominal": [c["name"] for c in checks if not c["nominal_ok"]],
-        "max_duty_cycle": plain(float(nominal.max_duty_cycle[0])),
+        "max_duty_cycle": to_json_value(float(nominal.max_duty_cycle[0])),
         "stages": stages,
         "checks": checks,
         "yield": None if done.found is None else yield_entry(done.found),

@@ -17,7 +17,7 @@ from werkzeug.exceptions import HTTPException
 from calcsvc.config import load_config
 from calcsvc.core.outcome import DomainError
 from calcsvc.data.database import Database, is_busy
-from calcsvc.data.store import StoreError
+from calcsvc.data.store_errors import StoreError
 from calcsvc.service.errors import ServiceError
 from calcsvc.web import batch_api, calc_api, health, parts_api, plots_api, review_api, review_page, select_api
 from calcsvc.web.observability import install_observability

@@ -15,7 +15,7 @@ from calcsvc.core.registry import CALCULATIONS
 from calcsvc.core.spec import CalculationSpec
 from calcsvc.csv_cells import CellWriter
 from calcsvc.service.batch import ParsedRows, run_batch
-from calcsvc.service.envelope import SWEEP_KEYS, plain, row_sweeps
+from calcsvc.service.envelope import SWEEP_KEYS, row_sweeps, to_json_value
 from calcsvc.web.auth import database, guard_reads
 from calcsvc.web.calc_schemas import request_schema
 from calcsvc.web.metrics import record_calculation
@@ -41,9 +41,12 @@ def _row_problem(parsed: ParsedRows, row: int) -> dict[str, Any]:
 def json_rows(calc: CalculationSpec, parsed: ParsedRows, ok_rows: np.ndarray, outcome: Any) -> list[dict[str, Any]]:
     n = parsed.n
     names = [name for name in calc.scalar_results() if name in outcome.results]
-    results = [plain(outcome.results[name]) for name in names]
+    results = [to_json_value(outcome.results[name]) for name in names]
     sweeps = row_sweeps(outcome, ok_rows.size)
-    checks = [(c.name, c.ok.tolist(), plain(c.value), plain(c.limit), plain(c.margin())) for c in outcome.checks]
+    checks = [
+        (c.name, c.ok.tolist(), to_json_value(c.value), to_json_value(c.limit), to_json_value(c.margin()))
+        for c in outcome.checks
+    ]
     notices: dict[str, list[list[str]]] = {"warnings": [[] for _ in ok_rows], "cautions": [[] for _ in ok_rows]}
     for kind, found in (("warnings", outcome.warnings), ("cautions", outcome.cautions)):
         for notice in found:
@@ -53,7 +56,7 @@ def json_rows(calc: CalculationSpec, parsed: ParsedRows, ok_rows: np.ndarray, ou
     for k, row in enumerate(ok_rows.tolist()):
         row_results = dict(zip(names, (column[k] for column in results), strict=True))
         if sweeps[k] is not None:
-            row_results["sweep"] = {key: plain(values) for key, values in sweeps[k].items()}
+            row_results["sweep"] = {key: to_json_value(values) for key, values in sweeps[k].items()}
         rows[row] = {
             "row": row,
             "ok": True,

@@ -14,7 +14,8 @@ from marshmallow import RAISE, Schema, fields, validate
 
 from calcsvc.data import part_ids
 from calcsvc.data.kinds import KINDS, MAX_DESCRIPTION_LENGTH
-from calcsvc.data.store import ACTIONS, STATUSES, PartStore, PartView
+from calcsvc.data.part_history import ACTIONS
+from calcsvc.data.store import STATUSES, PartStore, PartView
 from calcsvc.service.parts import (
     MAX_REVISION,
     NO_NUL,

@@ -12,7 +12,7 @@ from marshmallow import Schema, fields
 from werkzeug.exceptions import HTTPException
 
 from calcsvc.core.outcome import DomainError
-from calcsvc.data.store import (
+from calcsvc.data.store_errors import (
     InvalidPart,
     InvalidPartId,
     PartExists,

@@ -14,7 +14,8 @@ import pytest
 from flask import Flask
 from sqlalchemy import text
 
-from calcsvc.cli import calc_body, calc_inputs, main
+from calcsvc.cli import main
+from calcsvc.cli_remote import calc_body, calc_inputs
 from calcsvc.client import Client
 
 pytest_plugins = ("live_server",)

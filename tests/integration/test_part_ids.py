@@ -15,7 +15,8 @@ from sqlalchemy import text
 
 from calcsvc.cli import main
 from calcsvc.data.part_ids import is_part_id, suggest
-from calcsvc.data.store import InvalidPartId, PartStore
+from calcsvc.data.store import PartStore
+from calcsvc.data.store_errors import InvalidPartId
 from calcsvc.parts_io import check_row
 
 LED_PARAMETERS = {

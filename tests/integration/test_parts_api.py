@@ -10,7 +10,8 @@ from flask.testing import FlaskClient
 from helpers import assert_problem, bearer
 
 from calcsvc.data.kinds import MAX_DESCRIPTION_LENGTH, MAX_TEXT_LENGTH
-from calcsvc.data.store import InvalidPart, PartStore
+from calcsvc.data.store import PartStore
+from calcsvc.data.store_errors import InvalidPart
 
 LED = {
     "part_id": "led-amber-3mm",

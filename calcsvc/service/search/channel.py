@@ -16,7 +16,7 @@ from calcsvc.core.channel_spec import CHANNEL_INPUTS
 from calcsvc.core.outcome import BoolArray, take
 from calcsvc.core.spec import Role
 from calcsvc.data.store import PartView
-from calcsvc.service.envelope import plain, row_notices
+from calcsvc.service.envelope import row_notices, to_json_value
 from calcsvc.service.review import channel_inputs, yield_entry
 from calcsvc.service.search.common import (
     IMPOSSIBLE,
@@ -71,7 +71,7 @@ class ChannelSearch:
             "parts": used,
             "verdict": "pass" if self.scores.ok[row] else "fail",
             "limiting_check": self.scores.limiting_name(row),
-            "margin": plain(float(self.scores.margin[row])),
+            "margin": to_json_value(float(self.scores.margin[row])),
             "failing": [],
             "numbers": None,
             "yield": None,
@@ -85,8 +85,10 @@ class ChannelSearch:
         k = self.position(row)
         nominal = self.worst.nominal
         entry["failing"] = [c.name for c in self.worst.checks if not bool(c.check.ok[k])]
-        numbers = {key: plain(getattr(nominal, stage).results[name][k]) for key, (stage, name) in NUMBERS.items()}
-        entry["numbers"] = {**numbers, "max_duty_cycle": plain(float(nominal.max_duty_cycle[k]))}
+        numbers = {
+            key: to_json_value(getattr(nominal, stage).results[name][k]) for key, (stage, name) in NUMBERS.items()
+        }
+        entry["numbers"] = {**numbers, "max_duty_cycle": to_json_value(float(nominal.max_duty_cycle[k]))}
         entry["warnings"] += row_notices(nominal.warnings, k)
         entry["cautions"] = row_notices(nominal.cautions, k)
         if row in self.yields:

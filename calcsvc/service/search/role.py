@@ -13,7 +13,7 @@ from calcsvc.core.outcome import BoolArray, FloatArray, Outcome
 from calcsvc.core.spec import CalculationSpec, Role
 from calcsvc.data.store import PartView
 from calcsvc.service.calculate import columns_of
-from calcsvc.service.envelope import plain, row_notices, row_results
+from calcsvc.service.envelope import row_notices, row_results, to_json_value
 from calcsvc.service.search.common import (
     IMPOSSIBLE,
     IMPOSSIBLE_DETAIL,
@@ -112,7 +112,7 @@ class RoleSearch:
             "status": part.status,
             "ok": bool(self.scores.ok[row]),
             "limiting_check": self.scores.limiting_name(row),
-            "margin": plain(float(self.scores.margin[row])),
+            "margin": to_json_value(float(self.scores.margin[row])),
             "failing": [],
         }
         results: list[dict[str, Any] | None] = []

@@ -16,7 +16,7 @@ from calcsvc.core.registry import CALCULATIONS
 from calcsvc.core.spec import CalculationSpec, Role
 from calcsvc.data.database import Database
 from calcsvc.data.store import PartStore, PartView
-from calcsvc.service.envelope import plain
+from calcsvc.service.envelope import to_json_value
 from calcsvc.service.errors import InvalidInput, ServiceError, TooLarge, UnknownPart, WrongPartKind
 from calcsvc.service.resolve import PartResolver, resolve
 from calcsvc.service.search.channel import YIELD_SHORTLIST, combinations, search_channel
@@ -169,7 +169,7 @@ def run_select(
     parts, excluded = choose(found, chosen, [role, *(r.role for r in required)])
     _bound(len(parts), "candidates", max_combinations)
     search = search_role(calc, fixed.values, role, parts, [r.requirement for r in required], ranking)
-    pinned = {k: plain(v) for k, v in {**given, **_pins(fixed.parts)}.items()}
+    pinned = {k: to_json_value(v) for k, v in {**given, **_pins(fixed.parts)}.items()}
     candidates = []
     for row in search.rows:
         entry = search.entry(int(row))
@@ -182,13 +182,13 @@ def run_select(
         "role": role.name,
         "kind": role.kind,
         "filter": chosen.describe(),
-        "inputs": {k: plain(v) for k, v in main.shared.items()},
+        "inputs": {k: to_json_value(v) for k, v in main.shared.items()},
         "from_candidates": main.provided,
         "parts": fixed.parts,
         "require": [
             {
                 "calculation": r.requirement.calc.name,
-                "inputs": {k: plain(v) for k, v in e.shared.items()},
+                "inputs": {k: to_json_value(v) for k, v in e.shared.items()},
                 "parts": r.parts,
             }
             for r, e in zip(required, search.evaluations[1:], strict=True)
@@ -238,7 +238,7 @@ def run_channel_select(database: Database, body: dict[str, Any], max_combination
         rank_by, limit=options.get("limit", DEFAULT_LIMIT), only_passing=options.get("only_passing", False)
     )
     search = search_channel(fixed.values, by_role, samples, seed, ranking)
-    pinned = {k: plain(v) for k, v in {**given, **_pins(fixed.parts), "samples": samples, "seed": seed}.items()}
+    pinned = {k: to_json_value(v) for k, v in {**given, **_pins(fixed.parts), "samples": samples, "seed": seed}.items()}
     designs = []
     for row in search.rows:
         entry = search.entry(int(row))
@@ -250,7 +250,7 @@ def run_channel_select(database: Database, body: dict[str, Any], max_combination
         "review": channel.NAME,
         "version": channel.VERSION,
         "searched": {name: chosen_filter.describe() for name, chosen_filter in searched.items()},
-        "inputs": {k: plain(v) for k, v in search.shared.items() if k not in ("samples", "seed")},
+        "inputs": {k: to_json_value(v) for k, v in search.shared.items() if k not in ("samples", "seed")},
         "parts": fixed.parts,
         "rank_by": rank_by,
         "samples": samples,

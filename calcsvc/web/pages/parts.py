@@ -11,17 +11,10 @@ from flask import Response, redirect, render_template, request, url_for
 from calcsvc.core import led_string
 from calcsvc.core.outcome import DomainError
 from calcsvc.data.kinds import KINDS, params_of
+from calcsvc.data.part_history import RevisionView
 from calcsvc.data.part_ids import is_part_id
-from calcsvc.data.store import (
-    STATUSES,
-    PartNotFound,
-    PartRetired,
-    PartStore,
-    PartView,
-    RevisionView,
-    SelfApproval,
-    StaleRevision,
-)
+from calcsvc.data.store import STATUSES, PartStore, PartView
+from calcsvc.data.store_errors import PartNotFound, PartRetired, SelfApproval, StaleRevision
 from calcsvc.data.tokens import identify
 from calcsvc.service.curves import core_inputs
 from calcsvc.service.errors import ServiceError

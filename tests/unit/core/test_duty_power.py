@@ -10,14 +10,8 @@ from hypothesis import given, settings
 from hypothesis import strategies as st
 from scipy.integrate import quad
 
-from calcsvc.core.duty_power import (
-    DutyPowerInputs,
-    compute,
-    on_time_duty,
-    rectangular_load,
-    validate,
-    waveform_stats,
-)
+from calcsvc.core.duty_power import DutyPowerInputs, compute, validate
+from calcsvc.core.load_current import on_time_duty, rectangular_load, waveform_stats
 from calcsvc.core.outcome import DomainError
 
 NAN = np.nan
