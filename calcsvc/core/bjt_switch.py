@@ -185,12 +185,13 @@ def _rb_exact(inputs: BjtSwitchInputs) -> FloatArray:
     return (inputs.drive_high_v - inputs.vbe_sat_v) / (ib_req + _rbe_current(inputs))
 
 
-def compute(inputs: BjtSwitchInputs) -> Outcome:
+def compute(inputs: BjtSwitchInputs, validated: bool = False) -> Outcome:
     """Choose the base resistor and check saturation, the driver pin and the transistor's ratings.
 
     Raises DomainError when any row violates ``validate``.
     """
-    raise_violations(validate(inputs))
+    if not validated:  # the caller has just validated these very inputs
+        raise_violations(validate(inputs))
     i = inputs
     n = i.hfe_min.shape[0]
     ic = i.collector_current_a

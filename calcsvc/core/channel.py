@@ -259,7 +259,7 @@ def validate(inputs: ChannelInputs) -> list[Violation]:
     ic_nominal, ic_max = np.ones(n), np.ones(n)
     if led_ok.any():
         ic_nominal[led_ok], ic_max[led_ok] = collector_currents(
-            i.strings[led_ok], led_string.compute(take(led_in, led_ok))
+            i.strings[led_ok], led_string.compute(take(led_in, led_ok), validated=True)
         )
     switch_found = bjt_switch.validate(switch_inputs(i, ic_max))
     for v in switch_found:
@@ -318,11 +318,11 @@ def _expand(outcome: Outcome, mask: BoolArray) -> Outcome:
     )
 
 
-def front_stage(inputs: ChannelInputs) -> Outcome:
+def front_stage(inputs: ChannelInputs, validated: bool = False) -> Outcome:
     """Closed-loop and slew outcomes of the rows with a front stage, merged and spread over all rows."""
     front = has_front_stage(inputs)
-    bandwidth = closed_loop.compute(take(closed_loop_inputs(inputs), front))
-    swing = slew.compute(take(slew_inputs(inputs, inputs.supply_v), front))
+    bandwidth = closed_loop.compute(take(closed_loop_inputs(inputs), front), validated)
+    swing = slew.compute(take(slew_inputs(inputs, inputs.supply_v), front), validated)
     merged = Outcome(
         results={**bandwidth.results, **swing.results},
         checks=bandwidth.checks + swing.checks,
@@ -341,11 +341,12 @@ def review(inputs: ChannelInputs, validated: bool = False) -> ChannelReview:
     if not validated:
         raise_violations(validate(inputs))
     i = inputs
-    led = led_string.compute(led_inputs(i))
+    # ``validate`` checked every stage at exactly these inputs (the currents too), so none validates again.
+    led = led_string.compute(led_inputs(i), validated=True)
     ic_nominal, ic_max = collector_currents(i.strings, led)
-    switch = bjt_switch.compute(switch_inputs(i, ic_max))
-    supply = duty_power.compute(supply_inputs(i, ic_nominal))
-    front = front_stage(i)
+    switch = bjt_switch.compute(switch_inputs(i, ic_max), validated=True)
+    supply = duty_power.compute(supply_inputs(i, ic_nominal), validated=True)
+    front = front_stage(i, validated=True)
 
     sections = (led, switch, supply, front)
     checks = [c for s in sections for c in s.checks]

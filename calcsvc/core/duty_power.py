@@ -235,13 +235,14 @@ def validate(inputs: DutyPowerInputs) -> list[Violation]:
     return v
 
 
-def compute(inputs: DutyPowerInputs) -> Outcome:
+def compute(inputs: DutyPowerInputs, validated: bool = False) -> Outcome:
     """Per-load and per-row currents, powers, runtime and supply checks (model: module docstring).
 
     Per-load results (shape ``(m,)``) are for one unit of the load; per-row results (shape ``(n,)``) include
     ``count``.
     """
-    raise_violations(validate(inputs))
+    if not validated:  # the caller has just validated these very inputs
+        raise_violations(validate(inputs))
 
     n = inputs.supply_v.shape[0]
     row = np.asarray(inputs.load_row).astype(np.intp)

@@ -186,12 +186,13 @@ def _rating_for(need_w: FloatArray) -> FloatArray:
     return np.where(fits.any(axis=1), POWER_RATINGS_W[np.argmax(fits, axis=1)], np.nan)
 
 
-def compute(inputs: LedStringInputs) -> Outcome:
+def compute(inputs: LedStringInputs, validated: bool = False) -> Outcome:
     """Choose each string's resistor and give nominal and worst-case current and dissipation.
 
     Raises DomainError when any row violates ``validate``.
     """
-    raise_violations(validate(inputs))
+    if not validated:  # the caller has just validated these very inputs
+        raise_violations(validate(inputs))
     i = inputs
     n = i.supply_v.shape[0]
     vs, ts, nl = i.supply_v, i.supply_tolerance, i.leds_in_series

@@ -9,7 +9,7 @@ from typing import Any
 import pytest
 from flask import Flask
 
-from calcsvc.core import channel, monte_carlo, tolerance
+from calcsvc.core import bjt_switch, channel, closed_loop, duty_power, led_string, monte_carlo, slew, tolerance
 from calcsvc.core.outcome import DomainError
 from calcsvc.service import review
 from calcsvc.service.demo import demo_si
@@ -43,6 +43,23 @@ def test_review_validates_once(seeded: Flask, calls: dict[str, int]) -> None:
     document = review.run_review(seeded.extensions["calcsvc.db"], {**demo_si(), "samples": 500})
     assert document["verdict"] == "pass" and document["yield"]["samples"] == 500
     assert calls == {"validate": 1, "review": 1}
+
+
+def test_each_stage_validates_once_per_review(seeded: Flask, monkeypatch: pytest.MonkeyPatch) -> None:
+    """channel.validate checks every stage at the very inputs the review then computes, so no stage's compute
+    validates again (before: the LED stage 10 times, the op-amp stages 6 to 8 times per review). The output
+    swing alone is evaluated at other inputs: the supply's worst-case corners and its sampled values, once each."""
+    stages = (led_string, bjt_switch, duty_power, closed_loop, slew)
+    counts = dict.fromkeys((stage.NAME for stage in stages), 0)
+    for stage in stages:
+
+        def counted(inputs: Any, original: Callable[..., Any] = stage.validate, name: str = stage.NAME) -> Any:
+            counts[name] += 1
+            return original(inputs)
+
+        monkeypatch.setattr(stage, "validate", counted)
+    review.run_review(seeded.extensions["calcsvc.db"], {**demo_si(), "samples": 500})
+    assert counts == {**dict.fromkeys(counts, 1), slew.NAME: 3}
 
 
 def test_histogram_validates_once(seeded: Flask, calls: dict[str, int]) -> None:
