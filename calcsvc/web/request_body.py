@@ -60,13 +60,16 @@ class _Progress:
         self.received = 0
         self.expired = False
         self._done = threading.Event()
+        self._lock = threading.Lock()  # a read that just finished must not have its socket shut afterwards
 
     def overdue(self) -> bool:
         return time.monotonic() - self.started > BASE_S + self.received / MIN_BYTES_PER_S
 
     def watch(self) -> None:
         while not self._done.wait(WATCH_INTERVAL_S):
-            if self.overdue():
+            with self._lock:
+                if self._done.is_set() or not self.overdue():
+                    continue
                 self.expired = True
                 with contextlib.suppress(OSError):
                     self.sock.shutdown(socket.SHUT_RD)  # type: ignore[union-attr]
@@ -78,7 +81,8 @@ class _Progress:
         return self
 
     def __exit__(self, *_: object) -> None:
-        self._done.set()
+        with self._lock:
+            self._done.set()
 
 
 def _slow() -> Problem:
