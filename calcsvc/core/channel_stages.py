@@ -72,6 +72,7 @@ def supply_inputs(i: ChannelInputs, collector_current_a: FloatArray) -> duty_pow
         average_current_a=nan,
         rms_current_a=nan,
         count=i.channels,
+        fixed=np.zeros(n, dtype=bool),  # every channel is dimmed by its PWM
     )
 
 
