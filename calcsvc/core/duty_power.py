@@ -358,7 +358,7 @@ RESULTS = (
     Result("average_power_w", "W", "average supply power"),
     Result("peak_current_a", "A", "supply current with every load on at once"),
     Result("supply_utilization", "", "average current / supply rating"),
-    Result("runtime_h", "h", "battery capacity / average current"),
+    Result("runtime_h", "h", "battery capacity / average current (capacity alone; see the review for usable runtime)"),
     Result(
         "max_common_duty_cycle",
         "",
