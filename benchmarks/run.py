@@ -332,7 +332,8 @@ def channel() -> ChannelInputs:
 
     nan = one(math.nan)
     return ChannelInputs(
-        supply_v=one(12.0), supply_tolerance=one(0.05), current_max_a=one(2.0), capacity_ah=nan,
+        supply_v=one(12.0), supply_tolerance=one(0.05), supply_min_v=nan, supply_max_v=nan, current_max_a=one(2.0),
+        capacity_ah=nan,
         drive_high_v=one(2.9), drive_low_v=one(0.4), source_current_max_a=one(0.008),
         hfe_min=one(100.0), hfe_typ=one(200.0), vbe_sat_v=one(0.85), vce_sat_v=one(0.2), ic_max_a=one(0.2),
         power_max_w=one(0.625), vf_typ_v=one(2.0), vf_min_v=one(1.8), vf_max_v=one(2.4), if_max_a=one(0.03),

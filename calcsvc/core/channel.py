@@ -6,12 +6,15 @@ Circuit
     ``leds_in_series`` LEDs, each string with its own series resistor, from a supply of ``supply_v``
     (±``supply_tolerance``, rated ``current_max_a``). ``channels`` identical channels share that supply, each
     PWM-switched at ``duty_cycle``. Optionally (per row: ``gbw_hz`` given) an op-amp front stage, powered
-    from the same supply, amplifies a sine of ``amplitude_v`` peak at ``signal_hz``.
+    from the same supply, amplifies a sine of ``amplitude_v`` peak at ``signal_hz``. The supply spans
+    [``supply_min_v``, ``supply_max_v``] in service (a battery: end of discharge to fresh); without that
+    band, ``supply_v`` ± ``supply_tolerance`` (``channel_stages.supply_band``).
 
 Chain (each step is an existing core calculation; this module only wires them together)
     1. ``led_string`` with the transistor's ``vce_sat_v`` as the switch drop: string resistor, nominal and
        worst-case string current. Nominal collector current Ic = strings × nominal string current;
-       worst-case Ic_max = strings × worst-case maximum string current.
+       worst-case Ic_max = strings × the highest string current: at the top of the supply band, the lowest
+       Vf and the lowest resistor within its tolerance.
     2. ``bjt_switch`` with collector current **Ic_max**: base resistor, saturation, pin current, ratings.
        The base is sized for the worst-case maximum collector current, not the nominal one: the base
        resistor's job is to guarantee saturation, and a base sized for the nominal current runs short of
@@ -64,7 +67,7 @@ from calcsvc.core.outcome import (
 )
 
 NAME = "channel-review"
-VERSION = "1"
+VERSION = "2"
 
 # Front-stage inputs besides gbw_hz, whose presence (non-NaN) marks a row as having a front stage.
 FRONT_STAGE_FIELDS = ("gain", "open_loop_gain", "slew_rate_v_per_s", "output_headroom_v", "signal_hz", "amplitude_v")
@@ -74,7 +77,8 @@ FRONT_STAGE_FIELDS = ("gain", "open_loop_gain", "slew_rate_v_per_s", "output_hea
 class ChannelInputs:
     """Per-row inputs, arrays of shape ``(n,)``; field names are the flat JSON input names.
 
-    NaN marks an optional value as not given: ``capacity_ah``, ``source_current_max_a`` (pin rating unknown:
+    NaN marks an optional value as not given: ``supply_min_v`` and ``supply_max_v`` (together: the band is
+    ``supply_v`` ± ``supply_tolerance``), ``capacity_ah``, ``source_current_max_a`` (pin rating unknown:
     ``driver_current`` does not apply), ``resistor_tolerance`` (the series' default, for both resistors),
     and the front stage (NaN ``gbw_hz``: no front stage on that row; then every other front-stage field must
     be NaN too). With a front stage, ``gain`` (magnitude, V/V) and ``slew_rate_v_per_s`` are required and
@@ -85,6 +89,8 @@ class ChannelInputs:
 
     supply_v: FloatArray
     supply_tolerance: FloatArray
+    supply_min_v: FloatArray
+    supply_max_v: FloatArray
     current_max_a: FloatArray
     capacity_ah: FloatArray
     drive_high_v: FloatArray
@@ -234,7 +240,23 @@ def _own_violations(i: ChannelInputs) -> list[Violation]:
             f"({', '.join(FRONT_STAGE_FIELDS)})",
         )
         require(v, front & np.isnan(i.gain), "gain", "gain is required for a front stage (give the magnitude, V/V)")
+        _band_violations(v, i)
     return v
+
+
+def _band_violations(v: list[Violation], i: ChannelInputs) -> None:
+    """The supply band, when given, is given whole and holds the nominal voltage."""
+    low, high = i.supply_min_v, i.supply_max_v
+    for name, missing, other in (("supply_min_v", low, high), ("supply_max_v", high, low)):
+        together = "supply_min_v and supply_max_v (the supply's band in service) go together"
+        require(v, np.isnan(missing) & ~np.isnan(other), name, f"{name} is required: {together}")
+    for name, value in (("supply_min_v", low), ("supply_max_v", high)):
+        bad = np.isinf(value) | (value <= 0)
+        require(v, bad, name, f"{name} ({first_bad(value, bad)} V) must be a finite voltage above 0 V")
+    bad = low > i.supply_v
+    require(v, bad, "supply_min_v", f"supply_min_v ({first_bad(low, bad)} V) cannot be above supply_v")
+    bad = high < i.supply_v
+    require(v, bad, "supply_max_v", f"supply_max_v ({first_bad(high, bad)} V) cannot be below supply_v")
 
 
 def validate(inputs: ChannelInputs) -> list[Violation]:
@@ -259,7 +281,7 @@ def validate(inputs: ChannelInputs) -> list[Violation]:
     ic_nominal, ic_max = np.ones(n), np.ones(n)
     if led_ok.any():
         ic_nominal[led_ok], ic_max[led_ok] = collector_currents(
-            i.strings[led_ok], led_string.compute(take(led_in, led_ok), validated=True)
+            take(i, led_ok), led_string.compute(take(led_in, led_ok), validated=True)
         )
     switch_found = bjt_switch.validate(switch_inputs(i, ic_max))
     for v in switch_found:
@@ -343,7 +365,7 @@ def review(inputs: ChannelInputs, validated: bool = False) -> ChannelReview:
     i = inputs
     # ``validate`` checked every stage at exactly these inputs (the currents too), so none validates again.
     led = led_string.compute(led_inputs(i), validated=True)
-    ic_nominal, ic_max = collector_currents(i.strings, led)
+    ic_nominal, ic_max = collector_currents(i, led)
     switch = bjt_switch.compute(switch_inputs(i, ic_max), validated=True)
     supply = duty_power.compute(supply_inputs(i, ic_nominal), validated=True)
     front = front_stage(i, validated=True)

@@ -19,7 +19,17 @@ CHANNEL_INPUTS = InputSet(
     version=channel.VERSION,
     inputs=(
         positive("supply_v", "V", "supply voltage"),
-        Input("supply_tolerance", "dimensionless", "supply tolerance as a fraction", 0.0, minimum=0, maximum=1),
+        Input(
+            "supply_tolerance",
+            "dimensionless",
+            "supply tolerance as a fraction, for a band of supply_v ± tolerance when supply_min_v and supply_max_v "
+            "are absent",
+            0.0,
+            minimum=0,
+            maximum=1,
+        ),
+        positive("supply_min_v", "V", "lowest supply voltage in service (a battery: end of discharge)", optional=True),
+        positive("supply_max_v", "V", "highest supply voltage in service (a battery: fresh)", optional=True),
         positive("current_max_a", "A", "supply current rating"),
         positive("capacity_ah", "A*h", "battery capacity", optional=True),
         Input("drive_high_v", "V", "driver output voltage when on"),
@@ -84,6 +94,8 @@ CHANNEL_INPUTS = InputSet(
             (
                 ("supply_v", "supply_v"),
                 ("supply_tolerance", "supply_tolerance"),
+                ("supply_min_v", "supply_min_v"),
+                ("supply_max_v", "supply_max_v"),
                 ("current_max_a", "current_max_a"),
                 ("capacity_ah", "capacity_ah"),
             ),

@@ -72,6 +72,7 @@ def supply_inputs(i: ChannelInputs, collector_current_a: FloatArray) -> duty_pow
         average_current_a=nan,
         rms_current_a=nan,
         count=i.channels,
+        fixed=np.zeros(n, dtype=bool),  # every channel is dimmed by its PWM
     )
 
 
@@ -106,10 +107,22 @@ def slew_inputs(i: ChannelInputs, supply_v: FloatArray) -> slew.SlewInputs:
     )
 
 
-def collector_currents(strings: FloatArray, led: Outcome) -> tuple[FloatArray, FloatArray]:
-    """The switch carries every string: nominal Ic from the nominal string current, Ic_max from the worst-case
-    highest (the base is sized for it: ``channel``'s docstring)."""
-    return led.results["total_current_a"], strings * led.results["current_max_a"]
+def supply_band(i: ChannelInputs) -> tuple[FloatArray, FloatArray]:
+    """The lowest and highest supply voltage in service: the band given (a battery: end of discharge and
+    fresh), else ``supply_v`` ± ``supply_tolerance``."""
+    given = ~np.isnan(i.supply_min_v) & ~np.isnan(i.supply_max_v)
+    low = np.where(given, i.supply_min_v, i.supply_v * (1.0 - i.supply_tolerance))
+    high = np.where(given, i.supply_max_v, i.supply_v * (1.0 + i.supply_tolerance))
+    return low, high
+
+
+def collector_currents(i: ChannelInputs, led: Outcome) -> tuple[FloatArray, FloatArray]:
+    """The switch carries every string: nominal Ic from the nominal string current, Ic_max from the highest
+    (the base is sized for it: ``channel``'s docstring): top of the supply band, lowest Vf, low resistor."""
+    _, high = supply_band(i)
+    low_resistor = led.results["resistor_ohm"] * (1.0 - resistor_tolerance(i))
+    highest = led_string.string_current(high - i.leds_in_series * i.vf_min_v - i.vce_sat_v, low_resistor)
+    return led.results["total_current_a"], i.strings * highest
 
 
 def has_front_stage(inputs: ChannelInputs) -> BoolArray:

@@ -11,7 +11,10 @@ any other waveform carries its own average and RMS, computed from samples of one
 - peak current, as if every load were on at once: ``Σ count·I_peak`` (the worst case; loads that never
   overlap draw less)
 - utilization ``I_avg/current_max_a``; runtime ``capacity_ah / I_avg`` (hours)
-- the largest duty cycle ``D`` all loads could share with ``Σ count·I_peak·D ≤ current_max_a``, capped at 1.
+- the largest duty cycle ``D`` the dimmed loads could share, the fixed loads keeping their own:
+  ``Σ_dimmed count·I_peak·D + Σ_fixed count·I_avg ≤ current_max_a``, within [0, 1] (0: the fixed loads alone
+  exceed the rating). Fixed are the loads that are always on (duty 1), those marked ``fixed`` (a controller,
+  a fan) and sampled waveforms (their shape is what they draw); only the rest are dimmed by a common PWM.
 
 Assumptions: a constant supply voltage (no droop, no converter efficiency), loads independent of each other,
 an ideal battery whose capacity does not depend on the drain rate. Units: SI (V, A, W), capacity in Ah,
@@ -46,7 +49,7 @@ from calcsvc.core.outcome import (
 from calcsvc.core.spec import BudgetSpec, Input, Items, Result, Role, Samples, fraction, positive
 
 NAME = "duty-cycle-power"
-VERSION = "1"
+VERSION = "2"
 
 # Rounding slack when checking a waveform's own average ≤ rms ≤ peak.
 _STATS_RTOL = 1e-9
@@ -62,7 +65,7 @@ class DutyPowerInputs:
     Per load: ``load_row`` (index of its supply row), ``peak_current_a``, ``count`` (identical units, whole
     number ≥ 1) and either ``duty_cycle`` (rectangular load; ``average_current_a`` and ``rms_current_a`` NaN)
     or ``average_current_a`` and ``rms_current_a`` (sampled waveform, see ``load_current.waveform_stats``;
-    ``duty_cycle`` NaN).
+    ``duty_cycle`` NaN); ``fixed`` (bool) marks a load that keeps its own duty instead of sharing a common one.
     """
 
     supply_v: FloatArray
@@ -74,6 +77,7 @@ class DutyPowerInputs:
     average_current_a: FloatArray
     rms_current_a: FloatArray
     count: FloatArray
+    fixed: BoolArray
 
 
 _LOAD_FIELDS = ("load_row", "peak_current_a", "duty_cycle", "average_current_a", "rms_current_a", "count")
@@ -255,6 +259,9 @@ def compute(inputs: DutyPowerInputs, validated: bool = False) -> Outcome:
 
     average_current = np.bincount(row, weights=load_avg * count, minlength=n)
     peak_current = np.bincount(row, weights=inputs.peak_current_a * count, minlength=n)
+    fixed = np.asarray(inputs.fixed, dtype=bool) | ~rectangular | (inputs.duty_cycle == 1.0)
+    fixed_average = np.bincount(row, weights=np.where(fixed, load_avg * count, 0.0), minlength=n)
+    dimmed_peak = np.bincount(row, weights=np.where(fixed, 0.0, inputs.peak_current_a * count), minlength=n)
     rating = inputs.current_max_a
     rating_known = ~np.isnan(rating)
     with np.errstate(divide="ignore", invalid="ignore", over="ignore"):
@@ -262,7 +269,8 @@ def compute(inputs: DutyPowerInputs, validated: bool = False) -> Outcome:
         # No drain (or so little that the quotient overflows), no finite runtime: give "does not apply" (NaN)
         # and say so in a warning.
         runtime = inputs.capacity_ah / average_current
-        common_duty = np.where(peak_current > 0.0, np.minimum(1.0, rating / peak_current), 1.0)
+        spare = rating - fixed_average
+        common_duty = np.where(dimmed_peak > 0.0, np.clip(spare / dimmed_peak, 0.0, 1.0), spare >= 0.0)
     runtime[np.isinf(runtime)] = np.nan
     common_duty = np.where(rating_known, common_duty, np.nan)
 
@@ -350,8 +358,13 @@ RESULTS = (
     Result("average_power_w", "W", "average supply power"),
     Result("peak_current_a", "A", "supply current with every load on at once"),
     Result("supply_utilization", "", "average current / supply rating"),
-    Result("runtime_h", "h", "battery capacity / average current"),
-    Result("max_common_duty_cycle", "", "largest duty cycle all loads could share within the supply rating"),
+    Result("runtime_h", "h", "battery capacity / average current (capacity alone; see the review for usable runtime)"),
+    Result(
+        "max_common_duty_cycle",
+        "",
+        "largest duty cycle the dimmed loads could share within the supply rating, the fixed loads (duty 1, "
+        "marked fixed, or a waveform) drawing their own; 0 when the fixed loads alone exceed it",
+    ),
 )
 
 MAX_WAVEFORM_SAMPLES = 100_000
@@ -381,6 +394,7 @@ SPEC = BudgetSpec(
             Input("on_time_s", "s", "on time per period (instead of duty_cycle)", optional=True, minimum=0),
             positive("period_s", "s", "PWM period (with on_time_s)", optional=True),
             Input("count", "dimensionless", "identical units", 1, minimum=1, maximum=100_000, integer=True),
+            Input("fixed", "", "keeps its own duty, not dimmed by a common PWM (a controller)", False, flag=True),
         ),
         Samples(
             "waveform",

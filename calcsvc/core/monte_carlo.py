@@ -3,7 +3,8 @@
 The resistors are chosen once, at nominal values, by ``channel.review``; every sample is evaluated with them
 held fixed, exactly as the worst-case corners are (calcsvc.core.tolerance, whose docstring states the model).
 
-``np.random.default_rng(seed)`` draws, per sample: the supply uniform within its tolerance; every LED's
+``np.random.default_rng(seed)`` draws, per sample: the supply uniform within its band (a battery: anywhere
+between end of discharge and fresh, as over its life); every LED's
 forward voltage independently uniform in [vf_min_v, vf_max_v] (each string's drop is the sum of its own
 LEDs' draws — more realistic than one draw per string, whose spread would be √N times too wide); each
 string's resistor and the base resistor independently uniform within their tolerance; the gain
@@ -23,7 +24,7 @@ import numpy as np
 import numpy.typing as npt
 
 from calcsvc.core.channel import ChannelInputs, ChannelReview, review, validate
-from calcsvc.core.channel_stages import resistor_tolerance
+from calcsvc.core.channel_stages import resistor_tolerance, supply_band
 from calcsvc.core.outcome import Check, FloatArray, Violation, raise_violations, require, row_count
 from calcsvc.core.tolerance import Point, evaluate_at, hfe_max
 
@@ -109,12 +110,12 @@ def _draw(inputs: ChannelInputs, nominal: ChannelReview, rng: np.random.Generato
     def spread(nominal_value: float, fraction: float, shape: tuple[int, ...]) -> FloatArray:
         return nominal_value * (1.0 + fraction * rng.uniform(-1.0, 1.0, shape))
 
-    supply = spread(i.supply_v[0], i.supply_tolerance[0], (1, count))
+    low, high = supply_band(i)
+    supply = rng.uniform(low[0], high[0], (1, count))
     vf = rng.uniform(i.vf_min_v[0], i.vf_max_v[0], (1, count, strings, leds)).sum(axis=-1)
     led_r = spread(nominal.led_string.results["resistor_ohm"][0], tol, (1, count, strings))
     base_r = spread(nominal.switch.results["rb_ohm"][0], tol, (1, count))
-    low, high = np.log(i.hfe_min[0]), np.log(hfe_max(i)[0])
-    hfe = np.exp(rng.uniform(low, high, (1, count)))
+    hfe = np.exp(rng.uniform(np.log(i.hfe_min[0]), np.log(hfe_max(i)[0]), (1, count)))
     return Point((count,), supply, vf, led_r, base_r, hfe)
 
 

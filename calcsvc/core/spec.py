@@ -31,6 +31,7 @@ class Input:
     integer: bool = False
     choices: tuple[str, ...] = ()
     max_length: int | None = None  # a text input (a name), not a quantity
+    flag: bool = False  # a yes/no input, not a quantity
 
     @property
     def required(self) -> bool:

@@ -15,7 +15,8 @@ and the LED-stage rules per string: I ≤ if_max (``led_current_rating``), Vs �
 result. ``DEPENDS_ON`` lists what each check depends on.
 
 Toleranced quantities
-    supply ±supply_tolerance; LED forward voltage within [vf_min_v, vf_max_v]; both resistors
+    supply within its band (``channel_stages.supply_band``: a battery from end of discharge to fresh, else
+    ±supply_tolerance); LED forward voltage within [vf_min_v, vf_max_v]; both resistors
     ±resistor_tolerance (NaN: the series' default); transistor gain between hfe_min and
     hfe_max = hfe_typ + (hfe_typ − hfe_min), the same spread above typical as below (datasheets rarely give
     a maximum). Drive and saturation voltages are taken as the worst-case constants given.
@@ -45,7 +46,7 @@ import numpy.typing as npt
 
 from calcsvc.core import led_string, load_current, slew
 from calcsvc.core.channel import ChannelInputs, ChannelReview, failing_names, review
-from calcsvc.core.channel_stages import has_front_stage, resistor_tolerance, slew_inputs
+from calcsvc.core.channel_stages import has_front_stage, resistor_tolerance, slew_inputs, supply_band
 from calcsvc.core.outcome import (
     BoolArray,
     Check,
@@ -236,7 +237,7 @@ class WorstCase:
         return failing_names([c.check for c in self.checks])
 
 
-def _corners(inputs: ChannelInputs, nominal: ChannelReview) -> Point:
+def corner_points(inputs: ChannelInputs, nominal: ChannelReview) -> Point:
     """Each quantity's two settings on an axis of its own (``CORNER_AXES``), every string alike."""
     i = inputs
     tol = resistor_tolerance(i)
@@ -250,7 +251,7 @@ def _corners(inputs: ChannelInputs, nominal: ChannelReview) -> Point:
     r_base = nominal.switch.results["rb_ohm"]
     return Point(
         points=CORNER_AXES,
-        supply_v=settings("supply", i.supply_v * (1.0 - i.supply_tolerance), i.supply_v * (1.0 + i.supply_tolerance)),
+        supply_v=settings("supply", *supply_band(i)),
         string_vf_v=settings("vf", i.leds_in_series * i.vf_min_v, i.leds_in_series * i.vf_max_v)[..., None],
         led_resistor_ohm=settings("led_resistor", r_led * (1.0 - tol), r_led * (1.0 + tol))[..., None],
         base_resistor_ohm=settings("base_resistor", r_base * (1.0 - tol), r_base * (1.0 + tol)),
@@ -289,7 +290,7 @@ def worst_case(inputs: ChannelInputs, nominal: ChannelReview | None = None) -> W
     reviewed here, which raises DomainError when any row violates ``channel.validate``.
     """
     nominal = review(inputs) if nominal is None else nominal
-    checks = [_worst(c) for c in evaluate_at(inputs, nominal, _corners(inputs, nominal))]
+    checks = [_worst(c) for c in evaluate_at(inputs, nominal, corner_points(inputs, nominal))]
     ok = np.ones(row_count(inputs), dtype=bool)
     for c in checks:
         ok &= c.check.ok

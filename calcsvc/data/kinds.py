@@ -61,10 +61,14 @@ KINDS: dict[str, tuple[Param, ...]] = {
         Param(
             "supply_tolerance",
             "dimensionless",
-            "output tolerance as a fraction",
+            "± output tolerance as a fraction; absent: 0 (a battery gives its band instead)",
+            optional=True,
             positive=False,
             fraction=True,
         ),
+        # The band in service; absent: supply_v ± supply_tolerance.
+        Param("supply_min_v", "V", "lowest output voltage in service (a battery: end of discharge)", optional=True),
+        Param("supply_max_v", "V", "highest output voltage in service (a battery: fresh)", optional=True),
         Param("current_max_a", "A", "continuous current rating"),
         Param("capacity_ah", "A*h", "battery capacity", optional=True),
     ),
@@ -85,7 +89,7 @@ ORDERED: dict[str, tuple[tuple[str, str, bool], ...]] = {
         ("if_test_a", "if_max_a", False),
     ),
     "driver": (("vol_v", "voh_v", True),),
-    "supply": (),
+    "supply": (("supply_min_v", "supply_v", False), ("supply_v", "supply_max_v", False)),
 }
 
 

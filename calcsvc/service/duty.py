@@ -46,7 +46,7 @@ def run_duty(database: Database, body: Mapping[str, Any]) -> dict[str, Any]:
             currents = _load_currents(load)
         except DomainError as exc:
             raise PhysicallyImpossible.of(exc.violations, f"{SPEC.items.name}.{index}.") from exc
-        loads.append({"name": load["name"], "count": load["count"], **currents})
+        loads.append({"name": load["name"], "count": load["count"], "fixed": load["fixed"], **currents})
     column = {
         key: np.array([load.get(key, math.nan) for load in loads], dtype=np.float64)
         for key in ("peak_current_a", "duty_cycle", "average_current_a", "rms_current_a", "count")
@@ -62,6 +62,7 @@ def run_duty(database: Database, body: Mapping[str, Any]) -> dict[str, Any]:
         average_current_a=column["average_current_a"],
         rms_current_a=column["rms_current_a"],
         count=column["count"],
+        fixed=np.array([load["fixed"] for load in loads], dtype=bool),
     )
     try:
         outcome = duty_power.compute(inputs)
@@ -83,6 +84,6 @@ def run_duty(database: Database, body: Mapping[str, Any]) -> dict[str, Any]:
     results = {"loads": per_load, **row_results(outcome, 0, [r.name for r in SPEC.results if r.scalar])}
     resolved_inputs: dict[str, Any] = dict(values)
     resolved_inputs["loads"] = [
-        {k: load[k] for k in ("name", "count", "peak_current_a", "duty_cycle")} for load in loads
+        {k: load[k] for k in ("name", "count", "fixed", "peak_current_a", "duty_cycle")} for load in loads
     ]
     return envelope(SPEC.name, SPEC.version, resolved_inputs, resolved.parts, results, outcome, 0, resolved.warnings)

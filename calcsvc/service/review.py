@@ -11,14 +11,16 @@ from typing import Any
 
 import numpy as np
 
-from calcsvc.core import channel, monte_carlo, tolerance
+from calcsvc.core import channel, monte_carlo, tolerance, usable_runtime
 from calcsvc.core.channel_spec import CHANNEL_INPUTS, CHECK_UNITS, STAGES
 from calcsvc.core.outcome import Check, FloatArray, Outcome, raise_violations
 from calcsvc.data.database import Database
 from calcsvc.service.calculate import columns_of, complete
 from calcsvc.service.envelope import fingerprint, row_notices, to_json_value
 from calcsvc.service.errors import InvalidInput
-from calcsvc.service.resolve import resolve_parts
+from calcsvc.service.resolve import Resolved, resolve_parts
+
+_BAND = ("supply_min_v", "supply_max_v")
 
 
 def duty_of(values: Mapping[str, Any]) -> float:
@@ -128,6 +130,16 @@ def review_document(values: dict[str, Any], parts: list[dict[str, Any]], warning
     if not bool(nominal.has_front_stage[0]):
         stages["front_stage"] = None
     stages["supply"]["max_duty_cycle"] = to_json_value(float(nominal.max_duty_cycle[0]))
+    usable = usable_runtime.usable_runtime(done.inputs, nominal)
+    stages["supply"]["stop_v"] = to_json_value(float(usable.stop_v[0]))
+    stages["supply"]["usable_runtime_h"] = to_json_value(float(usable.usable_runtime_h[0]))
+    notes = row_notices(nominal.warnings, 0)
+    if not math.isnan(usable.usable_runtime_h[0]):
+        notes.append(
+            "usable_runtime_h lasts until the falling battery voltage reaches stop_v, below which the design "
+            "fails its checks; it assumes the voltage falls linearly with delivered charge from fresh to end of "
+            "discharge (a simplification), beside runtime_h from the capacity alone"
+        )
     document: dict[str, Any] = {
         "review": channel.NAME,
         "inputs": {k: to_json_value(v) for k, v in values.items()},
@@ -139,16 +151,25 @@ def review_document(values: dict[str, Any], parts: list[dict[str, Any]], warning
         "stages": stages,
         "checks": checks,
         "yield": None if done.found is None else yield_entry(done.found),
-        "warnings": warnings + row_notices(nominal.warnings, 0),
+        "warnings": warnings + notes,
         "cautions": row_notices(nominal.cautions, 0),
     }
     document["fingerprint"] = fingerprint(channel.NAME, channel.VERSION, document["inputs"], parts)
     return document
 
 
+def _resolve(database: Database, body: Mapping[str, Any]) -> Resolved:
+    """The parts resolved; a supply_tolerance given explicitly wins over a supply part's band."""
+    resolved = resolve_parts(database, CHANNEL_INPUTS.roles, body)
+    if "supply_tolerance" in body and not any(name in body for name in _BAND):
+        for name in _BAND:
+            resolved.values.pop(name, None)
+    return resolved
+
+
 def run_review(database: Database, body: Mapping[str, Any]) -> dict[str, Any]:
     """The review of one channel request (values in SI, part references by role name), as JSON-ready data."""
-    resolved = resolve_parts(database, CHANNEL_INPUTS.roles, body)
+    resolved = _resolve(database, body)
     return review_document(complete(CHANNEL_INPUTS, resolved.values), resolved.parts, resolved.warnings)
 
 
@@ -168,7 +189,7 @@ class Distribution:
 def most_failing(database: Database, body: Mapping[str, Any]) -> Distribution:
     """The distribution of the check that fails most often over the request's Monte Carlo run (samples 0: the
     default count); refused when every build passes."""
-    resolved = resolve_parts(database, CHANNEL_INPUTS.roles, body)
+    resolved = _resolve(database, body)
     values = complete(CHANNEL_INPUTS, resolved.values)
     samples = int(values["samples"]) or monte_carlo.DEFAULT_SAMPLES
     seed = int(values["seed"])

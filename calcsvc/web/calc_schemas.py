@@ -22,6 +22,8 @@ def input_field(spec: Input) -> fields.Field:
             validate=validate.Length(max=spec.max_length),
             metadata={"description": spec.description},
         )
+    if spec.flag:
+        return fields.Boolean(load_default=spec.default, metadata={"description": spec.description})
     if spec.choices:
         return fields.String(
             validate=validate.OneOf(spec.choices), metadata={"description": spec.description, "default": spec.default}

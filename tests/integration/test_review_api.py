@@ -14,7 +14,7 @@ from helpers import assert_problem
 
 DEMO = json.loads((Path(__file__).resolve().parents[2] / "examples" / "greenhouse-channel.json").read_text())
 EXPLICIT = {
-    "supply_v": 12, "supply_tolerance": 0.05, "current_max_a": 2,
+    "supply_v": 12, "supply_tolerance": 0.05, "supply_min_v": 11.4, "supply_max_v": 12.6, "current_max_a": 2,
     "drive_high_v": 2.9, "drive_low_v": 0.2, "source_current_max_a": 0.008,
     "hfe_min": 100, "hfe_typ": 200, "vbe_sat_v": 0.85, "vce_sat_v": 0.2, "ic_max_a": 0.2, "power_max_w": 0.625,
     "vf_typ_v": 2.0, "vf_min_v": 1.8, "vf_max_v": 2.4, "if_max_a": 0.03,

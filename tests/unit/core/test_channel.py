@@ -21,6 +21,8 @@ from calcsvc.core.outcome import DomainError
 DEMO: dict[str, Any] = {
     "supply_v": 12.0,
     "supply_tolerance": 0.05,
+    "supply_min_v": math.nan,
+    "supply_max_v": math.nan,
     "current_max_a": 2.0,
     "capacity_ah": math.nan,
     "drive_high_v": 2.9,
@@ -269,6 +271,8 @@ def channel_rows(draw: st.DrawFn, front_stage: bool | None = None) -> dict[str, 
     row: dict[str, Any] = {
         "supply_v": (n_leds * vf_typ + vce) * draw(st.floats(1.1, 3.0)),
         "supply_tolerance": draw(st.floats(0.0, 0.2)),
+        "supply_min_v": math.nan,
+        "supply_max_v": math.nan,
         "current_max_a": draw(st.floats(0.05, 5.0)),
         "capacity_ah": draw(st.one_of(st.just(math.nan), st.floats(0.1, 10.0))),
         "drive_high_v": vbe + draw(st.floats(0.3, 4.0)),
@@ -294,6 +298,9 @@ def channel_rows(draw: st.DrawFn, front_stage: bool | None = None) -> dict[str, 
         "resistor_tolerance": draw(st.one_of(st.just(math.nan), st.floats(0.0, 0.2))),
         "inverting": draw(st.booleans()),
     }
+    if draw(st.booleans()):  # a band of its own, such as a battery's (end of discharge to fresh)
+        row["supply_min_v"] = row["supply_v"] * draw(st.floats(0.6, 1.0))
+        row["supply_max_v"] = row["supply_v"] * draw(st.floats(1.0, 1.2))
     with_front = draw(st.booleans()) if front_stage is None else front_stage
     if with_front:
         row |= {

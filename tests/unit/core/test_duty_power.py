@@ -25,7 +25,7 @@ def make(
     capacity_ah: float | list[float] = NAN,
 ) -> DutyPowerInputs:
     """Supply rows and loads; each load dict has ``peak`` and ``duty`` or ``avg`` and ``rms``, optional
-    ``count`` and ``row``."""
+    ``count``, ``row`` and ``fixed``."""
 
     n = len(np.atleast_1d(supply_v))
 
@@ -45,6 +45,7 @@ def make(
         average_current_a=col("avg", NAN),
         rms_current_a=col("rms", NAN),
         count=col("count", 1.0),
+        fixed=np.array([bool(load.get("fixed", False)) for load in loads], dtype=bool),
     )
 
 
@@ -198,6 +199,33 @@ def test_max_common_duty_cycle_hand_example():
     out = compute(make([{"peak": 0.5, "duty": 0.5}], current_max_a=3.0))
     assert out.results["max_common_duty_cycle"][0] == 1.0
     assert out.cautions == []
+
+
+def _average_at_common_duty(loads: list[dict[str, float]], duty: float) -> float:
+    """Direct summation: the dimmed loads at ``duty``, the always-on and fixed ones at their own duty."""
+    total = 0.0
+    for load in loads:
+        own = load["duty"] == 1.0 or load.get("fixed", False)
+        total += load.get("count", 1) * load["peak"] * (load["duty"] if own else duty)
+    return total
+
+
+def test_common_duty_leaves_always_on_and_fixed_loads_at_their_own_duty():
+    # 1 A supply; LEDs 2 A peak dimmed; a controller drawing 0.5 A always (duty 1): only the LEDs share
+    # the duty, so D = (1 − 0.5) / 2 = 0.25. Checked by direct summation of the average at that duty.
+    loads = [{"peak": 2.0, "duty": 0.3}, {"peak": 0.5, "duty": 1.0}]
+    duty = compute(make(loads, current_max_a=1.0)).results["max_common_duty_cycle"][0]
+    assert duty == pytest.approx(0.25)
+    assert _average_at_common_duty(loads, duty) == pytest.approx(1.0)
+    assert _average_at_common_duty(loads, 0.4) == pytest.approx(1.3)  # the old answer overloads the supply
+    # A load marked fixed keeps its own duty too (a fan pulsing at 50 %, not dimmed with the LEDs).
+    loads = [{"peak": 2.0, "duty": 0.3}, {"peak": 0.4, "duty": 0.5, "fixed": True, "count": 2}]
+    duty = compute(make(loads, current_max_a=1.0)).results["max_common_duty_cycle"][0]
+    assert duty == pytest.approx(0.3)
+    assert _average_at_common_duty(loads, duty) == pytest.approx(1.0)
+    # Fixed loads alone over the rating: no common duty fits.
+    out = compute(make([{"peak": 1.0, "duty": 0.5}, {"peak": 1.5, "duty": 1.0}], current_max_a=1.0))
+    assert out.results["max_common_duty_cycle"][0] == 0.0
 
 
 def test_average_over_rating_caution():

@@ -27,7 +27,10 @@ def corner_values(row: dict[str, Any], r_led: float, rb: float, corner: dict[str
     if math.isnan(tol):
         tol = {"E6": 0.2, "E12": 0.1, "E24": 0.05, "E48": 0.02, "E96": 0.01, "E192": 0.005}[row["e_series"]]
     sign = {q: 1.0 if corner[q] == SETTINGS[q][1] else -1.0 for q in QUANTITIES}
-    vs = row["supply_v"] * (1 + sign["supply"] * row["supply_tolerance"])
+    if math.isnan(row["supply_min_v"]):
+        vs = row["supply_v"] * (1 + sign["supply"] * row["supply_tolerance"])
+    else:  # the band given: its ends are the corners
+        vs = row["supply_max_v"] if corner["supply"] == "high" else row["supply_min_v"]
     vf = row["vf_max_v"] if corner["vf"] == "max" else row["vf_min_v"]
     r = r_led * (1 + sign["led_resistor"] * tol)
     r_b = rb * (1 + sign["base_resistor"] * tol)

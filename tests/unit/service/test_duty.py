@@ -14,7 +14,23 @@ def test_on_time_and_period_give_the_duty_cycle(database: Database) -> None:
     answer = run_duty(database, body)
     assert answer["results"]["loads"][0]["duty_cycle"] == 0.25
     assert answer["results"]["average_current_a"] == pytest.approx(0.025)  # 100 mA x 1/4 (arithmetic)
-    assert answer["inputs"]["loads"][0] == {"name": "", "count": 1, "peak_current_a": 0.1, "duty_cycle": 0.25}
+    assert answer["inputs"]["loads"][0] == {
+        "name": "",
+        "count": 1,
+        "fixed": False,
+        "peak_current_a": 0.1,
+        "duty_cycle": 0.25,
+    }
+
+
+def test_a_load_marked_fixed_keeps_its_duty_in_the_common_duty(database: Database) -> None:
+    # 1 A supply: LEDs 2 A peak dimmed; a controller 0.5 A peak at 50 % marked fixed draws 0.25 A on
+    # average, leaving 0.75 A for the LEDs: D = 0.75 / 2 = 0.375 (direct summation).
+    loads = [{"name": "LEDs", "peak_current_a": 2, "duty_cycle": 0.3},
+             {"name": "controller", "peak_current_a": 0.5, "duty_cycle": 0.5, "fixed": True}]  # fmt: skip
+    answer = run_duty(database, {"supply_v": 12, "current_max_a": 1, "loads": loads})
+    assert answer["results"]["max_common_duty_cycle"] == pytest.approx(0.375)
+    assert answer["inputs"]["loads"][1]["fixed"] is True
 
 
 def test_an_on_time_beyond_the_period_names_the_load(database: Database) -> None:

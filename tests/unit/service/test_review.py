@@ -109,3 +109,24 @@ def test_impossible_channel_is_refused_by_the_core_naming_the_field(seeded: Flas
         review.run_review(seeded.extensions["calcsvc.db"], body)
     assert "supply_v" in {v.field for v in refused.value.violations}
     assert calls == {"validate": 1, "review": 0}
+
+
+def test_a_battery_part_is_reviewed_over_its_discharge_band(seeded: Flask) -> None:
+    # The demo channel on the six-cell alkaline pack (9.6 V fresh, 6.0 V at end of discharge, 2 Ah): the three
+    # red LEDs keep their 10 % headroom only down to (3 × 2.4 + 0.2) V / 0.9 = 8.22 V (KVL; common practice),
+    # so the channel stops meeting its checks well before the pack is empty.
+    database = seeded.extensions["calcsvc.db"]
+    body = {**demo_si(), "supply": "supply-battery-9v-6aa", "samples": 0}
+    document = review.run_review(database, body)
+    headroom = next(c for c in document["checks"] if c["name"] == "headroom")
+    assert headroom["worst_case"]["limit"] == pytest.approx(0.6)  # 10 % of 6.0 V, not of 7.65 V (9 V − 15 %)
+    assert "headroom" in document["failing"]
+    supply = document["stages"]["supply"]
+    assert supply["stop_v"] == pytest.approx(7.4 / 0.9)
+    fraction = (9.6 - 7.4 / 0.9) / (9.6 - 6.0)  # the linear discharge model's share of the capacity
+    assert supply["usable_runtime_h"] == pytest.approx(fraction * supply["runtime_h"])
+    assert any("usable_runtime_h" in note for note in document["warnings"])
+    # A tolerance given explicitly wins over the part's band: 9 V ± 10 %.
+    document = review.run_review(database, {**body, "supply_tolerance": 0.1})
+    headroom = next(c for c in document["checks"] if c["name"] == "headroom")
+    assert headroom["worst_case"]["limit"] == pytest.approx(0.1 * 8.1)
