@@ -44,6 +44,11 @@ def channel_inputs(values: Mapping[str, Any]) -> channel.ChannelInputs:
     return channel.ChannelInputs(**{name: columns[name] for name in channel.ChannelInputs.__dataclass_fields__})
 
 
+def vf_options(values: Mapping[str, Any]) -> dict[str, Any]:
+    """The Monte Carlo's forward-voltage model from completed values."""
+    return {"vf_model": str(values["vf_model"]), "vf_bin_width_v": float(values["vf_bin_width_v"])}
+
+
 @dataclass(frozen=True)
 class Reviewed:
     """One channel through the core: validated once, then each stage evaluated once at nominal values and the
@@ -58,7 +63,7 @@ def _nominal(values: Mapping[str, Any], samples: int, seed: int) -> tuple[channe
     """The channel validated once (with the run's limits) and reviewed at nominal values; raises DomainError
     naming the fields when it (or the run) is physically impossible."""
     inputs = channel_inputs(values)
-    raise_violations(monte_carlo.validate_monte_carlo(inputs, max(samples, 1), seed))
+    raise_violations(monte_carlo.validate_monte_carlo(inputs, max(samples, 1), seed, **vf_options(values)))
     return inputs, channel.review(inputs, validated=True)
 
 
@@ -66,7 +71,7 @@ def review_channel(values: Mapping[str, Any], samples: int, seed: int) -> Review
     """Raises DomainError naming the fields when the channel (or the run) is physically impossible."""
     inputs, nominal = _nominal(values, samples, seed)
     worst = tolerance.worst_case(inputs, nominal)
-    found = monte_carlo.monte_carlo(inputs, samples, seed, nominal) if samples else None
+    found = monte_carlo.monte_carlo(inputs, samples, seed, nominal, **vf_options(values)) if samples else None
     return Reviewed(inputs, worst, found)
 
 
@@ -108,6 +113,8 @@ def yield_entry(found: monte_carlo.Yield) -> dict[str, Any]:
         "ci_high": found.ci_high,
         "samples": found.samples,
         "seed": found.seed,
+        "vf_model": found.vf_model,
+        "vf_bin_width_v": found.vf_bin_width_v,
         "most_failing_check": found.most_failing_check,
         "failures": found.failures,
     }
@@ -173,7 +180,7 @@ def most_failing(database: Database, body: Mapping[str, Any]) -> Distribution:
     samples = int(values["samples"]) or monte_carlo.DEFAULT_SAMPLES
     seed = int(values["seed"])
     inputs, nominal = _nominal(values, samples, seed)
-    found = monte_carlo.monte_carlo(inputs, samples, seed, nominal)
+    found = monte_carlo.monte_carlo(inputs, samples, seed, nominal, **vf_options(values))
     name, drawn, limits = found.most_failing_check, found.most_failing_values, found.most_failing_limits
     if name is None or drawn is None or limits is None:
         message = f"every one of the {samples} simulated builds passes every check: there is no failing check to plot"

@@ -109,3 +109,13 @@ def test_impossible_channel_is_refused_by_the_core_naming_the_field(seeded: Flas
         review.run_review(seeded.extensions["calcsvc.db"], body)
     assert "supply_v" in {v.field for v in refused.value.violations}
     assert calls == {"validate": 1, "review": 0}
+
+
+def test_yield_names_its_forward_voltage_model(seeded: Flask) -> None:
+    """LEDs of a build come from one reel unless the request says otherwise; the answer says which model ran."""
+    db = seeded.extensions["calcsvc.db"]
+    body = {**demo_si(), "samples": 500}
+    found = review.run_review(db, REVIEW_REQUEST.load(body))["yield"]
+    assert (found["vf_model"], found["vf_bin_width_v"]) == ("one_reel", monte_carlo.DEFAULT_VF_BIN_WIDTH_V)
+    mixed = review.run_review(db, REVIEW_REQUEST.load({**body, "vf_model": "independent"}))["yield"]
+    assert (mixed["vf_model"], mixed["vf_bin_width_v"]) == ("independent", None)
