@@ -44,6 +44,12 @@ def channel_inputs(values: Mapping[str, Any]) -> channel.ChannelInputs:
     return channel.ChannelInputs(**{name: columns[name] for name in channel.ChannelInputs.__dataclass_fields__})
 
 
+INDEPENDENT_VF_WARNING = (
+    "yield drawn with every LED's forward voltage independent: LEDs of one reel share a forward-voltage bin, so "
+    "for strings built from one reel this understates the spread between builds and overstates the yield"
+)
+
+
 def vf_options(values: Mapping[str, Any]) -> dict[str, Any]:
     """The Monte Carlo's forward-voltage model from completed values."""
     return {"vf_model": str(values["vf_model"]), "vf_bin_width_v": float(values["vf_bin_width_v"])}
@@ -135,6 +141,8 @@ def review_document(values: dict[str, Any], parts: list[dict[str, Any]], warning
     if not bool(nominal.has_front_stage[0]):
         stages["front_stage"] = None
     stages["supply"]["max_duty_cycle"] = to_json_value(float(nominal.max_duty_cycle[0]))
+    independent = done.found is not None and done.found.vf_model == "independent"
+    optimistic = [INDEPENDENT_VF_WARNING] if independent else []
     document: dict[str, Any] = {
         "review": channel.NAME,
         "inputs": {k: to_json_value(v) for k, v in values.items()},
@@ -146,7 +154,7 @@ def review_document(values: dict[str, Any], parts: list[dict[str, Any]], warning
         "stages": stages,
         "checks": checks,
         "yield": None if done.found is None else yield_entry(done.found),
-        "warnings": warnings + row_notices(nominal.warnings, 0),
+        "warnings": warnings + row_notices(nominal.warnings, 0) + optimistic,
         "cautions": row_notices(nominal.cautions, 0),
     }
     document["fingerprint"] = fingerprint(channel.NAME, channel.VERSION, document["inputs"], parts)

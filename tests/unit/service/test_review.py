@@ -117,5 +117,7 @@ def test_yield_names_its_forward_voltage_model(seeded: Flask) -> None:
     body = {**demo_si(), "samples": 500}
     found = review.run_review(db, REVIEW_REQUEST.load(body))["yield"]
     assert (found["vf_model"], found["vf_bin_width_v"]) == ("one_reel", monte_carlo.DEFAULT_VF_BIN_WIDTH_V)
-    mixed = review.run_review(db, REVIEW_REQUEST.load({**body, "vf_model": "independent"}))["yield"]
-    assert (mixed["vf_model"], mixed["vf_bin_width_v"]) == ("independent", None)
+    assert review.INDEPENDENT_VF_WARNING not in review.run_review(db, REVIEW_REQUEST.load(body))["warnings"]
+    mixed = review.run_review(db, REVIEW_REQUEST.load({**body, "vf_model": "independent"}))
+    assert (mixed["yield"]["vf_model"], mixed["yield"]["vf_bin_width_v"]) == ("independent", None)
+    assert review.INDEPENDENT_VF_WARNING in mixed["warnings"]  # an optimistic yield says so
