@@ -68,7 +68,7 @@ MONTE_CARLO_SAMPLES = (1_000_000, 100_000)
 # 12 V adapter, switched by a small-signal NPN from a 3.3 V microcontroller pin; six such channels at 50 % duty.
 DEMO = demo_si()
 ARRANGEMENT = {name: DEMO[name] for name in ("leds_in_series", "strings", "current_a")}
-LED = {"vf_typ_v": 2.0, "vf_min_v": 1.8, "vf_max_v": 2.4, "if_max_a": 0.03}  # the seed red LED's
+LED = {"vf_typ_v": 2.1, "vf_min_v": 1.9, "vf_max_v": 2.5, "if_max_a": 0.03}  # the seed red LED's
 SINGLE_BODY = {"supply_v": 12.0, "supply_tolerance": 0.05, **LED, **ARRANGEMENT, "switch_drop_v": 0.2}
 PARTS_BODY = {role: DEMO[role] for role in ("supply", "led", "transistor")} | ARRANGEMENT
 
@@ -185,9 +185,9 @@ def designs(n: int, seed: int) -> dict[str, np.ndarray]:
     return {
         "supply_v": np.round(rng.uniform(7.5, 24.0, n), 3),
         "supply_tolerance": np.full(n, 0.05),
-        "vf_typ_v": np.where(green, 3.2, LED["vf_typ_v"]),
-        "vf_min_v": np.where(green, 2.8, LED["vf_min_v"]),
-        "vf_max_v": np.where(green, 3.6, LED["vf_max_v"]),
+        "vf_typ_v": np.where(green, 3.0, LED["vf_typ_v"]),
+        "vf_min_v": np.where(green, 2.7, LED["vf_min_v"]),
+        "vf_max_v": np.where(green, 3.5, LED["vf_max_v"]),
         "if_max_a": np.full(n, LED["if_max_a"]),
         "leds_in_series": np.where(green, 2.0, 3.0),
         "strings": rng.integers(1, 4, n).astype(np.float64),
@@ -336,7 +336,7 @@ def channel() -> ChannelInputs:
         capacity_ah=nan,
         drive_high_v=one(2.9), drive_low_v=one(0.4), source_current_max_a=one(0.008),
         hfe_min=one(100.0), hfe_typ=one(200.0), vbe_sat_v=one(0.85), vce_sat_v=one(0.2), ic_max_a=one(0.2),
-        power_max_w=one(0.625), vf_typ_v=one(2.0), vf_min_v=one(1.8), vf_max_v=one(2.4), if_max_a=one(0.03),
+        power_max_w=one(0.625), vf_typ_v=one(2.1), vf_min_v=one(1.9), vf_max_v=one(2.5), if_max_a=one(0.03),
         leds_in_series=one(3.0), strings=one(2.0), current_a=one(0.027), duty_cycle=one(0.5), channels=one(6.0),
         e_series=np.array(["E24"]), forced_beta=one(10.0), resistor_tolerance=nan, inverting=np.array([False]),
         gain=nan, gbw_hz=nan, open_loop_gain=nan, slew_rate_v_per_s=nan, output_headroom_v=nan, signal_hz=nan,

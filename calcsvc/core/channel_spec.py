@@ -86,6 +86,22 @@ CHANNEL_INPUTS = InputSet(
             integer=True,
         ),
         Input("seed", "dimensionless", "Monte Carlo seed", 0, minimum=0, maximum=2**32 - 1, integer=True),
+        Input(
+            "vf_model",
+            "",
+            "Monte Carlo LED forward voltages: one_reel (every LED of a build from one forward-voltage bin) "
+            "or independent (LEDs mixed from many reels)",
+            monte_carlo.DEFAULT_VF_MODEL,
+            choices=monte_carlo.VF_MODELS,
+        ),
+        Input(
+            "vf_bin_width_v",
+            "V",
+            "width of a reel's forward-voltage bin, for vf_model one_reel (a typical bin step, from memory)",
+            monte_carlo.DEFAULT_VF_BIN_WIDTH_V,
+            minimum=0,
+            maximum=monte_carlo.MAX_VF_BIN_WIDTH_V,
+        ),
     ),
     roles=(
         Role(

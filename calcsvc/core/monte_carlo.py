@@ -4,14 +4,25 @@ The resistors are chosen once, at nominal values, by ``channel.review``; every s
 held fixed, exactly as the worst-case corners are (calcsvc.core.tolerance, whose docstring states the model).
 
 ``np.random.default_rng(seed)`` draws, per sample: the supply uniform within its band (a battery: anywhere
-between end of discharge and fresh, as over its life); every LED's
-forward voltage independently uniform in [vf_min_v, vf_max_v] (each string's drop is the sum of its own
-LEDs' draws — more realistic than one draw per string, whose spread would be √N times too wide); each
+between end of discharge and fresh, as over its life); the LEDs' forward voltages by ``vf_model`` (below; each
+string's drop is the sum of its own LEDs' draws); each
 string's resistor and the base resistor independently uniform within their tolerance; the gain
 log-uniform between hfe_min and hfe_max (gain spreads are multiplicative). The other channels on the
 supply are taken as copies of the sampled one, which overstates the spread of the total supply current
 (conservative). Each sample stays inside the corners' box, so a design that passes the worst case
 yields exactly 1. The passing fraction carries a Wilson score interval (Wilson 1927).
+
+Forward voltage (``vf_model``)
+    ``one_reel`` (the default): the channel is built from one reel, and the LEDs of a reel are sorted into
+    one forward-voltage bin (common practice of LED makers). Per sample the reel's bin, ``vf_bin_width_v``
+    wide, lies uniformly within [vf_min_v, vf_max_v] and each LED is uniform within that bin, so every
+    string of a build sits near the same end of the range and builds differ by up to the whole range times
+    the LEDs in series. The default bin width, 0.1 V, is a typical forward-voltage bin step (from memory);
+    a narrower bin is the more pessimistic assumption. A bin at least as wide as the range is no binning.
+    ``independent``: every LED uniform in [vf_min_v, vf_max_v] on its own, as LEDs mixed from many reels;
+    the spread of a string's drop is then only √N times one LED's, so for strings from one reel this model
+    understates the spread between builds and overstates the yield.
+    Either way every draw stays within [vf_min_v, vf_max_v].
 Samples are drawn in chunks of about a million LED draws, so the same seed, inputs and sample count
 always give the same result.
 """
@@ -33,6 +44,10 @@ DEFAULT_SAMPLES = 10_000
 MAX_SAMPLES = 1_000_000
 MAX_LED_DRAWS = 100_000_000  # samples × strings × leds_in_series: bounds the run time (≈2 s measured at the cap)
 _CHUNK_DRAWS = 1 << 20  # LED draws per chunk: bounds memory
+VF_MODELS = ("one_reel", "independent")
+DEFAULT_VF_MODEL = "one_reel"
+DEFAULT_VF_BIN_WIDTH_V = 0.1  # a typical forward-voltage bin step (from memory)
+MAX_VF_BIN_WIDTH_V = 10.0
 
 
 def wilson_interval(successes: npt.ArrayLike, trials: npt.ArrayLike, z: float = Z_95) -> tuple[FloatArray, FloatArray]:
@@ -56,6 +71,8 @@ class Yield:
 
     samples: int
     seed: int
+    vf_model: str
+    vf_bin_width_v: float | None  # the bin width used; None for independent draws
     passed: int
     fraction: float
     ci_low: float
@@ -70,17 +87,36 @@ def _whole(x: object) -> bool:
     return isinstance(x, int | np.integer) and not isinstance(x, bool)
 
 
-def validate_monte_carlo(inputs: ChannelInputs, samples: int, seed: int) -> list[Violation]:
+def validate_monte_carlo(
+    inputs: ChannelInputs,
+    samples: int,
+    seed: int,
+    vf_model: str = DEFAULT_VF_MODEL,
+    vf_bin_width_v: float = DEFAULT_VF_BIN_WIDTH_V,
+) -> list[Violation]:
     """``channel.validate`` plus the run's own limits (``run_limits``); never raises."""
-    return run_limits(inputs, samples, seed, validate(inputs))
+    return run_limits(inputs, samples, seed, validate(inputs), vf_model, vf_bin_width_v)
 
 
-def run_limits(inputs: ChannelInputs, samples: int, seed: int, found: list[Violation] | None = None) -> list[Violation]:
-    """The run's own limits (fields ``samples`` and ``seed``, checked to be whole numbers whatever their type)
-    added to ``found``, the channel's violations (the LED-draw bound applies only to a valid channel); never
-    raises."""
+def run_limits(
+    inputs: ChannelInputs,
+    samples: int,
+    seed: int,
+    found: list[Violation] | None = None,
+    vf_model: str = DEFAULT_VF_MODEL,
+    vf_bin_width_v: float = DEFAULT_VF_BIN_WIDTH_V,
+) -> list[Violation]:
+    """The run's own limits (fields ``samples`` and ``seed``, checked to be whole numbers whatever their type;
+    ``vf_model`` and ``vf_bin_width_v``) added to ``found``, the channel's violations (the LED-draw bound
+    applies only to a valid channel); never raises."""
     v = [] if found is None else found
     every = np.ones(row_count(inputs), dtype=bool)
+    if vf_model not in VF_MODELS:
+        require(v, every, "vf_model", f"vf_model ({vf_model!r}) must be one of {', '.join(VF_MODELS)}")
+    width_ok = isinstance(vf_bin_width_v, int | float) and not isinstance(vf_bin_width_v, bool)
+    if not width_ok or not 0.0 <= vf_bin_width_v <= MAX_VF_BIN_WIDTH_V:
+        message = f"vf_bin_width_v ({vf_bin_width_v!r}) must be from 0 to {MAX_VF_BIN_WIDTH_V:g} V"
+        require(v, every, "vf_bin_width_v", message)
     if not _whole(samples) or not 1 <= samples <= MAX_SAMPLES:
         require(v, every, "samples", f"samples ({samples!r}) must be a whole number from 1 to {MAX_SAMPLES:,}")
     elif not v:
@@ -101,7 +137,31 @@ def run_limits(inputs: ChannelInputs, samples: int, seed: int, found: list[Viola
     return v
 
 
-def _draw(inputs: ChannelInputs, nominal: ChannelReview, rng: np.random.Generator, count: int) -> Point:
+def forward_voltages(
+    rng: np.random.Generator,
+    vf_min_v: float,
+    vf_max_v: float,
+    shape: tuple[int, int, int],
+    vf_model: str = DEFAULT_VF_MODEL,
+    vf_bin_width_v: float = DEFAULT_VF_BIN_WIDTH_V,
+) -> FloatArray:
+    """Every LED's forward voltage, shape ``(samples, strings, leds_in_series)``, by ``vf_model`` (module
+    docstring); one reel per sample."""
+    if vf_model == "independent":
+        return rng.uniform(vf_min_v, vf_max_v, shape)
+    width = min(vf_bin_width_v, vf_max_v - vf_min_v)
+    bin_low = rng.uniform(vf_min_v, vf_max_v - width, (shape[0], 1, 1))
+    return bin_low + width * rng.uniform(0.0, 1.0, shape)
+
+
+def _draw(
+    inputs: ChannelInputs,
+    nominal: ChannelReview,
+    rng: np.random.Generator,
+    count: int,
+    vf_model: str,
+    vf_bin_width_v: float,
+) -> Point:
     """``count`` samples of the single row's toleranced values, drawn in a fixed order."""
     i = inputs
     strings, leds = int(i.strings[0]), int(i.leds_in_series[0])
@@ -112,7 +172,8 @@ def _draw(inputs: ChannelInputs, nominal: ChannelReview, rng: np.random.Generato
 
     low, high = supply_band(i)
     supply = rng.uniform(low[0], high[0], (1, count))
-    vf = rng.uniform(i.vf_min_v[0], i.vf_max_v[0], (1, count, strings, leds)).sum(axis=-1)
+    drawn = forward_voltages(rng, i.vf_min_v[0], i.vf_max_v[0], (count, strings, leds), vf_model, vf_bin_width_v)
+    vf = drawn.sum(axis=-1)[None]
     led_r = spread(nominal.led_string.results["resistor_ohm"][0], tol, (1, count, strings))
     base_r = spread(nominal.switch.results["rb_ohm"][0], tol, (1, count))
     hfe = np.exp(rng.uniform(np.log(i.hfe_min[0]), np.log(hfe_max(i)[0]), (1, count)))
@@ -126,7 +187,12 @@ def _every_sample(check: Check, count: int) -> tuple[np.ndarray, np.ndarray, np.
 
 
 def monte_carlo(
-    inputs: ChannelInputs, samples: int = DEFAULT_SAMPLES, seed: int = 0, nominal: ChannelReview | None = None
+    inputs: ChannelInputs,
+    samples: int = DEFAULT_SAMPLES,
+    seed: int = 0,
+    nominal: ChannelReview | None = None,
+    vf_model: str = DEFAULT_VF_MODEL,
+    vf_bin_width_v: float = DEFAULT_VF_BIN_WIDTH_V,
 ) -> Yield:
     """Yield of one row's design over ``samples`` random builds (model: module docstring).
 
@@ -137,17 +203,17 @@ def monte_carlo(
     if row_count(inputs) != 1:
         raise ValueError("monte_carlo reviews exactly one row")
     if nominal is None:
-        raise_violations(validate_monte_carlo(inputs, samples, seed))
+        raise_violations(validate_monte_carlo(inputs, samples, seed, vf_model, vf_bin_width_v))
         nominal = review(inputs, validated=True)
     else:
-        raise_violations(run_limits(inputs, samples, seed))
+        raise_violations(run_limits(inputs, samples, seed, None, vf_model, vf_bin_width_v))
     rng = np.random.default_rng(seed)
     chunk = max(1, _CHUNK_DRAWS // int(inputs.strings[0] * inputs.leds_in_series[0]))
 
     parts: list[list[Check]] = []
     for start in range(0, samples, chunk):
         count = min(chunk, samples - start)
-        checks = evaluate_at(inputs, nominal, _draw(inputs, nominal, rng, count))
+        checks = evaluate_at(inputs, nominal, _draw(inputs, nominal, rng, count, vf_model, vf_bin_width_v))
         parts.append([Check(c.name, *_every_sample(c, count), c.sense, c.detail) for c in checks])
 
     names = [c.name for c in nominal.checks]
@@ -166,6 +232,8 @@ def monte_carlo(
     return Yield(
         samples=samples,
         seed=seed,
+        vf_model=vf_model,
+        vf_bin_width_v=float(vf_bin_width_v) if vf_model == "one_reel" else None,
         passed=passed,
         fraction=passed / samples,
         ci_low=float(low),

@@ -22,6 +22,8 @@ class Param:
     choices: tuple[str, ...] = ()
     text: bool = False
     integer: bool = False
+    # Why no calculation uses it ("": some calculation's part role reads it); shown with the kind's parameters.
+    informational: str = ""
 
     @property
     def numeric(self) -> bool:
@@ -33,10 +35,17 @@ KINDS: dict[str, tuple[Param, ...]] = {
         Param("gbw_hz", "Hz", "gain-bandwidth product"),
         Param("slew_rate_v_per_s", "V/s", "output slew rate"),
         Param("open_loop_gain", "dimensionless", "DC open-loop gain, V/V"),
-        Param("supply_min_v", "V", "lowest total supply span"),
-        Param("supply_max_v", "V", "highest total supply span"),
+        Param("supply_min_v", "V", "lowest total supply span", informational="no check of the supply span yet"),
+        Param("supply_max_v", "V", "highest total supply span", informational="no check of the supply span yet"),
         Param("output_headroom_v", "V", "how close the output swings to each rail", positive=False),
-        Param("input_offset_v", "V", "input offset voltage (magnitude)", optional=True, positive=False),
+        Param(
+            "input_offset_v",
+            "V",
+            "input offset voltage (magnitude)",
+            optional=True,
+            positive=False,
+            informational="no check of the output offset yet",
+        ),
     ),
     "bjt": (
         Param("polarity", "", "npn or pnp", choices=("npn", "pnp")),
@@ -45,15 +54,26 @@ KINDS: dict[str, tuple[Param, ...]] = {
         Param("vbe_sat_v", "V", "base-emitter voltage in saturation"),
         Param("vce_sat_v", "V", "collector-emitter voltage in saturation", positive=False),
         Param("ic_max_a", "A", "continuous collector current rating"),
-        Param("vceo_max_v", "V", "collector-emitter breakdown with open base"),
+        Param(
+            "vceo_max_v",
+            "V",
+            "collector-emitter breakdown with open base",
+            informational="no check of the off-state collector voltage yet",
+        ),
         Param("power_max_w", "W", "total dissipation rating at 25 °C ambient"),
     ),
     "led": (
-        Param("color", "", "emitted colour, free text", text=True),
+        Param("color", "", "emitted colour, free text", text=True, informational="names the part for people"),
         Param("vf_typ_v", "V", "typical forward voltage at the test current"),
         Param("vf_min_v", "V", "lowest forward voltage at the test current"),
         Param("vf_max_v", "V", "highest forward voltage at the test current"),
-        Param("if_test_a", "A", "current at which the forward voltages are specified"),
+        Param(
+            "if_test_a",
+            "A",
+            "current at which the forward voltages are specified",
+            informational="the datasheet's test condition: the forward voltages are used as given, so enter them "
+            "for the design current when it differs much from this one",
+        ),
         Param("if_max_a", "A", "continuous forward current rating"),
     ),
     "supply": (

@@ -17,7 +17,10 @@ MAX_REVISION = 2**31 - 1  # the store keeps revisions in 32-bit integer columns;
 # PostgreSQL cannot store a NUL character in a text column (SQLite can): refuse it in the request.
 NO_NUL = validate.ContainsNoneOf("\x00", error="must not contain a NUL character")
 _KIND_DOC = "; ".join(
-    f"{kind}: " + ", ".join(p.name + (" (optional)" if p.optional else "") for p in params)
+    f"{kind}: "
+    + ", ".join(
+        p.name + (" (optional)" if p.optional else "") + (" (informational)" if p.informational else "") for p in params
+    )
     for kind, params in KINDS.items()
 )
 

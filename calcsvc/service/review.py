@@ -46,6 +46,17 @@ def channel_inputs(values: Mapping[str, Any]) -> channel.ChannelInputs:
     return channel.ChannelInputs(**{name: columns[name] for name in channel.ChannelInputs.__dataclass_fields__})
 
 
+INDEPENDENT_VF_WARNING = (
+    "yield drawn with every LED's forward voltage independent: LEDs of one reel share a forward-voltage bin, so "
+    "for strings built from one reel this understates the spread between builds and overstates the yield"
+)
+
+
+def vf_options(values: Mapping[str, Any]) -> dict[str, Any]:
+    """The Monte Carlo's forward-voltage model from completed values."""
+    return {"vf_model": str(values["vf_model"]), "vf_bin_width_v": float(values["vf_bin_width_v"])}
+
+
 @dataclass(frozen=True)
 class Reviewed:
     """One channel through the core: validated once, then each stage evaluated once at nominal values and the
@@ -60,7 +71,7 @@ def _nominal(values: Mapping[str, Any], samples: int, seed: int) -> tuple[channe
     """The channel validated once (with the run's limits) and reviewed at nominal values; raises DomainError
     naming the fields when it (or the run) is physically impossible."""
     inputs = channel_inputs(values)
-    raise_violations(monte_carlo.validate_monte_carlo(inputs, max(samples, 1), seed))
+    raise_violations(monte_carlo.validate_monte_carlo(inputs, max(samples, 1), seed, **vf_options(values)))
     return inputs, channel.review(inputs, validated=True)
 
 
@@ -68,7 +79,7 @@ def review_channel(values: Mapping[str, Any], samples: int, seed: int) -> Review
     """Raises DomainError naming the fields when the channel (or the run) is physically impossible."""
     inputs, nominal = _nominal(values, samples, seed)
     worst = tolerance.worst_case(inputs, nominal)
-    found = monte_carlo.monte_carlo(inputs, samples, seed, nominal) if samples else None
+    found = monte_carlo.monte_carlo(inputs, samples, seed, nominal, **vf_options(values)) if samples else None
     return Reviewed(inputs, worst, found)
 
 
@@ -110,6 +121,8 @@ def yield_entry(found: monte_carlo.Yield) -> dict[str, Any]:
         "ci_high": found.ci_high,
         "samples": found.samples,
         "seed": found.seed,
+        "vf_model": found.vf_model,
+        "vf_bin_width_v": found.vf_bin_width_v,
         "most_failing_check": found.most_failing_check,
         "failures": found.failures,
     }
@@ -140,6 +153,8 @@ def review_document(values: dict[str, Any], parts: list[dict[str, Any]], warning
             "fails its checks; it assumes the voltage falls linearly with delivered charge from fresh to end of "
             "discharge (a simplification), beside runtime_h from the capacity alone"
         )
+    independent = done.found is not None and done.found.vf_model == "independent"
+    optimistic = [INDEPENDENT_VF_WARNING] if independent else []
     document: dict[str, Any] = {
         "review": channel.NAME,
         "inputs": {k: to_json_value(v) for k, v in values.items()},
@@ -151,7 +166,7 @@ def review_document(values: dict[str, Any], parts: list[dict[str, Any]], warning
         "stages": stages,
         "checks": checks,
         "yield": None if done.found is None else yield_entry(done.found),
-        "warnings": warnings + notes,
+        "warnings": warnings + notes + optimistic,
         "cautions": row_notices(nominal.cautions, 0),
     }
     document["fingerprint"] = fingerprint(channel.NAME, channel.VERSION, document["inputs"], parts)
@@ -194,7 +209,7 @@ def most_failing(database: Database, body: Mapping[str, Any]) -> Distribution:
     samples = int(values["samples"]) or monte_carlo.DEFAULT_SAMPLES
     seed = int(values["seed"])
     inputs, nominal = _nominal(values, samples, seed)
-    found = monte_carlo.monte_carlo(inputs, samples, seed, nominal)
+    found = monte_carlo.monte_carlo(inputs, samples, seed, nominal, **vf_options(values))
     name, drawn, limits = found.most_failing_check, found.most_failing_values, found.most_failing_limits
     if name is None or drawn is None or limits is None:
         message = f"every one of the {samples} simulated builds passes every check: there is no failing check to plot"

@@ -68,9 +68,13 @@ def _yield_line(review: dict[str, Any]) -> str:
     if not found:
         return "Yield not computed (samples 0)."
     most = f"; most failing check: {found['most_failing_check']}" if found["most_failing_check"] else ""
+    leds = "LEDs drawn independently"
+    if found["vf_model"] == "one_reel":
+        leds = f"LEDs of a build from one reel, {number(found['vf_bin_width_v'])} V forward-voltage bin"
     return (
         f"Yield {found['fraction'] * 100:.4g} % of {found['samples']} simulated builds "
-        f"(95 % interval {found['ci_low'] * 100:.4g}–{found['ci_high'] * 100:.4g} %, seed {found['seed']}){most}."
+        f"(95 % interval {found['ci_low'] * 100:.4g}–{found['ci_high'] * 100:.4g} %, seed {found['seed']}; "
+        f"{leds}){most}."
     )
 
 

@@ -30,6 +30,12 @@ class YieldSchema(Schema):
     ci_high = fields.Float(required=True, metadata={"description": "95 % Wilson interval, high end"})
     samples = fields.Integer(required=True)
     seed = fields.Integer(required=True)
+    vf_model = fields.String(
+        required=True, metadata={"description": "how the LED forward voltages were drawn: one_reel or independent"}
+    )
+    vf_bin_width_v = fields.Float(
+        allow_none=True, required=True, metadata={"description": "forward-voltage bin width (null: independent)"}
+    )
     most_failing_check = fields.String(allow_none=True, required=True)
     failures = fields.Dict(keys=fields.String(), values=fields.Integer(), required=True)
 

@@ -72,7 +72,7 @@ def test_export_writes_si_columns_for_one_kind(seeded: Flask, live_url: str, tmp
     lines = path.read_text().splitlines()
     assert lines[0] + "\n" == LED_HEADER
     red = next(line for line in lines if line.startswith("led-red-5mm,"))
-    assert red.endswith(",red,2.0,1.8,2.4,0.02,0.03")
+    assert red.endswith(",red,2.1,1.9,2.5,0.02,0.03")
     assert len(lines) == 1 + 6
 
 
@@ -89,7 +89,7 @@ def test_export_writes_formula_text_inert_and_reads_it_back_unchanged(
     rows = {row[0]: row for row in csv.reader(io.StringIO(path.read_text()))}
     for part_id, description in descriptions.items():
         assert rows[part_id][2] == "'" + description
-    assert rows["led-red-5mm"][4:] == ["2.0", "1.8", "2.4", "0.02", "0.03"]  # numbers stay numbers
+    assert rows["led-red-5mm"][4:] == ["2.1", "1.9", "2.5", "0.02", "0.03"]  # numbers stay numbers
     capsys.readouterr()
     assert main(["parts", "import", str(path), "--url", live_url, "--token", tokens["edna"]]) == 0
     assert "created 0, updated 0, unchanged 9" in capsys.readouterr().out
@@ -155,7 +155,7 @@ def test_import_revises_changed_parts_only_and_refuses_conflicts(
     path = tmp_path / "leds.csv"
     assert main(["parts", "export", str(path), "--kind", "led", "--url", live_url]) == 0
     exported = path.read_text()
-    path.write_text(exported.replace("red,2.0,1.8,2.4,0.02,0.03", "red,2.0,1.8,2.4,20 mA,25 mA"))
+    path.write_text(exported.replace("red,2.1,1.9,2.5,0.02,0.03", "red,2.1,1.9,2.5,20 mA,25 mA"))
     monkeypatch.setenv("CALCSVC_URL", live_url)
     monkeypatch.setenv("CALCSVC_TOKEN", tokens["edna"])
     captured_stderr, terminal = sys.stderr, Terminal()
@@ -248,16 +248,17 @@ def test_parts_list_and_show(seeded: Flask, live_url: str, tokens: dict[str, str
 def test_calc_prints_a_table_and_exits_0_when_every_check_passes(seeded: Flask, live_url: str, capsys: Any) -> None:
     assert main(["calc", "led-string", *LED_RED, "--current_a", "20 mA", "--url", live_url]) == 0
     out = capsys.readouterr().out
-    assert "resistor_ohm" in out and " 300" in out  # (12 V - 3 x 2.0 V) / 20 mA (arithmetic)
+    assert "resistor_ohm" in out and " 300" in out  # (12 V - 3 x 2.1 V) / 20 mA = 285 ohm, up to E24 300 ohm
     assert re.search(r"supply +supply-adapter-12v-2a +1 +approved", out)
     assert "FAIL" not in out and re.search(r"OK +led_current_rating", out)
 
 
 def test_calc_exits_1_and_says_why_when_a_check_fails(seeded: Flask, live_url: str, capsys: Any) -> None:
-    # 29 mA nominal gives about 34 mA worst case (+5 % supply, lowest Vf), above the 30 mA rating.
+    # 29 mA: (12 - 3 x 2.1) V / 29 mA = 197 ohm, up to the E24 200 ohm; worst case (+5 % supply, lowest Vf,
+    # resistor -5 %) (12.6 - 5.7) V / 190 ohm = 36.3 mA, 21.1 % above the 30 mA rating.
     assert main(["calc", "led-string", *LED_RED, "--current_a", "29 mA", "--url", live_url]) == 1
     out = capsys.readouterr().out
-    assert re.search(r"FAIL +led_current_rating .* -14.8 %", out)
+    assert re.search(r"FAIL +led_current_rating .* -21.1 %", out)
     assert "CAUTIONS:" in out and "overheat" in out
     assert main(["calc", "led-string", *LED_RED, "--current_a=29 mA", "--json", "--url", live_url]) == 1
     envelope = json.loads(capsys.readouterr().out)

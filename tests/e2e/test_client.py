@@ -52,7 +52,7 @@ def sleeps(monkeypatch: pytest.MonkeyPatch) -> list[float]:
 @pytest.mark.parametrize(
     ("method", "inputs", "result", "expected"),
     [
-        # 12 V - 3 x 2.0 V = 6 V across the resistor; 6 V / 20 mA = 300 ohm, an E24 value (arithmetic).
+        # 12 V - 3 x 2.1 V = 5.7 V across the resistor; 5.7 V / 20 mA = 285 ohm, up to the E24 300 ohm (arithmetic).
         (
             "led_string",
             {"supply": "supply-adapter-12v-2a", "led": "led-red-5mm", "leds_in_series": 3, "current_a": "20 mA"},

@@ -25,11 +25,11 @@ def test_candidate_channels_through_the_batch_endpoint(live_url: str, seeded: An
     assert _channel_batch().main([str(EXAMPLES / "greenhouse-candidates.csv"), str(results), "--url", live_url]) == 0
     rows = {row["design"]: row for row in csv.DictReader(results.open())}
     assert len(rows) == 6
-    # (12 - 3 x 2.0 - 0.2) V / 20 mA = 290 ohm; the next E24 value up is 300 ohm (IEC 60063).
+    # (12 - 3 x 2.1 - 0.2) V / 20 mA = 275 ohm; the next E24 value up is 300 ohm (IEC 60063).
     assert float(rows["red-3x2-20mA"]["resistor_ohm"]) == 300.0 and rows["red-3x2-20mA"]["ok"] == "True"
-    # Four red LEDs leave (12 - 8 - 0.2) V: 3.8 V is above the 1.2 V headroom limit, so this one sizes too.
+    # Four red LEDs leave (12 - 8.4 - 0.2) V: 3.4 V is above the 1.2 V headroom limit, so this one sizes too.
     assert rows["red-4x2-20mA"]["resistor_ohm"] != ""
-    # Three white LEDs at 3.1 V need 9.3 V plus the switch: more than the 9 V pack, refused with the reason.
+    # Three white LEDs at 3.0 V need 9 V plus the switch: more than the 9 V pack, refused with the reason.
     white = rows["white-3x1-battery"]
     assert white["ok"] == "False" and "forward voltage" in white["problem"]
     # 350 mA from an 8 mA pin at forced beta 10 needs 35 mA: the driver check fails and is named.

@@ -72,9 +72,10 @@ def test_csv_in_and_out_with_units(client: FlaskClient, seeded: Any) -> None:
     assert response.status_code == 200 and response.mimetype == "text/csv"
     lines = list(csv.DictReader(io.StringIO(response.get_data(as_text=True))))
     assert [line["ok"] for line in lines] == ["true", "true"]
-    # (9 - 3 x 2.0) V / 15 mA = 200 ohm, an E24 value (IEC 60063).
-    assert float(lines[0]["resistor_ohm"]) == 200.0
-    assert float(lines[1]["total_current_a"]) == pytest.approx(0.04)
+    # (9 - 3 x 2.1) V / 15 mA = 180 ohm, an E24 value (IEC 60063).
+    assert float(lines[0]["resistor_ohm"]) == 180.0
+    # (12 - 6.3) V / 20 mA = 285 ohm, up to the E24 300 ohm: 2 strings of 5.7 V / 300 ohm = 19 mA.
+    assert float(lines[1]["total_current_a"]) == pytest.approx(0.038)
 
 
 def test_closed_loop_sweep_rows(client: FlaskClient) -> None:

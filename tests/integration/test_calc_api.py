@@ -45,8 +45,10 @@ def test_led_string_from_parts_matches_explicit_values(client: FlaskClient, seed
             "current_a": "20 mA",
         },
     )
+    # The seeded red LED's forward voltages, given explicitly.
+    same = post(client, "led-string", {**EXPLICIT_LED, "vf_typ_v": 2.1, "vf_min_v": 1.9, "vf_max_v": 2.5})
+    assert from_parts["results"] == same["results"]
     explicit = post(client, "led-string", EXPLICIT_LED)
-    assert from_parts["results"] == explicit["results"]
     # Ohm's law: (12 V - 3 x 2.0 V) / 20 mA = 300 ohm, an E24 value (IEC 60063), so the current is exact.
     assert explicit["results"]["resistor_ohm"] == 300.0
     assert explicit["results"]["current_a"] == pytest.approx(0.020)
@@ -56,8 +58,8 @@ def test_led_string_from_parts_matches_explicit_values(client: FlaskClient, seed
 
 
 def test_explicit_values_override_the_part(client: FlaskClient, seeded: Any) -> None:
-    data = post(client, "led-string", {**EXPLICIT_LED, "led": "led-red-5mm", "vf_typ_v": 2.1})
-    assert data["inputs"]["vf_typ_v"] == 2.1
+    data = post(client, "led-string", {**EXPLICIT_LED, "led": "led-red-5mm", "vf_typ_v": 2.2})
+    assert data["inputs"]["vf_typ_v"] == 2.2  # the part's is 2.1
     assert data["inputs"]["if_max_a"] == 0.03  # from the part
 
 
@@ -187,7 +189,7 @@ STRING_ONLY = {"supply_v": 12, "leds_in_series": 3, "current_a": 0.02}
 
 def test_part_review_status_rules(client: FlaskClient, seeded: Any, tokens: dict[str, str]) -> None:
     part = client.get("/v1/parts/led-red-5mm")
-    changed = {"parameters": {**part.get_json()["parameters"], "vf_typ_v": 2.1}}
+    changed = {"parameters": {**part.get_json()["parameters"], "vf_typ_v": 2.2}}
     headers = {**bearer(tokens["edna"]), "If-Match": part.headers["ETag"]}
     edited = client.put("/v1/parts/led-red-5mm", json=changed, headers=headers)
     assert edited.status_code == 200
@@ -198,7 +200,7 @@ def test_part_review_status_rules(client: FlaskClient, seeded: Any, tokens: dict
     assert client.delete("/v1/parts/led-red-5mm", headers=retire).status_code == 200
     assert_problem(client.post("/v1/calc/led-string", json={**STRING_ONLY, "led": "led-red-5mm"}), 422, "led")
     pinned = post(client, "led-string", {**STRING_ONLY, "led": "led-red-5mm", "led_revision": 1})
-    assert pinned["inputs"]["vf_typ_v"] == 2.0 and pinned["parts"][0]["revision"] == 1
+    assert pinned["inputs"]["vf_typ_v"] == 2.1 and pinned["parts"][0]["revision"] == 1
     assert_problem(client.post("/v1/calc/led-string", json={**EXPLICIT_LED, "led_revision": 1}), 422, "led_revision")
 
 

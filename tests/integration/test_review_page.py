@@ -181,6 +181,14 @@ def test_led_page_plots_three_in_series_when_they_fit(
     assert client.get(url).status_code == 200
 
 
+def test_part_page_marks_informational_parameters(client: FlaskClient, seeded: Any) -> None:
+    html, _ = page(client, "/review/parts/led-red-5mm")
+    row = html[html.index("<code>if_test_a</code>") :]
+    assert "(informational: the datasheet&#39;s test condition" in row[: row.index("</tr>")]
+    row = html[html.index("<code>vf_typ_v</code>") :]
+    assert "informational" not in row[: row.index("</tr>")]
+
+
 def test_parts_without_plots_show_none(client: FlaskClient, seeded: Any) -> None:
     _, parsed = page(client, "/review/parts/npn-small-signal")
     assert parsed.images == []

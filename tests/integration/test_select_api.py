@@ -127,11 +127,12 @@ def test_transistors_that_saturate_150_ma_from_an_8_ma_pin(client: FlaskClient, 
 
 
 def test_leds_three_in_series_on_9_v(client: FlaskClient, seeded: Any) -> None:
-    # 3 × Vf_typ must stay below 9 V: red 6.0 V and deep red 6.6 V do; blue and green (9.6 V), white and royal
-    # blue (9.3 V) cannot light, and the core refuses them with its own numbers (no 422 for the whole search).
-    # Red: R = (9 - 6)/15 mA = 200 Ω (E24); worst current (9 - 3 × 1.8)/(200 × 0.95) = 18.9 mA of 30 mA,
-    # margin 0.368 (E24's 5 % resistor tolerance, common practice). Deep red: R = 2.4 V/15 mA = 160 Ω (E24);
-    # worst (9 - 3 × 2.0)/(160 × 0.95) = 19.7 mA of 500 mA, margin 0.961. Headroom and resistor rating have more.
+    # 3 × Vf_typ must stay below 9 V: red 6.3 V and deep red 6.9 V do; blue (9.3 V), green, white and royal
+    # blue (9.0 V) cannot light, and the core refuses them with its own numbers (no 422 for the whole search).
+    # Red: R = (9 - 6.3)/15 mA = 180 Ω (E24); worst current (9 - 3 × 1.9)/(180 × 0.95) = 19.3 mA of 30 mA,
+    # margin 0.357 (E24's 5 % resistor tolerance, common practice). Deep red: 2.1 V/15 mA = 140 Ω, up to the
+    # E24 150 Ω; worst (9 - 3 × 2.0)/(150 × 0.95) = 21.1 mA of 500 mA, margin 0.958. Headroom and resistor
+    # rating have more.
     data = select(client, "led-string", LEDS_3_ON_9V)
     assert ids(data["candidates"]) == [
         "led-deep-red-grow-1w", "led-red-5mm",
@@ -139,16 +140,16 @@ def test_leds_three_in_series_on_9_v(client: FlaskClient, seeded: Any) -> None:
     ]  # fmt: skip
     deep_red, red, *dark = data["candidates"]
     assert data["passing"] == 2 and deep_red["ok"] and red["ok"]
-    assert deep_red["margin"] == pytest.approx(1 - (3 / 152) / 0.5) and red["margin"] == pytest.approx(
-        1 - (3.6 / 190) / 0.03
+    assert deep_red["margin"] == pytest.approx(1 - (3 / 142.5) / 0.5) and red["margin"] == pytest.approx(
+        1 - (3.3 / 171) / 0.03
     )
-    assert (deep_red["results"]["resistor_ohm"], red["results"]["resistor_ohm"]) == (160, 200)
+    assert (deep_red["results"]["resistor_ohm"], red["results"]["resistor_ohm"]) == (150, 180)
     assert any("eye safety" in caution for caution in deep_red["cautions"])  # a 1 W class LED
     for candidate in dark:
         assert candidate["failing"] == ["physically_possible"] and candidate["results"] is None
         assert candidate["margin"] is None and candidate["limiting_check"] is None
-    assert "(9.6 V = 3 × 3.2 V + 0 V)" in dark[0]["problem"]["supply_v"][0]
-    assert "(9.3 V = 3 × 3.1 V + 0 V)" in dark[3]["problem"]["supply_v"][0]
+    assert "(9.3 V = 3 × 3.1 V + 0 V)" in dark[0]["problem"]["supply_v"][0]
+    assert "(9 V = 3 × 3 V + 0 V)" in dark[3]["problem"]["supply_v"][0]
     assert ids(select(client, "led-string", {**LEDS_3_ON_9V, "only_passing": True})["candidates"]) == ids(
         [deep_red, red]
     )
@@ -159,15 +160,16 @@ def test_leds_three_in_series_on_9_v(client: FlaskClient, seeded: Any) -> None:
 
 def test_explicit_values_override_every_candidate(client: FlaskClient, seeded: Any) -> None:
     # Search supplies with supply_v given: every candidate runs at 9 V and gives only its tolerance. Red LEDs,
-    # 3 in series at 15 mA: headroom 9 - 6 = 3 V for all; worst current (9 (1 + t) - 5.4)/(200 × 0.95):
-    # adapters (t = 0.05) 21.3 mA; the battery pack gives a band (for the channel review), no tolerance: 18.9 mA.
+    # 3 in series at 15 mA: headroom 9 - 6.3 = 2.7 V for all; R = 2.7 V/15 mA = 180 Ω (E24); worst current
+    # (9 (1 + t) - 5.7)/(180 × 0.95): adapters (t = 0.05) 21.9 mA; the battery pack gives a band (for the channel
+    # review), no tolerance: 19.3 mA.
     body = {"supply": {}, "supply_v": 9, "led": "led-red-5mm", "leds_in_series": 3, "current_a": 0.015}
     data = select(client, "led-string", body)
     assert data["from_candidates"] == ["supply_tolerance"] and data["inputs"]["supply_v"] == 9
-    assert {c["results"]["headroom_v"] for c in data["candidates"]} == {3.0}
+    assert [c["results"]["headroom_v"] for c in data["candidates"]] == pytest.approx([2.7] * len(data["candidates"]))
     worst = {c["part_id"]: c["results"]["current_max_a"] for c in data["candidates"]}
-    assert worst["supply-adapter-5v-1a"] == pytest.approx(4.05 / 190)
-    assert worst["supply-battery-9v-6aa"] == pytest.approx(3.6 / 190)
+    assert worst["supply-adapter-5v-1a"] == pytest.approx(3.75 / 171)
+    assert worst["supply-battery-9v-6aa"] == pytest.approx(3.3 / 171)
     assert data["parts"] == [{"role": "led", "part_id": "led-red-5mm", "revision": 1, "status": "approved"}]
 
 
@@ -268,12 +270,13 @@ def test_searches_beyond_the_configured_size_are_refused(app: Flask, client: Fla
 
 # The demo's channel (3.3 V pin sourcing 8 mA, two strings of three LEDs at 20 mA, six channels at 50 %, the
 # preamp) over every seeded supply × npn transistor × LED: 3 × 4 × 6 = 72 designs. By hand:
-# - 5 V adapter: 3 × Vf_typ ≥ 6 V > 5 V for every LED, so the core refuses all 24.
-# - 9 V pack (±15 %): blue, green, white and royal blue (3 × Vf_typ ≥ 9.3 V) are refused (16); red and deep red
-#   fail headroom at the low corner: 9 × 0.85 - 3 × 2.4 - Vce_sat ≤ 0.25 V < 10 % of 7.65 V (8).
-# - 12 V adapter (±5 %): blue, green, white, royal blue fail headroom at the low corner, 11.4 - 3 × Vf_max (≥ 10.2)
-#   - Vce_sat ≤ 1.0 V < 1.14 V (16). Red and deep red pass (8): e.g. red on the small-signal part, 300 Ω,
-#   worst current (12.6 - 5.4 - 0.2)/285 = 24.6 mA ≤ 30 mA, pin current ≈ 2 × 24.6 mA/10 ≈ 5 mA ≤ 8 mA.
+# - 5 V adapter: 3 × Vf_typ ≥ 6.3 V > 5 V for every LED, so the core refuses all 24.
+# - 9 V pack (±15 %): blue, green, white and royal blue (3 × Vf_typ + Vce_sat ≥ 9.2 V) are refused (16); red and
+#   deep red fail headroom at the low corner: 9 × 0.85 - 3 × 2.5 - Vce_sat ≤ 0.15 V < 10 % of 7.65 V (8).
+# - 12 V adapter (±5 %): blue, green, white, royal blue fail headroom at the low corner, 11.4 - 3 × Vf_max (≥ 10.5)
+#   - Vce_sat ≤ 0.7 V < 1.14 V (16). Red and deep red pass (8): e.g. red on the small-signal part, 5.5 V/20 mA =
+#   275 Ω, up to the E24 300 Ω; worst current (12.6 - 5.7 - 0.2)/285 = 23.5 mA ≤ 30 mA, pin current ≈
+#   2 × 23.5 mA/10 ≈ 4.7 mA ≤ 8 mA.
 # The pin's low level is 0.4 V, exactly the off-state limit, so every passing design's least margin is 0
 # (off_state); the next-least margin orders them.
 CHANNEL_SEARCH = {**DEMO, "supply": {}, "transistor": {}, "led": {}, "samples": 0, "limit": 100}
@@ -304,7 +307,7 @@ def test_channel_search_ranks_the_seeded_designs(client: FlaskClient, seeded: An
     supplies = Counter({p["role"]: p["part_id"] for p in d["parts"]}["supply"] for d in refused)
     assert supplies == {"supply-adapter-5v-1a": 24, "supply-battery-9v-6aa": 16}
     # Refused in role order: the 5 V adapter, the darlington (1 V drop), blue LEDs first.
-    assert "(10.6 V = 3 × 3.2 V + 1 V)" in refused[0]["problem"]["supply_v"][0]
+    assert "(10.3 V = 3 × 3.1 V + 1 V)" in refused[0]["problem"]["supply_v"][0]
     failing = designs[8:32]
     assert [d["margin"] for d in failing] == sorted((d["margin"] for d in failing), reverse=True)
     assert {d["limiting_check"] for d in failing} == {"headroom"}
@@ -338,15 +341,16 @@ def test_best_channel_design_reruns_identically_through_the_review(client: Flask
 
 def test_channel_rank_by_supply_power(client: FlaskClient, seeded: Any) -> None:
     # Average supply power = 12 V × 6 channels × 2 strings × I × 0.5 with I = (12 - 3 Vf_typ - Vce_sat)/R and R
-    # the E24 value at or above that drop / 20 mA. Power tab (Vce_sat 0.5 V) with deep red: 4.9 V/20 mA = 245 ->
-    # 270 Ω, 18.15 mA, 1.307 W; with red: 5.5 V -> 300 Ω, 18.33 mA, 1.320 W; darlington with red: 5.0 V -> 270 Ω,
-    # 1.333 W. The others draw more (up to the darlington with deep red: 4.4 V -> 220 Ω, 20 mA, 1.44 W).
+    # the E24 value at or above that drop / 20 mA. Small-signal part (Vce_sat 0.2 V) with deep red: 4.9 V/20 mA =
+    # 245 -> 270 Ω, 18.15 mA, 1.307 W; with red: 5.5 V -> 300 Ω, 18.33 mA, 1.320 W; darlington (1 V) with deep
+    # red: 4.1 V -> 220 Ω, 18.64 mA, 1.342 W. The others draw more (up to the medium-power part, 0.3 V, whose
+    # drops land on E24 values: red 5.4 V -> 270 Ω, deep red 4.8 V -> 240 Ω, 20 mA, 1.44 W).
     data = channel_select(client, {**CHANNEL_SEARCH, "rank_by": "supply_power_w", "only_passing": True})
     powers = [d["numbers"]["supply_power_w"] for d in data["designs"]]
     assert powers == sorted(powers) and len(powers) == 8
-    assert powers[:3] == pytest.approx([12 * 6 * 2 * 0.5 * i for i in (4.9 / 270, 5.5 / 300, 5.0 / 270)])
+    assert powers[:3] == pytest.approx([12 * 6 * 2 * 0.5 * i for i in (4.9 / 270, 5.5 / 300, 4.1 / 220)])
     first = {p["role"]: p["part_id"] for p in data["designs"][0]["parts"]}
-    assert (first["transistor"], first["led"]) == ("npn-power-tab", "led-deep-red-grow-1w")
+    assert (first["transistor"], first["led"]) == ("npn-small-signal", "led-deep-red-grow-1w")
     assert powers[-1] == pytest.approx(1.44)
 
 

@@ -17,7 +17,7 @@ from calcsvc.core.outcome import BoolArray, take
 from calcsvc.core.spec import Role
 from calcsvc.data.store import PartView
 from calcsvc.service.envelope import row_notices, to_json_value
-from calcsvc.service.review import channel_inputs, yield_entry
+from calcsvc.service.review import channel_inputs, vf_options, yield_entry
 from calcsvc.service.search.common import (
     IMPOSSIBLE,
     on_accepted,
@@ -153,7 +153,7 @@ def search_channel(
     if samples:
         shortlist = [int(row) for row in rows[accepted[rows]][:YIELD_SHORTLIST]]
         for row in shortlist:
-            yields[row] = monte_carlo.monte_carlo(take(inputs, np.array([row])), samples, seed)
+            yields[row] = monte_carlo.monte_carlo(take(inputs, np.array([row])), samples, seed, **vf_options(shared))
         if ranking.rank_by == "yield":
             # The shortlist re-ranked by yield (a stable sort: ties keep their order); the rest after it.
             first = sorted(shortlist, key=lambda row: -yields[row].fraction)

@@ -17,7 +17,7 @@ DRAFT_LED = {"color": "amber", "vf_typ_v": 2.2, "vf_min_v": 2.0, "vf_max_v": 2.6
 def test_explicit_values_win_over_the_parts(database: Database) -> None:
     resolved = resolve_parts(database, ROLES, {"led": "led-red-5mm", "vf_typ_v": 2.5})
     assert resolved.values["vf_typ_v"] == 2.5  # given explicitly
-    assert resolved.values["vf_min_v"] == 1.8  # from the part
+    assert resolved.values["vf_min_v"] == 1.9  # from the part
     assert "led" not in resolved.values and resolved.parts[0]["part_id"] == "led-red-5mm"
     assert resolved.warnings == []  # seeded parts are approved
 

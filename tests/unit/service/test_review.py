@@ -113,7 +113,7 @@ def test_impossible_channel_is_refused_by_the_core_naming_the_field(seeded: Flas
 
 def test_a_battery_part_is_reviewed_over_its_discharge_band(seeded: Flask) -> None:
     # The demo channel on the six-cell alkaline pack (9.6 V fresh, 6.0 V at end of discharge, 2 Ah): the three
-    # red LEDs keep their 10 % headroom only down to (3 × 2.4 + 0.2) V / 0.9 = 8.22 V (KVL; common practice),
+    # red LEDs keep their 10 % headroom only down to (3 × 2.5 + 0.2) V / 0.9 = 8.56 V (KVL; common practice),
     # so the channel stops meeting its checks well before the pack is empty.
     database = seeded.extensions["calcsvc.db"]
     body = {**demo_si(), "supply": "supply-battery-9v-6aa", "samples": 0}
@@ -122,11 +122,23 @@ def test_a_battery_part_is_reviewed_over_its_discharge_band(seeded: Flask) -> No
     assert headroom["worst_case"]["limit"] == pytest.approx(0.6)  # 10 % of 6.0 V, not of 7.65 V (9 V − 15 %)
     assert "headroom" in document["failing"]
     supply = document["stages"]["supply"]
-    assert supply["stop_v"] == pytest.approx(7.4 / 0.9)
-    fraction = (9.6 - 7.4 / 0.9) / (9.6 - 6.0)  # the linear discharge model's share of the capacity
+    assert supply["stop_v"] == pytest.approx(7.7 / 0.9)
+    fraction = (9.6 - 7.7 / 0.9) / (9.6 - 6.0)  # the linear discharge model's share of the capacity
     assert supply["usable_runtime_h"] == pytest.approx(fraction * supply["runtime_h"])
     assert any("usable_runtime_h" in note for note in document["warnings"])
     # A tolerance given explicitly wins over the part's band: 9 V ± 10 %.
     document = review.run_review(database, {**body, "supply_tolerance": 0.1})
     headroom = next(c for c in document["checks"] if c["name"] == "headroom")
     assert headroom["worst_case"]["limit"] == pytest.approx(0.1 * 8.1)
+
+
+def test_yield_names_its_forward_voltage_model(seeded: Flask) -> None:
+    """LEDs of a build come from one reel unless the request says otherwise; the answer says which model ran."""
+    db = seeded.extensions["calcsvc.db"]
+    body = {**demo_si(), "samples": 500}
+    found = review.run_review(db, REVIEW_REQUEST.load(body))["yield"]
+    assert (found["vf_model"], found["vf_bin_width_v"]) == ("one_reel", monte_carlo.DEFAULT_VF_BIN_WIDTH_V)
+    assert review.INDEPENDENT_VF_WARNING not in review.run_review(db, REVIEW_REQUEST.load(body))["warnings"]
+    mixed = review.run_review(db, REVIEW_REQUEST.load({**body, "vf_model": "independent"}))
+    assert (mixed["yield"]["vf_model"], mixed["yield"]["vf_bin_width_v"]) == ("independent", None)
+    assert review.INDEPENDENT_VF_WARNING in mixed["warnings"]  # an optimistic yield says so

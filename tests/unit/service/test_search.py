@@ -86,6 +86,12 @@ def test_channel_search_reviews_every_combination() -> None:
     assert second["failing"] == [IMPOSSIBLE] and second["yield"] is None
 
 
+@pytest.mark.parametrize("model", ["one_reel", "independent"])
+def test_channel_search_yield_runs_the_requested_forward_voltage_model(model: str) -> None:
+    found = search_channel({**channel_values(), "vf_model": model}, {"led": [led("led-red", 2.0)]}, 200, 1)
+    assert found.entry(int(found.rows[0]))["yield"]["vf_model"] == model
+
+
 def test_channel_search_refuses_what_no_candidate_can_fix() -> None:
     # A non-inverting gain below 1 is the request's own mistake, whichever LED is chosen.
     with pytest.raises(DomainError) as refused:

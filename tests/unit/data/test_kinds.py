@@ -1,0 +1,49 @@
+"""Every stored part parameter is read by some calculation or documented as informational, with its reason."""
+
+from __future__ import annotations
+
+from calcsvc.core.channel_spec import CHANNEL_INPUTS
+from calcsvc.core.registry import EVERY
+from calcsvc.data.kinds import KINDS
+from calcsvc.service.parts import ParametersField
+
+
+def _read_by_a_calculation() -> set[tuple[str, str]]:
+    """(kind, parameter) pairs a declared calculation or the channel review takes from a part: the inputs its
+    roles provide, and the values a role requires (an npn transistor)."""
+    used = set()
+    for spec in (*EVERY.values(), CHANNEL_INPUTS):
+        for role in spec.roles:
+            used |= {(role.kind, parameter) for parameter, _ in role.provides}
+            used |= {(role.kind, parameter) for parameter, _ in role.must_have}
+    return used
+
+
+def test_every_parameter_is_used_or_informational() -> None:
+    used = _read_by_a_calculation()
+    unaccounted = [
+        f"{kind}.{p.name}"
+        for kind, params in KINDS.items()
+        for p in params
+        if (kind, p.name) not in used and not p.informational
+    ]
+    assert unaccounted == [], "read by no calculation and not marked informational (with its reason)"
+    # Informational means no calculation reads it: a parameter a role starts to use loses the mark.
+    misdocumented = [
+        f"{kind}.{p.name}"
+        for kind, params in KINDS.items()
+        for p in params
+        if (kind, p.name) in used and p.informational
+    ]
+    assert misdocumented == []
+    # Roles name only parameters their kind stores.
+    assert {(kind, name) for kind, name in used} <= {(kind, p.name) for kind, params in KINDS.items() for p in params}
+
+
+def test_led_test_current_is_informational_and_shown_as_such() -> None:
+    # The forward voltages are used as given (at the design current); if_test_a only records the datasheet's
+    # test condition.
+    led = {p.name: p for p in KINDS["led"]}
+    assert "design current" in led["if_test_a"].informational
+    described = ParametersField().metadata["description"]
+    assert "if_test_a (informational)" in described and "vf_typ_v," in described
