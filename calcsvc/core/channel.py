@@ -28,8 +28,9 @@ Chain (each step is an existing core calculation; this module only wires them to
        (``slew_rate``, ``output_swing``).
 
 Assumptions
-    Those of the four calculations; no base-emitter pull-down; the base current comes from the logic supply,
-    not from ``supply_v``; the LED supply feeds nothing but the channels. Units: SI (V, A, Ω, W, Hz, V/s).
+    Those of the four calculations; a base-emitter pull-down only where ``rbe_ohm`` is given; the base current
+    comes from the logic supply, not from ``supply_v``; the LED supply feeds nothing but the channels.
+    Units: SI (V, A, Ω, W, Hz, V/s).
 """
 
 from __future__ import annotations
@@ -106,7 +107,12 @@ class ChannelInputs:
     duty_cycle: FloatArray
     channels: FloatArray
     e_series: np.ndarray
-    forced_beta: FloatArray
+    forced_beta: FloatArray  # NaN: from the part
+    vce_sat_forced_beta: FloatArray
+    base_junctions: FloatArray
+    vceo_max_v: FloatArray  # NaN: not checked
+    rbe_ohm: FloatArray  # NaN: no base pull-down
+    drive_supply_v: FloatArray  # NaN: not given
     resistor_tolerance: FloatArray
     inverting: BoolArray
     gain: FloatArray
@@ -237,6 +243,9 @@ def _own_violations(i: ChannelInputs) -> list[Violation]:
     return v
 
 
+_SUPPLY = {"supply_max_v": "supply_v"}
+
+
 def validate(inputs: ChannelInputs) -> list[Violation]:
     """Every physical precondition of every stage, per row, under the flat input names; never raises."""
     i = inputs
@@ -267,8 +276,8 @@ def validate(inputs: ChannelInputs) -> list[Violation]:
             v = Violation(v.field, v.message, v.rows & led_ok)
         found.stage(
             [v],
-            {"collector_current_a": "current_a", "driver_current_max_a": "source_current_max_a"},
-            {"collector_current_a": "collector current", "driver_current_max_a": "source_current_max_a"},
+            {"collector_current_a": "current_a", "driver_current_max_a": "source_current_max_a", **_SUPPLY},
+            {"collector_current_a": "collector current", "driver_current_max_a": "source_current_max_a", **_SUPPLY},
         )
     found.stage(
         duty_power.validate(supply_inputs(i, ic_nominal)),

@@ -52,9 +52,15 @@ def switch_inputs(i: ChannelInputs, collector_current_a: FloatArray) -> bjt_swit
         drive_high_v=i.drive_high_v,
         drive_low_v=i.drive_low_v,
         forced_beta=i.forced_beta,
+        vce_sat_forced_beta=i.vce_sat_forced_beta,
+        base_junctions=i.base_junctions,
+        vceo_max_v=i.vceo_max_v,
+        supply_max_v=i.supply_v,  # nominal; the worst case takes the supply's high corner
         e_series=i.e_series,
-        rbe_ohm=np.full(i.supply_v.shape, np.nan),
+        resistor_tolerance=i.resistor_tolerance,
+        rbe_ohm=i.rbe_ohm,
         driver_current_max_a=i.source_current_max_a,
+        drive_supply_v=i.drive_supply_v,
         duty_cycle=i.duty_cycle,
     )
 
