@@ -11,7 +11,8 @@ Temperature
 Design ratio (forced beta)
     Vce(sat) is guaranteed only at the datasheet's test ratio Ic/Ib (``vce_sat_forced_beta``: 10 for most
     small-signal parts, a few hundred for Darlingtons; common practice, from memory). Unless the user sets one,
-    the design ratio is that test ratio, lowered where needed to keep an overdrive of 2 over the worst-case gain
+    the design ratio is that test ratio divided by (1 + the base resistor's tolerance), so a high resistor still
+    keeps Ic/Ib within it, and lowered where needed to keep an overdrive of 2 over the worst-case gain
     (hfe_min/β ≥ 2, common practice). Designing a Darlington at Ic/Ib = 10 buys almost nothing: its output
     transistor never saturates, Vce ≥ Vbe2 + Vce_sat1 (textbook Darlington behaviour).
 
@@ -55,9 +56,11 @@ PULLDOWN_PER_RB = 10.0  # pull-down about ten times the base resistor: a tenth o
 VCEO_DERATING = 1.2  # vceo_max_v at least 1.2 times the highest supply (common practice)
 
 
-def design_forced_beta(forced_beta: FloatArray, hfe_min: FloatArray, vce_sat_forced_beta: FloatArray) -> FloatArray:
-    """The Ic/Ib to design for: as given, or the part's test ratio kept an overdrive of 2 below hfe_min."""
-    derived = np.maximum(1.0, np.minimum(vce_sat_forced_beta, hfe_min / OVERDRIVE_MIN))
+def design_forced_beta(
+    forced_beta: FloatArray, hfe_min: FloatArray, vce_sat_forced_beta: FloatArray, rb_tolerance: FloatArray
+) -> FloatArray:
+    """The Ic/Ib to design for: as given, or from the part (module docstring)."""
+    derived = np.maximum(1.0, np.minimum(vce_sat_forced_beta / (1.0 + rb_tolerance), hfe_min / OVERDRIVE_MIN))
     return np.where(np.isnan(forced_beta), derived, forced_beta)
 
 

@@ -19,10 +19,9 @@ Model
         β_actual = Ic/Ib,  saturation margin = hfe_min/β_actual
         P = (Vce_sat·Ic + Vbe_sat·Ib)·D  (average over the switching period at duty cycle D)
 
-    Checks beyond saturation and the ratings (models in ``bjt_drive``): Ic/Ib within the Vce(sat) test ratio;
-    the pin's current at its stress corner (its supply, a hot junction, Rb at the series' −tolerance); the
-    off-state base voltage, hot, against the turn-on threshold of one or two junctions; the highest supply
-    against the collector-emitter rating. Without a pull-down a warning recommends one.
+    Further checks (models in ``bjt_drive``): Ic/Ib within the Vce(sat) test ratio; the pin's current at its
+    stress corner; the hot off-state base voltage against the turn-on threshold of one or two junctions; the
+    highest supply against the collector-emitter rating. Without a pull-down a warning recommends one.
 
 Assumptions
     Saturation voltages are the datasheet-style constants given; switching losses are ignored; the load
@@ -171,7 +170,8 @@ def validate(inputs: BjtSwitchInputs) -> list[Violation]:
 
 
 def _design_beta(inputs: BjtSwitchInputs) -> FloatArray:
-    return bjt_drive.design_forced_beta(inputs.forced_beta, inputs.hfe_min, inputs.vce_sat_forced_beta)
+    tolerance = eseries.tolerance_rows(inputs.resistor_tolerance, inputs.e_series)
+    return bjt_drive.design_forced_beta(inputs.forced_beta, inputs.hfe_min, inputs.vce_sat_forced_beta, tolerance)
 
 
 def _rb_exact(inputs: BjtSwitchInputs) -> FloatArray:
@@ -200,10 +200,7 @@ def compute(inputs: BjtSwitchInputs, validated: bool = False) -> Outcome:
     margin = i.hfe_min / beta_actual
     power = (i.vce_sat_v * ic + i.vbe_sat_v * ib) * i.duty_cycle
     high = bjt_drive.pin_high(i.drive_high_v, i.drive_supply_v)
-    tolerance = np.where(
-        np.isnan(i.resistor_tolerance), eseries.default_tolerance_rows(i.e_series), i.resistor_tolerance
-    )
-    rb_low = rb * (1.0 - tolerance)
+    rb_low = rb * (1.0 - eseries.tolerance_rows(i.resistor_tolerance, i.e_series))
     pin_max = bjt_drive.pin_stress_current(high, i.vbe_sat_v, i.base_junctions, rb_low)
     off_base = bjt_drive.off_base_voltage(i.drive_low_v, i.driver_current_max_a, rb, i.rbe_ohm)
     turn_on = bjt_drive.turn_on_hot(i.base_junctions)
@@ -251,8 +248,8 @@ def compute(inputs: BjtSwitchInputs, validated: bool = False) -> Outcome:
             pin_max,
             driver_limit,
             "max",
-            "The current the drive pin sources at its stress corner (high level at its supply, hot base-emitter "
-            "junction, base resistor at -tolerance) must not exceed its rating (not checked when unknown).",
+            "The pin's current at its stress corner (high level at its supply, hot junction, Rb at -tolerance) "
+            "must not exceed its rating (not checked when unknown).",
         ),
         Check(
             "collector_current_rating",
@@ -317,12 +314,9 @@ def compute(inputs: BjtSwitchInputs, validated: bool = False) -> Outcome:
         "No base pull-down: while the pin floats (reset, programming) leakage or pickup can turn the "
         "transistor on; add one of about rbe_recommended_ohm.",
     )
-    add_notice(
-        warnings,
-        np.isnan(i.drive_supply_v) & ~np.isnan(driver_limit),
-        "The pin's supply is not given: its stress current is taken at drive_high_v, which understates what "
-        "a lightly loaded pin sources; give drive_supply_v.",
-    )
+    unknown_supply = np.isnan(i.drive_supply_v) & ~np.isnan(driver_limit)
+    message = "The pin's supply is not given: its stress current is taken at drive_high_v, an understatement."
+    add_notice(warnings, unknown_supply, message)
     add_notice(
         warnings,
         i.duty_cycle < 1.0,

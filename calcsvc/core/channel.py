@@ -16,8 +16,8 @@ Chain (each step is an existing core calculation; this module only wires them to
        The base is sized for the worst-case maximum collector current, not the nominal one: the base
        resistor's job is to guarantee saturation, and a base sized for the nominal current runs short of
        drive exactly when the LED current is highest (high supply, low Vf, low resistor), which is also when
-       a transistor dropping out of saturation would dissipate most. The price is a little more pin current
-       (in the greenhouse demo 5.3 mA instead of 4.0 mA), which the ``driver_current`` check verifies.
+       a transistor dropping out of saturation would dissipate most. The price is a little more pin current,
+       which the ``driver_current`` check verifies at the pin's stress corner.
        Consequently the switch's ``collector_current_rating`` and ``power_rating`` checks use Ic_max too.
     3. ``duty_power`` with one rectangular load per row: ``channels`` units of peak current Ic (nominal) at
        ``duty_cycle``: average and peak supply current, utilization, and ``max_duty_cycle``, the largest

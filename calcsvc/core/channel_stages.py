@@ -17,11 +17,7 @@ if TYPE_CHECKING:  # ``channel`` builds on this module; the inputs type is neede
 
 def resistor_tolerance(inputs: ChannelInputs) -> FloatArray:
     """The tolerance of both resistors per row: as given, or the series' default."""
-    return np.where(
-        np.isnan(inputs.resistor_tolerance),
-        eseries.default_tolerance_rows(inputs.e_series),
-        inputs.resistor_tolerance,
-    )
+    return eseries.tolerance_rows(inputs.resistor_tolerance, inputs.e_series)
 
 
 def led_inputs(i: ChannelInputs) -> led_string.LedStringInputs:
