@@ -65,7 +65,7 @@ from calcsvc.core.outcome import (
 )
 
 NAME = "channel-review"
-VERSION = "1"
+VERSION = "2"
 
 # Front-stage inputs besides gbw_hz, whose presence (non-NaN) marks a row as having a front stage.
 FRONT_STAGE_FIELDS = ("gain", "open_loop_gain", "slew_rate_v_per_s", "output_headroom_v", "signal_hz", "amplitude_v")
