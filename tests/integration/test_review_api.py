@@ -126,3 +126,13 @@ def test_yield_histogram_of_the_most_failing_check(client: FlaskClient) -> None:
     svg = client.post("/v1/review/channel/histogram.svg", json=weak)
     assert svg.mimetype == "image/svg+xml" and b"saturation" in svg.data
     assert_problem(client.post("/v1/review/channel/histogram.svg", json=EXPLICIT), 422, "samples")
+
+
+def test_darlington_channel_asks_the_pin_for_a_fraction_of_a_milliamp(client: FlaskClient, seeded: Any) -> None:
+    # Sized at the Darlington's own Vce(sat) test ratio (250, over 1.05 for a +5 % resistor) rather than Ic/Ib = 10:
+    # about 2 × 24.4 mA × 1.05 / 250 ≈ 0.2 mA of base current, where a ratio of 10 would ask about 5 mA.
+    data = review(client, {**DEMO, "transistor": "npn-darlington-1a", "samples": 0})
+    switch = data["stages"]["switch"]
+    assert data["verdict"] == "pass"
+    assert switch["forced_beta_design"] == pytest.approx(250 / 1.05)
+    assert switch["drive_current_a"] < 0.3e-3 and switch["drive_current_max_a"] < 0.5e-3
