@@ -338,7 +338,8 @@ def channel() -> ChannelInputs:
         hfe_min=one(100.0), hfe_typ=one(200.0), vbe_sat_v=one(0.85), vce_sat_v=one(0.2), ic_max_a=one(0.2),
         power_max_w=one(0.625), vf_typ_v=one(2.1), vf_min_v=one(1.9), vf_max_v=one(2.5), if_max_a=one(0.03),
         leds_in_series=one(3.0), strings=one(2.0), current_a=one(0.027), duty_cycle=one(0.5), channels=one(6.0),
-        e_series=np.array(["E24"]), forced_beta=one(10.0), resistor_tolerance=nan, inverting=np.array([False]),
+        e_series=np.array(["E24"]), forced_beta=one(10.0), vce_sat_forced_beta=one(10.0), base_junctions=one(1.0),
+        vceo_max_v=one(40.0), rbe_ohm=nan, drive_supply_v=one(3.3), resistor_tolerance=nan, inverting=np.array([False]),
         gain=nan, gbw_hz=nan, open_loop_gain=nan, slew_rate_v_per_s=nan, output_headroom_v=nan, signal_hz=nan,
         amplitude_v=nan,
     )  # fmt: skip

@@ -4,8 +4,9 @@ Model
     A logic output at ``drive_high_v`` (Vh) drives the base through Rb; the emitter is grounded and the
     load sits between the supply and the collector. In saturation the base-emitter junction holds
     ``vbe_sat_v`` and the collector-emitter ``vce_sat_v``. An optional pull-down Rbe from base to emitter
-    (``rbe_ohm``) steals Vbe_sat/Rbe of the drive current. To saturate hard the base gets Ic/β_forced
-    with a forced beta well under the transistor's worst-case gain (β_forced = 10 is common practice):
+    (``rbe_ohm``) steals Vbe_sat/Rbe of the drive current. To saturate hard the base gets Ic/β_forced with a
+    forced beta no higher than the ratio at which the part's Vce(sat) is specified and well under its
+    worst-case gain; unless given it follows from the part (``bjt_drive``: the test ratio, at most hfe_min/2):
 
         Ib_req = Ic / β_forced
         Rb_exact = (Vh − Vbe_sat) / (Ib_req + Vbe_sat/Rbe)
@@ -18,6 +19,10 @@ Model
         β_actual = Ic/Ib,  saturation margin = hfe_min/β_actual
         P = (Vce_sat·Ic + Vbe_sat·Ib)·D  (average over the switching period at duty cycle D)
 
+    Further checks (models in ``bjt_drive``): Ic/Ib within the Vce(sat) test ratio; the pin's current at its
+    stress corner; the hot off-state base voltage against the turn-on threshold of one or two junctions; the
+    highest supply against the collector-emitter rating. Without a pull-down a warning recommends one.
+
 Assumptions
     Saturation voltages are the datasheet-style constants given; switching losses are ignored; the load
     current Ic is set by the load, not by the transistor. Units: volts, amperes, ohms, watts.
@@ -29,7 +34,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from calcsvc.core import eseries
+from calcsvc.core import bjt_drive, eseries
 from calcsvc.core.outcome import (
     Check,
     FloatArray,
@@ -46,12 +51,18 @@ from calcsvc.core.outcome import (
 from calcsvc.core.spec import E_SERIES, CalculationSpec, Input, Result, Role, columns_as, fraction, positive
 
 NAME = "bjt-switch"
-VERSION = "1"
+VERSION = "2"
 
-# The base-emitter junction starts to conduct around 0.6 V (0.6–0.7 V, common practice); keeping the
-# "low" drive at or below 0.4 V leaves a 0.2 V margin so the transistor stays off (common practice).
-OFF_STATE_MAX_V = 0.4
 SATURATION_MARGIN_WARN = 2.0  # hfe_min at least twice the actual forced beta (common practice)
+OPTIONAL = (
+    "forced_beta",
+    "resistor_tolerance",
+    "rbe_ohm",
+    "driver_current_max_a",
+    "vceo_max_v",
+    "supply_max_v",
+    "drive_supply_v",
+)
 MAX_PULLDOWN_SHARE = 1e6  # pull-down current / required base current beyond which Ib is lost in rounding
 
 
@@ -65,10 +76,16 @@ class BjtSwitchInputs:
     collector_current_a: FloatArray  # load current when on
     drive_high_v: FloatArray
     drive_low_v: FloatArray
-    forced_beta: FloatArray  # Ic/Ib to design for; 10 is common practice for hard saturation
+    forced_beta: FloatArray  # Ic/Ib to design for; NaN: from the part (bjt_drive.design_forced_beta)
+    vce_sat_forced_beta: FloatArray  # Ic/Ib at which vce_sat_v is specified
+    base_junctions: FloatArray  # 1, or 2 for a Darlington pair
+    vceo_max_v: FloatArray  # NaN: unknown
+    supply_max_v: FloatArray  # highest supply across the switched load; NaN: not given
     e_series: np.ndarray  # numpy str array, e.g. "E24"
+    resistor_tolerance: FloatArray  # of the base resistor; NaN: the series' own
     rbe_ohm: FloatArray  # NaN: no base-emitter pull-down
     driver_current_max_a: FloatArray  # NaN: unknown
+    drive_supply_v: FloatArray  # the pin's own supply; NaN: not given (drive_high_v stands for it)
     duty_cycle: FloatArray  # fraction of time on, 0..1
 
 
@@ -92,13 +109,15 @@ def validate(inputs: BjtSwitchInputs) -> list[Violation]:
             "collector_current_a": i.collector_current_a,
             "drive_high_v": i.drive_high_v,
             "drive_low_v": i.drive_low_v,
-            "forced_beta": i.forced_beta,
+            "vce_sat_forced_beta": i.vce_sat_forced_beta,
+            "base_junctions": i.base_junctions,
             "duty_cycle": i.duty_cycle,
         }
         for name, x in required.items():
             bad = ~np.isfinite(x)
             require(v, bad, name, f"{name} must be a finite number (got {first_bad(x, bad)})")
-        for name, x in (("rbe_ohm", i.rbe_ohm), ("driver_current_max_a", i.driver_current_max_a)):
+        given = {name: getattr(i, name) for name in OPTIONAL}
+        for name, x in given.items():
             require(v, np.isinf(x), name, f"{name} must be finite when given")
 
         positive = {
@@ -113,48 +132,18 @@ def validate(inputs: BjtSwitchInputs) -> list[Violation]:
             require(v, bad, name, f"{name} ({first_bad(x, bad)}{unit}) must be positive")
         bad = i.vce_sat_v < 0
         require(v, bad, "vce_sat_v", f"vce_sat_v ({first_bad(i.vce_sat_v, bad)} V) must not be negative")
-        bad = i.forced_beta < 1
-        require(
-            v,
-            bad,
-            "forced_beta",
-            f"forced_beta ({first_bad(i.forced_beta, bad)}) must be at least 1: the base cannot need more "
-            "current than the collector carries",
-        )
-        bad = i.rbe_ohm <= 0  # NaN (not given) compares False
-        require(v, bad, "rbe_ohm", f"rbe_ohm ({first_bad(i.rbe_ohm, bad)} Ω) must be positive when given")
-        bad = i.driver_current_max_a <= 0
-        require(
-            v,
-            bad,
-            "driver_current_max_a",
-            f"driver_current_max_a ({first_bad(i.driver_current_max_a, bad)} A) must be positive when given",
-        )
+        bjt_drive.require_drive(v, given, i.vce_sat_forced_beta, i.base_junctions, i.drive_high_v)
         bad = (i.duty_cycle < 0) | (i.duty_cycle > 1)
         require(v, bad, "duty_cycle", f"duty_cycle ({first_bad(i.duty_cycle, bad)}) must lie in [0, 1]")
         bad = i.drive_high_v <= i.vbe_sat_v
-        if bad.any():
-            k = int(np.argmax(bad))
-            require(
-                v,
-                bad,
-                "drive_high_v",
-                f"drive_high_v ({i.drive_high_v[k]:g} V) must exceed vbe_sat_v ({i.vbe_sat_v[k]:g} V): "
-                "otherwise no current flows through the base resistor",
-            )
+        high, vbe = first_bad(i.drive_high_v, bad), first_bad(i.vbe_sat_v, bad)
+        message = f"drive_high_v ({high} V) must exceed vbe_sat_v ({vbe} V): else no current flows through the base"
+        require(v, bad, "drive_high_v", message)
         bad = i.drive_low_v >= i.drive_high_v
-        if bad.any():
-            k = int(np.argmax(bad))
-            require(
-                v,
-                bad,
-                "drive_low_v",
-                f"drive_low_v ({i.drive_low_v[k]:g} V) must be below drive_high_v ({i.drive_high_v[k]:g} V)",
-            )
+        low, high = first_bad(i.drive_low_v, bad), first_bad(i.drive_high_v, bad)
+        require(v, bad, "drive_low_v", f"drive_low_v ({low} V) must be below drive_high_v ({high} V)")
         eseries.require_known_series(v, i.e_series)
-        require_practical(
-            v, required | {"rbe_ohm": i.rbe_ohm, "driver_current_max_a": i.driver_current_max_a}, ("rbe_ohm",)
-        )
+        require_practical(v, required | given, ("rbe_ohm",))
         if not v:
             # Only when everything else holds: the exact base resistor must lie where standard values exist.
             rb_exact = _rb_exact(i)
@@ -168,7 +157,7 @@ def validate(inputs: BjtSwitchInputs) -> list[Violation]:
             )
             # The base current is the drive less the pull-down's share; when that share is millions of times
             # larger, the difference drowns in rounding (no real design wastes its drive so).
-            ib_req = i.collector_current_a / i.forced_beta
+            ib_req = i.collector_current_a / _design_beta(i)
             bad = _rbe_current(i) > MAX_PULLDOWN_SHARE * ib_req
             require(
                 v,
@@ -180,8 +169,13 @@ def validate(inputs: BjtSwitchInputs) -> list[Violation]:
     return v
 
 
+def _design_beta(inputs: BjtSwitchInputs) -> FloatArray:
+    tolerance = eseries.tolerance_rows(inputs.resistor_tolerance, inputs.e_series)
+    return bjt_drive.design_forced_beta(inputs.forced_beta, inputs.hfe_min, inputs.vce_sat_forced_beta, tolerance)
+
+
 def _rb_exact(inputs: BjtSwitchInputs) -> FloatArray:
-    ib_req = inputs.collector_current_a / inputs.forced_beta
+    ib_req = inputs.collector_current_a / _design_beta(inputs)
     return (inputs.drive_high_v - inputs.vbe_sat_v) / (ib_req + _rbe_current(inputs))
 
 
@@ -195,7 +189,8 @@ def compute(inputs: BjtSwitchInputs, validated: bool = False) -> Outcome:
     i = inputs
     n = i.hfe_min.shape[0]
     ic = i.collector_current_a
-    ib_req = ic / i.forced_beta
+    beta_design = _design_beta(i)
+    ib_req = ic / beta_design
     i_rbe = _rbe_current(i)
     rb_exact = _rb_exact(i)
     rb = eseries.pick_at_or_below_rows(rb_exact, i.e_series)
@@ -204,21 +199,31 @@ def compute(inputs: BjtSwitchInputs, validated: bool = False) -> Outcome:
     beta_actual = ic / ib
     margin = i.hfe_min / beta_actual
     power = (i.vce_sat_v * ic + i.vbe_sat_v * ib) * i.duty_cycle
+    high = bjt_drive.pin_high(i.drive_high_v, i.drive_supply_v)
+    rb_low = rb * (1.0 - eseries.tolerance_rows(i.resistor_tolerance, i.e_series))
+    pin_max = bjt_drive.pin_stress_current(high, i.vbe_sat_v, i.base_junctions, rb_low)
+    off_base = bjt_drive.off_base_voltage(i.drive_low_v, i.driver_current_max_a, rb, i.rbe_ohm)
+    turn_on = bjt_drive.turn_on_hot(i.base_junctions)
+    supply_limit = np.where(np.isnan(i.supply_max_v), np.nan, bjt_drive.voltage_limit(i.vceo_max_v))
 
     results: dict[str, np.ndarray] = {
+        "forced_beta_design": beta_design,
         "base_current_required_a": ib_req,
         "rb_exact_ohm": rb_exact,
         "rb_ohm": rb,
         "drive_current_a": drive,
+        "drive_current_max_a": pin_max,
         "base_current_a": ib,
         "forced_beta_actual": beta_actual,
         "saturation_margin": margin,
         "transistor_power_w": power,
+        "off_state_base_v": off_base,
+        "rbe_recommended_ohm": bjt_drive.recommended_pulldown(rb, i.base_junctions, i.e_series),
     }
 
     driver_limit = np.asarray(i.driver_current_max_a, dtype=np.float64)
-    driver_over = ~np.isnan(driver_limit) & (drive > driver_limit)
-    off_limit = rows(n, OFF_STATE_MAX_V)
+    driver_over = ~np.isnan(driver_limit) & (pin_max > driver_limit)
+    over_voltage = i.supply_max_v > supply_limit
     checks = [
         Check(
             "saturation",
@@ -229,12 +234,22 @@ def compute(inputs: BjtSwitchInputs, validated: bool = False) -> Outcome:
             "The actual forced beta (Ic/Ib) must stay below the worst-case gain hfe_min so the transistor saturates.",
         ),
         Check(
+            "vce_sat_guarantee",
+            beta_actual <= i.vce_sat_forced_beta,
+            beta_actual,
+            rows(n, i.vce_sat_forced_beta),
+            "max",
+            "The actual Ic/Ib must not exceed the ratio at which the part's Vce(sat) is specified, or the "
+            "saturation voltage used for the load current and dissipation is not guaranteed.",
+        ),
+        Check(
             "driver_current",
             ~driver_over,
-            drive,
+            pin_max,
             driver_limit,
             "max",
-            "The current the drive pin sources must not exceed its rating (not checked when unknown).",
+            "The pin's current at its stress corner (high level at its supply, hot junction, Rb at -tolerance) "
+            "must not exceed its rating (not checked when unknown).",
         ),
         Check(
             "collector_current_rating",
@@ -243,6 +258,15 @@ def compute(inputs: BjtSwitchInputs, validated: bool = False) -> Outcome:
             i.ic_max_a,
             "max",
             "The load current must not exceed the transistor's maximum collector current.",
+        ),
+        Check(
+            "voltage_rating",
+            ~over_voltage,
+            i.supply_max_v,
+            supply_limit,
+            "max",
+            "The highest supply, which stands across the transistor when off, must stay within vceo_max_v / 1.2 "
+            "(common practice; not checked when either is unknown).",
         ),
         Check(
             "power_rating",
@@ -254,12 +278,12 @@ def compute(inputs: BjtSwitchInputs, validated: bool = False) -> Outcome:
         ),
         Check(
             "off_state",
-            i.drive_low_v <= OFF_STATE_MAX_V,
-            i.drive_low_v,
-            off_limit,
+            off_base <= turn_on,
+            off_base,
+            turn_on,
             "max",
-            "The low drive level must stay at or below 0.4 V, a 0.2 V margin under the ~0.6 V at which the "
-            "base-emitter junction starts to conduct (common practice), so the transistor turns off.",
+            "Off, with the pin low at the leakage it then sinks (and floating, with a pull-down), the hot base "
+            "must stay below the turn-on threshold: 0.4 V per junction at 125 °C (0.6 V at 25 °C less 2 mV/K).",
         ),
     ]
 
@@ -280,6 +304,21 @@ def compute(inputs: BjtSwitchInputs, validated: bool = False) -> Outcome:
     )
     add_notice(
         warnings,
+        beta_actual > i.vce_sat_forced_beta,
+        "Ic/Ib exceeds the ratio at which the part's Vce(sat) is specified: the saturation voltage, and the "
+        "current and dissipation computed from it, are not guaranteed; design at the test ratio.",
+    )
+    add_notice(
+        warnings,
+        np.isnan(i.rbe_ohm),
+        "No base pull-down: while the pin floats (reset, programming) leakage or pickup can turn the "
+        "transistor on; add one of about rbe_recommended_ohm.",
+    )
+    unknown_supply = np.isnan(i.drive_supply_v) & ~np.isnan(driver_limit)
+    message = "The pin's supply is not given: its stress current is taken at drive_high_v, an understatement."
+    add_notice(warnings, unknown_supply, message)
+    add_notice(
+        warnings,
         i.duty_cycle < 1.0,
         "transistor_power_w is averaged over the switching period; the power while on is higher "
         "(divide by duty_cycle).",
@@ -288,6 +327,11 @@ def compute(inputs: BjtSwitchInputs, validated: bool = False) -> Outcome:
         cautions,
         ic > i.ic_max_a,
         "The collector current exceeds the transistor's rating: the transistor can fail.",
+    )
+    add_notice(
+        cautions,
+        over_voltage,
+        "The supply is too close to the transistor's collector-emitter rating: it can break down and fail.",
     )
     add_notice(
         cautions,
@@ -305,6 +349,7 @@ def compute(inputs: BjtSwitchInputs, validated: bool = False) -> Outcome:
 
 # ---- declaration --------------------------------------------------------------------------------------------
 
+
 SPEC = CalculationSpec(
     name=NAME,
     summary="Base resistor for a saturated NPN low-side switch, with drive, rating and dissipation checks",
@@ -318,10 +363,16 @@ SPEC = CalculationSpec(
         positive("collector_current_a", "A", "load current when on"),
         Input("drive_high_v", "V", "driver output voltage when on"),
         Input("drive_low_v", "V", "driver output voltage when off", 0.0),
-        Input("forced_beta", "dimensionless", "Ic/Ib to design for (10: common practice)", 10.0, minimum=1),
+        bjt_drive.FORCED_BETA,
+        bjt_drive.VCE_SAT_FORCED_BETA,
+        bjt_drive.BASE_JUNCTIONS,
+        bjt_drive.VCEO_MAX_V,
+        positive("supply_max_v", "V", "highest supply across the switched load", optional=True),
         Input("e_series", "", "standard resistor series", "E24", choices=E_SERIES),
-        positive("rbe_ohm", "ohm", "base-emitter pull-down resistor", optional=True),
+        fraction("resistor_tolerance", "base resistor tolerance; absent: the series' own", optional=True),
+        bjt_drive.RBE_OHM,
         positive("driver_current_max_a", "A", "largest current the driver may source", optional=True),
+        bjt_drive.DRIVE_SUPPLY_V,
         fraction("duty_cycle", "fraction of time on", default=1.0),
     ),
     roles=(
@@ -334,24 +385,34 @@ SPEC = CalculationSpec(
                 ("vce_sat_v", "vce_sat_v"),
                 ("ic_max_a", "ic_max_a"),
                 ("power_max_w", "power_max_w"),
+                *bjt_drive.TRANSISTOR_EXTRAS,
             ),
             must_have=(("polarity", "npn"),),
         ),
         Role(
             "driver",
             "driver",
-            (("voh_v", "drive_high_v"), ("vol_v", "drive_low_v"), ("source_current_max_a", "driver_current_max_a")),
+            (
+                ("voh_v", "drive_high_v"),
+                ("vol_v", "drive_low_v"),
+                ("source_current_max_a", "driver_current_max_a"),
+                ("vdd_v", "drive_supply_v"),
+            ),
         ),
     ),
     results=(
+        Result("forced_beta_design", "A/A", "Ic/Ib designed for: as given, or from the part"),
         Result("base_current_required_a", "A", "collector current / forced beta"),
         Result("rb_exact_ohm", "ohm", "base resistor giving exactly the required base current"),
         Result("rb_ohm", "ohm", "largest standard value not above the exact one"),
         Result("drive_current_a", "A", "current the driver sources through rb_ohm"),
+        Result("drive_current_max_a", "A", "pin current at its stress corner (its supply, hot Vbe, Rb at -tol)"),
         Result("base_current_a", "A", "current into the base after the pull-down's share"),
         Result("forced_beta_actual", "A/A", "collector current / base current with rb_ohm"),
         Result("saturation_margin", "", "hfe_min / forced_beta_actual"),
         Result("transistor_power_w", "W", "(Vce_sat Ic + Vbe_sat Ib) x duty cycle"),
+        Result("off_state_base_v", "V", "base voltage when off, hot (pin low; floating with a pull-down)"),
+        Result("rbe_recommended_ohm", "ohm", "base pull-down that holds a floating pin's transistor off"),
     ),
     make_inputs=lambda c: columns_as(BjtSwitchInputs, c),
     validate=validate,

@@ -19,8 +19,8 @@ Chain (each step is an existing core calculation; this module only wires them to
        The base is sized for the worst-case maximum collector current, not the nominal one: the base
        resistor's job is to guarantee saturation, and a base sized for the nominal current runs short of
        drive exactly when the LED current is highest (high supply, low Vf, low resistor), which is also when
-       a transistor dropping out of saturation would dissipate most. The price is a little more pin current
-       (in the greenhouse demo 4.8 mA instead of 4.0 mA), which the ``driver_current`` check verifies.
+       a transistor dropping out of saturation would dissipate most. The price is a little more pin current,
+       which the ``driver_current`` check verifies at the pin's stress corner.
        Consequently the switch's ``collector_current_rating`` and ``power_rating`` checks use Ic_max too.
     3. ``duty_power`` with one rectangular load per row: ``channels`` units of peak current Ic (nominal) at
        ``duty_cycle``: average and peak supply current, utilization, and ``max_duty_cycle``, the largest
@@ -31,8 +31,9 @@ Chain (each step is an existing core calculation; this module only wires them to
        (``slew_rate``, ``output_swing``).
 
 Assumptions
-    Those of the four calculations; no base-emitter pull-down; the base current comes from the logic supply,
-    not from ``supply_v``; the LED supply feeds nothing but the channels. Units: SI (V, A, Ω, W, Hz, V/s).
+    Those of the four calculations; a base-emitter pull-down only where ``rbe_ohm`` is given; the base current
+    comes from the logic supply, not from ``supply_v``; the LED supply feeds nothing but the channels.
+    Units: SI (V, A, Ω, W, Hz, V/s).
 """
 
 from __future__ import annotations
@@ -112,7 +113,12 @@ class ChannelInputs:
     duty_cycle: FloatArray
     channels: FloatArray
     e_series: np.ndarray
-    forced_beta: FloatArray
+    forced_beta: FloatArray  # NaN: from the part
+    vce_sat_forced_beta: FloatArray
+    base_junctions: FloatArray
+    vceo_max_v: FloatArray  # NaN: not checked
+    rbe_ohm: FloatArray  # NaN: no base pull-down
+    drive_supply_v: FloatArray  # NaN: not given
     resistor_tolerance: FloatArray
     inverting: BoolArray
     gain: FloatArray
@@ -259,6 +265,9 @@ def _band_violations(v: list[Violation], i: ChannelInputs) -> None:
     require(v, bad, "supply_max_v", f"supply_max_v ({first_bad(high, bad)} V) cannot be below supply_v")
 
 
+_SUPPLY = {"supply_max_v": "supply_v"}
+
+
 def validate(inputs: ChannelInputs) -> list[Violation]:
     """Every physical precondition of every stage, per row, under the flat input names; never raises."""
     i = inputs
@@ -289,8 +298,8 @@ def validate(inputs: ChannelInputs) -> list[Violation]:
             v = Violation(v.field, v.message, v.rows & led_ok)
         found.stage(
             [v],
-            {"collector_current_a": "current_a", "driver_current_max_a": "source_current_max_a"},
-            {"collector_current_a": "collector current", "driver_current_max_a": "source_current_max_a"},
+            {"collector_current_a": "current_a", "driver_current_max_a": "source_current_max_a", **_SUPPLY},
+            {"collector_current_a": "collector current", "driver_current_max_a": "source_current_max_a", **_SUPPLY},
         )
     found.stage(
         duty_power.validate(supply_inputs(i, ic_nominal)),

@@ -4,7 +4,7 @@ page are derived from it, as the calculations' are from their ``SPEC``."""
 
 from __future__ import annotations
 
-from calcsvc.core import channel, monte_carlo
+from calcsvc.core import bjt_drive, channel, monte_carlo
 from calcsvc.core.spec import E_SERIES, Input, InputSet, Role, fraction, positive
 
 
@@ -35,12 +35,17 @@ CHANNEL_INPUTS = InputSet(
         Input("drive_high_v", "V", "driver output voltage when on"),
         Input("drive_low_v", "V", "driver output voltage when off", 0.0),
         positive("source_current_max_a", "A", "largest current the driver pin may source", optional=True),
+        bjt_drive.DRIVE_SUPPLY_V,
         positive("hfe_min", "dimensionless", "lowest DC current gain"),
         positive("hfe_typ", "dimensionless", "typical DC current gain"),
         positive("vbe_sat_v", "V", "base-emitter voltage in saturation"),
         Input("vce_sat_v", "V", "collector-emitter voltage in saturation", minimum=0),
         positive("ic_max_a", "A", "transistor's collector current rating"),
         positive("power_max_w", "W", "transistor's dissipation rating"),
+        bjt_drive.VCE_SAT_FORCED_BETA,
+        bjt_drive.BASE_JUNCTIONS,
+        bjt_drive.VCEO_MAX_V,
+        bjt_drive.RBE_OHM,
         positive("vf_typ_v", "V", "typical LED forward voltage"),
         positive("vf_min_v", "V", "lowest LED forward voltage"),
         positive("vf_max_v", "V", "highest LED forward voltage"),
@@ -53,7 +58,7 @@ CHANNEL_INPUTS = InputSet(
         positive("period_s", "s", "PWM period", optional=True),
         _count("channels", "identical channels sharing the supply", 1),
         Input("e_series", "", "standard resistor series", "E24", choices=E_SERIES),
-        Input("forced_beta", "dimensionless", "Ic/Ib to design for (10: common practice)", 10.0, minimum=1),
+        bjt_drive.FORCED_BETA,
         Input(
             "resistor_tolerance",
             "dimensionless",
@@ -119,12 +124,20 @@ CHANNEL_INPUTS = InputSet(
         Role(
             "driver",
             "driver",
-            (("voh_v", "drive_high_v"), ("vol_v", "drive_low_v"), ("source_current_max_a", "source_current_max_a")),
+            (
+                ("voh_v", "drive_high_v"),
+                ("vol_v", "drive_low_v"),
+                ("source_current_max_a", "source_current_max_a"),
+                ("vdd_v", "drive_supply_v"),
+            ),
         ),
         Role(
             "transistor",
             "bjt",
-            tuple((p, p) for p in ("hfe_min", "hfe_typ", "vbe_sat_v", "vce_sat_v", "ic_max_a", "power_max_w")),
+            (
+                *((p, p) for p in ("hfe_min", "hfe_typ", "vbe_sat_v", "vce_sat_v", "ic_max_a", "power_max_w")),
+                *bjt_drive.TRANSISTOR_EXTRAS,
+            ),
             must_have=(("polarity", "npn"),),
         ),
         Role("led", "led", tuple((p, p) for p in ("vf_typ_v", "vf_min_v", "vf_max_v", "if_max_a"))),
@@ -140,7 +153,8 @@ STAGES = ("led_string", "switch", "supply", "front_stage")
 
 # The unit of each check's value, for axes and reports.
 CHECK_UNITS = {
-    "led_current_rating": "A", "headroom": "V", "resistor_rating": "W", "saturation": "", "driver_current": "A",
-    "collector_current_rating": "A", "power_rating": "W", "off_state": "V", "supply_average_current": "A",
-    "supply_peak_current": "A", "gain_achievable": "", "signal_in_band": "Hz", "slew_rate": "V/s", "output_swing": "V",
+    "led_current_rating": "A", "headroom": "V", "resistor_rating": "W", "saturation": "", "vce_sat_guarantee": "",
+    "driver_current": "A", "collector_current_rating": "A", "voltage_rating": "V", "power_rating": "W",
+    "off_state": "V", "supply_average_current": "A", "supply_peak_current": "A", "gain_achievable": "",
+    "signal_in_band": "Hz", "slew_rate": "V/s", "output_swing": "V",
 }  # fmt: skip

@@ -17,11 +17,7 @@ if TYPE_CHECKING:  # ``channel`` builds on this module; the inputs type is neede
 
 def resistor_tolerance(inputs: ChannelInputs) -> FloatArray:
     """The tolerance of both resistors per row: as given, or the series' default."""
-    return np.where(
-        np.isnan(inputs.resistor_tolerance),
-        eseries.default_tolerance_rows(inputs.e_series),
-        inputs.resistor_tolerance,
-    )
+    return eseries.tolerance_rows(inputs.resistor_tolerance, inputs.e_series)
 
 
 def led_inputs(i: ChannelInputs) -> led_string.LedStringInputs:
@@ -52,9 +48,15 @@ def switch_inputs(i: ChannelInputs, collector_current_a: FloatArray) -> bjt_swit
         drive_high_v=i.drive_high_v,
         drive_low_v=i.drive_low_v,
         forced_beta=i.forced_beta,
+        vce_sat_forced_beta=i.vce_sat_forced_beta,
+        base_junctions=i.base_junctions,
+        vceo_max_v=i.vceo_max_v,
+        supply_max_v=i.supply_v,  # nominal; the worst case takes the supply's high corner
         e_series=i.e_series,
-        rbe_ohm=np.full(i.supply_v.shape, np.nan),
+        resistor_tolerance=i.resistor_tolerance,
+        rbe_ohm=i.rbe_ohm,
         driver_current_max_a=i.source_current_max_a,
+        drive_supply_v=i.drive_supply_v,
         duty_cycle=i.duty_cycle,
     )
 

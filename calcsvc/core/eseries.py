@@ -221,6 +221,11 @@ def default_tolerance_rows(names: npt.ArrayLike) -> FloatArray:
     return out
 
 
+def tolerance_rows(given: FloatArray, names: npt.ArrayLike) -> FloatArray:
+    """Each row's resistor tolerance: as given, or (NaN) its series' default."""
+    return np.where(np.isnan(given), default_tolerance_rows(names), given)
+
+
 def _pick_rows(values: npt.ArrayLike, names: npt.ArrayLike, above: bool) -> FloatArray:
     x = np.asarray(values, dtype=np.float64)
     arr = np.broadcast_to(np.asarray(names, dtype=str), x.shape)

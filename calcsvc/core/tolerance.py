@@ -5,8 +5,9 @@ values within the tolerances, and every check is re-evaluated with the chosen re
 
     string current  I  = max(Vs − ΣVf − Vce_sat, 0) / R_led       (the string stays dark below its drop)
     collector       Ic = Σ over strings of I                     (the switch saturated)
-    base current    Ib = (V_drive − Vbe_sat) / Rb                (no base-emitter pull-down)
+    base current    Ib = (V_drive − Vbe_sat) / Rb − Vbe_sat/Rbe  (Rbe: the pull-down, where given, nominal)
     saturation      Ic/Ib < hfe                                  (the actual gain, not hfe_min)
+    pin current     (V_dd − Vbe_hot) / Rb                        (the pin's stress corner, ``bjt_drive``)
     transistor      P  = (Vce_sat·Ic + Vbe_sat·Ib)·D;  supply: channels·Ic peak, channels·Ic·D average
 
 and the LED-stage rules per string: I ≤ if_max (``led_current_rating``), Vs − ΣVf − Vce_sat ≥ 10 % of Vs
@@ -44,7 +45,7 @@ from dataclasses import dataclass
 import numpy as np
 import numpy.typing as npt
 
-from calcsvc.core import led_string, load_current, slew
+from calcsvc.core import bjt_drive, led_string, load_current, slew
 from calcsvc.core.channel import ChannelInputs, ChannelReview, failing_names, review
 from calcsvc.core.channel_stages import has_front_stage, resistor_tolerance, slew_inputs, supply_band
 from calcsvc.core.outcome import (
@@ -76,10 +77,12 @@ DEPENDS_ON: dict[str, tuple[str, ...]] = {
     "headroom": ("supply", "vf"),
     "resistor_rating": _LED,
     "saturation": QUANTITIES,
+    "vce_sat_guarantee": (*_LED, "base_resistor"),
     "driver_current": ("base_resistor",),
     "collector_current_rating": _LED,
+    "voltage_rating": ("supply",),
     "power_rating": (*_LED, "base_resistor"),
-    "off_state": (),
+    "off_state": ("base_resistor",),
     "supply_average_current": _LED,
     "supply_peak_current": _LED,
     "gain_achievable": (),
@@ -88,6 +91,12 @@ DEPENDS_ON: dict[str, tuple[str, ...]] = {
     "output_swing": ("supply",),
 }
 """The toleranced quantities each check depends on; checks depending on none keep their nominal result."""
+
+# Settings held at their worst for a check, beyond the toleranced ones: the pin stress corner (``bjt_drive``).
+HELD: dict[str, dict[str, str]] = {
+    "driver_current": {"pin_high": "at its supply", "vbe": "hot"},
+    "off_state": {"leakage": "hot"},
+}
 
 
 def hfe_max(inputs: ChannelInputs) -> FloatArray:
@@ -136,7 +145,13 @@ def evaluate_at(inputs: ChannelInputs, nominal: ChannelReview, at: Point) -> lis
     current = led_string.string_current(v_r, at.led_resistor_ohm)
     # Each of the s evaluated strings stands for strings/s real ones.
     ic = row(i.strings / at.string_vf_v.shape[-1]) * _per_string(current, np.sum)
-    ib = row(i.drive_high_v - i.vbe_sat_v) / at.base_resistor_ohm
+    i_rbe = np.where(np.isnan(i.rbe_ohm), 0.0, i.vbe_sat_v / i.rbe_ohm)
+    ib = row(i.drive_high_v - i.vbe_sat_v) / at.base_resistor_ohm - row(i_rbe)
+    high = bjt_drive.pin_high(i.drive_high_v, i.drive_supply_v)
+    pin = bjt_drive.pin_stress_current(row(high), row(i.vbe_sat_v), row(i.base_junctions), at.base_resistor_ohm)
+    off_base = bjt_drive.off_base_voltage(
+        row(i.drive_low_v), row(i.source_current_max_a), at.base_resistor_ohm, row(i.rbe_ohm)
+    )
     beta = ic / ib
     duty = row(i.duty_cycle)
     power = (row(i.vce_sat_v) * ic + row(i.vbe_sat_v) * ib) * duty
@@ -155,14 +170,20 @@ def evaluate_at(inputs: ChannelInputs, nominal: ChannelReview, at: Point) -> lis
         "ic_max": row(i.ic_max_a),
         "power_max": row(i.power_max_w),
         "supply": row(i.current_max_a),
+        "vce_sat_beta": row(i.vce_sat_forced_beta),
+        "voltage": row(bjt_drive.voltage_limit(i.vceo_max_v)),
+        "turn_on": row(bjt_drive.turn_on_hot(i.base_junctions)),
     }
     varying: dict[str, tuple[np.ndarray, np.ndarray, np.ndarray]] = {  # value, limit, ok
         "led_current_rating": (worst_current, rating["if_max_a"], worst_current <= rating["if_max_a"]),
         "headroom": (headroom, headroom_limit, headroom >= headroom_limit),
         "resistor_rating": (resistor_need, max_rating, resistor_need <= max_rating),
         "saturation": (beta, at.hfe, beta < at.hfe),
-        "driver_current": (ib, rating["source"], ~(ib > rating["source"])),
+        "vce_sat_guarantee": (beta, rating["vce_sat_beta"], beta <= rating["vce_sat_beta"]),
+        "driver_current": (pin, rating["source"], ~(pin > rating["source"])),
         "collector_current_rating": (ic, rating["ic_max"], ic <= rating["ic_max"]),
+        "voltage_rating": (at.supply_v, rating["voltage"], ~(at.supply_v > rating["voltage"])),
+        "off_state": (off_base, rating["turn_on"], off_base <= rating["turn_on"]),
         "power_rating": (power, rating["power_max"], power <= rating["power_max"]),
         "supply_average_current": (supply_average, rating["supply"], ~(supply_average > rating["supply"])),
         "supply_peak_current": (supply_peak, rating["supply"], ~(supply_peak > rating["supply"])),
@@ -220,7 +241,7 @@ class WorstCheck:
     def corner(self, row: int) -> dict[str, str]:
         """The settings, at the worst corner of ``row``, of the quantities this check depends on."""
         settings = CORNERS[int(self.corner_index[row])]
-        return {q: settings[q] for q in self.depends_on}
+        return {q: settings[q] for q in self.depends_on} | HELD.get(self.name, {})
 
 
 @dataclass(frozen=True)

@@ -54,13 +54,12 @@ KINDS: dict[str, tuple[Param, ...]] = {
         Param("vbe_sat_v", "V", "base-emitter voltage in saturation"),
         Param("vce_sat_v", "V", "collector-emitter voltage in saturation", positive=False),
         Param("ic_max_a", "A", "continuous collector current rating"),
-        Param(
-            "vceo_max_v",
-            "V",
-            "collector-emitter breakdown with open base",
-            informational="no check of the off-state collector voltage yet",
-        ),
+        Param("vceo_max_v", "V", "collector-emitter breakdown with open base"),
         Param("power_max_w", "W", "total dissipation rating at 25 °C ambient"),
+        Param("vce_sat_forced_beta", "dimensionless", "Ic/Ib at which vce_sat_v is specified", optional=True),
+        Param(
+            "base_junctions", "dimensionless", "base-emitter junctions: 2 for a Darlington", optional=True, integer=True
+        ),
     ),
     "led": (
         Param("color", "", "emitted colour, free text", text=True, informational="names the part for people"),
@@ -96,6 +95,7 @@ KINDS: dict[str, tuple[Param, ...]] = {
         Param("voh_v", "V", "output high voltage at the rated source current"),
         Param("vol_v", "V", "output low voltage", positive=False),
         Param("source_current_max_a", "A", "largest current the pin may source"),
+        Param("vdd_v", "V", "the pin's own supply, its high level at light load", optional=True),
     ),
 }
 
@@ -149,6 +149,8 @@ def validate_parameters(kind: str, parameters: dict[str, Any]) -> dict[str, str]
             errors[name] = "must be a fraction from 0 up to (not including) 1"
         elif param.positive and value <= 0:
             errors[name] = "must be greater than zero"
+        elif param.integer and value != int(value):
+            errors[name] = "must be a whole number"
         elif value < 0:
             errors[name] = "must not be negative"
     for low, high, strict in ORDERED[kind]:

@@ -59,12 +59,12 @@ def sleeps(monkeypatch: pytest.MonkeyPatch) -> list[float]:
             "resistor_ohm",
             300.0,
         ),
-        # Ib = 60 mA / forced beta 10 = 6 mA (forced beta 10: common practice).
+        # Ib = 60 mA / (the part's Vce(sat) test ratio 10 / 1.05 for a +5 % E24 resistor) = 6.3 mA.
         (
             "bjt_switch",
             {"transistor": "npn-small-signal", "driver": "driver-mcu-3v3", "collector_current_a": "60 mA"},
             "base_current_required_a",
-            0.006,
+            0.0063,
         ),
         # Single pole: bandwidth = GBW / noise gain = 1 MHz / 10 (from memory), finite A0 adds 0.005 %.
         ("closed_loop_bandwidth", {"opamp": "opamp-general-1mhz", "gain": 10}, "bandwidth_hz", 100_000.0),

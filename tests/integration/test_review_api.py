@@ -15,8 +15,9 @@ from helpers import assert_problem
 DEMO = json.loads((Path(__file__).resolve().parents[2] / "examples" / "greenhouse-channel.json").read_text())
 EXPLICIT = {
     "supply_v": 12, "supply_tolerance": 0.05, "supply_min_v": 11.4, "supply_max_v": 12.6, "current_max_a": 2,
-    "drive_high_v": 2.9, "drive_low_v": 0.2, "source_current_max_a": 0.008,
-    "hfe_min": 100, "hfe_typ": 200, "vbe_sat_v": 0.85, "vce_sat_v": 0.2, "ic_max_a": 0.2, "power_max_w": 0.625,
+    "drive_high_v": 2.8, "drive_low_v": 0.2, "source_current_max_a": 0.01, "drive_supply_v": 3.3,
+    "hfe_min": 80, "hfe_typ": 180, "vbe_sat_v": 0.9, "vce_sat_v": 0.25, "ic_max_a": 0.3, "power_max_w": 0.5,
+    "vce_sat_forced_beta": 10, "base_junctions": 1, "vceo_max_v": 45,
     "vf_typ_v": 2.1, "vf_min_v": 1.9, "vf_max_v": 2.5, "if_max_a": 0.03,
     "leds_in_series": 3, "strings": 2, "current_a": 0.02, "duty_cycle": 0.5, "channels": 6, "samples": 2000,
 }  # fmt: skip
@@ -34,10 +35,10 @@ def test_greenhouse_demo_passes_with_every_stage(client: FlaskClient, seeded: An
     assert set(data["stages"]) == {"led_string", "switch", "supply", "front_stage"}
     assert {c["stage"] for c in data["checks"]} == {"led_string", "switch", "supply", "front_stage"}
     assert {p["role"] for p in data["parts"]} == {"supply", "driver", "transistor", "led", "opamp"}
-    # (12 - 3 x 2.1 - 0.2) V / 20 mA = 275 ohm, rounded up to the E24 value 300 ohm (IEC 60063).
+    # (12 - 3 x 2.1 - 0.25) V / 20 mA = 272.5 ohm, rounded up to the E24 value 300 ohm (IEC 60063).
     assert data["stages"]["led_string"]["resistor_ohm"] == 300.0
-    # Six channels of 2 x 18.33 mA at 50 % on a 2 A adapter: every channel could run at 100 %.
-    assert data["stages"]["supply"]["average_current_a"] == pytest.approx(6 * 2 * 5.5 / 300 * 0.5)
+    # Six channels of 2 x 18.17 mA at 50 % on a 2 A adapter: every channel could run at 100 %.
+    assert data["stages"]["supply"]["average_current_a"] == pytest.approx(6 * 2 * 5.45 / 300 * 0.5)
     assert data["max_duty_cycle"] == 1.0
     assert data["yield"]["fraction"] == 1.0 and data["yield"]["samples"] == 10_000
     assert len(data["fingerprint"]) == 64
@@ -54,7 +55,7 @@ def test_explicit_values_give_the_same_review_as_parts(client: FlaskClient, seed
 
 def test_under_driven_switch_fails_saturation_and_loses_yield(client: FlaskClient) -> None:
     # Forced beta 30 against hfe_min 20: the worst-case transistor cannot saturate.
-    weak = {**EXPLICIT, "hfe_min": 20, "hfe_typ": 40, "forced_beta": 30, "samples": 5000}
+    weak = {**EXPLICIT, "hfe_min": 20, "hfe_typ": 40, "forced_beta": 30, "vce_sat_forced_beta": 40, "samples": 5000}
     data = review(client, weak)
     assert data["verdict"] == "fail" and "saturation" in data["failing"]
     saturation = next(c for c in data["checks"] if c["name"] == "saturation")
@@ -111,7 +112,7 @@ def test_markdown_report_agrees_with_the_json(client: FlaskClient, seeded: Any) 
 
 
 def test_html_report(client: FlaskClient, seeded: Any) -> None:
-    weak = {**EXPLICIT, "hfe_min": 20, "hfe_typ": 40, "forced_beta": 30, "samples": 500}
+    weak = {**EXPLICIT, "hfe_min": 20, "hfe_typ": 40, "forced_beta": 30, "vce_sat_forced_beta": 40, "samples": 500}
     response = client.post("/v1/review/channel", json=weak, headers={"Accept": "text/html"})
     assert response.mimetype == "text/html"
     page = response.get_data(as_text=True)
@@ -119,9 +120,19 @@ def test_html_report(client: FlaskClient, seeded: Any) -> None:
 
 
 def test_yield_histogram_of_the_most_failing_check(client: FlaskClient) -> None:
-    weak = {**EXPLICIT, "hfe_min": 20, "hfe_typ": 40, "forced_beta": 30, "samples": 1000}
+    weak = {**EXPLICIT, "hfe_min": 20, "hfe_typ": 40, "forced_beta": 30, "vce_sat_forced_beta": 40, "samples": 1000}
     png = client.post("/v1/review/channel/histogram.png", json=weak)
     assert png.status_code == 200 and png.mimetype == "image/png" and png.data.startswith(b"\x89PNG")
     svg = client.post("/v1/review/channel/histogram.svg", json=weak)
     assert svg.mimetype == "image/svg+xml" and b"saturation" in svg.data
     assert_problem(client.post("/v1/review/channel/histogram.svg", json=EXPLICIT), 422, "samples")
+
+
+def test_darlington_channel_asks_the_pin_for_a_fraction_of_a_milliamp(client: FlaskClient, seeded: Any) -> None:
+    # Sized at the Darlington's own Vce(sat) test ratio (250, over 1.05 for a +5 % resistor) rather than Ic/Ib = 10:
+    # about 2 × 24.4 mA × 1.05 / 250 ≈ 0.2 mA of base current, where a ratio of 10 would ask about 5 mA.
+    data = review(client, {**DEMO, "transistor": "npn-darlington-1a", "samples": 0})
+    switch = data["stages"]["switch"]
+    assert data["verdict"] == "pass"
+    assert switch["forced_beta_design"] == pytest.approx(250 / 1.05)
+    assert switch["drive_current_a"] < 0.3e-3 and switch["drive_current_max_a"] < 0.5e-3

@@ -31,9 +31,15 @@ DEFAULTS: dict[str, Any] = {
     "drive_high_v": 3.3,
     "drive_low_v": 0.0,
     "forced_beta": 10.0,
+    "vce_sat_forced_beta": 10.0,
+    "base_junctions": 1.0,
+    "vceo_max_v": math.nan,
+    "supply_max_v": math.nan,
     "e_series": "E24",
+    "resistor_tolerance": math.nan,
     "rbe_ohm": math.nan,
     "driver_current_max_a": math.nan,
+    "drive_supply_v": math.nan,
     "duty_cycle": 1.0,
 }
 
@@ -132,7 +138,7 @@ def test_hand_example() -> None:
     assert r["saturation_margin"][0] == pytest.approx(100.0 * 2.55 / (0.15 * 160.0), rel=1e-12)
     assert r["transistor_power_w"][0] == pytest.approx(0.2 * 0.15 + 0.75 * 2.55 / 160.0, rel=1e-12)
     assert all(bool(c.ok[0]) for c in out.checks)
-    assert out.warnings == [] and out.cautions == []
+    assert "No base pull-down" in messages(out.warnings) and len(out.warnings) == 1 and out.cautions == []
 
 
 def test_exact_value_with_float_noise_keeps_the_standard_value() -> None:
@@ -280,15 +286,111 @@ def test_collector_and_power_over_rating() -> None:
 
 
 def test_off_state_check() -> None:
-    # 0.4 V limit: 0.2 V below a ~0.6 V base-emitter turn-on (common practice).
-    out = compute(make(drive_low_v=[0.0, 0.4, 0.5]))
+    # Hot turn-on threshold per junction: 0.6 V at 25 °C (common practice) less 2 mV/K over 100 K (from memory)
+    # = 0.4 V. Without a pin rating the low level is taken as given; the base adds 1 µA (hot leakage) × 160 Ω.
+    out = compute(make(drive_low_v=[0.0, 0.39, 0.5]))
     check = checks(out)["off_state"]
     assert check.ok.tolist() == [True, True, False]
-    assert check.limit.tolist() == [0.4, 0.4, 0.4]
+    assert check.limit == pytest.approx([0.4, 0.4, 0.4])
+    assert check.value == pytest.approx([160e-6, 0.39 + 160e-6, 0.5 + 160e-6])
+
+
+def test_off_state_reads_the_low_level_at_the_off_state_current() -> None:
+    # A 5 V pin stating VOL 0.6 V at its 20 mA rating sinks only ~1 µA when the switch is off: a resistive pin
+    # (common practice) sits at 0.6 V × 1 µA / 20 mA = 30 µV; the base adds 1 µA × Rb. The old rule (VOL ≤ 0.4 V)
+    # failed this pin with every transistor. A Darlington's threshold is two junctions: 0.8 V.
+    out = compute(make(drive_high_v=4.3, drive_low_v=0.6, driver_current_max_a=0.02, base_junctions=[1.0, 2.0]))
+    check = checks(out)["off_state"]
+    rb = out.results["rb_ohm"]
+    assert check.ok.tolist() == [True, True]
+    assert check.value == pytest.approx(0.6 * 1e-6 / 0.02 + 1e-6 * rb, rel=1e-12)
+    assert check.limit == pytest.approx([0.4, 0.8])
+
+
+def test_pull_down_holds_a_floating_base_and_is_recommended() -> None:
+    # Floating pin: only the pull-down holds the base, V = 1 µA × Rbe; 1 MΩ lets it reach 1 V > 0.4 V.
+    # Recommended: E24 at or below min(10 × Rb, 0.4 V / (2 × 1 µA)) = min(1600, 200 k) Ω = 1.6 kΩ (common practice).
+    out = compute(make(rbe_ohm=[1e6, 1000.0, math.nan]))
+    check = checks(out)["off_state"]
+    assert check.ok.tolist() == [False, True, True]
+    assert check.value[0] == pytest.approx(1.0, rel=1e-12)
+    # Pin low with 1 kΩ: divider Rbe/(Rb+Rbe) on 1 µA × Rb (Kirchhoff), below the floating 1 µA × 1 kΩ.
+    assert check.value[1] == pytest.approx(1e-3, rel=1e-12)
+    assert out.results["rbe_recommended_ohm"][2] == 1600.0
+    (pull_down,) = [n for n in out.warnings if "No base pull-down" in n.message]
+    assert pull_down.rows.tolist() == [False, False, True]
+
+
+def test_voltage_rating_against_the_highest_supply() -> None:
+    # 48 V + 5 % = 50.4 V off-state Vce against a 40 V part: fails (1.2 × derating: 33.3 V, common practice).
+    out = compute(make(vceo_max_v=40.0, supply_max_v=[50.4, 30.0, math.nan]))
+    check = checks(out)["voltage_rating"]
+    assert check.ok.tolist() == [False, True, True]
+    assert check.limit[:2] == pytest.approx([40 / 1.2, 40 / 1.2]) and np.isnan(check.limit[2])
+    assert "break down" in messages(out.cautions)
+
+
+def test_pin_current_is_checked_at_its_stress_corner() -> None:
+    # Pin high at its 3.3 V supply (lightly loaded), Vbe hot: 0.75 − 0.2 = 0.55 V (2 mV/K over 100 K, from memory),
+    # Rb at E24's −5 %: (3.3 − 0.55) / (160 × 0.95) = 18.09 mA, above a 17 mA pin that the nominal 15.94 mA passes.
+    out = compute(make(drive_high_v=2.9, drive_supply_v=3.3, driver_current_max_a=0.017, collector_current_a=0.13))
+    rb = out.results["rb_ohm"][0]
+    assert out.results["drive_current_a"][0] < 0.017
+    check = checks(out)["driver_current"]
+    assert check.value[0] == pytest.approx((3.3 - 0.55) / (rb * 0.95), rel=1e-12)
+    assert not check.ok[0]
+
+
+def test_default_ratio_follows_the_part() -> None:
+    # Not given: the Vce(sat) test ratio over (1 + 5 %) for a high E24 resistor, kept an overdrive of 2 below
+    # hfe_min (common practice): small-signal min(10/1.05, 100/2) = 9.52; Darlington min(250/1.05, 1500/2) = 238.1;
+    # low-gain power part min(10/1.05, 12/2) = 6; with exact resistors the test ratio itself.
+    out = compute(
+        make(
+            forced_beta=math.nan,
+            hfe_min=[100.0, 1500.0, 12.0, 100.0],
+            vce_sat_forced_beta=[10.0, 250.0, 10.0, 10.0],
+            resistor_tolerance=[math.nan, math.nan, math.nan, 0.0],
+        )
+    )
+    assert out.results["forced_beta_design"] == pytest.approx([10 / 1.05, 250 / 1.05, 6.0, 10.0], rel=1e-12)
+
+
+DARLINGTON_150MA: dict[str, Any] = {
+    "forced_beta": math.nan,
+    "hfe_min": 1500.0,
+    "vce_sat_forced_beta": 250.0,
+    "vbe_sat_v": 1.7,
+    "vce_sat_v": 1.1,
+    "base_junctions": 2.0,
+    "drive_high_v": 2.8,
+    "drive_supply_v": 3.3,
+    "driver_current_max_a": 0.008,
+}
+
+
+def test_darlington_from_a_3v3_pin_with_defaults() -> None:
+    # 150 mA at the part's ratio 250/1.05: Ib = 0.63 mA; Rb = (2.8 − 1.7) V / 0.63 mA = 1746 Ω → E24 1.6 kΩ;
+    # pin 1.1 V / 1.6 kΩ = 0.6875 mA; stress corner (3.3 − (1.7 − 2 × 0.2)) / (1.6 kΩ × 0.95) = 1.32 mA ≤ 8 mA.
+    out = compute(make(**DARLINGTON_150MA))
+    r = out.results
+    assert r["rb_ohm"][0] == 1600.0
+    assert r["drive_current_a"][0] == pytest.approx(1.1 / 1600, rel=1e-12)
+    assert r["drive_current_max_a"][0] == pytest.approx(2.0 / 1520, rel=1e-12)
+    assert all(bool(c.ok[0]) for c in out.checks)
+
+
+def test_forced_beta_above_the_vce_sat_test_ratio_fails() -> None:
+    # Forced beta 50 on a part whose Vce(sat) holds at Ic/Ib = 10: saturated (hfe_min 100), Vce(sat) not guaranteed.
+    out = compute(make(forced_beta=[10.0, 50.0]))
+    c = checks(out)
+    assert c["saturation"].ok.tolist() == [True, True]
+    assert c["vce_sat_guarantee"].ok.tolist() == [True, False]
+    assert "not guaranteed" in messages(out.warnings)
 
 
 def test_duty_cycle_averages_power_and_warns() -> None:
-    out = compute(make(duty_cycle=[1.0, 0.25]))
+    out = compute(make(duty_cycle=[1.0, 0.25], rbe_ohm=1600.0))
     p = out.results["transistor_power_w"]
     assert p[1] == pytest.approx(0.25 * p[0], rel=1e-12)
     (warning,) = out.warnings
@@ -323,7 +425,13 @@ def valid_inputs(draw: st.DrawFn) -> BjtSwitchInputs:
         cols["collector_current_a"].append(ic)
         cols["drive_high_v"].append(vh)
         cols["drive_low_v"].append(vh - draw(st.floats(min_value=0.01, max_value=25.0)))
-        cols["forced_beta"].append(fb)
+        cols["forced_beta"].append(draw(st.one_of(st.just(math.nan), st.just(fb))))
+        cols["resistor_tolerance"].append(draw(st.one_of(st.just(math.nan), st.floats(0.0, 0.2))))
+        cols["vce_sat_forced_beta"].append(draw(st.floats(min_value=1.0, max_value=500.0)))
+        cols["base_junctions"].append(draw(st.sampled_from([1.0, 2.0])))
+        cols["vceo_max_v"].append(draw(st.one_of(st.just(math.nan), st.floats(1.0, 1000.0))))
+        cols["supply_max_v"].append(draw(st.one_of(st.just(math.nan), st.floats(1.0, 1000.0))))
+        cols["drive_supply_v"].append(vh + draw(st.one_of(st.just(math.nan), st.floats(0.0, 2.0))))
         cols["e_series"].append(draw(st.sampled_from(list(eseries.SERIES))))
         # Pull-down current up to 10× the required base current: realistic, and keeps cancellation mild.
         rbe_min = vbe / (10 * ic / fb)
@@ -349,7 +457,12 @@ def test_property_results_are_sound(inputs: BjtSwitchInputs) -> None:
     # is amplified by (Ib_req + I_rbe)/Ib_req where the pull-down takes part of the drive.
     i_rbe = np.where(np.isnan(inputs.rbe_ohm), 0.0, inputs.vbe_sat_v / inputs.rbe_ohm)
     amplification = 1 + i_rbe / r["base_current_required_a"]
-    assert np.all(r["forced_beta_actual"] <= inputs.forced_beta * (1 + 1e-9 * amplification))
+    assert np.all(r["forced_beta_actual"] <= r["forced_beta_design"] * (1 + 1e-9 * amplification))
+    given = ~np.isnan(inputs.forced_beta)
+    np.testing.assert_array_equal(r["forced_beta_design"][given], inputs.forced_beta[given])
+    assert np.all(r["forced_beta_design"][~given] <= inputs.vce_sat_forced_beta[~given])
+    # The pin's stress corner never sources less than the nominal drive.
+    assert np.all(r["drive_current_max_a"] >= r["drive_current_a"] * (1 - 1e-12))
     assert np.all(r["base_current_a"] > 0)
     assert np.all(r["transistor_power_w"] >= 0)
     # Kirchhoff's current law at the base.
@@ -362,3 +475,58 @@ def test_property_results_are_sound(inputs: BjtSwitchInputs) -> None:
             np.testing.assert_array_equal(check.ok, check.value < check.limit)
         elif check.sense == "max":
             np.testing.assert_array_equal(check.ok[known], check.value[known] <= check.limit[known])
+
+
+def solve_darlington(
+    q1: EbersMoll, q2: EbersMoll, v_high: float, rb: float, v_cc: float, rc: float
+) -> dict[str, float]:
+    """Solve V_high–Rb–base of Q1, Q1's emitter into Q2's base, Q2's emitter grounded, both collectors on Rc.
+
+    Nested brentq (each residual monotonic in its unknown): the middle node balances Q1's emitter current
+    against Q2's base current; the collector node balances the load against Ic1 + Ic2; the base node the drive
+    against Ib1.
+    """
+
+    def middle(vb: float, vc: float) -> float:
+        def node(vm: float) -> float:
+            ic1, ib1 = q1.currents(vb - vm, vb - vc)
+            return ic1 + ib1 - q2.currents(vm, vm - vc)[1]
+
+        return brentq(node, -1.0, vb + 1.0, xtol=1e-13)
+
+    def terminals(vb: float, vc: float) -> tuple[float, float, float, float]:
+        vm = middle(vb, vc)
+        ic1, ib1 = q1.currents(vb - vm, vb - vc)
+        return vm, ic1 + q2.currents(vm, vm - vc)[0], ib1, vc
+
+    def collector(vb: float) -> float:
+        return brentq(lambda vc: (v_cc - vc) / rc - terminals(vb, vc)[1], -1.0, v_cc, xtol=1e-12)
+
+    vb = brentq(lambda b: (v_high - b) / rb - terminals(b, collector(b))[2], 0.0, v_high, xtol=1e-12)
+    vm, ic, ib, vc = terminals(vb, collector(vb))
+    return {"vce": vc, "vbc2": vm - vc, "ic": ic, "ib": ib}
+
+
+def test_darlington_default_ratio_saturates_the_ebers_moll_pair() -> None:
+    # Independent numerical solution with scipy of two Ebers–Moll transistors (Ebers & Moll 1954) in the
+    # Darlington connection (Sedra & Smith, "Microelectronic Circuits", Darlington configuration): each βF =
+    # √hfe_min so the pair's gain ≈ βF1·βF2 = hfe_min (worst case), each Is fitted so each junction holds half of
+    # vbe_sat at the design currents. Load Rc = (12 V − Vce_sat)/Ic.
+    inputs = make(**DARLINGTON_150MA)
+    out = compute(inputs)
+    beta = math.sqrt(1500.0)
+    ib1 = out.results["base_current_required_a"][0]
+    q1 = fitted_model(beta, 0.85, ib1)
+    q2 = fitted_model(beta, 0.85, beta * ib1)
+    rc = load_resistor(0.15, 1.1)
+    sol = solve_darlington(q1, q2, 2.8, out.results["rb_ohm"][0], V_CC, rc)
+    assert sol["ic"] == pytest.approx(0.15, rel=0.03)  # the load current flows: the pair is switched on
+    assert sol["ic"] / sol["ib"] < 1500.0
+    assert sol["vce"] < 1.1  # within the part's stated Vce(sat)
+    # The core's base current agrees with the device model within 10 % (Vbe within 0.1 V of vbe_sat).
+    assert out.results["base_current_a"][0] == pytest.approx(sol["ib"], rel=0.1)
+    # Textbook Darlington behaviour: the output transistor never saturates (Vce = Vbe2 + Vce1 > Vbe2), so 25
+    # times the drive (Ic/Ib = 10, the small-signal rule) lowers Vce by little and never below Vbe2.
+    hard = solve_darlington(q1, q2, 2.8, (2.8 - 1.7) / 0.015, V_CC, rc)
+    assert hard["vbc2"] < 0 and sol["vbc2"] < 0
+    assert sol["vce"] - hard["vce"] < 0.1 and hard["vce"] > 0.7

@@ -26,7 +26,7 @@ DEMO: dict[str, Any] = {
     "current_max_a": 2.0,
     "capacity_ah": math.nan,
     "drive_high_v": 2.9,
-    "drive_low_v": 0.4,
+    "drive_low_v": 0.3,
     "source_current_max_a": 0.008,
     "hfe_min": 100.0,
     "hfe_typ": 200.0,
@@ -45,6 +45,11 @@ DEMO: dict[str, Any] = {
     "channels": 6.0,
     "e_series": "E24",
     "forced_beta": 10.0,
+    "vce_sat_forced_beta": 10.0,
+    "base_junctions": 1.0,
+    "vceo_max_v": 40.0,
+    "rbe_ohm": math.nan,
+    "drive_supply_v": 3.3,
     "resistor_tolerance": math.nan,
     "inverting": False,
     "gain": 10.0,
@@ -117,8 +122,10 @@ def test_greenhouse_demo_channel_by_hand() -> None:
         "headroom",
         "resistor_rating",
         "saturation",
+        "vce_sat_guarantee",
         "driver_current",
         "collector_current_rating",
+        "voltage_rating",
         "power_rating",
         "off_state",
         "supply_average_current",
@@ -128,7 +135,8 @@ def test_greenhouse_demo_channel_by_hand() -> None:
         "slew_rate",
         "output_swing",
     ]
-    assert out.check("driver_current").value[0] == pytest.approx(2.05 / 390, rel=1e-12)
+    # The pin at its stress corner: at its 3.3 V supply, Vbe hot (0.85 − 0.2 V), Rb at E24's −5 %.
+    assert out.check("driver_current").value[0] == pytest.approx(2.65 / (390 * 0.95), rel=1e-12)
     assert out.check("driver_current").limit[0] == 0.008
 
 
@@ -157,9 +165,11 @@ def test_base_is_sized_for_the_worst_case_collector_current() -> None:
 
 
 def test_under_driven_channel_fails_saturation() -> None:
-    # A pin that sources only 2 mA pushed the forced beta to 30, above hfe_min 20: Rb = 2.05 V × 30 / 49.12 mA
+    # A pin that sources only 2.5 mA pushed the forced beta to 30, above hfe_min 20: Rb = 2.05 V × 30 / 49.12 mA
     # = 1252 Ω → E24 at or below: 1.2 kΩ, so Ib = 2.05 V / 1.2 kΩ = 1.708 mA and Ic_max/Ib = 28.8 > 20.
-    out = review(make(hfe_min=20.0, hfe_typ=40.0, forced_beta=30.0, source_current_max_a=0.002))
+    out = review(
+        make(hfe_min=20.0, hfe_typ=40.0, forced_beta=30.0, vce_sat_forced_beta=40.0, source_current_max_a=0.0025)
+    )
     assert out.switch.results["rb_ohm"][0] == 1200.0
     assert out.check("saturation").value[0] == pytest.approx((2 * 7.0 / 285) / (2.05 / 1200), rel=1e-12)
     assert not out.ok[0]
@@ -294,7 +304,12 @@ def channel_rows(draw: st.DrawFn, front_stage: bool | None = None) -> dict[str, 
         "duty_cycle": draw(st.floats(0.0, 1.0)),
         "channels": float(draw(st.integers(1, 8))),
         "e_series": draw(st.sampled_from(list(eseries.SERIES))),
-        "forced_beta": draw(st.floats(1.0, 50.0)),
+        "forced_beta": draw(st.one_of(st.just(math.nan), st.floats(1.0, 50.0))),
+        "vce_sat_forced_beta": draw(st.floats(1.0, 500.0)),
+        "base_junctions": draw(st.sampled_from([1.0, 2.0])),
+        "vceo_max_v": draw(st.one_of(st.just(math.nan), st.floats(5.0, 100.0))),
+        "rbe_ohm": draw(st.one_of(st.just(math.nan), st.floats(1e3, 1e6))),
+        "drive_supply_v": draw(st.one_of(st.just(math.nan), st.floats(5.0, 6.0))),
         "resistor_tolerance": draw(st.one_of(st.just(math.nan), st.floats(0.0, 0.2))),
         "inverting": draw(st.booleans()),
     }

@@ -159,10 +159,16 @@ def bjt_inputs(draw: st.DrawFn) -> bjt_switch.BjtSwitchInputs:
             "collector_current_a": draw(magnitudes()),
             "drive_high_v": high,
             "drive_low_v": draw(st.one_of(st.just(0.0), signed(magnitudes()))),
-            "forced_beta": 1.0 + draw(st.one_of(st.just(0.0), magnitudes())),
+            "forced_beta": draw(optional(st.just(1.0) | magnitudes().map(lambda x: 1.0 + x))),
+            "vce_sat_forced_beta": 1.0 + draw(st.one_of(st.just(0.0), magnitudes())),
+            "base_junctions": draw(st.sampled_from([1.0, 2.0])),
+            "vceo_max_v": draw(optional(magnitudes())),
+            "supply_max_v": draw(optional(magnitudes())),
             "e_series": draw(st.sampled_from(SERIES_NAMES)),
+            "resistor_tolerance": draw(optional(FRACTIONS)),
             "rbe_ohm": draw(optional(magnitudes())),
             "driver_current_max_a": draw(optional(magnitudes())),
+            "drive_supply_v": draw(optional(st.just(high) | magnitudes().map(lambda x: high * (1.0 + x)))),
             "duty_cycle": draw(FRACTIONS),
         }
 

@@ -16,9 +16,18 @@ from test_channel import DEMO, FRONT_CHECKS, NO_FRONT_STAGE, channel_rows, make,
 from calcsvc.core.channel import review
 from calcsvc.core.monte_carlo import MAX_SAMPLES, Z_95, monte_carlo, validate_monte_carlo, wilson_interval
 from calcsvc.core.outcome import DomainError
-from calcsvc.core.tolerance import CORNERS, DEPENDS_ON, QUANTITIES, SETTINGS, worst_case
+from calcsvc.core.tolerance import CORNERS, DEPENDS_ON, HELD, QUANTITIES, SETTINGS, worst_case
 
 # ---- an independent scalar model of one built channel, for brute-force corner enumeration -------------
+
+
+def pin_current(row: dict[str, Any], r_b: float, at_supply: bool, hot: bool) -> float:
+    """The pin's current (Ohm's law) with its high level at its rated value or at its own supply, and the
+    base-emitter junction at 25 °C or hot (2 mV/K over 100 K per junction, from memory)."""
+    supply = row["drive_supply_v"]
+    high = supply if at_supply and not math.isnan(supply) else row["drive_high_v"]
+    vbe = row["vbe_sat_v"] - (0.2 * row["base_junctions"] if hot else 0.0)
+    return (high - vbe) / r_b
 
 
 def corner_values(row: dict[str, Any], r_led: float, rb: float, corner: dict[str, str]) -> dict[str, tuple]:
@@ -39,7 +48,12 @@ def corner_values(row: dict[str, Any], r_led: float, rb: float, corner: dict[str
     v_r = vs - row["leds_in_series"] * vf - row["vce_sat_v"]
     i_string = max(v_r, 0.0) / r
     ic = row["strings"] * i_string
-    ib = (row["drive_high_v"] - row["vbe_sat_v"]) / r_b
+    i_rbe = 0.0 if math.isnan(row["rbe_ohm"]) else row["vbe_sat_v"] / row["rbe_ohm"]
+    ib = (row["drive_high_v"] - row["vbe_sat_v"]) / r_b - i_rbe
+    pin = pin_current(row, r_b, at_supply=True, hot=True)
+    # Off: the pin sinks only the 1 µA hot leakage (from memory), so its low level scales from its rated vol.
+    rating = row["source_current_max_a"]
+    v_low = row["drive_low_v"] * (1.0 if math.isnan(rating) else min(1.0, 1e-6 / rating))
     power = (row["vce_sat_v"] * ic + row["vbe_sat_v"] * ib) * row["duty_cycle"]
     supply_avg = row["channels"] * ic * row["duty_cycle"]
     supply_peak = row["channels"] * ic
@@ -52,10 +66,13 @@ def corner_values(row: dict[str, Any], r_led: float, rb: float, corner: dict[str
         "headroom": (v_r, 0.1 * vs, v_r >= 0.1 * vs),  # 10 % of the supply (common practice)
         "resistor_rating": at_most(2 * i_string**2 * r, 5.0),  # twice the dissipation within 5 W
         "saturation": (ic / ib, hfe, ic / ib < hfe),
-        "driver_current": at_most(ib, row["source_current_max_a"]),
+        "vce_sat_guarantee": at_most(ic / ib, row["vce_sat_forced_beta"]),
+        "driver_current": at_most(pin, row["source_current_max_a"]),
         "collector_current_rating": at_most(ic, row["ic_max_a"]),
+        "voltage_rating": at_most(vs, row["vceo_max_v"] / 1.2),  # 1.2 × derating (common practice)
         "power_rating": at_most(power, row["power_max_w"]),
-        "off_state": at_most(row["drive_low_v"], 0.4),
+        # Hot turn-on: 0.6 V per junction at 25 °C (common practice) less 2 mV/K over 100 K (from memory).
+        "off_state": at_most(v_low + 1e-6 * r_b, 0.4 * row["base_junctions"]),
         "supply_average_current": at_most(supply_avg, row["current_max_a"]),
         "supply_peak_current": at_most(supply_peak, row["current_max_a"]),
     }
@@ -88,7 +105,14 @@ BRUTE_ROWS: list[dict[str, Any]] = [
     # No front stage; three strings of two LEDs; 2 % resistors from E12.
     DEMO | NO_FRONT_STAGE | {"strings": 3.0, "leds_in_series": 2.0, "e_series": "E12", "resistor_tolerance": 0.02},
     # Under-driven: forced beta 30 against hfe_min 20.
-    DEMO | {"hfe_min": 20.0, "hfe_typ": 40.0, "forced_beta": 30.0, "source_current_max_a": 0.002},
+    DEMO
+    | {
+        "hfe_min": 20.0,
+        "hfe_typ": 40.0,
+        "forced_beta": 30.0,
+        "vce_sat_forced_beta": 40.0,
+        "source_current_max_a": 0.0025,
+    },
     # 7.5 V for three red LEDs: at low supply and high Vf the strings go dark (current clamped at 0).
     DEMO | {"supply_v": 7.5, "current_a": 0.005, "output_headroom_v": 1.0, "amplitude_v": 1.5},
 ]
@@ -115,7 +139,7 @@ def test_worst_case_matches_brute_force_enumeration() -> None:
             assert worst.margin()[k] == pytest.approx(least, rel=1e-9, abs=1e-12), (k, name)
             full = CORNERS[int(worst.corner_index[k])]
             assert margins[tuple(full[q] for q in QUANTITIES)] == pytest.approx(least, rel=1e-9, abs=1e-12)
-            assert worst.corner(k) == {q: full[q] for q in DEPENDS_ON[name]}
+            assert worst.corner(k) == {q: full[q] for q in DEPENDS_ON[name]} | HELD.get(name, {})
 
 
 def test_depends_on_is_exact() -> None:
@@ -154,11 +178,12 @@ def test_greenhouse_demo_worst_case_by_hand() -> None:
             (2 * 7.0 / 285) / (2.05 / 409.5),
             {"supply": "high", "vf": "min", "led_resistor": "low", "base_resistor": "high", "hfe": "min"},
         ),
-        "driver_current": (2.05 / 370.5, {"base_resistor": "low"}),
+        "driver_current": (2.65 / 370.5, {"base_resistor": "low", "pin_high": "at its supply", "vbe": "hot"}),
         "supply_peak_current": (6 * 2 * 7.0 / 285, {"supply": "high", "vf": "min", "led_resistor": "low"}),
         "supply_average_current": (3 * 2 * 7.0 / 285, {"supply": "high", "vf": "min", "led_resistor": "low"}),
         "output_swing": (1.0, {"supply": "low"}),
-        "off_state": (0.4, {}),
+        "off_state": (0.3 * 1e-6 / 0.008 + 1e-6 * 409.5, {"base_resistor": "high", "leakage": "hot"}),
+        "voltage_rating": (12.6, {"supply": "high"}),
     }
     for name, (value, corner) in expect.items():
         assert wc.check(name).check.value[0] == pytest.approx(value, rel=1e-12), name
@@ -187,7 +212,7 @@ def test_worst_case_agrees_with_the_led_stage_and_with_nominal_when_nothing_vari
 def test_nominal_pass_can_hide_a_worst_case_saturation_failure() -> None:
     # Forced beta 18 against hfe_min 18.5: Rb = 2.05 V × 18 / 49.12 mA = 751 Ω → 750 Ω, Ic_max/Ib = 17.97
     # passes at nominal; a +5 % base resistor makes it 18.87 ≥ 18.5.
-    x = make(hfe_min=18.5, hfe_typ=40.0, forced_beta=18.0)
+    x = make(hfe_min=18.5, hfe_typ=40.0, forced_beta=18.0, vce_sat_forced_beta=20.0)
     assert review(x).ok[0]
     wc = worst_case(x)
     assert wc.failing() == [["saturation"]]
@@ -257,6 +282,7 @@ def test_yield_matches_closed_form_for_a_log_uniform_gain() -> None:
         hfe_min=20.0,
         hfe_typ=40.0,
         forced_beta=30.0,
+        vce_sat_forced_beta=40.0,
         source_current_max_a=math.nan,
     )
     beta = float(review(x).check("saturation").value[0])
@@ -268,7 +294,7 @@ def test_yield_matches_closed_form_for_a_log_uniform_gain() -> None:
 
 
 def test_under_driven_channel_loses_yield_to_saturation() -> None:
-    x = make(hfe_min=20.0, hfe_typ=40.0, forced_beta=30.0, source_current_max_a=0.002)
+    x = make(hfe_min=20.0, hfe_typ=40.0, forced_beta=30.0, vce_sat_forced_beta=40.0, source_current_max_a=0.0025)
     assert "saturation" in worst_case(x).failing()[0]
     y = monte_carlo(x, samples=10_000, seed=5)
     assert 0 < y.fraction < 1
@@ -305,7 +331,7 @@ def test_many_leds_are_drawn_in_chunks() -> None:
 
 
 def test_seeded_runs_repeat_and_seeds_differ() -> None:
-    x = make(hfe_min=20.0, hfe_typ=40.0, forced_beta=30.0, source_current_max_a=0.002)
+    x = make(hfe_min=20.0, hfe_typ=40.0, forced_beta=30.0, vce_sat_forced_beta=40.0, source_current_max_a=0.0025)
     a, b, c = monte_carlo(x, 5_000, seed=7), monte_carlo(x, 5_000, seed=7), monte_carlo(x, 5_000, seed=8)
     assert a.fraction == b.fraction and a.failures == b.failures
     np.testing.assert_array_equal(a.most_failing_values, b.most_failing_values)

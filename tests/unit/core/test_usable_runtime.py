@@ -15,7 +15,16 @@ from calcsvc.core.tolerance import worst_case
 from calcsvc.core.usable_runtime import usable_runtime
 
 # Six alkaline cells: 9 V nominal, about 1.6 V per cell fresh and 1.0 V per cell at end of discharge (from memory).
-PACK = {"supply_v": 9.0, "supply_tolerance": 0.0, "supply_min_v": 6.0, "supply_max_v": 9.6, "capacity_ah": 2.0}
+# The base is sized by the part's own rule (its Vce(sat) test ratio over 1 + resistor tolerance): a ratio forced to
+# the test ratio itself exceeds it at the fresh pack's corner, and the design would fail before any discharge.
+PACK = {
+    "supply_v": 9.0,
+    "supply_tolerance": 0.0,
+    "supply_min_v": 6.0,
+    "supply_max_v": 9.6,
+    "capacity_ah": 2.0,
+    "forced_beta": math.nan,
+}
 # Three red LEDs (1.8–2.4 V) and the switch's 0.2 V keep 10 % of the supply across the resistor (common practice)
 # only while 0.9·V ≥ 3 × 2.4 V + 0.2 V (Kirchhoff's voltage law).
 STOP_V = (3 * 2.4 + 0.2) / 0.9
