@@ -14,6 +14,10 @@ Non-inverting: ``NG = G_ideal = G`` (or ``1 + Rf/Rg``). Inverting: ``G_ideal = -
 ``NG = 1 + G``. Without ``open_loop_gain`` the op-amp is ideal at DC (``A0 → ∞``): ``A(s) = ωt/s`` with
 ``ωt = 2π·GBW``, so ``G_dc = G_ideal`` and ``f1 = GBW/NG``.
 
+Output offset: the input offset voltage Vos is amplified by the noise gain, ``Vos·NG/(1 + NG/A0)`` per stage;
+in a cascade each stage's offset is amplified by the stages after it, and the worst case (every offset of one
+sign) is ``Vos·NG/(1 + NG/A0) · Σ|G_dc|^k`` over k = 0..n-1.
+
 ``stages`` identical stages in cascade multiply: ``H(s)^n``. The cascade's -3 dB frequency solves
 ``(1 + (f/f1)²)^n = 2``, i.e. ``f1·√(2^(1/n) - 1)``. Rise times (10-90 %) use ``0.35/bandwidth``: exact to
 0.1 % for one pole (``ln 9 / 2π``), the usual approximation for the cascade.
@@ -45,7 +49,7 @@ from calcsvc.core.outcome import (
 from calcsvc.core.spec import CalculationSpec, Columns, Input, Result, Role, positive
 
 NAME = "closed-loop-bandwidth"
-VERSION = "1"
+VERSION = "2"
 
 MAX_STAGES = 20
 MAX_SWEEP_POINTS = 2000
@@ -65,7 +69,8 @@ class ClosedLoopInputs:
     (magnitude, V/V) or both ``rf_ohm`` and ``rg_ohm``; the others are NaN. ``open_loop_gain`` (V/V) NaN means
     ideal at DC. ``stages`` holds whole numbers. ``signal_hz`` NaN means no signal frequency. A row sweeps when
     it gives ``sweep_start_hz``, ``sweep_stop_hz`` and ``sweep_points`` (a whole number, 2..2000); each row has
-    its own number of points.
+    its own number of points. ``input_offset_v`` (magnitude) and ``output_offset_max_v`` (the output error
+    the design allows) are NaN when not given.
     """
 
     inverting: BoolArray
@@ -79,9 +84,22 @@ class ClosedLoopInputs:
     sweep_start_hz: FloatArray
     sweep_stop_hz: FloatArray
     sweep_points: FloatArray
+    input_offset_v: FloatArray
+    output_offset_max_v: FloatArray
 
 
-_QUANTITIES = ("gain", "rf_ohm", "rg_ohm", "gbw_hz", "open_loop_gain", "signal_hz", "sweep_start_hz", "sweep_stop_hz")
+_QUANTITIES = (
+    "gain",
+    "rf_ohm",
+    "rg_ohm",
+    "gbw_hz",
+    "open_loop_gain",
+    "signal_hz",
+    "sweep_start_hz",
+    "sweep_stop_hz",
+    "input_offset_v",
+    "output_offset_max_v",
+)
 
 
 def validate(inputs: ClosedLoopInputs) -> list[Violation]:
@@ -98,6 +116,8 @@ def validate(inputs: ClosedLoopInputs) -> list[Violation]:
         "signal_hz",
         "sweep_start_hz",
         "sweep_stop_hz",
+        "input_offset_v",
+        "output_offset_max_v",
     ):
         values = getattr(inputs, name)
         bad = np.isinf(values)
@@ -177,6 +197,13 @@ def validate(inputs: ClosedLoopInputs) -> list[Violation]:
         f"stages ({first_bad(stages, bad)}) must be a whole number from 1 to {MAX_STAGES} "
         f"({MAX_STAGES} is this service's cap on identical cascaded stages)",
     )
+
+    offset = inputs.input_offset_v
+    bad = np.isfinite(offset) & (offset < 0.0)
+    require(v, bad, "input_offset_v", f"input_offset_v ({first_bad(offset, bad)} V) is a magnitude: not negative")
+    allowed = inputs.output_offset_max_v
+    bad = np.isfinite(allowed) & (allowed <= 0.0)
+    require(v, bad, "output_offset_max_v", f"output_offset_max_v ({first_bad(allowed, bad)} V) must be above 0 V")
 
     sig = inputs.signal_hz
     bad = np.isfinite(sig) & (sig <= 0.0)
@@ -282,6 +309,13 @@ def compute(inputs: ClosedLoopInputs, validated: bool = False) -> Outcome:
     rise_time = RISE_TIME_CONSTANT / bandwidth
     cascade_rise_time = RISE_TIME_CONSTANT / cascade_bandwidth
 
+    output_offset = inputs.input_offset_v * noise_gain / (1.0 + loss)
+    g = np.abs(closed_loop_gain)
+    # Σ|G|^k for k < n (a follower, |G| = 1, sums to n); only an absurd cascade overflows it, to inf.
+    with np.errstate(over="ignore", invalid="ignore", divide="ignore"):
+        carried = np.where(g == 1.0, stages, np.expm1(stages * np.log(g)) / (g - 1.0))
+        cascade_output_offset = np.where(output_offset == 0.0, 0.0, output_offset * carried)
+
     gain_at_signal_db, phase_at_signal_deg = _stage_response(inputs.signal_hz, closed_loop_gain, bandwidth, stages)
 
     results: dict[str, np.ndarray] = {
@@ -295,6 +329,7 @@ def compute(inputs: ClosedLoopInputs, validated: bool = False) -> Outcome:
         "cascade_rise_time_s": cascade_rise_time,
         "gain_at_signal_db": gain_at_signal_db,
         "phase_at_signal_deg": phase_at_signal_deg,
+        "output_offset_v": output_offset,
     }
 
     sweeping = ~np.isnan(inputs.sweep_points)
@@ -331,6 +366,16 @@ def compute(inputs: ClosedLoopInputs, validated: bool = False) -> Outcome:
             "max",
             "signal_hz must not exceed the cascade's -3 dB bandwidth; does not apply without signal_hz",
         ),
+        Check(
+            "output_offset",
+            ~(cascade_output_offset > inputs.output_offset_max_v),
+            np.where(np.isnan(inputs.output_offset_max_v), np.nan, cascade_output_offset),
+            inputs.output_offset_max_v,
+            "max",
+            "the output offset the input offset voltages cause (output_offset_v carried through every later "
+            "stage, all offsets of one sign) must not exceed output_offset_max_v; does not apply unless both "
+            "input_offset_v and output_offset_max_v are given",
+        ),
     ]
 
     warnings: list[Notice] = []
@@ -347,6 +392,12 @@ def compute(inputs: ClosedLoopInputs, validated: bool = False) -> Outcome:
         mask,
         "signal_hz is above a tenth of the cascade bandwidth: the gain there is already below its DC "
         "value and the phase lag is appreciable (see gain_at_signal_db and phase_at_signal_deg)",
+    )
+
+    add_notice(
+        warnings,
+        ~np.isnan(inputs.output_offset_max_v) & np.isnan(inputs.input_offset_v),
+        "output_offset_max_v is given but input_offset_v is not: the output offset is not checked",
     )
 
     return Outcome(results=results, checks=checks, warnings=warnings)
@@ -368,6 +419,8 @@ def _inputs_from_columns(c: Columns) -> ClosedLoopInputs:
         sweep_start_hz=c["sweep_start_hz"],
         sweep_stop_hz=c["sweep_stop_hz"],
         sweep_points=c["sweep_points"],
+        input_offset_v=c["input_offset_v"],
+        output_offset_max_v=c["output_offset_max_v"],
     )
 
 
@@ -379,11 +432,11 @@ SPEC = CalculationSpec(
         Input(
             "configuration", "", "non_inverting or inverting", "non_inverting", choices=("non_inverting", "inverting")
         ),
-        positive("gain", "dimensionless", "closed-loop gain magnitude (or give rf_ohm and rg_ohm)", optional=True),
+        positive("gain", "V/V", "closed-loop gain magnitude (or give rf_ohm and rg_ohm)", optional=True),
         positive("rf_ohm", "ohm", "feedback resistor", optional=True),
         positive("rg_ohm", "ohm", "gain-setting resistor to ground (or input resistor when inverting)", optional=True),
         positive("gbw_hz", "Hz", "op-amp gain-bandwidth product"),
-        positive("open_loop_gain", "dimensionless", "DC open-loop gain; absent: ideal at DC", optional=True),
+        positive("open_loop_gain", "V/V", "DC open-loop gain; absent: ideal at DC", optional=True),
         Input("stages", "dimensionless", "identical cascaded stages", 1, minimum=1, maximum=20, integer=True),
         positive("signal_hz", "Hz", "signal frequency to evaluate", optional=True),
         positive("sweep_start_hz", "Hz", "first frequency of a log sweep", optional=True),
@@ -391,8 +444,16 @@ SPEC = CalculationSpec(
         Input(
             "sweep_points", "dimensionless", "points in the sweep", optional=True, minimum=2, maximum=2000, integer=True
         ),
+        Input("input_offset_v", "V", "op-amp input offset voltage (magnitude)", optional=True, minimum=0),
+        positive("output_offset_max_v", "V", "largest output offset the design allows", optional=True),
     ),
-    roles=(Role("opamp", "opamp", (("gbw_hz", "gbw_hz"), ("open_loop_gain", "open_loop_gain"))),),
+    roles=(
+        Role(
+            "opamp",
+            "opamp",
+            (("gbw_hz", "gbw_hz"), ("open_loop_gain", "open_loop_gain"), ("input_offset_v", "input_offset_v")),
+        ),
+    ),
     results=(
         Result("noise_gain", "V/V", "1 + Rf/Rg, the gain the loop sees"),
         Result("signal_gain", "V/V", "ideal signed signal gain"),
@@ -404,6 +465,7 @@ SPEC = CalculationSpec(
         Result("cascade_rise_time_s", "s", "10-90 % rise time of all stages"),
         Result("gain_at_signal_db", "dB", "gain of all stages at signal_hz"),
         Result("phase_at_signal_deg", "deg", "phase lag from finite bandwidth at signal_hz"),
+        Result("output_offset_v", "V", "output offset of one stage from input_offset_v (Vos x noise gain)"),
         Result(
             "sweep",
             "",

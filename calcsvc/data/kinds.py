@@ -32,7 +32,7 @@ KINDS: dict[str, tuple[Param, ...]] = {
     "opamp": (
         Param("gbw_hz", "Hz", "gain-bandwidth product"),
         Param("slew_rate_v_per_s", "V/s", "output slew rate"),
-        Param("open_loop_gain", "dimensionless", "DC open-loop gain, V/V"),
+        Param("open_loop_gain", "V/V", "DC open-loop gain (a voltage ratio: dB are 20·log10)"),
         Param("supply_min_v", "V", "lowest total supply span"),
         Param("supply_max_v", "V", "highest total supply span"),
         Param("output_headroom_v", "V", "how close the output swings to each rail", positive=False),
