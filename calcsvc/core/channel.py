@@ -92,8 +92,9 @@ class ChannelInputs:
     and the front stage (NaN ``gbw_hz``: no front stage on that row; then every other front-stage field must
     be NaN too). With a front stage, ``gain`` (magnitude, V/V) and ``slew_rate_v_per_s`` are required and
     ``open_loop_gain``, ``output_headroom_v``, ``signal_hz``, ``amplitude_v`` (peak), the op-amp's supply range
-    ``supply_min_v``/``supply_max_v``, ``input_offset_v`` and the allowed ``output_offset_max_v`` stay optional. ``leds_in_series``, ``strings`` and ``channels`` hold whole numbers as floats; ``e_series`` is
-    a numpy str array, ``inverting`` a bool array.
+    ``supply_min_v``/``supply_max_v``, ``input_offset_v`` and the allowed ``output_offset_max_v`` stay optional.
+    ``leds_in_series``, ``strings`` and ``channels`` hold whole numbers as floats; ``e_series`` is a numpy str
+    array, ``inverting`` a bool array.
     """
 
     supply_v: FloatArray

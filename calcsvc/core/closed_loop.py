@@ -347,6 +347,7 @@ def compute(inputs: ClosedLoopInputs, validated: bool = False) -> Outcome:
     loop_limit = np.where(a0_given, inputs.open_loop_gain / MIN_DC_LOOP_GAIN, np.nan)
     signal_given = ~np.isnan(inputs.signal_hz)
     band_limit = np.where(signal_given, cascade_bandwidth, np.nan)
+    offset_limit = np.where(np.isnan(cascade_output_offset), np.nan, inputs.output_offset_max_v)
     checks = [
         Check(
             "gain_achievable",
@@ -368,9 +369,9 @@ def compute(inputs: ClosedLoopInputs, validated: bool = False) -> Outcome:
         ),
         Check(
             "output_offset",
-            ~(cascade_output_offset > inputs.output_offset_max_v),
-            np.where(np.isnan(inputs.output_offset_max_v), np.nan, cascade_output_offset),
-            inputs.output_offset_max_v,
+            ~(cascade_output_offset > offset_limit),
+            np.where(np.isnan(offset_limit), np.nan, cascade_output_offset),
+            offset_limit,
             "max",
             "the output offset the input offset voltages cause (output_offset_v carried through every later "
             "stage, all offsets of one sign) must not exceed output_offset_max_v; does not apply unless both "

@@ -180,6 +180,9 @@ def compute(inputs: SlewInputs, validated: bool = False) -> Outcome:
     slew_limit = np.where(np.isnan(required_slew_rate), np.nan, sr)
     swing_limit = np.where(np.isnan(vp), np.nan, swing_limited_amplitude)
     supply = inputs.supply_v
+    # A check applies only where both its value and its limit are known.
+    supply_min = np.where(np.isnan(supply), np.nan, inputs.supply_min_v)
+    supply_max = np.where(np.isnan(supply), np.nan, inputs.supply_max_v)
     checks = [
         Check(
             "slew_rate",
@@ -202,18 +205,18 @@ def compute(inputs: SlewInputs, validated: bool = False) -> Outcome:
         ),
         Check(
             "opamp_supply_min",
-            ~(supply < inputs.supply_min_v),
-            np.where(np.isnan(inputs.supply_min_v), np.nan, supply),
-            inputs.supply_min_v,
+            ~(supply < supply_min),
+            np.where(np.isnan(supply_min), np.nan, supply),
+            supply_min,
             "min",
             "supply_v must reach the op-amp's supply_min_v, below which it is not specified to work; "
             "does not apply unless both are given",
         ),
         Check(
             "opamp_supply_max",
-            ~(supply > inputs.supply_max_v),
-            np.where(np.isnan(inputs.supply_max_v), np.nan, supply),
-            inputs.supply_max_v,
+            ~(supply > supply_max),
+            np.where(np.isnan(supply_max), np.nan, supply),
+            supply_max,
             "max",
             "supply_v must not exceed the op-amp's supply_max_v, above which it may be destroyed; "
             "does not apply unless both are given",
@@ -231,8 +234,7 @@ def compute(inputs: SlewInputs, validated: bool = False) -> Outcome:
     add_notice(
         warnings,
         ~np.isnan(supply) & (np.isnan(inputs.supply_min_v) | np.isnan(inputs.supply_max_v)),
-        "the op-amp's supply range (supply_min_v, supply_max_v) is not fully given: supply_v is not checked "
-        "against it",
+        "the op-amp's supply range (supply_min_v, supply_max_v) is not fully given: supply_v is not checked against it",
     )
     cautions: list[Notice] = []
     add_notice(

@@ -172,8 +172,9 @@ def test_base_is_sized_for_the_worst_case_collector_current() -> None:
 
 
 def test_under_driven_channel_fails_saturation() -> None:
-    # Ohm's law; E24 (IEC 60063, from memory). A pin that sources only 2 mA pushed the forced beta to 30, above hfe_min 20: Rb = 2.05 V × 30 / 49.12 mA
-    # = 1252 Ω → E24 at or below: 1.2 kΩ, so Ib = 2.05 V / 1.2 kΩ = 1.708 mA and Ic_max/Ib = 28.8 > 20.
+    # Ohm's law; E24 (IEC 60063, from memory). A pin that sources only 2 mA pushed the forced beta to 30, above
+    # hfe_min 20: Rb = 2.05 V × 30 / 49.12 mA = 1252 Ω → E24 at or below: 1.2 kΩ, so Ib = 2.05 V / 1.2 kΩ =
+    # 1.708 mA and Ic_max/Ib = 28.8 > 20.
     out = review(make(hfe_min=20.0, hfe_typ=40.0, forced_beta=30.0, source_current_max_a=0.002))
     assert out.switch.results["rb_ohm"][0] == 1200.0
     assert out.check("saturation").value[0] == pytest.approx((2 * 7.0 / 285) / (2.05 / 1200), rel=1e-12)

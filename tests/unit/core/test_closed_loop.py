@@ -150,7 +150,8 @@ def test_matches_scipy_freqs(inverting, gain, rf, rg, gbw, a0, n):
 
 
 def test_textbook_gbw_over_noise_gain():
-    # Sedra & Smith, Microelectronic Circuits, 7th ed., §2.7.3 (single-pole op-amp model, from memory): f3dB = ft / (1 + R2/R1) ≈ GBW / NG.
+    # Sedra & Smith, Microelectronic Circuits, 7th ed., §2.7.3 (single-pole op-amp model, from memory):
+    # f3dB = ft / (1 + R2/R1) ≈ GBW / NG.
     out = compute(make(gain=25.0, gbw_hz=2e6)).results
     assert out["bandwidth_hz"][0] == pytest.approx(2e6 / 25.0, rel=1e-12)
     # With a large but finite A0 the exact result is only slightly above GBW/NG (same source, approximation).
@@ -167,7 +168,8 @@ def test_gain_bandwidth_trade(gain, expected_hz):
 
 
 def test_inverting_noise_gain_and_signs():
-    # Sedra & Smith, Microelectronic Circuits, 7th ed., §2.7.3 (from memory): the inverting amplifier's noise gain is 1 + R2/R1.
+    # Sedra & Smith, Microelectronic Circuits, 7th ed., §2.7.3 (from memory): the inverting amplifier's noise
+    # gain is 1 + R2/R1.
     out = compute(make(inverting=True, gain=10.0)).results
     assert out["noise_gain"][0] == pytest.approx(11.0)
     assert out["signal_gain"][0] == pytest.approx(-10.0)
