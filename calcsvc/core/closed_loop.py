@@ -33,6 +33,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
+from calcsvc.core.frequency_sweep import MAX_SWEEP_POINTS, stage_response, sweep_frequencies, validate_sweep
 from calcsvc.core.outcome import (
     BoolArray,
     Check,
@@ -52,7 +53,6 @@ NAME = "closed-loop-bandwidth"
 VERSION = "2"
 
 MAX_STAGES = 20
-MAX_SWEEP_POINTS = 2000
 # At least 20 dB of loop gain at DC (NG ≤ A0/10) keeps the gain set by the resistors (common practice).
 MIN_DC_LOOP_GAIN = 10.0
 GAIN_ERROR_WARN_PCT = 1.0
@@ -88,18 +88,9 @@ class ClosedLoopInputs:
     output_offset_max_v: FloatArray
 
 
-_QUANTITIES = (
-    "gain",
-    "rf_ohm",
-    "rg_ohm",
-    "gbw_hz",
-    "open_loop_gain",
-    "signal_hz",
-    "sweep_start_hz",
-    "sweep_stop_hz",
-    "input_offset_v",
-    "output_offset_max_v",
-)
+_OPTIONAL = ("gain", "rf_ohm", "rg_ohm", "open_loop_gain", "signal_hz", "sweep_start_hz", "sweep_stop_hz")
+_OPTIONAL += ("input_offset_v", "output_offset_max_v")
+_QUANTITIES = ("gbw_hz", *_OPTIONAL)
 
 
 def validate(inputs: ClosedLoopInputs) -> list[Violation]:
@@ -108,17 +99,7 @@ def validate(inputs: ClosedLoopInputs) -> list[Violation]:
     inv = np.asarray(inputs.inverting, dtype=bool)
 
     # Optional values: NaN is "not given", but ±inf never makes sense.
-    for name in (
-        "gain",
-        "rf_ohm",
-        "rg_ohm",
-        "open_loop_gain",
-        "signal_hz",
-        "sweep_start_hz",
-        "sweep_stop_hz",
-        "input_offset_v",
-        "output_offset_max_v",
-    ):
+    for name in _OPTIONAL:
         values = getattr(inputs, name)
         bad = np.isinf(values)
         require(v, bad, name, f"{name} ({first_bad(values, bad)}) must be a finite number when given")
@@ -210,71 +191,8 @@ def validate(inputs: ClosedLoopInputs) -> list[Violation]:
     require(v, bad, "signal_hz", f"signal_hz ({first_bad(sig, bad)} Hz) must be above 0 Hz")
 
     require_practical(v, {name: getattr(inputs, name) for name in _QUANTITIES}, ("rg_ohm", "gbw_hz"))
-    v.extend(_validate_sweep(inputs))
+    v.extend(validate_sweep(inputs.sweep_points, inputs.sweep_start_hz, inputs.sweep_stop_hz))
     return v
-
-
-def _validate_sweep(inputs: ClosedLoopInputs) -> list[Violation]:
-    v: list[Violation] = []
-    points = inputs.sweep_points
-    points_given = ~np.isnan(points)
-    with np.errstate(invalid="ignore"):
-        bad = points_given & ((points != np.round(points)) | ~(points >= 2) | ~(points <= MAX_SWEEP_POINTS))
-    message = f"sweep_points ({first_bad(points, bad)}) must be a whole number from 2 to {MAX_SWEEP_POINTS}"
-    require(v, bad, "sweep_points", message)
-
-    start, stop = inputs.sweep_start_hz, inputs.sweep_stop_hz
-    start_given, stop_given = ~np.isnan(start), ~np.isnan(stop)
-    require(v, start_given & ~stop_given, "sweep_stop_hz", "sweep_stop_hz is needed with sweep_start_hz")
-    require(v, stop_given & ~start_given, "sweep_start_hz", "sweep_start_hz is needed with sweep_stop_hz")
-    bad = np.isfinite(start) & (start <= 0.0)
-    require(
-        v,
-        bad,
-        "sweep_start_hz",
-        f"sweep_start_hz ({first_bad(start, bad)} Hz) must be above 0 Hz (the sweep is log-spaced)",
-    )
-    bad = np.isfinite(start) & np.isfinite(stop) & (start > 0.0) & (stop <= start)
-    require(
-        v,
-        bad,
-        "sweep_stop_hz",
-        f"sweep_stop_hz ({first_bad(stop, bad)} Hz) must be above sweep_start_hz ({first_bad(start, bad)} Hz)",
-    )
-    require(
-        v,
-        start_given & stop_given & ~points_given,
-        "sweep_points",
-        f"sweep_points must be from 2 to {MAX_SWEEP_POINTS} when sweep_start_hz and sweep_stop_hz are given",
-    )
-    require(
-        v,
-        points_given & ~start_given & ~stop_given,
-        "sweep_start_hz",
-        "sweep_points needs sweep_start_hz and sweep_stop_hz",
-    )
-    return v
-
-
-def _sweep_frequencies(start: FloatArray, stop: FloatArray, points: np.ndarray) -> FloatArray:
-    """Each row's log-spaced points, row after row; rows of one size share one ``geomspace`` call, so a row
-    gets the same frequencies alone as in any batch."""
-    first = np.concatenate(([0], np.cumsum(points)[:-1]))
-    frequency = np.empty(int(points.sum()))
-    for size in np.unique(points):
-        rows = np.flatnonzero(points == size)
-        frequency[first[rows, None] + np.arange(size)] = np.geomspace(start[rows], stop[rows], int(size), axis=1)
-    return frequency
-
-
-def _stage_response(
-    frequency_hz: np.ndarray, dc_gain: np.ndarray, f1: np.ndarray, stages: np.ndarray
-) -> tuple[np.ndarray, np.ndarray]:
-    """Gain (dB) and added phase lag (degrees) of ``stages`` cascaded single-pole stages; broadcasts."""
-    x2 = np.square(frequency_hz / f1)
-    gain_db = stages * (20.0 * np.log10(np.abs(dc_gain)) - 10.0 * np.log1p(x2) / np.log(10.0))
-    phase_deg = -stages * np.degrees(np.arctan(frequency_hz / f1))
-    return gain_db, phase_deg
 
 
 def compute(inputs: ClosedLoopInputs, validated: bool = False) -> Outcome:
@@ -316,7 +234,7 @@ def compute(inputs: ClosedLoopInputs, validated: bool = False) -> Outcome:
         carried = np.where(g == 1.0, stages, np.expm1(stages * np.log(g)) / (g - 1.0))
         cascade_output_offset = np.where(output_offset == 0.0, 0.0, output_offset * carried)
 
-    gain_at_signal_db, phase_at_signal_deg = _stage_response(inputs.signal_hz, closed_loop_gain, bandwidth, stages)
+    gain_at_signal_db, phase_at_signal_deg = stage_response(inputs.signal_hz, closed_loop_gain, bandwidth, stages)
 
     results: dict[str, np.ndarray] = {
         "noise_gain": noise_gain,
@@ -337,8 +255,8 @@ def compute(inputs: ClosedLoopInputs, validated: bool = False) -> Outcome:
         rows = np.flatnonzero(sweeping)
         points = inputs.sweep_points[rows].astype(np.int64)
         row = np.repeat(rows, points)
-        freq = _sweep_frequencies(inputs.sweep_start_hz[rows], inputs.sweep_stop_hz[rows], points)
-        sweep_gain, sweep_phase = _stage_response(freq, closed_loop_gain[row], bandwidth[row], stages[row])
+        freq = sweep_frequencies(inputs.sweep_start_hz[rows], inputs.sweep_stop_hz[rows], points)
+        sweep_gain, sweep_phase = stage_response(freq, closed_loop_gain[row], bandwidth[row], stages[row])
         results["sweep_row"] = row
         results["sweep_frequency_hz"] = freq
         results["sweep_gain_db"] = sweep_gain
@@ -443,7 +361,13 @@ SPEC = CalculationSpec(
         positive("sweep_start_hz", "Hz", "first frequency of a log sweep", optional=True),
         positive("sweep_stop_hz", "Hz", "last frequency of a log sweep", optional=True),
         Input(
-            "sweep_points", "dimensionless", "points in the sweep", optional=True, minimum=2, maximum=2000, integer=True
+            "sweep_points",
+            "dimensionless",
+            "points in the sweep",
+            optional=True,
+            minimum=2,
+            maximum=MAX_SWEEP_POINTS,
+            integer=True,
         ),
         Input("input_offset_v", "V", "op-amp input offset voltage (magnitude)", optional=True, minimum=0),
         positive("output_offset_max_v", "V", "largest output offset the design allows", optional=True),
