@@ -96,7 +96,7 @@ def test_inverting_stage_from_resistors(client: FlaskClient) -> None:
         "closed-loop-bandwidth",
         {"configuration": "inverting", "rf_ohm": "100 kohm", "rg_ohm": "10 kohm", "gbw_hz": "1 MHz"},
     )
-    # Inverting gain -10 has noise gain 11 (Sedra & Smith, inverting configuration).
+    # Inverting gain -10 has noise gain 11 (Sedra & Smith, Microelectronic Circuits, 7th ed., §2.7.3, from memory).
     assert data["results"]["signal_gain"] == -10
     assert data["results"]["noise_gain"] == 11
     assert data["results"]["bandwidth_hz"] == pytest.approx(1e6 / 11)
