@@ -301,7 +301,8 @@ def sweep_inputs() -> closed_loop.ClosedLoopInputs:
     return closed_loop.ClosedLoopInputs(
         inverting=np.array([False]), gain=one(20.0), rf_ohm=one(math.nan), rg_ohm=one(math.nan), gbw_hz=one(1e6),
         open_loop_gain=one(2e5), stages=one(1.0), signal_hz=one(1e3), sweep_start_hz=one(10.0),
-        sweep_stop_hz=one(1e6), sweep_points=one(SWEEP_POINTS),
+        sweep_stop_hz=one(1e6), sweep_points=one(SWEEP_POINTS), input_offset_v=one(math.nan),
+        output_offset_max_v=one(math.nan),
     )  # fmt: skip
 
 
@@ -341,7 +342,7 @@ def channel() -> ChannelInputs:
         e_series=np.array(["E24"]), forced_beta=one(10.0), vce_sat_forced_beta=one(10.0), base_junctions=one(1.0),
         vceo_max_v=one(40.0), rbe_ohm=nan, drive_supply_v=one(3.3), resistor_tolerance=nan, inverting=np.array([False]),
         gain=nan, gbw_hz=nan, open_loop_gain=nan, slew_rate_v_per_s=nan, output_headroom_v=nan, signal_hz=nan,
-        amplitude_v=nan,
+        amplitude_v=nan, opamp_supply_min_v=nan, opamp_supply_max_v=nan, input_offset_v=nan, output_offset_max_v=nan,
     )  # fmt: skip
 
 

@@ -3,6 +3,10 @@
 User text never reaches pint's expression evaluator (it can be made to hang and accepts oddities such as
 ``"1,5 V"``): a regular expression takes a plain decimal number and a unit name, ``float()`` reads the
 number and ``parse_units`` reads only the unit, then the dimension is checked against the field's unit.
+
+Decibels: a field whose unit is ``VOLTAGE_RATIO`` (a voltage gain) reads ``"26 dB"`` as 20·log10 of a voltage
+ratio (IEC 60027-3), 19.95 V/V; pint's own decibel is 10·log10, a power ratio. Every other logarithmic unit, and
+decibels on any other field, are refused: no other field is a ratio of root-power quantities.
 """
 
 from __future__ import annotations
@@ -33,6 +37,10 @@ _QUANTITY = re.compile(QUANTITY)
 _NAME = "[A-Za-zµμΩ]+(?: *(?:\\*\\*|\\^) *-?[0-9])?"
 _UNIT_TEXT = re.compile(rf"{_NAME}(?: *[*/·] *{_NAME})*")
 _ALIASES = {"Ω": "ohm", "µ": "u", "μ": "u", "·": "*", "^": "**"}
+_WORD = re.compile("[A-Za-zµμΩ]+")
+
+VOLTAGE_RATIO = "V/V"  # the SI unit a voltage-gain field declares
+_DECIBEL = UREG.decibel
 
 
 class UnitError(ValueError):
@@ -52,6 +60,12 @@ def _unit(unit_text: str) -> pint.Unit:
         raise UnitError(f"unknown unit '{unit_text}'") from exc
 
 
+@lru_cache(maxsize=256)
+def _logarithmic(unit_text: str) -> bool:
+    """Whether any unit name in the text is logarithmic (dB, Np, octave, ...): those do not scale a value."""
+    return any(not UREG.Quantity(1.0, _unit(word))._is_multiplicative for word in _WORD.findall(unit_text))
+
+
 @lru_cache(maxsize=64)
 def _si(unit: str) -> pint.Unit:
     return UREG.parse_units(unit)
@@ -61,7 +75,7 @@ def parse_quantity(text: str, si_unit: str) -> float:
     """Convert ``text`` (a decimal number, optionally followed by a unit) to ``si_unit``.
 
     ``si_unit`` is the pint spelling of the field's SI unit ("V", "A", "ohm", "Hz", "V/s", "s", "W", "A*h",
-    "dimensionless"). A bare number is taken as already in that unit.
+    "dimensionless", ``VOLTAGE_RATIO``). A bare number is taken as already in that unit.
     """
     if len(text) > MAX_QUANTITY_LENGTH:
         raise UnitError(f"longer than {MAX_QUANTITY_LENGTH} characters: not a number followed by a unit")
@@ -78,11 +92,23 @@ def parse_quantity(text: str, si_unit: str) -> float:
         raise UnitError(f"'{unit_text}' is not a unit name")
     unit = _unit(unit_text)
     target = _si(si_unit)
+    if si_unit == VOLTAGE_RATIO and _WORD.fullmatch(unit_text) and unit == _DECIBEL:
+        try:
+            return _finite(10.0 ** (number / 20.0), text)
+        except OverflowError as exc:
+            raise UnitError(f"'{text}' is out of range") from exc
+    if not target.dimensionality and _logarithmic(unit_text):
+        allowed = "; a voltage gain takes dB" if si_unit == VOLTAGE_RATIO else ""
+        raise UnitError(f"'{text}': a logarithmic unit is not accepted here, give a plain ratio{allowed}")
     if unit.dimensionality != target.dimensionality:
         expected = "dimensionless" if not target.dimensionality else f"{target:~}"
         raise UnitError(f"'{text}' has the wrong dimension: expected a value in {expected}")
+    return _finite(UREG.Quantity(number, unit).to(target).magnitude, text)
+
+
+def _finite(value: float, text: str) -> float:
     # 15 significant digits remove conversion noise ("10 us" gives 1e-05, not 9.999999999999999e-06).
-    value = float(f"{UREG.Quantity(number, unit).to(target).magnitude:.15g}")
+    value = float(f"{value:.15g}")
     if not math.isfinite(value):
         raise UnitError(f"'{text}' is out of range")
     return value

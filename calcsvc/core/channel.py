@@ -27,8 +27,10 @@ Chain (each step is an existing core calculation; this module only wires them to
        duty cycle all channels can share within ``current_max_a``. (The tolerance analysis in
        ``calcsvc.core.tolerance`` checks the supply at the worst-case current.)
     4. Front stage, where given: ``closed_loop`` (one stage; ``signal_in_band``, ``gain_achievable``) and
-       ``slew`` for a sine at ``signal_hz`` and ``amplitude_v`` with the supply as the output's rail span
-       (``slew_rate``, ``output_swing``).
+       ``slew`` for a sine at ``signal_hz`` and ``amplitude_v`` with the supply as the op-amp's rail span
+       (``slew_rate``, ``output_swing``, and the supply against the op-amp's rated range: ``opamp_supply_min``,
+       ``opamp_supply_max``); the output offset from ``input_offset_v`` against ``output_offset_max_v``
+       (``output_offset``).
 
 Assumptions
     Those of the four calculations; a base-emitter pull-down only where ``rbe_ohm`` is given; the base current
@@ -71,7 +73,18 @@ NAME = "channel-review"
 VERSION = "2"
 
 # Front-stage inputs besides gbw_hz, whose presence (non-NaN) marks a row as having a front stage.
-FRONT_STAGE_FIELDS = ("gain", "open_loop_gain", "slew_rate_v_per_s", "output_headroom_v", "signal_hz", "amplitude_v")
+FRONT_STAGE_FIELDS = (
+    "gain",
+    "open_loop_gain",
+    "slew_rate_v_per_s",
+    "output_headroom_v",
+    "signal_hz",
+    "amplitude_v",
+    "opamp_supply_min_v",
+    "opamp_supply_max_v",
+    "input_offset_v",
+    "output_offset_max_v",
+)
 
 
 @dataclass(frozen=True)
@@ -83,9 +96,11 @@ class ChannelInputs:
     ``driver_current`` does not apply), ``resistor_tolerance`` (the series' default, for both resistors),
     and the front stage (NaN ``gbw_hz``: no front stage on that row; then every other front-stage field must
     be NaN too). With a front stage, ``gain`` (magnitude, V/V) and ``slew_rate_v_per_s`` are required and
-    ``signal_hz`` or ``amplitude_v`` (peak) must be given; ``open_loop_gain`` and ``output_headroom_v`` stay
-    optional. ``leds_in_series``, ``strings`` and ``channels`` hold whole numbers as floats; ``e_series`` is
-    a numpy str array, ``inverting`` a bool array.
+    ``open_loop_gain``, ``output_headroom_v``, ``signal_hz``, ``amplitude_v`` (peak), the op-amp's supply
+    range ``opamp_supply_min_v``/``opamp_supply_max_v``, ``input_offset_v`` and the allowed
+    ``output_offset_max_v`` stay optional.
+    ``leds_in_series``, ``strings`` and ``channels`` hold whole numbers as floats; ``e_series`` is a numpy str
+    array, ``inverting`` a bool array.
     """
 
     supply_v: FloatArray
@@ -128,6 +143,10 @@ class ChannelInputs:
     output_headroom_v: FloatArray
     signal_hz: FloatArray
     amplitude_v: FloatArray
+    opamp_supply_min_v: FloatArray
+    opamp_supply_max_v: FloatArray
+    input_offset_v: FloatArray
+    output_offset_max_v: FloatArray
 
 
 @dataclass(frozen=True)

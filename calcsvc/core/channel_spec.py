@@ -74,13 +74,17 @@ CHANNEL_INPUTS = InputSet(
             "non_inverting",
             choices=("non_inverting", "inverting"),
         ),
-        positive("gain", "dimensionless", "front stage closed-loop gain magnitude", optional=True),
+        positive("gain", "V/V", "front stage closed-loop gain magnitude", optional=True),
         positive("gbw_hz", "Hz", "front stage op-amp gain-bandwidth product", optional=True),
-        positive("open_loop_gain", "dimensionless", "front stage op-amp DC open-loop gain", optional=True),
+        positive("open_loop_gain", "V/V", "front stage op-amp DC open-loop gain", optional=True),
         positive("slew_rate_v_per_s", "V/s", "front stage op-amp slew rate", optional=True),
         Input("output_headroom_v", "V", "front stage output headroom to each rail", optional=True, minimum=0),
         positive("signal_hz", "Hz", "front stage signal frequency", optional=True),
         positive("amplitude_v", "V", "front stage output peak amplitude", optional=True),
+        positive("opamp_supply_min_v", "V", "front stage op-amp's lowest rated total supply span", optional=True),
+        positive("opamp_supply_max_v", "V", "front stage op-amp's highest rated total supply span", optional=True),
+        Input("input_offset_v", "V", "front stage op-amp input offset voltage (magnitude)", optional=True, minimum=0),
+        positive("output_offset_max_v", "V", "largest front stage output offset the design allows", optional=True),
         Input(
             "samples",
             "dimensionless",
@@ -144,7 +148,15 @@ CHANNEL_INPUTS = InputSet(
         Role(
             "opamp",
             "opamp",
-            tuple((p, p) for p in ("gbw_hz", "open_loop_gain", "slew_rate_v_per_s", "output_headroom_v")),
+            (
+                ("gbw_hz", "gbw_hz"),
+                ("open_loop_gain", "open_loop_gain"),
+                ("slew_rate_v_per_s", "slew_rate_v_per_s"),
+                ("output_headroom_v", "output_headroom_v"),
+                ("supply_min_v", "opamp_supply_min_v"),
+                ("supply_max_v", "opamp_supply_max_v"),
+                ("input_offset_v", "input_offset_v"),
+            ),
         ),
     ),
 )
@@ -157,4 +169,5 @@ CHECK_UNITS = {
     "driver_current": "A", "collector_current_rating": "A", "voltage_rating": "V", "power_rating": "W",
     "off_state": "V", "supply_average_current": "A", "supply_peak_current": "A", "gain_achievable": "",
     "signal_in_band": "Hz", "slew_rate": "V/s", "output_swing": "V",
+    "opamp_supply_min": "V", "opamp_supply_max": "V", "output_offset": "V",
 }  # fmt: skip

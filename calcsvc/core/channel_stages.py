@@ -93,11 +93,14 @@ def closed_loop_inputs(i: ChannelInputs) -> closed_loop.ClosedLoopInputs:
         sweep_start_hz=nan,
         sweep_stop_hz=nan,
         sweep_points=nan,
+        input_offset_v=i.input_offset_v,
+        output_offset_max_v=i.output_offset_max_v,
     )
 
 
 def slew_inputs(i: ChannelInputs, supply_v: FloatArray) -> slew.SlewInputs:
-    """The front stage's output for a sine at ``signal_hz``; ``supply_v`` is its rail span."""
+    """The front stage's output for a sine at ``signal_hz``; ``supply_v`` is its rail span (the op-amp is powered
+    from the channel's supply), checked against the op-amp's supply range."""
     return slew.SlewInputs(
         slew_rate_v_per_s=i.slew_rate_v_per_s,
         output_headroom_v=i.output_headroom_v,
@@ -106,6 +109,8 @@ def slew_inputs(i: ChannelInputs, supply_v: FloatArray) -> slew.SlewInputs:
         triangle=np.zeros(supply_v.shape, dtype=bool),
         supply_v=supply_v,
         step_v=np.full(supply_v.shape, np.nan),
+        opamp_supply_min_v=i.opamp_supply_min_v,
+        opamp_supply_max_v=i.opamp_supply_max_v,
     )
 
 

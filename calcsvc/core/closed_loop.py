@@ -14,6 +14,10 @@ Non-inverting: ``NG = G_ideal = G`` (or ``1 + Rf/Rg``). Inverting: ``G_ideal = -
 ``NG = 1 + G``. Without ``open_loop_gain`` the op-amp is ideal at DC (``A0 → ∞``): ``A(s) = ωt/s`` with
 ``ωt = 2π·GBW``, so ``G_dc = G_ideal`` and ``f1 = GBW/NG``.
 
+Output offset: the input offset voltage Vos is amplified by the noise gain, ``Vos·NG/(1 + NG/A0)`` per stage;
+in a cascade each stage's offset is amplified by the stages after it, and the worst case (every offset of one
+sign) is ``Vos·NG/(1 + NG/A0) · Σ|G_dc|^k`` over k = 0..n-1.
+
 ``stages`` identical stages in cascade multiply: ``H(s)^n``. The cascade's -3 dB frequency solves
 ``(1 + (f/f1)²)^n = 2``, i.e. ``f1·√(2^(1/n) - 1)``. Rise times (10-90 %) use ``0.35/bandwidth``: exact to
 0.1 % for one pole (``ln 9 / 2π``), the usual approximation for the cascade.
@@ -29,6 +33,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
+from calcsvc.core.frequency_sweep import MAX_SWEEP_POINTS, stage_response, sweep_frequencies, validate_sweep
 from calcsvc.core.outcome import (
     BoolArray,
     Check,
@@ -45,10 +50,9 @@ from calcsvc.core.outcome import (
 from calcsvc.core.spec import CalculationSpec, Columns, Input, Result, Role, positive
 
 NAME = "closed-loop-bandwidth"
-VERSION = "1"
+VERSION = "2"
 
 MAX_STAGES = 20
-MAX_SWEEP_POINTS = 2000
 # At least 20 dB of loop gain at DC (NG ≤ A0/10) keeps the gain set by the resistors (common practice).
 MIN_DC_LOOP_GAIN = 10.0
 GAIN_ERROR_WARN_PCT = 1.0
@@ -65,7 +69,8 @@ class ClosedLoopInputs:
     (magnitude, V/V) or both ``rf_ohm`` and ``rg_ohm``; the others are NaN. ``open_loop_gain`` (V/V) NaN means
     ideal at DC. ``stages`` holds whole numbers. ``signal_hz`` NaN means no signal frequency. A row sweeps when
     it gives ``sweep_start_hz``, ``sweep_stop_hz`` and ``sweep_points`` (a whole number, 2..2000); each row has
-    its own number of points.
+    its own number of points. ``input_offset_v`` (magnitude) and ``output_offset_max_v`` (the output error
+    the design allows) are NaN when not given.
     """
 
     inverting: BoolArray
@@ -79,9 +84,13 @@ class ClosedLoopInputs:
     sweep_start_hz: FloatArray
     sweep_stop_hz: FloatArray
     sweep_points: FloatArray
+    input_offset_v: FloatArray
+    output_offset_max_v: FloatArray
 
 
-_QUANTITIES = ("gain", "rf_ohm", "rg_ohm", "gbw_hz", "open_loop_gain", "signal_hz", "sweep_start_hz", "sweep_stop_hz")
+_OPTIONAL = ("gain", "rf_ohm", "rg_ohm", "open_loop_gain", "signal_hz", "sweep_start_hz", "sweep_stop_hz")
+_OPTIONAL += ("input_offset_v", "output_offset_max_v")
+_QUANTITIES = ("gbw_hz", *_OPTIONAL)
 
 
 def validate(inputs: ClosedLoopInputs) -> list[Violation]:
@@ -90,15 +99,7 @@ def validate(inputs: ClosedLoopInputs) -> list[Violation]:
     inv = np.asarray(inputs.inverting, dtype=bool)
 
     # Optional values: NaN is "not given", but ±inf never makes sense.
-    for name in (
-        "gain",
-        "rf_ohm",
-        "rg_ohm",
-        "open_loop_gain",
-        "signal_hz",
-        "sweep_start_hz",
-        "sweep_stop_hz",
-    ):
+    for name in _OPTIONAL:
         values = getattr(inputs, name)
         bad = np.isinf(values)
         require(v, bad, name, f"{name} ({first_bad(values, bad)}) must be a finite number when given")
@@ -178,76 +179,20 @@ def validate(inputs: ClosedLoopInputs) -> list[Violation]:
         f"({MAX_STAGES} is this service's cap on identical cascaded stages)",
     )
 
+    offset = inputs.input_offset_v
+    bad = np.isfinite(offset) & (offset < 0.0)
+    require(v, bad, "input_offset_v", f"input_offset_v ({first_bad(offset, bad)} V) is a magnitude: not negative")
+    allowed = inputs.output_offset_max_v
+    bad = np.isfinite(allowed) & (allowed <= 0.0)
+    require(v, bad, "output_offset_max_v", f"output_offset_max_v ({first_bad(allowed, bad)} V) must be above 0 V")
+
     sig = inputs.signal_hz
     bad = np.isfinite(sig) & (sig <= 0.0)
     require(v, bad, "signal_hz", f"signal_hz ({first_bad(sig, bad)} Hz) must be above 0 Hz")
 
     require_practical(v, {name: getattr(inputs, name) for name in _QUANTITIES}, ("rg_ohm", "gbw_hz"))
-    v.extend(_validate_sweep(inputs))
+    v.extend(validate_sweep(inputs.sweep_points, inputs.sweep_start_hz, inputs.sweep_stop_hz))
     return v
-
-
-def _validate_sweep(inputs: ClosedLoopInputs) -> list[Violation]:
-    v: list[Violation] = []
-    points = inputs.sweep_points
-    points_given = ~np.isnan(points)
-    with np.errstate(invalid="ignore"):
-        bad = points_given & ((points != np.round(points)) | ~(points >= 2) | ~(points <= MAX_SWEEP_POINTS))
-    message = f"sweep_points ({first_bad(points, bad)}) must be a whole number from 2 to {MAX_SWEEP_POINTS}"
-    require(v, bad, "sweep_points", message)
-
-    start, stop = inputs.sweep_start_hz, inputs.sweep_stop_hz
-    start_given, stop_given = ~np.isnan(start), ~np.isnan(stop)
-    require(v, start_given & ~stop_given, "sweep_stop_hz", "sweep_stop_hz is needed with sweep_start_hz")
-    require(v, stop_given & ~start_given, "sweep_start_hz", "sweep_start_hz is needed with sweep_stop_hz")
-    bad = np.isfinite(start) & (start <= 0.0)
-    require(
-        v,
-        bad,
-        "sweep_start_hz",
-        f"sweep_start_hz ({first_bad(start, bad)} Hz) must be above 0 Hz (the sweep is log-spaced)",
-    )
-    bad = np.isfinite(start) & np.isfinite(stop) & (start > 0.0) & (stop <= start)
-    require(
-        v,
-        bad,
-        "sweep_stop_hz",
-        f"sweep_stop_hz ({first_bad(stop, bad)} Hz) must be above sweep_start_hz ({first_bad(start, bad)} Hz)",
-    )
-    require(
-        v,
-        start_given & stop_given & ~points_given,
-        "sweep_points",
-        f"sweep_points must be from 2 to {MAX_SWEEP_POINTS} when sweep_start_hz and sweep_stop_hz are given",
-    )
-    require(
-        v,
-        points_given & ~start_given & ~stop_given,
-        "sweep_start_hz",
-        "sweep_points needs sweep_start_hz and sweep_stop_hz",
-    )
-    return v
-
-
-def _sweep_frequencies(start: FloatArray, stop: FloatArray, points: np.ndarray) -> FloatArray:
-    """Each row's log-spaced points, row after row; rows of one size share one ``geomspace`` call, so a row
-    gets the same frequencies alone as in any batch."""
-    first = np.concatenate(([0], np.cumsum(points)[:-1]))
-    frequency = np.empty(int(points.sum()))
-    for size in np.unique(points):
-        rows = np.flatnonzero(points == size)
-        frequency[first[rows, None] + np.arange(size)] = np.geomspace(start[rows], stop[rows], int(size), axis=1)
-    return frequency
-
-
-def _stage_response(
-    frequency_hz: np.ndarray, dc_gain: np.ndarray, f1: np.ndarray, stages: np.ndarray
-) -> tuple[np.ndarray, np.ndarray]:
-    """Gain (dB) and added phase lag (degrees) of ``stages`` cascaded single-pole stages; broadcasts."""
-    x2 = np.square(frequency_hz / f1)
-    gain_db = stages * (20.0 * np.log10(np.abs(dc_gain)) - 10.0 * np.log1p(x2) / np.log(10.0))
-    phase_deg = -stages * np.degrees(np.arctan(frequency_hz / f1))
-    return gain_db, phase_deg
 
 
 def compute(inputs: ClosedLoopInputs, validated: bool = False) -> Outcome:
@@ -282,7 +227,14 @@ def compute(inputs: ClosedLoopInputs, validated: bool = False) -> Outcome:
     rise_time = RISE_TIME_CONSTANT / bandwidth
     cascade_rise_time = RISE_TIME_CONSTANT / cascade_bandwidth
 
-    gain_at_signal_db, phase_at_signal_deg = _stage_response(inputs.signal_hz, closed_loop_gain, bandwidth, stages)
+    output_offset = inputs.input_offset_v * noise_gain / (1.0 + loss)
+    g = np.abs(closed_loop_gain)
+    # Σ|G|^k for k < n (a follower, |G| = 1, sums to n); only an absurd cascade overflows it, to inf.
+    with np.errstate(over="ignore", invalid="ignore", divide="ignore"):
+        carried = np.where(g == 1.0, stages, np.expm1(stages * np.log(g)) / (g - 1.0))
+        cascade_output_offset = np.where(output_offset == 0.0, 0.0, output_offset * carried)
+
+    gain_at_signal_db, phase_at_signal_deg = stage_response(inputs.signal_hz, closed_loop_gain, bandwidth, stages)
 
     results: dict[str, np.ndarray] = {
         "noise_gain": noise_gain,
@@ -295,6 +247,7 @@ def compute(inputs: ClosedLoopInputs, validated: bool = False) -> Outcome:
         "cascade_rise_time_s": cascade_rise_time,
         "gain_at_signal_db": gain_at_signal_db,
         "phase_at_signal_deg": phase_at_signal_deg,
+        "output_offset_v": output_offset,
     }
 
     sweeping = ~np.isnan(inputs.sweep_points)
@@ -302,8 +255,8 @@ def compute(inputs: ClosedLoopInputs, validated: bool = False) -> Outcome:
         rows = np.flatnonzero(sweeping)
         points = inputs.sweep_points[rows].astype(np.int64)
         row = np.repeat(rows, points)
-        freq = _sweep_frequencies(inputs.sweep_start_hz[rows], inputs.sweep_stop_hz[rows], points)
-        sweep_gain, sweep_phase = _stage_response(freq, closed_loop_gain[row], bandwidth[row], stages[row])
+        freq = sweep_frequencies(inputs.sweep_start_hz[rows], inputs.sweep_stop_hz[rows], points)
+        sweep_gain, sweep_phase = stage_response(freq, closed_loop_gain[row], bandwidth[row], stages[row])
         results["sweep_row"] = row
         results["sweep_frequency_hz"] = freq
         results["sweep_gain_db"] = sweep_gain
@@ -312,6 +265,7 @@ def compute(inputs: ClosedLoopInputs, validated: bool = False) -> Outcome:
     loop_limit = np.where(a0_given, inputs.open_loop_gain / MIN_DC_LOOP_GAIN, np.nan)
     signal_given = ~np.isnan(inputs.signal_hz)
     band_limit = np.where(signal_given, cascade_bandwidth, np.nan)
+    offset_limit = np.where(np.isnan(cascade_output_offset), np.nan, inputs.output_offset_max_v)
     checks = [
         Check(
             "gain_achievable",
@@ -331,6 +285,16 @@ def compute(inputs: ClosedLoopInputs, validated: bool = False) -> Outcome:
             "max",
             "signal_hz must not exceed the cascade's -3 dB bandwidth; does not apply without signal_hz",
         ),
+        Check(
+            "output_offset",
+            ~(cascade_output_offset > offset_limit),
+            np.where(np.isnan(offset_limit), np.nan, cascade_output_offset),
+            offset_limit,
+            "max",
+            "the output offset the input offset voltages cause (output_offset_v carried through every later "
+            "stage, all offsets of one sign) must not exceed output_offset_max_v; does not apply unless both "
+            "input_offset_v and output_offset_max_v are given",
+        ),
     ]
 
     warnings: list[Notice] = []
@@ -347,6 +311,12 @@ def compute(inputs: ClosedLoopInputs, validated: bool = False) -> Outcome:
         mask,
         "signal_hz is above a tenth of the cascade bandwidth: the gain there is already below its DC "
         "value and the phase lag is appreciable (see gain_at_signal_db and phase_at_signal_deg)",
+    )
+
+    add_notice(
+        warnings,
+        ~np.isnan(inputs.output_offset_max_v) & np.isnan(inputs.input_offset_v),
+        "output_offset_max_v is given but input_offset_v is not: the output offset is not checked",
     )
 
     return Outcome(results=results, checks=checks, warnings=warnings)
@@ -368,6 +338,8 @@ def _inputs_from_columns(c: Columns) -> ClosedLoopInputs:
         sweep_start_hz=c["sweep_start_hz"],
         sweep_stop_hz=c["sweep_stop_hz"],
         sweep_points=c["sweep_points"],
+        input_offset_v=c["input_offset_v"],
+        output_offset_max_v=c["output_offset_max_v"],
     )
 
 
@@ -379,20 +351,34 @@ SPEC = CalculationSpec(
         Input(
             "configuration", "", "non_inverting or inverting", "non_inverting", choices=("non_inverting", "inverting")
         ),
-        positive("gain", "dimensionless", "closed-loop gain magnitude (or give rf_ohm and rg_ohm)", optional=True),
+        positive("gain", "V/V", "closed-loop gain magnitude (or give rf_ohm and rg_ohm)", optional=True),
         positive("rf_ohm", "ohm", "feedback resistor", optional=True),
         positive("rg_ohm", "ohm", "gain-setting resistor to ground (or input resistor when inverting)", optional=True),
         positive("gbw_hz", "Hz", "op-amp gain-bandwidth product"),
-        positive("open_loop_gain", "dimensionless", "DC open-loop gain; absent: ideal at DC", optional=True),
+        positive("open_loop_gain", "V/V", "DC open-loop gain; absent: ideal at DC", optional=True),
         Input("stages", "dimensionless", "identical cascaded stages", 1, minimum=1, maximum=20, integer=True),
         positive("signal_hz", "Hz", "signal frequency to evaluate", optional=True),
         positive("sweep_start_hz", "Hz", "first frequency of a log sweep", optional=True),
         positive("sweep_stop_hz", "Hz", "last frequency of a log sweep", optional=True),
         Input(
-            "sweep_points", "dimensionless", "points in the sweep", optional=True, minimum=2, maximum=2000, integer=True
+            "sweep_points",
+            "dimensionless",
+            "points in the sweep",
+            optional=True,
+            minimum=2,
+            maximum=MAX_SWEEP_POINTS,
+            integer=True,
+        ),
+        Input("input_offset_v", "V", "op-amp input offset voltage (magnitude)", optional=True, minimum=0),
+        positive("output_offset_max_v", "V", "largest output offset the design allows", optional=True),
+    ),
+    roles=(
+        Role(
+            "opamp",
+            "opamp",
+            (("gbw_hz", "gbw_hz"), ("open_loop_gain", "open_loop_gain"), ("input_offset_v", "input_offset_v")),
         ),
     ),
-    roles=(Role("opamp", "opamp", (("gbw_hz", "gbw_hz"), ("open_loop_gain", "open_loop_gain"))),),
     results=(
         Result("noise_gain", "V/V", "1 + Rf/Rg, the gain the loop sees"),
         Result("signal_gain", "V/V", "ideal signed signal gain"),
@@ -404,6 +390,7 @@ SPEC = CalculationSpec(
         Result("cascade_rise_time_s", "s", "10-90 % rise time of all stages"),
         Result("gain_at_signal_db", "dB", "gain of all stages at signal_hz"),
         Result("phase_at_signal_deg", "deg", "phase lag from finite bandwidth at signal_hz"),
+        Result("output_offset_v", "V", "output offset of one stage from input_offset_v (Vos x noise gain)"),
         Result(
             "sweep",
             "",

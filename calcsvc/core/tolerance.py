@@ -12,7 +12,8 @@ values within the tolerances, and every check is re-evaluated with the chosen re
 
 and the LED-stage rules per string: I ≤ if_max (``led_current_rating``), Vs − ΣVf − Vce_sat ≥ 10 % of Vs
 (``headroom``), 2·I²·R_led within the largest standard rating (``resistor_rating``); the front stage's
-``output_swing`` with Vs as its rail span. Checks that depend on no toleranced value keep their nominal
+``output_swing`` with Vs as its rail span, and Vs against the op-amp's supply range (``opamp_supply_min`` at
+the low supply, ``opamp_supply_max`` at the high one). Checks that depend on no toleranced value keep their nominal
 result. ``DEPENDS_ON`` lists what each check depends on.
 
 Toleranced quantities
@@ -89,6 +90,9 @@ DEPENDS_ON: dict[str, tuple[str, ...]] = {
     "signal_in_band": (),
     "slew_rate": (),
     "output_swing": ("supply",),
+    "opamp_supply_min": ("supply",),
+    "opamp_supply_max": ("supply",),
+    "output_offset": (),
 }
 """The toleranced quantities each check depends on; checks depending on none keep their nominal result."""
 
@@ -187,7 +191,7 @@ def evaluate_at(inputs: ChannelInputs, nominal: ChannelReview, at: Point) -> lis
         "power_rating": (power, rating["power_max"], power <= rating["power_max"]),
         "supply_average_current": (supply_average, rating["supply"], ~(supply_average > rating["supply"])),
         "supply_peak_current": (supply_peak, rating["supply"], ~(supply_peak > rating["supply"])),
-        "output_swing": _output_swing(inputs, nominal, at.supply_v),
+        **_rail_checks(inputs, nominal, at.supply_v),
     }
     checks = []
     for c in nominal.checks:
@@ -197,26 +201,34 @@ def evaluate_at(inputs: ChannelInputs, nominal: ChannelReview, at: Point) -> lis
     return checks
 
 
-def _output_swing(
+RAIL_CHECKS = ("output_swing", "opamp_supply_min", "opamp_supply_max")
+"""The front stage's checks that depend on its rails, the channel's supply."""
+
+
+def _rail_checks(
     inputs: ChannelInputs, nominal: ChannelReview, supply_v: FloatArray
-) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
-    """The front stage's output-swing check with ``supply_v`` (n, …) as its rail span (slew calculation),
-    in the shape of ``supply_v``."""
+) -> dict[str, tuple[np.ndarray, np.ndarray, np.ndarray]]:
+    """The front stage's ``RAIL_CHECKS`` with ``supply_v`` (n, …) as its rail span (slew calculation), each as
+    (value, limit, ok) in the shape of ``supply_v``."""
     levels = _by_row(supply_v)
-    nominal_check = nominal.check("output_swing")
-    value = np.broadcast_to(nominal_check.value[:, None], levels.shape).copy()
-    limit = np.full(levels.shape, np.nan)
-    ok = np.ones(levels.shape, dtype=bool)
     front = has_front_stage(inputs)
+    k = levels.shape[1]
+    swing = None
     if front.any():
-        k = levels.shape[1]
         stage = take(slew_inputs(take(inputs, front), inputs.supply_v[front]), np.repeat(np.arange(front.sum()), k))
         swing = slew.compute(dataclasses.replace(stage, supply_v=levels[front].ravel()))
-        check = next(c for c in swing.checks if c.name == "output_swing")
-        value[front] = check.value.reshape(-1, k)
-        limit[front] = check.limit.reshape(-1, k)
-        ok[front] = check.ok.reshape(-1, k)
-    return value.reshape(supply_v.shape), limit.reshape(supply_v.shape), ok.reshape(supply_v.shape)
+    found = {}
+    for name in RAIL_CHECKS:
+        value = np.broadcast_to(nominal.check(name).value[:, None], levels.shape).copy()
+        limit = np.full(levels.shape, np.nan)
+        ok = np.ones(levels.shape, dtype=bool)
+        if swing is not None:
+            check = next(c for c in swing.checks if c.name == name)
+            value[front] = check.value.reshape(-1, k)
+            limit[front] = check.limit.reshape(-1, k)
+            ok[front] = check.ok.reshape(-1, k)
+        found[name] = (value.reshape(supply_v.shape), limit.reshape(supply_v.shape), ok.reshape(supply_v.shape))
+    return found
 
 
 # ---- worst case ------------------------------------------------------------------------------------------

@@ -34,9 +34,9 @@ KINDS: dict[str, tuple[Param, ...]] = {
     "opamp": (
         Param("gbw_hz", "Hz", "gain-bandwidth product"),
         Param("slew_rate_v_per_s", "V/s", "output slew rate"),
-        Param("open_loop_gain", "dimensionless", "DC open-loop gain, V/V"),
-        Param("supply_min_v", "V", "lowest total supply span", informational="no check of the supply span yet"),
-        Param("supply_max_v", "V", "highest total supply span", informational="no check of the supply span yet"),
+        Param("open_loop_gain", "V/V", "DC open-loop gain (a voltage ratio: dB are 20·log10)"),
+        Param("supply_min_v", "V", "lowest total supply span"),
+        Param("supply_max_v", "V", "highest total supply span"),
         Param("output_headroom_v", "V", "how close the output swings to each rail", positive=False),
         Param(
             "input_offset_v",
@@ -44,7 +44,6 @@ KINDS: dict[str, tuple[Param, ...]] = {
             "input offset voltage (magnitude)",
             optional=True,
             positive=False,
-            informational="no check of the output offset yet",
         ),
     ),
     "bjt": (

@@ -9,7 +9,7 @@ import numpy as np
 from marshmallow import ValidationError, fields
 
 from calcsvc.core.spec import Input
-from calcsvc.units import MAX_QUANTITY_LENGTH, QUANTITY_PATTERN, UnitError, parse_quantity
+from calcsvc.units import MAX_QUANTITY_LENGTH, QUANTITY_PATTERN, VOLTAGE_RATIO, UnitError, parse_quantity
 
 
 class Quantity(fields.Field):
@@ -48,6 +48,8 @@ class Quantity(fields.Field):
             number["maximum"] = maximum
         unit_text = "V/V" if unit == "dimensionless" else unit
         metadata = dict(kwargs.pop("metadata", {}))
+        if unit == VOLTAGE_RATIO:
+            description = f"{description}; a string in dB is read as 20·log10 of the voltage ratio".lstrip("; ")
         metadata.setdefault("description", f"{description} [{unit_text}]".strip())
         metadata["x-unit"] = unit_text
         if integer:

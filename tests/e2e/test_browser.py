@@ -94,7 +94,7 @@ def test_review_a_revision_and_approve_it(tab: Any, served: tuple[str, dict[str,
     current = requests.get(f"{base}/v1/parts/{OPAMP_ID}", timeout=5).json()["parameters"]
     edited = requests.put(
         f"{base}/v1/parts/{OPAMP_ID}",
-        json={"parameters": {**current, "gbw_hz": "1.2 MHz"}},
+        json={"parameters": {**current, "gbw_hz": "1.5 MHz"}},
         headers={**bearer(tokens["edna"]), "If-Match": etag},
         timeout=5,
     )
@@ -110,7 +110,7 @@ def test_review_a_revision_and_approve_it(tab: Any, served: tuple[str, dict[str,
     tab.wait_for_url(f"**/review/parts/{OPAMP_ID}")
     assert tab.locator("#part-status").inner_text() == "draft"
     change = tab.locator("#revision-2 li.change-changed")
-    assert change.inner_text().replace("\N{NO-BREAK SPACE}", " ") == "gbw_hz changed: 1 MHz → 1.2 MHz"
+    assert change.inner_text().replace("\N{NO-BREAK SPACE}", " ") == "gbw_hz changed: 1.2 MHz → 1.5 MHz"
     assert images_loaded(tab) == [True, True]
     shot(tab, tmp_path, "2-part-draft")
 

@@ -116,7 +116,7 @@ def test_a_sheet_fetches_answers_and_turns_them_into_numbers(
     resistor_text = _direct(server, "led-string", LED, "resistor_ohm")
     bandwidth_text = _direct(server, "closed-loop-bandwidth", OPAMP, "bandwidth_hz")
     assert float(resistor_text) == 300.0
-    assert float(bandwidth_text) == pytest.approx(20_000.0, rel=1e-3)  # 1 MHz / 50, finite open-loop gain
+    assert float(bandwidth_text) == pytest.approx(24_008.0, rel=1e-3)  # 1.2 MHz/50 + 1.2 MHz/150 000 (GBW/NG)
 
     cells = _run_sheet(
         tmp_path,

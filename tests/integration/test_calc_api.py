@@ -84,8 +84,9 @@ def test_closed_loop_bandwidth_on_a_seeded_opamp(client: FlaskClient, seeded: An
         },
     )
     results = data["results"]
-    # GBW 1 MHz at gain 100 gives about 10 kHz (common practice); exactly GBW/NG + GBW/A0 in the model.
-    assert results["bandwidth_hz"] == pytest.approx(1e6 / 100 + 1e6 / 200_000)
+    # GBW 1.2 MHz at gain 100 gives about 12 kHz (GBW/NG, Sedra & Smith, Microelectronic Circuits, 7th ed.,
+    # §2.7.3, from memory); exactly GBW/NG + GBW/A0 in the model.
+    assert results["bandwidth_hz"] == pytest.approx(1.2e6 / 100 + 1.2e6 / 150_000)
     assert len(results["sweep"]["frequency_hz"]) == 50
     assert results["sweep"]["gain_db"][0] == pytest.approx(20 * math.log10(abs(results["closed_loop_gain"])), abs=1e-3)
     assert results["gain_at_signal_db"] is None  # no signal_hz given: does not apply
@@ -97,7 +98,7 @@ def test_inverting_stage_from_resistors(client: FlaskClient) -> None:
         "closed-loop-bandwidth",
         {"configuration": "inverting", "rf_ohm": "100 kohm", "rg_ohm": "10 kohm", "gbw_hz": "1 MHz"},
     )
-    # Inverting gain -10 has noise gain 11 (Sedra & Smith, inverting configuration).
+    # Inverting gain -10 has noise gain 11 (Sedra & Smith, Microelectronic Circuits, 7th ed., §2.7.3, from memory).
     assert data["results"]["signal_gain"] == -10
     assert data["results"]["noise_gain"] == 11
     assert data["results"]["bandwidth_hz"] == pytest.approx(1e6 / 11)
@@ -229,3 +230,44 @@ def test_high_power_leds_carry_a_caution(client: FlaskClient, seeded: Any) -> No
     body = {"supply": "supply-adapter-12v-2a", "led": "led-deep-red-grow-1w", "leds_in_series": 3, "current_a": 0.35}
     data = post(client, "led-string", body)
     assert data["cautions"], data
+
+
+def test_voltage_gains_in_decibels_are_twenty_log10_everywhere(
+    client: FlaskClient, seeded: Any, tokens: dict[str, str]
+) -> None:
+    # IEC 60027-3: the level of a voltage ratio is 20·log10 of it, so 26 dB is 19.95 V/V (not the power ratio
+    # 398) and 106 dB is 199 526 V/V (not 4e10). GBW 1 MHz over NG 19.95: 50.1 kHz.
+    gain, a0 = 10 ** (26 / 20), 10 ** (106 / 20)
+    body = {"gbw_hz": "1 MHz", "gain": "26 dB", "open_loop_gain": "106 dB"}
+    single = post(client, "closed-loop-bandwidth", body)
+    assert single["inputs"]["gain"] == pytest.approx(gain) and single["inputs"]["open_loop_gain"] == pytest.approx(a0)
+    assert single["results"]["bandwidth_hz"] == pytest.approx(1e6 / gain + 1e6 / a0)
+    # The same in a batch cell, a query string, the channel review's fields and a search filter.
+    batch = client.post("/v1/batch/closed-loop-bandwidth", json=[body]).get_json()
+    assert batch["rows"][0]["results"] == single["results"]
+    query = client.get("/v1/calc/closed-loop-bandwidth", query_string=body).get_json()
+    assert query["results"] == single["results"]
+    where = {"open_loop_gain": {"min": "100 dB"}}  # 1e5 V/V: the 60 000 and 80 000 V/V seeds are out
+    found = client.post(
+        "/v1/select/closed-loop-bandwidth", json={"opamp": {"where": where}, "gain": "26 dB", "signal_hz": "1 kHz"}
+    ).get_json()
+    assert found["filter"]["where"] == {"open_loop_gain": {"min": pytest.approx(1e5)}}
+    assert sorted(c["part_id"] for c in found["candidates"]) == ["opamp-general-1mhz", "opamp-jfet-4mhz"]
+    # A part's open_loop_gain too.
+    part = {"part_id": "opamp-db-test", "kind": "opamp", "parameters": {
+        "gbw_hz": "1 MHz", "slew_rate_v_per_s": "1 V/us", "open_loop_gain": "106 dB", "supply_min_v": 5,
+        "supply_max_v": 30, "output_headroom_v": 1}}  # fmt: skip
+    created = client.post("/v1/parts", json=part, headers=bearer(tokens["edna"]))
+    assert created.status_code == 201 and created.get_json()["parameters"]["open_loop_gain"] == pytest.approx(a0)
+
+
+def test_decibels_are_refused_on_ratios_that_are_no_voltage_gain(client: FlaskClient) -> None:
+    led = {"supply_v": 12, "vf_typ_v": 2.0, "vf_min_v": 1.8, "vf_max_v": 2.4, "if_max_a": 0.03,
+           "leds_in_series": 3, "current_a": "20 mA"}  # fmt: skip
+    body = assert_problem(
+        client.post("/v1/calc/led-string", json={**led, "supply_tolerance": "-26 dB"}), 422, "supply_tolerance"
+    )
+    assert "logarithmic" in body["errors"]["supply_tolerance"][0]
+    bjt = {**BJT, "hfe_min": "40 dB", "vbe_sat_v": 0.85, "vce_sat_v": 0.2, "ic_max_a": 0.2, "power_max_w": 0.5}
+    assert_problem(client.post("/v1/calc/bjt-switch", json=bjt), 422, "hfe_min")
+    assert_problem(client.post("/v1/calc/closed-loop-bandwidth", json={"gbw_hz": "1 MHz", "gain": "3 Np"}), 422, "gain")

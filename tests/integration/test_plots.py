@@ -61,8 +61,8 @@ def test_closed_loop_svg_marks_the_calculations_bandwidth(client: FlaskClient, s
     assert "default-src 'none'" in response.headers["Content-Security-Policy"]
     assert b'id="minus-3db-point"' in response.data
     bandwidth = calc(client, "closed-loop-bandwidth", OPAMP)["results"]["bandwidth_hz"]
-    # The same number, not a recomputation: GBW/NG + GBW/A0 = 1 MHz/10 + 1 MHz/200000 (the seed op-amp).
-    assert svg_markers(response.data)["bandwidth_hz"] == bandwidth == pytest.approx(100_005.0)
+    # The same number, not a recomputation: GBW/NG + GBW/A0 = 1.2 MHz/10 + 1.2 MHz/150000 (the seed op-amp).
+    assert svg_markers(response.data)["bandwidth_hz"] == bandwidth == pytest.approx(120_008.0)
 
 
 def test_closed_loop_png_carries_the_same_marker(client: FlaskClient, seeded: Any) -> None:
@@ -71,8 +71,8 @@ def test_closed_loop_png_carries_the_same_marker(client: FlaskClient, seeded: An
     bandwidth = calc(client, "closed-loop-bandwidth", OPAMP)["results"]["bandwidth_hz"]
     markers = png_markers(response.data, plots.CLOSED_LOOP_PANELS)
     assert markers["bandwidth_hz"] == bandwidth
-    # One pole: the gain at the corner is 3.01 dB (10·log10 2) under the DC gain of 20·log10(9.9995) dB.
-    assert markers["gain_at_corner_db"] == pytest.approx(20 * math.log10(10 / (1 + 10 / 200_000)) - 10 * math.log10(2))
+    # One pole: the gain at the corner is 3.01 dB (10·log10 2) under the DC gain of 20·log10(9.99933) dB.
+    assert markers["gain_at_corner_db"] == pytest.approx(20 * math.log10(10 / (1 + 10 / 150_000)) - 10 * math.log10(2))
 
 
 def test_cascade_without_open_loop_gain_marks_the_cascade_bandwidth(client: FlaskClient) -> None:
@@ -102,14 +102,14 @@ def test_slew_limit_plot_draws_both_limits_and_the_operating_point(
     # SI numbers: the curve builders below take the inputs as the query schema loads them.
     query = {"opamp": "opamp-general-1mhz", "supply_v": 12.0, "frequency_hz": 1000.0, "amplitude_v": 1.0}
     markers = svg_markers(get_plot(client, "slew-limit.svg", query).data)
-    # Swing: 12 V / 2 - 1.5 V headroom of the seed op-amp.
-    assert markers == {"swing_limited_amplitude_v": 4.5, "frequency_hz": 1000.0, "amplitude_v": 1.0}
+    # Swing: 12 V / 2 - 1.4 V headroom of the seed op-amp.
+    assert markers == {"swing_limited_amplitude_v": 4.6, "frequency_hz": 1000.0, "amplitude_v": 1.0}
     curves = service_curves.slew_curves(app.extensions["calcsvc.db"], query)
     f = curves.frequency_hz
     assert f[0] < 1000.0 < f[-1]
-    # A sine's steepest slope is 2π·f·Vp, so the slew-limited peak is SR/(2π·f) with SR = 0.5 V/µs.
-    assert curves.slew_limited_amplitude_v == pytest.approx(5e5 / (2 * math.pi * f))
-    assert curves.max_amplitude_v == pytest.approx(np.minimum(curves.slew_limited_amplitude_v, 4.5))
+    # A sine's steepest slope is 2π·f·Vp, so the slew-limited peak is SR/(2π·f) with SR = 0.6 V/µs.
+    assert curves.slew_limited_amplitude_v == pytest.approx(6e5 / (2 * math.pi * f))
+    assert curves.max_amplitude_v == pytest.approx(np.minimum(curves.slew_limited_amplitude_v, 4.6))
     assert curves.operating_ok
 
 

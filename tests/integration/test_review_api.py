@@ -42,6 +42,33 @@ def test_greenhouse_demo_passes_with_every_stage(client: FlaskClient, seeded: An
     assert data["max_duty_cycle"] == 1.0
     assert data["yield"]["fraction"] == 1.0 and data["yield"]["samples"] == 10_000
     assert len(data["fingerprint"]) == 64
+    # The op-amp (rated 6-30 V) runs from the adapter's 11.4-12.6 V: each end checked at its own corner.
+    checks = {c["name"]: c for c in data["checks"]}
+    assert checks["opamp_supply_min"]["worst_case"]["value"] == pytest.approx(11.4)
+    assert checks["opamp_supply_min"]["worst_case"]["corner"] == {"supply": "low"}
+    assert checks["opamp_supply_min"]["worst_case"]["limit"] == 6.0
+    assert checks["opamp_supply_max"]["worst_case"]["value"] == pytest.approx(12.6)
+    assert checks["opamp_supply_max"]["worst_case"]["limit"] == 30.0
+    # Output offset: 2.5 mV × noise gain 20 (Franco, 3rd ed., §5.4, from memory), A0 150 000 V/V.
+    assert data["stages"]["front_stage"]["output_offset_v"] == pytest.approx(0.05 / (1 + 20 / 150_000))
+
+
+@pytest.mark.parametrize(
+    ("change", "failing"),
+    [
+        # A 5.5 V-maximum op-amp on the 12 V adapter: destroyed at any corner, and a caution says so.
+        ({"opamp": "opamp-rrio-3mhz"}, "opamp_supply_max"),
+        # The 10 V-minimum class on the 9 V pack (±15 %: 7.65-10.35 V).
+        ({"supply": "supply-battery-9v-6aa", "opamp": "opamp-jfet-4mhz", "current_a": "10 mA"}, "opamp_supply_min"),
+    ],
+)
+def test_op_amp_outside_its_supply_range_fails(
+    client: FlaskClient, seeded: Any, change: dict[str, Any], failing: str
+) -> None:
+    data = review(client, {**DEMO, **change, "samples": 0})
+    assert data["verdict"] == "fail" and failing in data["failing"]
+    if failing == "opamp_supply_max":
+        assert any("destroy" in caution for caution in data["cautions"])
 
 
 def test_explicit_values_give_the_same_review_as_parts(client: FlaskClient, seeded: Any) -> None:

@@ -98,12 +98,12 @@ def status_of(client: FlaskClient, part_id: str) -> str:
 
 
 OPAMP_PARAMETERS = {
-    "gbw_hz": "1.2 MHz",
-    "slew_rate_v_per_s": 500000,
-    "open_loop_gain": 200000,
-    "supply_min_v": 10,
-    "supply_max_v": 36,
-    "output_headroom_v": 1.5,
+    "gbw_hz": "1.5 MHz",
+    "slew_rate_v_per_s": 600000,
+    "open_loop_gain": "103.5 dB",
+    "supply_min_v": 6,
+    "supply_max_v": 30,
+    "output_headroom_v": 1.4,
 }
 
 
@@ -130,15 +130,17 @@ def test_drafts_wait_for_approval_on_the_list(client: FlaskClient, seeded: Any, 
 def test_part_page_shows_parameters_with_units_and_each_revisions_difference(
     client: FlaskClient, seeded: Any, tokens: dict[str, str]
 ) -> None:
-    edit(client, tokens["edna"], OPAMP_ID, OPAMP_PARAMETERS)  # gbw 1 → 1.2 MHz, input_offset_v removed
+    # gbw 1.2 → 1.5 MHz, open_loop_gain 150000 → 103.5 dB (149 623.6 V/V), input_offset_v removed
+    edit(client, tokens["edna"], OPAMP_ID, OPAMP_PARAMETERS)
     html, parsed = page(client, f"/review/parts/{OPAMP_ID}")
-    assert '<data value="1200000.0">1.2 MHz</data>' in html
-    assert '<data value="500000">500 kV/s</data>' in html
+    assert '<data value="1500000.0">1.5 MHz</data>' in html
+    assert '<data value="600000">600 kV/s</data>' in html
+    assert "149624 V/V</data>" in html  # a voltage gain: 20·log10 (IEC 60027-3), shown as a ratio
     assert parsed.text["part-status"] == "draft"
     revision_2 = html[html.index('id="revision-2"') : html.index('id="revision-1"')]
     assert "Written by edna" in revision_2 and "not approved" in revision_2
-    assert re.search(r"<code>gbw_hz</code> changed:\s*<del>1 MHz</del> → <ins>1.2 MHz</ins>", revision_2)
-    assert re.search(r"<code>input_offset_v</code> removed:\s*<del>2 mV</del>", revision_2)
+    assert re.search(r"<code>gbw_hz</code> changed:\s*<del>1.2 MHz</del> → <ins>1.5 MHz</ins>", revision_2)
+    assert re.search(r"<code>input_offset_v</code> removed:\s*<del>2.5 mV</del>", revision_2)
     assert "slew_rate_v_per_s" not in revision_2  # unchanged fields are not listed
     revision_1 = html[html.index('id="revision-1"') :]
     assert "First revision." in revision_1 and "approved by seed" in revision_1

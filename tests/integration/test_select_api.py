@@ -41,13 +41,15 @@ def ids(candidates: list[dict[str, Any]]) -> list[str]:
 
 def test_op_amps_that_keep_20_khz_at_gain_50_without_slew_limiting(client: FlaskClient, seeded: Any) -> None:
     # Bandwidth at noise gain 50: f = GBW/50 + GBW/A0 must reach 20 kHz (signal_in_band).
-    #   jfet-4mhz        4e6/50 + 4e6/2e5 = 80 020 Hz   margin (80 020 - 20 000)/80 020 = 0.750
-    #   rrio-3mhz        3e6/50 + 3e6/1e5 = 60 030 Hz   margin 0.667
-    #   general-1mhz     1e6/50 + 1e6/2e5 = 20 005 Hz   margin 0.00025 (just in band)
-    #   micropower       1e5/50 + 1e5/5e4 =  2 002 Hz   fails
-    # 5 V peak at 20 kHz needs 2π · 20e3 · 5 = 628 319 V/s (slew_rate):
-    #   jfet 13 V/µs margin 0.952; rrio 1.5 V/µs margin (1.5e6 - 628 319)/1.5e6 = 0.581; general 0.5 V/µs
-    #   margin -0.257 (fails); micropower 0.05 V/µs margin -11.57 (fails). No supply_v: output_swing does not apply.
+    #   jfet-4mhz        4.5e6/50 + 4.5e6/1.2e5 = 90 037.5 Hz   margin (90 037.5 - 20 000)/90 037.5 = 0.778
+    #   rrio-3mhz        2.5e6/50 + 2.5e6/8e4   = 50 031.25 Hz  margin 0.600
+    #   general-1mhz     1.2e6/50 + 1.2e6/1.5e5 = 24 008 Hz     margin 0.167
+    #   micropower       1.2e5/50 + 1.2e5/6e4   =  2 402 Hz     fails
+    # 5 V peak at 20 kHz needs 2π · 20e3 · 5 = 628 319 V/s (slew_rate, Sedra & Smith, Microelectronic
+    # Circuits, 7th ed., §2.8.4, from memory):
+    #   jfet 12 V/µs margin 0.948; rrio 1.8 V/µs margin (1.8e6 - 628 319)/1.8e6 = 0.651; general 0.6 V/µs
+    #   margin -0.047 (fails); micropower 0.06 V/µs margin -9.47 (fails). No supply_v: output_swing and the
+    #   supply range do not apply.
     data = select(client, "closed-loop-bandwidth", OPAMPS_GAIN_50)
     assert data["evaluated"] == 4 and data["passing"] == 2 and data["role"] == "opamp"
     assert data["filter"] == {"status": ["approved"], "where": {}}
@@ -58,24 +60,21 @@ def test_op_amps_that_keep_20_khz_at_gain_50_without_slew_limiting(client: Flask
         "opamp-micropower-100khz",
     ]
     jfet, rrio, general, micro = data["candidates"]
-    assert (jfet["limiting_check"], jfet["margin"]) == ("signal_in_band", pytest.approx(60_020 / 80_020))
-    assert (rrio["limiting_check"], rrio["margin"]) == (
-        "slew-limit.slew_rate",
-        pytest.approx(1 - 2e5 * math.pi / 1.5e6),
-    )
+    assert (jfet["limiting_check"], jfet["margin"]) == ("signal_in_band", pytest.approx(70_037.5 / 90_037.5))
+    assert (rrio["limiting_check"], rrio["margin"]) == ("signal_in_band", pytest.approx(30_031.25 / 50_031.25))
     assert general["failing"] == ["slew-limit.slew_rate"] and general["margin"] == pytest.approx(
-        1 - 2e5 * math.pi / 5e5
+        1 - 2e5 * math.pi / 6e5
     )
     assert micro["failing"] == ["signal_in_band", "slew-limit.slew_rate"]
     assert jfet["ok"] and rrio["ok"] and not general["ok"] and not micro["ok"]
-    assert jfet["results"]["bandwidth_hz"] == pytest.approx(80_020)
+    assert jfet["results"]["bandwidth_hz"] == pytest.approx(90_037.5)
     assert jfet["required_results"]["slew-limit"]["required_slew_rate_v_per_s"] == pytest.approx(2e5 * math.pi)
     assert data["require"][0]["inputs"]["frequency_hz"] == 20_000.0
     assert "slew-limit.slew_rate" in data["check_details"]
 
 
 def test_rank_by_a_result_and_only_passing(client: FlaskClient, seeded: Any) -> None:
-    # Passing ones by bandwidth, lowest first: rrio 60 030 Hz, then jfet 80 020 Hz (derived above).
+    # Passing ones by bandwidth, lowest first: rrio 50 031 Hz, then jfet 90 038 Hz (derived above).
     body = {**OPAMPS_GAIN_50, "rank_by": "bandwidth_hz", "order": "asc", "only_passing": True}
     data = select(client, "closed-loop-bandwidth", body)
     assert ids(data["candidates"]) == ["opamp-rrio-3mhz", "opamp-jfet-4mhz"]
@@ -181,20 +180,24 @@ def test_filter_bounds_take_units_and_lists_name_parts(client: FlaskClient, seed
 
 
 def test_a_required_calculation_can_refuse_a_candidate(client: FlaskClient, seeded: Any) -> None:
-    # On a 3 V rail span an output 1.5 V short of each rail has no room to swing: the slew calculation refuses
-    # general-1mhz and jfet-4mhz (3 V ≤ 2 × 1.5 V) but takes rrio (0.05 V) and micropower (0.1 V). 1 V peak at
-    # 20 kHz needs 2π · 20e3 · 1 = 125.7 kV/s: rrio passes, micropower (50 kV/s, 2 kHz bandwidth) fails.
-    # Refused ones come last, by the margin of the checks that did run (jfet 0.750 before general 0.00025).
+    # On a 3 V rail span an output 1.6 V short of each rail has no room to swing: the slew calculation refuses
+    # jfet-4mhz (3 V ≤ 2 × 1.6 V) but takes the others. 1 V peak at 20 kHz needs 2π · 20e3 · 1 = 125.7 kV/s
+    # (Sedra & Smith, 7th ed., §2.8.4, from memory): rrio passes (its worst margin is the swing,
+    # (1.5 - 0.04 - 1)/1.46 = 0.315); micropower fails (60 kV/s; 2 402 Hz bandwidth, margin -7.33); general
+    # fails worse (swing 1.5 - 1.4 = 0.1 V, margin -9; 3 V is also below its 6 V supply minimum).
+    # The refused one comes last.
     slew = {"calculation": "slew-limit", "inputs": {"frequency_hz": 20e3, "amplitude_v": 1, "supply_v": 3}}
     data = select(client, "closed-loop-bandwidth", {**OPAMPS_GAIN_50, "require": [slew]})
     assert ids(data["candidates"]) == [
         "opamp-rrio-3mhz",
         "opamp-micropower-100khz",
-        "opamp-jfet-4mhz",
         "opamp-general-1mhz",
+        "opamp-jfet-4mhz",
     ]
-    jfet = data["candidates"][2]
-    assert jfet["failing"] == ["slew-limit.physically_possible"] and jfet["results"]["bandwidth_hz"] == 80_020
+    rrio, _, general, jfet = data["candidates"]
+    assert (rrio["limiting_check"], rrio["margin"]) == ("slew-limit.output_swing", pytest.approx(0.46 / 1.46))
+    assert "slew-limit.opamp_supply_min" in general["failing"] and "slew-limit.output_swing" in general["failing"]
+    assert jfet["failing"] == ["slew-limit.physically_possible"] and jfet["results"]["bandwidth_hz"] == 90_037.5
     assert "slew-limit.supply_v" in jfet["problem"] and jfet["required_results"] == {"slew-limit": None}
 
 

@@ -8,7 +8,7 @@ import time
 import pytest
 from helpers import HOSTILE_UNIT_STRINGS
 
-from calcsvc.units import MAX_QUANTITY_LENGTH, QUANTITY_PATTERN, UnitError, parse_quantity
+from calcsvc.units import MAX_QUANTITY_LENGTH, QUANTITY_PATTERN, VOLTAGE_RATIO, UnitError, parse_quantity
 
 
 def short(text: str) -> str:
@@ -103,3 +103,37 @@ def test_the_published_pattern_is_linear_without_the_length_limit(text: str) -> 
 def test_the_published_pattern_takes_what_the_parser_converts(text: str, unit: str) -> None:
     parse_quantity(text, unit)
     assert re.search(QUANTITY_PATTERN, text)
+
+
+@pytest.mark.parametrize(
+    ("text", "expected"),
+    [
+        # IEC 60027-3: a level of a root-power quantity (a voltage ratio) is 20·log10 of the ratio.
+        ("26 dB", 10 ** (26 / 20)),  # 19.95 V/V, not the power ratio 398
+        ("106 dB", 10 ** (106 / 20)),  # 2.0e5 V/V, not 4e10
+        ("0 dB", 1.0),
+        ("-6 dB", 10 ** (-6 / 20)),
+        ("20", 20.0),
+        ("20 V/V", 20.0),
+        ("500 mV/V", 0.5),
+    ],
+)
+def test_a_voltage_gain_in_decibels_is_twenty_log10(text: str, expected: float) -> None:
+    assert parse_quantity(text, VOLTAGE_RATIO) == pytest.approx(expected, rel=1e-12)
+
+
+@pytest.mark.parametrize(
+    ("text", "unit"),
+    [
+        ("26 dB", "dimensionless"),  # a fraction or a current gain is no voltage ratio
+        ("-3 dB", "dimensionless"),
+        ("3 Np", VOLTAGE_RATIO),
+        ("1 octave", VOLTAGE_RATIO),
+        ("20 dB * V/V", VOLTAGE_RATIO),
+        ("20 dB / dB", "dimensionless"),  # the names cancel in pint, the decibels would not
+        ("1e9 dB", VOLTAGE_RATIO),
+    ],
+)
+def test_logarithmic_units_elsewhere_are_refused(text: str, unit: str) -> None:
+    with pytest.raises(UnitError, match=r"logarithmic|out of range"):
+        parse_quantity(text, unit)

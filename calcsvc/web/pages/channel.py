@@ -19,6 +19,7 @@ from calcsvc.service.demo import demo_channel
 from calcsvc.service.errors import ServiceError
 from calcsvc.service.parts import part_id_field
 from calcsvc.service.review import run_review
+from calcsvc.units import VOLTAGE_RATIO
 from calcsvc.web.auth import database
 from calcsvc.web.metrics import record_calculation
 from calcsvc.web.pages.common import bp, shown
@@ -48,7 +49,7 @@ ChannelForm = Schema.from_dict(
         "channels": Quantity("dimensionless", minimum=1, maximum=10000, integer=True),
         "current_a": Quantity("A", minimum=0, exclusive_minimum=True),
         "duty_cycle": Quantity("dimensionless", minimum=0, maximum=1),
-        "gain": Quantity("dimensionless", minimum=0, exclusive_minimum=True),
+        "gain": Quantity(VOLTAGE_RATIO, minimum=0, exclusive_minimum=True),
         "signal_hz": Quantity("Hz", minimum=0, exclusive_minimum=True),
         "amplitude_v": Quantity("V", minimum=0, exclusive_minimum=True),
         "samples": Quantity("dimensionless", minimum=0, maximum=monte_carlo.MAX_SAMPLES, integer=True),

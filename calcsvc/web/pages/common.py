@@ -21,6 +21,7 @@ from flask import Blueprint, Response, current_app, g, render_template, request
 
 from calcsvc.data.kinds import Param
 from calcsvc.data.part_ids import is_part_id
+from calcsvc.units import VOLTAGE_RATIO
 from calcsvc.web.plots import eng
 
 bp = Blueprint(
@@ -79,8 +80,10 @@ def value_text(param: Param | None, value: Any) -> str:
         return str(value)
     if param.fraction:
         return f"{value:g} (±{value * 100:g} %)"
+    if param.unit == VOLTAGE_RATIO:
+        return f"{value:g} V/V"
     if param.unit == "dimensionless":
-        return f"{value:g} V/V" if param.name.endswith("gain") else f"{value:g}"
+        return f"{value:g}"
     return eng(float(value), param.unit)
 
 

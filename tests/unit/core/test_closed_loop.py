@@ -30,6 +30,8 @@ def make(
     sweep_start_hz: float = NAN,
     sweep_stop_hz: float = NAN,
     sweep_points: float = NAN,
+    input_offset_v: float = NAN,
+    output_offset_max_v: float = NAN,
 ) -> ClosedLoopInputs:
     """One row of inputs."""
 
@@ -48,6 +50,8 @@ def make(
         sweep_start_hz=arr(sweep_start_hz),
         sweep_stop_hz=arr(sweep_stop_hz),
         sweep_points=arr(sweep_points),
+        input_offset_v=arr(input_offset_v),
+        output_offset_max_v=arr(output_offset_max_v),
     )
 
 
@@ -146,7 +150,8 @@ def test_matches_scipy_freqs(inverting, gain, rf, rg, gbw, a0, n):
 
 
 def test_textbook_gbw_over_noise_gain():
-    # Sedra & Smith, Microelectronic Circuits (single-pole op-amp model): f3dB = ft / (1 + R2/R1) ≈ GBW / NG.
+    # Sedra & Smith, Microelectronic Circuits, 7th ed., §2.7.3 (single-pole op-amp model, from memory):
+    # f3dB = ft / (1 + R2/R1) ≈ GBW / NG.
     out = compute(make(gain=25.0, gbw_hz=2e6)).results
     assert out["bandwidth_hz"][0] == pytest.approx(2e6 / 25.0, rel=1e-12)
     # With a large but finite A0 the exact result is only slightly above GBW/NG (same source, approximation).
@@ -163,7 +168,8 @@ def test_gain_bandwidth_trade(gain, expected_hz):
 
 
 def test_inverting_noise_gain_and_signs():
-    # Sedra & Smith, Microelectronic Circuits: the inverting amplifier's noise gain is 1 + R2/R1.
+    # Sedra & Smith, Microelectronic Circuits, 7th ed., §2.7.3 (from memory): the inverting amplifier's noise
+    # gain is 1 + R2/R1.
     out = compute(make(inverting=True, gain=10.0)).results
     assert out["noise_gain"][0] == pytest.approx(11.0)
     assert out["signal_gain"][0] == pytest.approx(-10.0)
@@ -176,7 +182,7 @@ def test_inverting_noise_gain_and_signs():
 
 
 def test_finite_open_loop_gain_error():
-    # Sedra & Smith, Microelectronic Circuits: G = G_ideal / (1 + (1 + R2/R1)/A).
+    # Sedra & Smith, Microelectronic Circuits, 7th ed., §2.7.1 (from memory): G = G_ideal / (1 + (1 + R2/R1)/A).
     out = compute(make(gain=10.0, open_loop_gain=1e3)).results
     assert out["closed_loop_gain"][0] == pytest.approx(10.0 / 1.01)
     assert out["gain_error_pct"][0] == pytest.approx(-100 * 0.01 / 1.01)
@@ -188,7 +194,8 @@ def test_finite_open_loop_gain_error():
 
 
 def test_minus_45_degrees_and_3_db_at_f1():
-    # Definition of a single real pole: at f = f1 the phase is -45° and |H| is 1/√2 of DC (Sedra & Smith).
+    # Definition of a single real pole: at f = f1 the phase is -45° and |H| is 1/√2 of DC
+    # (Sedra & Smith, Microelectronic Circuits, 7th ed., §1.6, STC networks, from memory).
     f1 = compute(make(gain=20.0, open_loop_gain=1e4)).results["bandwidth_hz"][0]
     out = compute(make(gain=20.0, open_loop_gain=1e4, signal_hz=f1)).results
     assert out["phase_at_signal_deg"][0] == pytest.approx(-45.0, abs=1e-9)
@@ -200,7 +207,8 @@ def test_minus_45_degrees_and_3_db_at_f1():
 
 
 def test_cascade_bandwidth_formula_and_rise_time():
-    # (1 + (f/f1)²)^n = 2 → f = f1·√(2^(1/n) − 1); two stages: 0.6436·f1 (Sedra & Smith, cascaded poles).
+    # (1 + (f/f1)²)^n = 2 → f = f1·√(2^(1/n) − 1); two stages: 0.6436·f1
+    # (identical real poles; derived from the STC response, Sedra & Smith, 7th ed., §1.6, from memory).
     out = compute(make(gain=10.0, stages=2)).results
     assert out["cascade_bandwidth_hz"][0] == pytest.approx(1e5 * 0.643594, rel=1e-5)
     # Rise time 10-90 % of one pole is ln 9 / (2π f1) ≈ 0.35/f1 (common practice, 0.35 rule).
@@ -310,7 +318,7 @@ gbws = st.floats(min_value=1e3, max_value=1e9)
 @settings(max_examples=60, deadline=None, derandomize=True)
 @given(g1=gains, g2=gains, gbw=gbws, a0=a0s, inverting=st.booleans())
 def test_bandwidth_falls_as_gain_rises(g1, g2, gbw, a0, inverting):
-    # Constant gain-bandwidth product (Sedra & Smith): more noise gain, less bandwidth.
+    # Constant gain-bandwidth product (Sedra & Smith, 7th ed., §2.7.3, from memory): more noise gain, less bandwidth.
     lo, hi = sorted((g1, g2))
     assume(hi > lo * (1 + 1e-9))
     f_lo = compute(make(inverting=inverting, gain=lo, gbw_hz=gbw, open_loop_gain=a0)).results["bandwidth_hz"][0]
@@ -341,9 +349,40 @@ def test_no_nan_for_valid_finite_input(gain, gbw, a0, stages, signal, inverting,
             sweep_start_hz=start,
             sweep_stop_hz=start * 10**decades,
             sweep_points=20,
+            input_offset_v=1e-3,
         )
     )
     for name, value in out.results.items():
         assert np.all(np.isfinite(value)), name
     assert out.results["cascade_bandwidth_hz"][0] <= out.results["bandwidth_hz"][0]
     assert out.results["phase_at_signal_deg"][0] <= 0.0
+
+
+def test_output_offset_is_the_input_offset_times_the_noise_gain():
+    # Franco, Design with Operational Amplifiers and Analog Integrated Circuits, 3rd ed., §5.4 (input offset
+    # voltage, from memory): E_o = V_OS·(1 + R2/R1), the noise gain, for the inverting and the non-inverting
+    # stage alike.
+    for inverting in (False, True):
+        out = compute(make(inverting=inverting, rf_ohm=99e3, rg_ohm=1e3, input_offset_v=2e-3))
+        assert out.results["output_offset_v"][0] == pytest.approx(2e-3 * 100.0, rel=1e-12)
+    # Finite A0: the loop holds the inputs apart by V_OS, so E_o = V_OS·NG/(1 + NG/A0) (same source).
+    out = compute(make(gain=100.0, open_loop_gain=1e5, input_offset_v=2e-3))
+    assert out.results["output_offset_v"][0] == pytest.approx(0.2 / (1 + 100 / 1e5), rel=1e-12)
+    # Checked against the allowed output error only when one is given.
+    check = {c.name: c for c in out.checks}["output_offset"]
+    assert check.ok[0] and np.isnan(check.limit[0])
+    out = compute(make(gain=100.0, input_offset_v=2e-3, output_offset_max_v=0.1))
+    check = {c.name: c for c in out.checks}["output_offset"]
+    assert not check.ok[0] and (check.value[0], check.limit[0]) == (pytest.approx(0.2), 0.1)
+
+
+def test_cascade_offset_is_carried_by_the_later_stages():
+    # Superposition (from memory): two gain-10 stages, each with V_OS 1 mV of one sign: the first stage's
+    # 10 mV is amplified 10 times by the second, to which its own 10 mV adds: 110 mV.
+    out = compute(make(gain=10.0, stages=2.0, input_offset_v=1e-3, output_offset_max_v=0.1))
+    check = {c.name: c for c in out.checks}["output_offset"]
+    assert check.value[0] == pytest.approx(0.11, rel=1e-12) and not check.ok[0]
+    follower = compute(make(gain=1.0, stages=3.0, input_offset_v=1e-3, output_offset_max_v=1.0))
+    assert {c.name: c for c in follower.checks}["output_offset"].value[0] == pytest.approx(3e-3, rel=1e-12)
+    unknown = compute(make(gain=10.0, output_offset_max_v=0.1))
+    assert any("input_offset_v" in n.message for n in unknown.warnings)

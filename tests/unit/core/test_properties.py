@@ -208,6 +208,8 @@ def slew_inputs(draw: st.DrawFn) -> slew.SlewInputs:
             "triangle": draw(st.booleans()),
             "supply_v": supply,
             "step_v": draw(optional(signed(magnitudes()))),
+            "opamp_supply_min_v": draw(optional(magnitudes())),
+            "opamp_supply_max_v": draw(optional(magnitudes())),
         }
 
     return slew.SlewInputs(**columns(draw, row))
@@ -226,7 +228,7 @@ def test_slew_limit_results_are_sound_everywhere(inputs: slew.SlewInputs) -> Non
             "swing_limited_amplitude_v": supply,
             "max_amplitude_v": f & supply,
             "max_amplitude_vpp": f & supply,
-            "full_power_bandwidth_hz": vp,
+            "full_power_bandwidth_hz": vp & supply,
             "required_slew_rate_v_per_s": f | vp,
             "step_slew_time_s": np.isnan(inputs.step_v),
         },
@@ -255,6 +257,8 @@ def closed_loop_inputs(draw: st.DrawFn) -> closed_loop.ClosedLoopInputs:
             "sweep_start_hz": start,
             "sweep_stop_hz": math.nan if math.isnan(start) else start * (1.0 + draw(magnitudes(-15, 15))),
             "sweep_points": math.nan if math.isnan(start) else float(points),
+            "input_offset_v": draw(optional(st.one_of(st.just(0.0), magnitudes()))),
+            "output_offset_max_v": draw(optional(magnitudes())),
         }
 
     arrays = columns(draw, row)
@@ -268,7 +272,15 @@ def test_closed_loop_results_are_sound_everywhere(inputs: closed_loop.ClosedLoop
     inputs = valid_rows(inputs, closed_loop.validate)
     out = closed_loop.compute(inputs)
     no_signal = np.isnan(inputs.signal_hz)
-    assert_finite_except(out, {"gain_at_signal_db": no_signal, "phase_at_signal_deg": no_signal})
+    no_offset = np.isnan(inputs.input_offset_v)
+    assert_finite_except(
+        out,
+        {
+            "gain_at_signal_db": no_signal,
+            "phase_at_signal_deg": no_signal,
+            "output_offset_v": no_offset,
+        },
+    )
     r = out.results
     sweeping = ~np.isnan(inputs.sweep_points)
     if sweeping.any():  # the flat sweep holds exactly the points each row asked for, row after row

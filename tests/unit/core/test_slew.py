@@ -22,6 +22,8 @@ def make(
     triangle: bool = False,
     supply_v: float = NAN,
     step_v: float = NAN,
+    opamp_supply_min_v: float = NAN,
+    opamp_supply_max_v: float = NAN,
 ) -> SlewInputs:
     """One row of inputs."""
 
@@ -36,6 +38,8 @@ def make(
         triangle=np.array([triangle]),
         supply_v=arr(supply_v),
         step_v=arr(step_v),
+        opamp_supply_min_v=arr(opamp_supply_min_v),
+        opamp_supply_max_v=arr(opamp_supply_max_v),
     )
 
 
@@ -94,7 +98,8 @@ def test_time_domain_simulation_of_slew_limit(triangle):
 
 
 def test_sine_formulas_full_power_bandwidth():
-    # Sedra & Smith, Microelectronic Circuits: full-power bandwidth f_M = SR / (2π·V_omax).
+    # Sedra & Smith, Microelectronic Circuits, 7th ed., §2.8.4 "Full-power bandwidth" (from memory):
+    # f_M = SR / (2π·V_omax).
     out = compute(make(slew_rate_v_per_s=1e6, amplitude_v=10.0, frequency_hz=10e3)).results
     assert out["full_power_bandwidth_hz"][0] == pytest.approx(1e6 / (2 * np.pi * 10.0))
     assert out["full_power_bandwidth_hz"][0] == pytest.approx(15.9e3, rel=1e-3)  # SR 1 V/µs, 10 V peak
@@ -103,7 +108,7 @@ def test_sine_formulas_full_power_bandwidth():
 
 
 def test_step_slew_time_check_value():
-    # Common practice: a 10 V swing in 20 µs is 0.5 V/µs.
+    # Definition of slew rate (Sedra & Smith, 7th ed., §2.8.3, from memory): a 10 V step at 0.5 V/µs takes 20 µs.
     out = compute(make(slew_rate_v_per_s=0.5e6, step_v=10.0, frequency_hz=1e3)).results
     assert out["step_slew_time_s"][0] == pytest.approx(20e-6)
     out = compute(make(slew_rate_v_per_s=0.5e6, step_v=-10.0, frequency_hz=1e3)).results
@@ -126,7 +131,8 @@ def test_triangle_slope_by_numerical_differentiation():
 def test_swing_limit_and_max_amplitude():
     # ±15 V rails (30 V span) and 1.5 V headroom: 13.5 V peak (definition of output swing; from memory, a
     # typical non-rail-to-rail output).
-    out = compute(make(supply_v=30.0, output_headroom_v=1.5, frequency_hz=1e3, slew_rate_v_per_s=1e6))
+    kwargs = {"supply_v": 30.0, "opamp_supply_min_v": 5.0, "opamp_supply_max_v": 36.0, "output_headroom_v": 1.5}
+    out = compute(make(**kwargs, frequency_hz=1e3, slew_rate_v_per_s=1e6))
     r = out.results
     assert r["swing_limited_amplitude_v"][0] == pytest.approx(13.5)
     assert r["max_amplitude_v"][0] == pytest.approx(13.5)  # the slew limit (159 V) does not bind
@@ -139,6 +145,8 @@ def test_swing_limit_and_max_amplitude():
 
 
 def test_checks():
+    # Sedra & Smith, 7th ed., §2.8.3-2.8.4 (from memory): a sine needs a slew rate of 2π·f·Vp; the output
+    # cannot swing past its rails (§2.8.1, output voltage saturation).
     out = compute(make(slew_rate_v_per_s=0.5e6, frequency_hz=20e3, amplitude_v=5.0, supply_v=10.0))
     check = {c.name: c for c in out.checks}
     assert not check["slew_rate"].ok[0]  # needs 2π·20 kHz·5 V = 0.63 V/µs
@@ -154,6 +162,7 @@ def test_checks():
 
 
 def test_results_nan_where_they_do_not_apply():
+    # f_M = SR/(2π·Vp) (Sedra & Smith, 7th ed., §2.8.4, from memory) at 1 V/µs and 1 V peak.
     r = compute(make(amplitude_v=1.0)).results
     assert np.isnan(r["slew_limited_amplitude_v"][0])
     assert np.isnan(r["swing_limited_amplitude_v"][0])
@@ -187,6 +196,7 @@ def test_violations(kwargs, field):
 
 
 def test_batch_is_vectorized():
+    # Triangle: SR/(4·Vp) (it travels 2·Vp in half a period; definition); swing 12/2 - 1 V; step |ΔV|/SR.
     inputs = SlewInputs(
         slew_rate_v_per_s=np.array([1e6, 2e6]),
         output_headroom_v=np.array([NAN, 1.0]),
@@ -195,6 +205,8 @@ def test_batch_is_vectorized():
         triangle=np.array([False, True]),
         supply_v=np.array([NAN, 12.0]),
         step_v=np.array([NAN, 4.0]),
+        opamp_supply_min_v=np.array([NAN, 4.0]),
+        opamp_supply_max_v=np.array([NAN, 30.0]),
     )
     r = compute(inputs).results
     assert r["slew_limited_amplitude_v"][0] == pytest.approx(1e6 / (2 * np.pi * 1e4))
@@ -237,3 +249,40 @@ def test_no_nan_and_max_within_each_limit(sr, f, vp, headroom, extra, triangle, 
     elif vp < 0.999 * r["slew_limited_amplitude_v"][0]:
         assert not r["slew_limited"][0]
     assert r["full_power_bandwidth_hz"][0] * vp == pytest.approx(f * r["slew_limited_amplitude_v"][0])
+
+
+def test_full_power_bandwidth_at_the_rated_swing_without_an_amplitude():
+    # The datasheet's full-power bandwidth is at the rated output swing: Sedra & Smith, Microelectronic
+    # Circuits, 7th ed., §2.8.4 (from memory), f_M = SR / (2π·V_omax), V_omax = 30 V/2 - 1.5 V = 13.5 V here.
+    out = compute(make(slew_rate_v_per_s=0.5e6, supply_v=30.0, output_headroom_v=1.5))
+    f_m = out.results["full_power_bandwidth_hz"][0]
+    assert f_m == pytest.approx(0.5e6 / (2 * np.pi * 13.5), rel=1e-12)
+    assert f_m == pytest.approx(5894.7, rel=1e-4)
+    # Independent numerical solution: the rate-limited follower tracks 13.5 V peak just below f_M, not above.
+    assert simulate(13.5, 0.99 * f_m, 0.5e6, triangle=False)[0] < 1e-9
+    assert simulate(13.5, 1.1 * f_m, 0.5e6, triangle=False)[0] > 0.02
+    assert np.isnan(out.results["required_slew_rate_v_per_s"][0])
+
+
+def test_supply_outside_the_op_amp_range_fails_and_cautions():
+    # The rated operating supply range is the datasheet's own limit (common practice): a 5.5 V-maximum
+    # op-amp on a 12 V rail may be destroyed; a 10 V-minimum one on 9 V is not specified to work.
+    out = compute(make(amplitude_v=1.0, supply_v=12.0, opamp_supply_min_v=1.8, opamp_supply_max_v=5.5))
+    check = {c.name: c for c in out.checks}
+    assert not check["opamp_supply_max"].ok[0] and check["opamp_supply_min"].ok[0]
+    assert (check["opamp_supply_max"].value[0], check["opamp_supply_max"].limit[0]) == (12.0, 5.5)
+    assert any("destroy" in c.message for c in out.cautions)
+    out = compute(make(amplitude_v=1.0, supply_v=9.0, opamp_supply_min_v=10.0, opamp_supply_max_v=36.0))
+    check = {c.name: c for c in out.checks}
+    assert not check["opamp_supply_min"].ok[0] and check["opamp_supply_max"].ok[0]
+    assert check["opamp_supply_min"].margin()[0] == pytest.approx(-0.1)
+    assert out.cautions == []
+    # Without a range nothing is checked, and the answer says so.
+    out = compute(make(amplitude_v=1.0, supply_v=9.0))
+    assert all(c.ok[0] for c in out.checks if c.name.startswith("opamp_supply"))
+    assert any("supply range" in n.message for n in out.warnings)
+
+
+def test_supply_range_must_be_ordered():
+    found = validate(make(amplitude_v=1.0, opamp_supply_min_v=5.0, opamp_supply_max_v=5.0))
+    assert [v.field for v in found] == ["opamp_supply_max_v"]

@@ -77,8 +77,8 @@ def corner_values(row: dict[str, Any], r_led: float, rb: float, corner: dict[str
         "supply_peak_current": at_most(supply_peak, row["current_max_a"]),
     }
     if math.isnan(row["gbw_hz"]):
-        out |= {name: (math.nan, math.nan, True) for name in ("gain_achievable", "signal_in_band", "slew_rate")}
-        out["output_swing"] = (math.nan, math.nan, True)
+        front = ("gain_achievable", "signal_in_band", "slew_rate", "output_swing", "output_offset")
+        out |= {name: (math.nan, math.nan, True) for name in (*front, "opamp_supply_min", "opamp_supply_max")}
     else:
         # Single-pole op-amp: noise gain G (non-inverting) or 1 + G (inverting); bandwidth GBW/NG + GBW/A0.
         noise_gain = row["gain"] + (1.0 if row["inverting"] else 0.0)
@@ -90,7 +90,17 @@ def corner_values(row: dict[str, Any], r_led: float, rb: float, corner: dict[str
             "signal_in_band": at_most(row["signal_hz"], bandwidth),
             "slew_rate": at_most(2 * math.pi * row["signal_hz"] * row["amplitude_v"], row["slew_rate_v_per_s"]),
             "output_swing": at_most(row["amplitude_v"], vs / 2 - headroom),
+            # The op-amp runs from the channel's supply: the rated range holds at every supply (datasheet).
+            "opamp_supply_min": (vs, row["opamp_supply_min_v"], not vs < row["opamp_supply_min_v"]),
+            "opamp_supply_max": at_most(vs, row["opamp_supply_max_v"]),
+            # V_OS times the noise gain (Franco, 3rd ed., §5.4, from memory), with finite A0.
+            "output_offset": at_most(
+                row["input_offset_v"] * noise_gain / (1 + (0.0 if math.isnan(a0) else noise_gain / a0)),
+                row["output_offset_max_v"],
+            ),
         }
+        if math.isnan(row["output_offset_max_v"]):
+            out["output_offset"] = (math.nan, math.nan, True)
     return out
 
 
@@ -115,6 +125,9 @@ BRUTE_ROWS: list[dict[str, Any]] = [
     },
     # 7.5 V for three red LEDs: at low supply and high Vf the strings go dark (current clamped at 0).
     DEMO | {"supply_v": 7.5, "current_a": 0.005, "output_headroom_v": 1.0, "amplitude_v": 1.5},
+    # An op-amp rated 11.5-12.5 V on the 12 V ±5 % supply: inside at nominal, outside at both ends; an
+    # allowed output offset of 20 mV against 2.5 mV × 10.
+    DEMO | {"opamp_supply_min_v": 11.5, "opamp_supply_max_v": 12.5, "output_offset_max_v": 0.02},
 ]
 
 
@@ -195,6 +208,29 @@ def test_greenhouse_demo_worst_case_by_hand() -> None:
     assert wc.failing() == [[]]
 
 
+def test_op_amp_supply_range_is_checked_at_both_ends_of_the_supply_band() -> None:
+    # The 12 V ±5 % supply spans 11.4-12.6 V. An op-amp rated 11.5-12.5 V passes at nominal, but the lowest
+    # supply is below its minimum and the highest above its maximum: each end is its check's worst corner.
+    wc = worst_case(make(opamp_supply_min_v=11.5, opamp_supply_max_v=12.5))
+    assert wc.nominal.check("opamp_supply_min").ok[0] and wc.nominal.check("opamp_supply_max").ok[0]
+    low, high = wc.check("opamp_supply_min"), wc.check("opamp_supply_max")
+    assert (low.check.value[0], low.corner(0), low.check.ok[0]) == (pytest.approx(11.4), {"supply": "low"}, False)
+    assert (high.check.value[0], high.corner(0), high.check.ok[0]) == (pytest.approx(12.6), {"supply": "high"}, False)
+    assert wc.failing() == [["opamp_supply_min", "opamp_supply_max"]]
+    # A 1.8-5.5 V op-amp on the 12 V supply fails even at nominal, with a caution; the output swing there is
+    # still figured from the actual rails (11.4/2 − 1.5 V at the low supply), not from the op-amp's rating.
+    wc = worst_case(make(opamp_supply_min_v=1.8, opamp_supply_max_v=5.5))
+    assert not wc.nominal.check("opamp_supply_max").ok[0]
+    assert any("destroy" in c.message for c in wc.nominal.cautions)
+    assert wc.check("output_swing").check.limit[0] == pytest.approx(4.2, rel=1e-12)
+    # A 10 V-minimum op-amp on a 9 V battery pack (±15 %: 7.65-10.35 V) fails at the low end.
+    wc = worst_case(
+        make(supply_v=9.0, supply_tolerance=0.15, current_a=0.01, opamp_supply_min_v=10.0, opamp_supply_max_v=36.0)
+    )
+    assert wc.check("opamp_supply_min").check.value[0] == pytest.approx(7.65)
+    assert not wc.check("opamp_supply_min").check.ok[0] and wc.check("opamp_supply_max").check.ok[0]
+
+
 def test_worst_case_agrees_with_the_led_stage_and_with_nominal_when_nothing_varies() -> None:
     # The LED stage's own worst case (current_max_a, resistor_power_max_w) is the corners' extreme.
     wc = worst_case(make(current_a=[0.005, 0.02, 0.025]))
@@ -202,7 +238,9 @@ def test_worst_case_agrees_with_the_led_stage_and_with_nominal_when_nothing_vari
     np.testing.assert_allclose(wc.check("led_current_rating").check.value, led["current_max_a"], rtol=1e-12)
     np.testing.assert_allclose(wc.check("resistor_rating").check.value, 2 * led["resistor_power_max_w"], rtol=1e-12)
     # Without any tolerance every corner is the nominal design: each check equals the stages' own result.
-    exact = make(supply_tolerance=0.0, resistor_tolerance=0.0, vf_min_v=2.0, vf_max_v=2.0, hfe_typ=100.0)
+    exact = make(
+        supply_tolerance=0.0, resistor_tolerance=0.0, vf_min_v=2.0, vf_max_v=2.0, hfe_typ=100.0, output_offset_max_v=0.1
+    )
     wc = worst_case(exact)
     for c in wc.nominal.checks:
         assert wc.check(c.name).check.value[0] == pytest.approx(c.value[0], rel=1e-12), c.name
@@ -413,5 +451,6 @@ def test_property_yield_is_sound_and_bounded_by_the_worst_case(row: dict[str, An
         margin = worst.margin()[0]
         if worst.check.ok[0] and not margin < 1e-9:
             assert y.failures[worst.name] == 0, worst.name
-        if wc.nominal.has_front_stage[0] or worst.name not in FRONT_CHECKS:
+        optional = worst.name == "output_offset" and math.isnan(row["output_offset_max_v"])
+        if (wc.nominal.has_front_stage[0] or worst.name not in FRONT_CHECKS) and not optional:
             assert np.isfinite(worst.check.value[0]), worst.name
