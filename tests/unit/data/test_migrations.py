@@ -19,8 +19,22 @@ from calcsvc.data.store import PartStore
 PARTS = {
     "led-amber-3mm": ("led", [{"color": "amber", "vf_typ_v": 2.1}, {"color": "amber", "vf_typ_v": 2.05}]),
     "npn-spare": ("bjt", [{"polarity": "npn", "hfe_min": 100}]),
+    "supply-bench-12v": ("supply", [{"supply_v": 12.0, "supply_tolerance": 0.05}, {"supply_v": 12.0}]),
+    "driver-pin-3v3": ("driver", [{"voh_v": 2.9, "vol_v": 0.4}]),
 }
-STATUS = {"led-amber-3mm": "draft", "npn-spare": "retired"}  # retired by an old server: no history of it then
+STATUS = {
+    "led-amber-3mm": "draft",
+    "npn-spare": "retired",  # retired by an old server: no history of it then
+    "supply-bench-12v": "draft",
+    "driver-pin-3v3": "draft",
+}
+# What 0003 writes into every stored revision that lacks it (the conservative defaults its docstring states).
+ADDED = {
+    ("npn-spare", 1): {"vce_sat_forced_beta": 10, "base_junctions": 1},
+    ("supply-bench-12v", 1): {"supply_min_v": 11.4, "supply_max_v": 12.6},  # 12 V ± 5 %
+    ("supply-bench-12v", 2): {"supply_min_v": 12.0, "supply_max_v": 12.0},  # no tolerance: the band is the point
+    ("driver-pin-3v3", 1): {"vdd_v": 3.3},  # the smallest common logic supply at or above a 2.9 V high level
+}
 APPROVED_BY = {("led-amber-3mm", 1): "rita", ("npn-spare", 1): "rita"}
 
 
@@ -89,10 +103,11 @@ def test_upgrade_from_the_first_migration_keeps_every_part(empty_url: str) -> No
     with database.transaction() as session:
         store = PartStore(session)
         for part_id, (kind, revisions) in PARTS.items():
+            upgraded = [{**p, **ADDED.get((part_id, n), {})} for n, p in enumerate(revisions, start=1)]
             part = store.get(part_id)
-            assert (part.kind, part.revision, part.parameters) == (kind, len(revisions), revisions[-1])
+            assert (part.kind, part.revision, part.parameters) == (kind, len(revisions), upgraded[-1])
             history = store.revisions(part_id)
-            assert [r.parameters for r in history] == revisions
+            assert [r.parameters for r in history] == upgraded
             assert {r.author for r in history} == {"edna"}
             assert part.status == STATUS[part_id]
         # The history carries over as events: each revision's writing and approval, and the retirement.
@@ -102,14 +117,21 @@ def test_upgrade_from_the_first_migration_keeps_every_part(empty_url: str) -> No
         assert events == {
             "led-amber-3mm": [[("created", "edna"), ("approved", "rita")], [("edited", "edna")]],
             "npn-spare": [[("created", "edna"), ("approved", "rita"), ("retired", "edna")]],
+            "supply-bench-12v": [[("created", "edna")], [("edited", "edna")]],
+            "driver-pin-3v3": [[("created", "edna")]],
         }
         # A retired part of the old server is restored as a new draft revision, as any other.
         store.restore("npn-spare", 1, "edna", "back in stock")
         assert (store.get("npn-spare").status, store.get("npn-spare").revision) == ("draft", 2)
     database.dispose()
 
-    command.downgrade(config, first)  # the new table goes; every part and revision stays
+    command.downgrade(config, first)  # the new table and the defaults go; every part and revision stays
     database = Database(empty_url)
     with database.transaction() as session:
-        assert session.scalar(text("SELECT count(*) FROM part_revisions")) == 4
+        assert session.scalar(text("SELECT count(*) FROM part_revisions")) == 7
+        stored = session.execute(text("SELECT part_id, revision, parameters FROM part_revisions")).all()
+        for part_id, number, parameters in stored:
+            kept = json.loads(parameters) if isinstance(parameters, str) else parameters
+            if part_id != "npn-spare":  # its revision 2, the restore, was written after the upgrade
+                assert kept == PARTS[part_id][1][number - 1]
     database.dispose()
