@@ -69,7 +69,8 @@ def messages(notices: list[Any]) -> str:
 @dataclasses.dataclass(frozen=True)
 class EbersMoll:
     """NPN transport model (Ebers & Moll, "Large-signal behavior of junction transistors", Proc. IRE 1954;
-    see also Sedra & Smith, "Microelectronic Circuits"), without series resistances or Early effect."""
+    see also Sedra & Smith, "Microelectronic Circuits", 7th ed., the BJT chapter's large-signal model, from
+    memory), without series resistances or Early effect."""
 
     i_s: float
     beta_f: float
@@ -175,7 +176,7 @@ def test_base_emitter_pulldown_steals_drive() -> None:
 )
 def test_chosen_rb_saturates_the_ebers_moll_transistor(overrides: dict[str, Any], rbe: float) -> None:
     # Independent numerical solution with scipy of the Ebers–Moll transport model (Ebers & Moll 1954;
-    # Sedra & Smith), βF = hfe_min (worst case), βR = 1 (from memory), Is fitted so Vbe = vbe_sat at the
+    # Sedra & Smith, 7th ed., from memory), βF = hfe_min (worst case), βR = 1 (from memory), Is fitted so Vbe = vbe_sat at the
     # required base current; load Rc = (12 V − Vce_sat)/Ic.
     inputs = make(**overrides)
     out = compute(inputs)
@@ -509,7 +510,8 @@ def solve_darlington(
 
 def test_darlington_default_ratio_saturates_the_ebers_moll_pair() -> None:
     # Independent numerical solution with scipy of two Ebers–Moll transistors (Ebers & Moll 1954) in the
-    # Darlington connection (Sedra & Smith, "Microelectronic Circuits", Darlington configuration): each βF =
+    # Darlington connection (Sedra & Smith, "Microelectronic Circuits", 7th ed., the Darlington configuration, from
+    # memory): each βF =
     # √hfe_min so the pair's gain ≈ βF1·βF2 = hfe_min (worst case), each Is fitted so each junction holds half of
     # vbe_sat at the design currents. Load Rc = (12 V − Vce_sat)/Ic.
     inputs = make(**DARLINGTON_150MA)
