@@ -176,8 +176,8 @@ def test_base_emitter_pulldown_steals_drive() -> None:
 )
 def test_chosen_rb_saturates_the_ebers_moll_transistor(overrides: dict[str, Any], rbe: float) -> None:
     # Independent numerical solution with scipy of the Ebers–Moll transport model (Ebers & Moll 1954;
-    # Sedra & Smith, 7th ed., from memory), βF = hfe_min (worst case), βR = 1 (from memory), Is fitted so Vbe = vbe_sat at the
-    # required base current; load Rc = (12 V − Vce_sat)/Ic.
+    # Sedra & Smith, 7th ed., from memory), βF = hfe_min (worst case), βR = 1 (from memory), Is fitted so
+    # Vbe = vbe_sat at the required base current; load Rc = (12 V − Vce_sat)/Ic.
     inputs = make(**overrides)
     out = compute(inputs)
     ic_design = float(inputs.collector_current_a[0])
