@@ -27,7 +27,8 @@ _NUMBER = r"[+-]?(?:[0-9]+(?:\.[0-9]*)?|\.[0-9]+)(?:[eE][+-]?[0-9]+)?"
 _UNIT_CHARS = "A-Za-zµμΩ%/*^0-9.·-"
 _UNIT = rf"[A-Za-zµμΩ%][{_UNIT_CHARS}]*(?: +[{_UNIT_CHARS}]+)*"
 QUANTITY = rf" *({_NUMBER})(?: *({_UNIT}))? *"
-QUANTITY_PATTERN = rf"^{QUANTITY}$"  # as published in the OpenAPI document
+# As published in the OpenAPI document: either decimal mark, since the query form reads "0,02" with decimal=comma.
+QUANTITY_PATTERN = "^" + QUANTITY.replace(r"\.", "[.,]") + "$"
 _QUANTITY = re.compile(QUANTITY)
 # Unit text: names, products and quotients of names with optional integer powers; nothing that evaluates.
 _NAME = "[A-Za-zµμΩ]+(?: *(?:\\*\\*|\\^) *-?[0-9])?"
@@ -50,6 +51,37 @@ def _unit(unit_text: str) -> pint.Unit:
         return UREG.parse_units(text)
     except Exception as exc:  # pint raises several unrelated types for unknown names
         raise UnitError(f"unknown unit '{unit_text}'") from exc
+
+
+_PREFIXES = ("", "p", "n", "u", "µ", "m", "k", "M", "G")
+_SYMBOLS = ("A", "V", "ohm", "Ω", "Hz", "s", "W", "Ah", "Wh", "F", "H", "V/us", "V/µs", "V/ms", "V/s")
+
+
+@lru_cache(maxsize=64)
+def _spellings(si_unit: str) -> dict[str, list[str]]:
+    """The usual spellings of units of ``si_unit``'s dimension, by their lower-case form."""
+    target = _si(si_unit).dimensionality
+    found: dict[str, list[str]] = {}
+    for spelling in (prefix + symbol for prefix in _PREFIXES for symbol in _SYMBOLS):
+        if _unit(spelling).dimensionality == target:
+            found.setdefault(spelling.lower(), []).append(spelling)
+    return found
+
+
+def _did_you_mean(unit_text: str, si_unit: str) -> str:
+    """A hint such as ``; did you mean 'mA'?`` when ``unit_text`` is a usual unit of the field in the wrong case."""
+    candidates = _spellings(si_unit).get(unit_text.replace(" ", "").lower(), [])
+    changes = {c: sum(a != b for a, b in zip(c, unit_text.replace(" ", ""), strict=True)) for c in candidates}
+    nearest = [c for c in candidates if changes[c] == min(changes.values())]
+    return f"; did you mean {' or '.join(repr(c) for c in nearest)}?" if nearest else ""
+
+
+def with_decimal_point(text: str) -> str:
+    """``text`` written with a decimal comma ("0,02", "1,5 V") as the parser reads it; a point is refused there,
+    since "1.500" may mean fifteen hundred where the comma is the decimal mark."""
+    if "." in text and len(text) <= MAX_QUANTITY_LENGTH:  # a longer text is refused, unquoted, by parse_quantity
+        raise UnitError(f"'{text}' has a '.': with decimal=comma the decimal mark is ','")
+    return text.replace(",", ".")
 
 
 @lru_cache(maxsize=64)
@@ -76,9 +108,15 @@ def parse_quantity(text: str, si_unit: str) -> float:
         return number
     if unit_text != "%" and _UNIT_TEXT.fullmatch(unit_text) is None:
         raise UnitError(f"'{unit_text}' is not a unit name")
-    unit = _unit(unit_text)
+    try:
+        unit = _unit(unit_text)
+    except UnitError as exc:
+        raise UnitError(f"{exc}{_did_you_mean(unit_text, si_unit)}") from exc
     target = _si(si_unit)
     if unit.dimensionality != target.dimensionality:
+        # "ma" is a (nonsensical) milli-year-ampere: a wrong case is the likelier mistake.
+        if suggestion := _did_you_mean(unit_text, si_unit):
+            raise UnitError(f"unknown unit '{unit_text}'{suggestion}")
         expected = "dimensionless" if not target.dimensionality else f"{target:~}"
         raise UnitError(f"'{text}' has the wrong dimension: expected a value in {expected}")
     # 15 significant digits remove conversion noise ("10 us" gives 1e-05, not 9.999999999999999e-06).
