@@ -33,6 +33,7 @@ blp = Blueprint(
 guard_reads(blp)  # calculations read the parts table
 
 CSV = "text/csv"
+MAX_LABELS_LENGTH = 1000  # label column names, comma-separated
 
 
 def _row_problem(parsed: ParsedRows, row: int) -> dict[str, Any]:
@@ -187,7 +188,10 @@ def answer(calc: CalculationSpec) -> Response:
     decimal = request.args.get("decimal")
     if decimal not in (None, "point", "comma"):
         raise InvalidInput.on("decimal", "must be point or comma")
-    labels = tuple(name.strip() for name in request.args.get("labels", "").split(",") if name.strip())
+    labels_text = request.args.get("labels", "")
+    if len(labels_text) > MAX_LABELS_LENGTH:
+        raise InvalidInput.on("labels", f"longer than {MAX_LABELS_LENGTH} characters")
+    labels = tuple(name.strip() for name in labels_text.split(",") if name.strip())
     batch = run_batch(
         database(),
         calc,
@@ -250,7 +254,7 @@ def _batch_doc(calc: CalculationSpec) -> dict[str, Any]:
                 "name": "labels",
                 "in": "query",
                 "required": False,
-                "schema": {"type": "string"},
+                "schema": {"type": "string", "maxLength": MAX_LABELS_LENGTH},
                 "description": "comma-separated names of columns (or row keys) that are not inputs, such as a "
                 "design name: passed through to each row of the answer instead of refused as unknown fields",
             },

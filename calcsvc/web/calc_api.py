@@ -212,10 +212,12 @@ for _calc in CALCULATIONS.values():
 
 @blp.before_request
 def _plain_errors_for_cells() -> None:
-    if request.method in ("GET", "HEAD") and ("pick" in request.args or "sheet" in request.args):
+    if request.method not in ("GET", "HEAD"):
+        return
+    sheet = request.args.get("sheet", "").lower() in ("1", "true", "t", "yes", "y", "on")
+    if sheet or "pick" in request.args:
         g.plain_errors = True
         # A spreadsheet discards the body of any other status: in sheet mode the cell must get the line.
-        sheet = request.args.get("sheet", "").lower() in ("1", "true", "t", "yes", "y", "on")
         g.plain_errors_status = 200 if sheet else None
 
 
