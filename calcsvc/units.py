@@ -31,7 +31,8 @@ _NUMBER = r"[+-]?(?:[0-9]+(?:\.[0-9]*)?|\.[0-9]+)(?:[eE][+-]?[0-9]+)?"
 _UNIT_CHARS = "A-Za-zµμΩ%/*^0-9.·-"
 _UNIT = rf"[A-Za-zµμΩ%][{_UNIT_CHARS}]*(?: +[{_UNIT_CHARS}]+)*"
 QUANTITY = rf" *({_NUMBER})(?: *({_UNIT}))? *"
-QUANTITY_PATTERN = rf"^{QUANTITY}$"  # as published in the OpenAPI document
+# As published in the OpenAPI document: either decimal mark, since the query form reads "0,02" with decimal=comma.
+QUANTITY_PATTERN = "^" + QUANTITY.replace(r"\.", "[.,]") + "$"
 _QUANTITY = re.compile(QUANTITY)
 # Unit text: names, products and quotients of names with optional integer powers; nothing that evaluates.
 _NAME = "[A-Za-zµμΩ]+(?: *(?:\\*\\*|\\^) *-?[0-9])?"
@@ -66,6 +67,37 @@ def _logarithmic(unit_text: str) -> bool:
     return any(not UREG.Quantity(1.0, _unit(word))._is_multiplicative for word in _WORD.findall(unit_text))
 
 
+_PREFIXES = ("", "p", "n", "u", "µ", "m", "k", "M", "G")
+_SYMBOLS = ("A", "V", "ohm", "Ω", "Hz", "s", "W", "Ah", "Wh", "F", "H", "V/us", "V/µs", "V/ms", "V/s")
+
+
+@lru_cache(maxsize=64)
+def _spellings(si_unit: str) -> dict[str, list[str]]:
+    """The usual spellings of units of ``si_unit``'s dimension, by their lower-case form."""
+    target = _si(si_unit).dimensionality
+    found: dict[str, list[str]] = {}
+    for spelling in (prefix + symbol for prefix in _PREFIXES for symbol in _SYMBOLS):
+        if _unit(spelling).dimensionality == target:
+            found.setdefault(spelling.lower(), []).append(spelling)
+    return found
+
+
+def _did_you_mean(unit_text: str, si_unit: str) -> str:
+    """A hint such as ``; did you mean 'mA'?`` when ``unit_text`` is a usual unit of the field in the wrong case."""
+    candidates = _spellings(si_unit).get(unit_text.replace(" ", "").lower(), [])
+    changes = {c: sum(a != b for a, b in zip(c, unit_text.replace(" ", ""), strict=True)) for c in candidates}
+    nearest = [c for c in candidates if changes[c] == min(changes.values())]
+    return f"; did you mean {' or '.join(repr(c) for c in nearest)}?" if nearest else ""
+
+
+def with_decimal_point(text: str) -> str:
+    """``text`` written with a decimal comma ("0,02", "1,5 V") as the parser reads it; a point is refused there,
+    since "1.500" may mean fifteen hundred where the comma is the decimal mark."""
+    if "." in text and len(text) <= MAX_QUANTITY_LENGTH:  # a longer text is refused, unquoted, by parse_quantity
+        raise UnitError(f"'{text}' has a '.': with decimal=comma the decimal mark is ','")
+    return text.replace(",", ".")
+
+
 @lru_cache(maxsize=64)
 def _si(unit: str) -> pint.Unit:
     return UREG.parse_units(unit)
@@ -90,7 +122,10 @@ def parse_quantity(text: str, si_unit: str) -> float:
         return number
     if unit_text != "%" and _UNIT_TEXT.fullmatch(unit_text) is None:
         raise UnitError(f"'{unit_text}' is not a unit name")
-    unit = _unit(unit_text)
+    try:
+        unit = _unit(unit_text)
+    except UnitError as exc:
+        raise UnitError(f"{exc}{_did_you_mean(unit_text, si_unit)}") from exc
     target = _si(si_unit)
     if si_unit == VOLTAGE_RATIO and _WORD.fullmatch(unit_text) and unit == _DECIBEL:
         try:
@@ -101,6 +136,9 @@ def parse_quantity(text: str, si_unit: str) -> float:
         allowed = "; a voltage gain takes dB" if si_unit == VOLTAGE_RATIO else ""
         raise UnitError(f"'{text}': a logarithmic unit is not accepted here, give a plain ratio{allowed}")
     if unit.dimensionality != target.dimensionality:
+        # "ma" is a (nonsensical) milli-year-ampere: a wrong case is the likelier mistake.
+        if suggestion := _did_you_mean(unit_text, si_unit):
+            raise UnitError(f"unknown unit '{unit_text}'{suggestion}")
         expected = "dimensionless" if not target.dimensionality else f"{target:~}"
         raise UnitError(f"'{text}' has the wrong dimension: expected a value in {expected}")
     return _finite(UREG.Quantity(number, unit).to(target).magnitude, text)

@@ -31,7 +31,7 @@ from calcsvc.service.errors import (
 )
 from calcsvc.service.parts import MAX_REVISION
 from calcsvc.service.resolve import PartResolver, resolve
-from calcsvc.units import UnitError, parse_quantity
+from calcsvc.units import UnitError, parse_quantity, with_decimal_point
 
 EXTRA_CELLS = "cells_beyond_the_header"
 BATCH_SIZE = "batch-size"  # the kind of TooLarge a batch answers
@@ -75,8 +75,11 @@ class ParsedRows:
     errors: RowErrors
 
 
-def _number_column(spec: Input, raw: list[Any], errors: RowErrors, blank_is_absent: bool) -> np.ndarray:
-    if set(map(type, raw)) <= _SCALARS:  # one C-level pass over the cells
+def _number_column(
+    spec: Input, raw: list[Any], errors: RowErrors, blank_is_absent: bool, decimal_comma: bool
+) -> np.ndarray:
+    # With a decimal comma "1.5" must be refused, so numeric strings cannot take numpy's fast path.
+    if set(map(type, raw)) <= (_SCALARS - {str} if decimal_comma else _SCALARS):  # one C-level pass over the cells
         try:
             # Fast path: every cell a number or a bare numeric string ("" never converts), so a NaN here was
             # written as NaN by the caller, which is an error, not "absent". A list or null cell takes the slow
@@ -104,7 +107,8 @@ def _number_column(spec: Input, raw: list[Any], errors: RowErrors, blank_is_abse
         elif isinstance(value, str):
             if value not in cache:
                 try:
-                    cache[value] = parse_quantity(value, spec.unit if not spec.integer else "dimensionless")
+                    text = with_decimal_point(value) if decimal_comma else value
+                    cache[value] = parse_quantity(text, spec.unit if not spec.integer else "dimensionless")
                 except UnitError as exc:
                     cache[value] = str(exc)
             parsed = cache[value]
@@ -118,7 +122,11 @@ def _number_column(spec: Input, raw: list[Any], errors: RowErrors, blank_is_abse
 
 
 def parse_rows(
-    calc: CalculationSpec, records: list[dict[str, Any]], resolver: PartResolver, blank_is_absent: bool = False
+    calc: CalculationSpec,
+    records: list[dict[str, Any]],
+    resolver: PartResolver,
+    blank_is_absent: bool = False,
+    decimal_comma: bool = False,
 ) -> ParsedRows:
     """Typed columns of every input, parts resolved once per distinct reference, errors per row."""
     n = len(records)
@@ -148,7 +156,7 @@ def parse_rows(
             errors.add_rows(bad, spec.name, f"Must be one of: {', '.join(spec.choices)}.")
             columns[spec.name] = values
         else:
-            column = _number_column(spec, raw, errors, blank_is_absent)
+            column = _number_column(spec, raw, errors, blank_is_absent, decimal_comma)
             for rows, message in spec.refusals(column):
                 errors.add_rows(rows, spec.name, message)
             columns[spec.name] = column
@@ -234,12 +242,12 @@ def _resolve_role(
 # ---- a whole batch ------------------------------------------------------------------------------------------
 
 
-def _refuse_more_than_rows_hold(calc: CalculationSpec, body: bytes | str, limit: int) -> None:
+def _refuse_more_than_rows_hold(calc: CalculationSpec, body: bytes | str, limit: int, separator: str = ",") -> None:
     """Refused before parsing when the body has more separators than ``limit`` rows of named inputs could: each
     row holds at most one value per input name, so millions of tiny rows or one huge array inside a cell
     are refused before Python builds an object for each element."""
     names = len(calc.inputs) + 2 * len(calc.roles)
-    if body.count("," if isinstance(body, str) else b",") >= (limit + 1) * names:
+    if body.count(separator if isinstance(body, str) else separator.encode()) >= (limit + 1) * names:
         message = f"the body holds more values than {limit:,} rows of at most {names} inputs each"
         raise TooLarge.on("body", message, BATCH_SIZE)
 
@@ -248,35 +256,74 @@ def _too_many_rows(count: int | str, limit: int) -> TooLarge:
     return TooLarge(f"{count} rows is more than this server takes in one batch ({limit})", slug=BATCH_SIZE)
 
 
-def read_records(calc: CalculationSpec, body: bytes, is_csv: bool, limit: int) -> tuple[list[Any], bool]:
-    """The rows of a JSON array or a CSV table, and whether blank cells mean "not given" (CSV)."""
+@dataclass
+class Records:
+    """The rows of a batch body as read, before any input is parsed."""
+
+    rows: list[Any]
+    blank_is_absent: bool  # CSV: a blank cell means "not given"
+    separator: str  # between CSV cells, in and out: ";" where the comma is the decimal mark
+    decimal_comma: bool
+    lines: list[int]  # each row's number as a spreadsheet shows it: the header is row 1, so the first row is 2
+    labels: dict[str, list[Any]]  # the caller's label columns, passed through to the answer
+
+
+def _detect_separator(text: str) -> str:
+    """A sheet saved where the comma is the decimal mark separates cells by ';': the header (input names,
+    which hold neither) says which."""
+    header = text.partition("\n")[0]
+    return ";" if header.count(";") > header.count(",") else ","
+
+
+def read_records(
+    calc: CalculationSpec,
+    body: bytes,
+    is_csv: bool,
+    limit: int,
+    labels: tuple[str, ...] = (),
+    decimal: str | None = None,
+) -> Records:
+    """The rows of a JSON array or a CSV table (its separator detected, a byte-order mark ignored), with the
+    ``labels`` columns set aside; ``decimal`` ("point" or "comma") defaults to what the separator implies."""
     if is_csv:
-        text = body.decode("utf-8", "replace")
-        _refuse_more_than_rows_hold(calc, text, limit)
+        text = body.decode("utf-8-sig", "replace")  # "CSV UTF-8" as spreadsheets save it starts with a BOM
+        separator = _detect_separator(text)
+        _refuse_more_than_rows_hold(calc, text, limit, separator)
         # A short row's missing cells are blank (not given); cells beyond the header become an unknown field of
         # their row, which refuses that row instead of dropping data that was likely shifted.
-        reader = csv.DictReader(io.StringIO(text, newline=""), skipinitialspace=True, restkey=EXTRA_CELLS, restval="")
+        reader = csv.DictReader(
+            io.StringIO(text, newline=""), delimiter=separator, skipinitialspace=True, restkey=EXTRA_CELLS, restval=""
+        )
+        records, lines = [], []
         try:
             # Reading stops one row past the limit: a body of millions of short lines is never built.
-            rows = list(itertools.islice(reader, limit + 1))
-            records = [{k.strip(): v.strip() if isinstance(v, str) else v for k, v in row.items()} for row in rows]
+            for row in itertools.islice(reader, limit + 1):
+                records.append({k.strip(): v.strip() if isinstance(v, str) else v for k, v in row.items()})
+                lines.append(reader.line_num)  # blank lines skipped still count, as in the sheet
         except csv.Error as exc:
             raise MalformedBody(f"the request body is not a valid CSV table: {exc}") from exc
         if len(records) > limit:
             raise _too_many_rows(f"more than {limit}", limit)
-        return records, True
-    _refuse_more_than_rows_hold(calc, body, limit)
-    try:
-        data = orjson.loads(body)
-    except orjson.JSONDecodeError as exc:
-        raise MalformedBody(f"the request body is not valid JSON: {exc}") from exc
-    if not isinstance(data, list):
-        raise InvalidInput.on(
-            "body", "the body must be a JSON array of input objects (or a CSV table with Content-Type: text/csv)"
-        )
-    if len(data) > limit:
-        raise _too_many_rows(len(data), limit)
-    return data, False
+        data: list[Any] = records
+    else:
+        separator = ","
+        _refuse_more_than_rows_hold(calc, body, limit)
+        try:
+            data = orjson.loads(body)
+        except orjson.JSONDecodeError as exc:
+            raise MalformedBody(f"the request body is not valid JSON: {exc}") from exc
+        if not isinstance(data, list):
+            raise InvalidInput.on(
+                "body", "the body must be a JSON array of input objects (or a CSV table with Content-Type: text/csv)"
+            )
+        if len(data) > limit:
+            raise _too_many_rows(len(data), limit)
+        lines = list(range(2, len(data) + 2))
+    columns = {
+        name: [row.pop(name, "") if isinstance(row, dict) else "" for row in data] for name in dict.fromkeys(labels)
+    }
+    comma = decimal == "comma" or (decimal is None and separator == ";")
+    return Records(data, is_csv, separator, comma, lines, columns)
 
 
 def _refuse_large_sweeps(parsed: ParsedRows, limit: int) -> None:
@@ -295,9 +342,10 @@ class Batch:
     parsed: ParsedRows
     ok_rows: np.ndarray  # the rows computed, in order
     outcome: Outcome  # over ok_rows only
+    records: Records  # as read from the body
 
 
-def evaluate(calc: CalculationSpec, parsed: ParsedRows) -> Batch:
+def evaluate(calc: CalculationSpec, parsed: ParsedRows, records: Records) -> Batch:
     """Run the core once over every row that parsed; physical violations become errors on their rows."""
     n = parsed.n
     ok_rows = np.flatnonzero(~parsed.errors.mask(n))
@@ -312,17 +360,24 @@ def evaluate(calc: CalculationSpec, parsed: ParsedRows) -> Batch:
                 parsed.errors.add_rows(rows, violation.field, violation.message, PhysicallyImpossible)
             ok_rows = np.flatnonzero(~parsed.errors.mask(n))
             continue
-        return Batch(parsed, ok_rows, outcome)
+        return Batch(parsed, ok_rows, outcome, records)
 
 
 def run_batch(
-    database: Database, calc: CalculationSpec, body: bytes, is_csv: bool, max_rows: int, max_sweep_points: int
+    database: Database,
+    calc: CalculationSpec,
+    body: bytes,
+    is_csv: bool,
+    max_rows: int,
+    max_sweep_points: int,
+    labels: tuple[str, ...] = (),
+    decimal: str | None = None,
 ) -> Batch:
     """Every row of ``body`` (a JSON array or a CSV table) through ``calc``; a bad row carries its refusal."""
-    records, blank_is_absent = read_records(calc, body, is_csv, max_rows)
-    if not records:
+    records = read_records(calc, body, is_csv, max_rows, labels, decimal)
+    if not records.rows:
         raise InvalidInput.on("body", "the batch holds no rows")
     with database.transaction() as session:
-        parsed = parse_rows(calc, records, PartResolver(session), blank_is_absent)
+        parsed = parse_rows(calc, records.rows, PartResolver(session), records.blank_is_absent, records.decimal_comma)
     _refuse_large_sweeps(parsed, max_sweep_points)
-    return evaluate(calc, parsed)
+    return evaluate(calc, parsed, records)

@@ -53,6 +53,14 @@ def results_of_row(calc: CalculationSpec, outcome: Outcome, row: int) -> dict[st
     return results
 
 
+def check_inputs(database: Database, calc: CalculationSpec, body: Mapping[str, Any]) -> None:
+    """Refuse ``body`` as :func:`run_calculation` would, from the parts and the core's checks, computing nothing."""
+    values = complete(calc, resolve_parts(database, calc.roles, body).values)
+    violations = calc.validate(calc.make_inputs(columns_of(calc, [values])))
+    if violations:
+        raise PhysicallyImpossible.of(violations)
+
+
 def run_calculation(database: Database, calc: CalculationSpec, body: Mapping[str, Any]) -> dict[str, Any]:
     """The envelope of ``calc`` for one request body (values in SI, part references by role name)."""
     resolved = resolve_parts(database, calc.roles, body)

@@ -14,12 +14,14 @@ from flask_smorest import Blueprint
 from calcsvc.core.registry import CALCULATIONS
 from calcsvc.core.spec import CalculationSpec
 from calcsvc.csv_cells import CellWriter
-from calcsvc.service.batch import ParsedRows, run_batch
+from calcsvc.service.batch import Batch, ParsedRows, Records, run_batch
 from calcsvc.service.envelope import SWEEP_KEYS, row_sweeps, to_json_value
+from calcsvc.service.errors import InvalidInput
 from calcsvc.web.auth import database, guard_reads
 from calcsvc.web.calc_schemas import request_schema
 from calcsvc.web.metrics import record_calculation
 from calcsvc.web.problems import error_response, problem_document, service_problem
+from calcsvc.web.sheet_text import cell_value, failing_check
 
 blp = Blueprint(
     "batch",
@@ -31,6 +33,7 @@ blp = Blueprint(
 guard_reads(blp)  # calculations read the parts table
 
 CSV = "text/csv"
+MAX_LABELS_LENGTH = 1000  # label column names, comma-separated
 
 
 def _row_problem(parsed: ParsedRows, row: int) -> dict[str, Any]:
@@ -38,8 +41,22 @@ def _row_problem(parsed: ParsedRows, row: int) -> dict[str, Any]:
     return problem_document(service_problem(parsed.errors.refusal(row)))
 
 
-def json_rows(calc: CalculationSpec, parsed: ParsedRows, ok_rows: np.ndarray, outcome: Any) -> list[dict[str, Any]]:
+def _passes(outcome: Any, count: int) -> np.ndarray:
+    """Whether each computed row passes every check that applies to it (a check with no limit there does not)."""
+    passes = np.ones(count, dtype=bool)
+    for check in outcome.checks:
+        passes &= check.ok | np.isnan(check.limit)
+    return passes
+
+
+def _labels(records: Records, row: int) -> dict[str, Any]:
+    return {name: values[row] for name, values in records.labels.items()}
+
+
+def json_rows(calc: CalculationSpec, batch: Batch) -> list[dict[str, Any]]:
+    parsed, ok_rows, outcome = batch.parsed, batch.ok_rows, batch.outcome
     n = parsed.n
+    passes = _passes(outcome, ok_rows.size).tolist()
     names = [name for name in calc.scalar_results() if name in outcome.results]
     results = [to_json_value(outcome.results[name]) for name in names]
     sweeps = row_sweeps(outcome, ok_rows.size)
@@ -59,7 +76,9 @@ def json_rows(calc: CalculationSpec, parsed: ParsedRows, ok_rows: np.ndarray, ou
             row_results["sweep"] = {key: to_json_value(values) for key, values in sweeps[k].items()}
         rows[row] = {
             "row": row,
+            **({"labels": _labels(batch.records, row)} if batch.records.labels else {}),
             "ok": True,
+            "passes": passes[k],
             "results": row_results,
             "checks": [
                 {"name": name, "ok": ok[k], "value": value[k], "limit": limit[k], "margin": margin[k]}
@@ -71,16 +90,18 @@ def json_rows(calc: CalculationSpec, parsed: ParsedRows, ok_rows: np.ndarray, ou
             "parts": parsed.parts.get(row, []),
         }
     for row in parsed.errors.by_row:
-        rows[row] = {"row": row, "ok": False, "problem": _row_problem(parsed, row)}
+        labels = {"labels": _labels(batch.records, row)} if batch.records.labels else {}
+        rows[row] = {"row": row, **labels, "ok": False, "passes": None, "problem": _row_problem(parsed, row)}
     return rows
 
 
-def json_columns(calc: CalculationSpec, parsed: ParsedRows, ok_rows: np.ndarray, outcome: Any) -> dict[str, Any]:
+def json_columns(calc: CalculationSpec, batch: Batch) -> dict[str, Any]:
     """The same answer as ``json_rows``, one array per result and check (element i belongs to row i).
 
     Arrays go to the serializer as they are, with no object per row, which is what makes large batches fast.
-    A row that was not computed has ok false, null results and null check values, and its problem.
+    A row that was not computed has ok false, passes false, null results and null check values, and its problem.
     """
+    parsed, ok_rows, outcome = batch.parsed, batch.ok_rows, batch.outcome
     n = parsed.n
 
     def full(column: np.ndarray, fill: Any = np.nan) -> np.ndarray:
@@ -114,7 +135,9 @@ def json_columns(calc: CalculationSpec, parsed: ParsedRows, ok_rows: np.ndarray,
     notices["warnings"] = part_warnings + notices["warnings"]
     return {
         "layout": "columns",
+        **({"labels": batch.records.labels} if batch.records.labels else {}),
         "ok": ok,
+        "passes": full(_passes(outcome, ok_rows.size), False),
         "results": results,
         "checks": checks,
         **notices,
@@ -123,26 +146,52 @@ def json_columns(calc: CalculationSpec, parsed: ParsedRows, ok_rows: np.ndarray,
     }
 
 
-def csv_body(calc: CalculationSpec, parsed: ParsedRows, ok_rows: np.ndarray, outcome: Any) -> str:
-    """One line per row: every scalar result, the failing checks, and the problem of a bad row."""
+def csv_body(calc: CalculationSpec, batch: Batch) -> str:
+    """One line per row, numbered as the sheet numbers it (header = row 1): its labels, whether it was computed and
+    passes its checks, every scalar result, the failing checks with value and limit, its cautions, its problem."""
+    parsed, ok_rows, outcome, records = batch.parsed, batch.ok_rows, batch.outcome, batch.records
+    comma = records.decimal_comma
     names = [name for name in calc.scalar_results() if name in outcome.results]
-    n = parsed.n
-    table: list[list[Any]] = [[row, "false"] + [""] * len(names) + ["", ""] for row in range(n)]
+    labels = list(records.labels)
+    table: list[list[Any]] = [
+        [records.lines[row], *(records.labels[name][row] for name in labels), "false", ""]
+        + [""] * len(names)
+        + ["", "", ""]
+        for row in range(parsed.n)
+    ]
     columns = [outcome.results[name].tolist() for name in names]
-    failing = [(c.name, (~c.ok).tolist()) for c in outcome.checks]
+    checks = [(c.name, c.ok.tolist(), c.value.tolist(), c.limit.tolist()) for c in outcome.checks]
+    cautions: list[list[str]] = [[] for _ in ok_rows]
+    for notice in outcome.cautions:
+        for k in np.flatnonzero(notice.rows):
+            cautions[k].append(notice.message)
     for k, row in enumerate(ok_rows.tolist()):
-        cells = [("" if value != value else value) for value in (column[k] for column in columns)]
-        table[row] = [row, "true", *cells, ";".join(name for name, bad in failing if bad[k]), ""]
+        failing = [
+            f"{name} {failing_check(value[k], limit[k], comma)}"
+            for name, ok, value, limit in checks
+            if not ok[k] and limit[k] == limit[k]  # a check with no limit on this row does not apply
+        ]
+        cells = [cell_value(column[k], comma) for column in columns]
+        passes = "false" if failing else "true"
+        table[row][len(labels) + 1 :] = ["true", passes, *cells, "; ".join(failing), " ".join(cautions[k]), ""]
     for row in parsed.errors.by_row:
         table[row][-1] = parsed.errors.refusal(row).detail
     out = io.StringIO()
-    writer = CellWriter(out, lineterminator="\n")  # the problem quotes the caller's column names
-    writer.writerow(["row", "ok", *names, "failing_checks", "problem"])
+    # The problem quotes the caller's column names, the labels are the caller's text: both may start a formula.
+    writer = CellWriter(out, lineterminator="\n", delimiter=records.separator)
+    writer.writerow(["row", *labels, "computed", "passes", *names, "failing_checks", "cautions", "problem"])
     writer.writerows(table)
     return out.getvalue()
 
 
 def answer(calc: CalculationSpec) -> Response:
+    decimal = request.args.get("decimal")
+    if decimal not in (None, "point", "comma"):
+        raise InvalidInput.on("decimal", "must be point or comma")
+    labels_text = request.args.get("labels", "")
+    if len(labels_text) > MAX_LABELS_LENGTH:
+        raise InvalidInput.on("labels", f"longer than {MAX_LABELS_LENGTH} characters")
+    labels = tuple(name.strip() for name in labels_text.split(",") if name.strip())
     batch = run_batch(
         database(),
         calc,
@@ -150,6 +199,8 @@ def answer(calc: CalculationSpec) -> Response:
         request.mimetype == CSV,
         current_app.config["BATCH_MAX_ROWS"],
         current_app.config["BATCH_MAX_SWEEP_POINTS"],
+        labels,
+        decimal,
     )
     parsed, ok_rows, outcome = batch.parsed, batch.ok_rows, batch.outcome
     record_calculation(calc.name, int(ok_rows.size))
@@ -157,7 +208,7 @@ def answer(calc: CalculationSpec) -> Response:
         CSV in request.accept_mimetypes.values()
         and request.accept_mimetypes.best_match(["application/json", CSV]) == CSV
     ):
-        return Response(csv_body(calc, parsed, ok_rows, outcome), mimetype=CSV)
+        return Response(csv_body(calc, batch), mimetype=CSV)
     body = {
         "calculation": calc.name,
         "version": calc.version,
@@ -166,9 +217,9 @@ def answer(calc: CalculationSpec) -> Response:
         "check_details": {check.name: check.detail for check in outcome.checks},
     }
     if request.args.get("layout") == "columns":
-        body.update(json_columns(calc, parsed, ok_rows, outcome))
+        body.update(json_columns(calc, batch))
     else:
-        body["rows"] = json_rows(calc, parsed, ok_rows, outcome)
+        body["rows"] = json_rows(calc, batch)
     return Response(orjson.dumps(body, option=orjson.OPT_SERIALIZE_NUMPY), mimetype="application/json")
 
 
@@ -198,11 +249,31 @@ def _batch_doc(calc: CalculationSpec) -> dict[str, Any]:
                 "schema": {"type": "string", "enum": ["rows", "columns"], "default": "rows"},
                 "description": "rows: one object per row; columns: one array per result and check (fastest for "
                 "large batches; element i belongs to row i)",
-            }
+            },
+            {
+                "name": "labels",
+                "in": "query",
+                "required": False,
+                "schema": {"type": "string", "maxLength": MAX_LABELS_LENGTH},
+                "description": "comma-separated names of columns (or row keys) that are not inputs, such as a "
+                "design name: passed through to each row of the answer instead of refused as unknown fields",
+            },
+            {
+                "name": "decimal",
+                "in": "query",
+                "required": False,
+                "schema": {"type": "string", "enum": ["point", "comma"]},
+                "description": "the decimal mark of numbers in CSV cells, in and out; default: comma when the "
+                "CSV table separates its cells by ';' (detected from its header), else point. A CSV answer uses "
+                "the request's separator (';' with a decimal comma)",
+            },
         ],
         "responses": {
             "200": {
-                "description": "one entry per row, in order; a bad row has ok false and its problem",
+                "description": "one entry per row, in order; a bad row has ok false and its problem; passes: "
+                "whether a computed row passes every check. CSV: row is the row's number in the sheet (the header "
+                "is row 1), then the labels, computed, passes, the results, failing_checks (each with its value "
+                "and limit), cautions and problem",
                 "content": {
                     "application/json": {"schema": {"type": "object"}},
                     CSV: {"schema": {"type": "string"}},

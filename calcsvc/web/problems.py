@@ -81,8 +81,10 @@ class Problem(Exception):
         errors: dict[str, list[str]] | None = None,
         headers: dict[str, str] | None = None,
         title: str | None = None,
+        lead: str = "error",
     ) -> None:
         super().__init__(detail)
+        self.lead = lead  # the first word of its one line of text
         self.status = status
         self.detail = detail
         self.slug = slug
@@ -156,8 +158,9 @@ def problem_response(problem: Problem) -> Response:
     if g.get("plain_errors"):
         # A spreadsheet cell cannot show a JSON document: one short line, same status.
         detail = "; ".join(f"{k}: {v[0]}" for k, v in problem.errors.items()) if problem.errors else problem.detail
-        line = f"error: {detail}".replace("\n", " ")[:300]
-        return Response(line, status=problem.status, mimetype="text/plain", headers=problem.headers)
+        line = f"{problem.lead}: {detail}".replace("\n", " ")[:300]
+        status = g.get("plain_errors_status") or problem.status
+        return Response(line, status=status, mimetype="text/plain", headers=problem.headers)
     body = problem_document(problem, request.path)
     response = Response(json.dumps(body), status=problem.status, mimetype=PROBLEM_MIMETYPE)
     for name, value in problem.headers.items():

@@ -221,7 +221,7 @@ def test_batch_from_a_csv_file(calc_client: Client, tmp_path: Path) -> None:
     assert answer["ok_count"] == 1 and answer["rows"][0]["results"]["resistor_ohm"] == 300.0
     text = calc_client.batch("led-string", str(path), accept="csv")
     header, line = text.strip().splitlines()
-    assert header.startswith("row,ok,") and "resistor_ohm" in header.split(",")
+    assert header.startswith("row,computed,passes,") and "resistor_ohm" in header.split(",")
     assert dict(zip(header.split(","), line.split(","), strict=True))["resistor_ohm"] == "300.0"
 
 

@@ -47,14 +47,15 @@ OPAMP = {"opamp": "opamp-general-1mhz", "configuration": "non_inverting", "gain"
 
 
 def _led_fetch(current_cell: str) -> str:
-    """The README's way: the URL joined from cells with ``&``, text values through ENCODEURL."""
+    """The README's way: the URL joined from cells with ``&``, text values through ENCODEURL, the sheet mode and
+    the sheet's decimal mark (in A13) at the end."""
     return (
         '=WEBSERVICE($A$1&"/v1/calc/led-string?supply="&ENCODEURL($A$2)&"&led="&ENCODEURL($A$3)'
-        f'&"&leds_in_series="&$A$4&"&current_a="&ENCODEURL({current_cell})&"&pick=resistor_ohm")'
+        f'&"&leds_in_series="&$A$4&"&current_a="&ENCODEURL({current_cell})&"&pick=resistor_ohm&sheet=1&decimal="&$A$13)'
     )
 
 
-def _cells(base_url: str) -> dict[str, Any]:
+def _cells(base_url: str, decimal: str, mark: str) -> dict[str, Any]:
     return {
         "A1": base_url,
         "A2": LED["supply"],
@@ -67,24 +68,26 @@ def _cells(base_url: str) -> dict[str, Any]:
         "A9": OPAMP["signal_hz"],
         "A10": "20 ma",  # refused: unit case matters
         "A11": "200 mA",  # computed, but the LED's current check fails
-        "A12": 0.02,  # a number cell joined into the URL: formatted the sheet's locale's way
+        "A12": 0.02,  # a number cell joined into the URL: written in the sheet's decimal mark
+        "A13": decimal,  # "point" or "comma": the sheet's decimal mark, told to the service
         "B1": _led_fetch("$A$5"),
-        "B2": "=VALUE(B1)",
-        "B3": '=NUMBERVALUE(B1;".")',
+        "B2": "=VALUE(B1)",  # the sheet's own conversion reads its own decimal mark
+        "B3": f'=NUMBERVALUE(B1;"{mark}")',  # or whatever the locale, naming the mark asked for
         "C1": '=WEBSERVICE($A$1&"/v1/calc/closed-loop-bandwidth?opamp="&ENCODEURL(A6)&"&configuration="&A7'
-        '&"&gain="&A8&"&signal_hz="&ENCODEURL(A9)&"&pick=bandwidth_hz")',
+        '&"&gain="&A8&"&signal_hz="&ENCODEURL(A9)&"&pick=bandwidth_hz&sheet=1&decimal="&$A$13)',
         "C2": "=VALUE(C1)",
-        "C3": '=NUMBERVALUE(C1;".")',
+        "C3": f'=NUMBERVALUE(C1;"{mark}")',
         "D1": _led_fetch("$A$10"),
         "D2": _led_fetch("$A$11"),
         "D3": _led_fetch("$A$12"),
+        "D4": "=VALUE(D3)",
         "E1": 0.5,  # shows which decimal separator the sheet's locale uses
     }
 
 
-def _direct(server: Server, name: str, inputs: dict[str, str], pick: str) -> str:
+def _direct(server: Server, name: str, inputs: dict[str, str], pick: str, decimal: str = "point") -> str:
     """The same URL the sheet builds (spaces as %20, as ENCODEURL writes them), fetched by requests."""
-    query = urlencode({**inputs, "pick": pick}, quote_via=quote)
+    query = urlencode({**inputs, "pick": pick, "sheet": "1", "decimal": decimal}, quote_via=quote)
     answer = requests.get(f"{server.url}/v1/calc/{name}?{query}", timeout=10)
     assert answer.status_code == 200, answer.text
     return answer.text
@@ -109,26 +112,32 @@ def _run_sheet(tmp_path: Path, job: dict[str, Any]) -> dict[str, dict[str, Any]]
     return cells
 
 
-@pytest.mark.parametrize(("locale", "decimal_point"), [("en-US", "."), ("de-DE", ",")])
-def test_a_sheet_fetches_answers_and_turns_them_into_numbers(
-    server: Server, tmp_path: Path, locale: str, decimal_point: str
+@pytest.mark.parametrize(("locale", "decimal", "mark"), [("en-US", "point", "."), ("de-DE", "comma", ",")])
+def test_a_sheet_shows_numbers_refusals_and_failing_designs(
+    server: Server, tmp_path: Path, locale: str, decimal: str, mark: str
 ) -> None:
-    resistor_text = _direct(server, "led-string", LED, "resistor_ohm")
-    bandwidth_text = _direct(server, "closed-loop-bandwidth", OPAMP, "bandwidth_hz")
-    assert float(resistor_text) == 300.0
-    assert float(bandwidth_text) == pytest.approx(24_008.0, rel=1e-3)  # 1.2 MHz/50 + 1.2 MHz/150 000 (GBW/NG)
+    resistor_text = _direct(server, "led-string", LED, "resistor_ohm", decimal)
+    bandwidth_text = _direct(server, "closed-loop-bandwidth", OPAMP, "bandwidth_hz", decimal)
+    resistor, bandwidth = (float(text.replace(",", ".")) for text in (resistor_text, bandwidth_text))
+    assert resistor == 300.0 and resistor_text == f"300{mark}0"
+    assert bandwidth == pytest.approx(24_008.0, rel=1e-3)  # 1.2 MHz/50 + 1.2 MHz/150 000 (GBW/NG)
 
     cells = _run_sheet(
         tmp_path,
-        {"locale": locale, "cells": _cells(server.url), "wait_for": ["B1", "C1", "D1", "D2", "D3"]},
+        {"locale": locale, "cells": _cells(server.url, decimal, mark), "wait_for": ["B1", "C1", "D1", "D2", "D3"]},
     )
 
-    assert cells["E1"]["string"] == f"0{decimal_point}5", "the sheet did not take the locale"
+    assert cells["E1"]["string"] == f"0{mark}5", "the sheet did not take the locale"
     for fetched, text in (("B1", resistor_text), ("C1", bandwidth_text)):
         assert (cells[fetched]["kind"], cells[fetched]["string"]) == ("text", text)
-    # NUMBERVALUE(x; ".") reads the service's decimal point whatever the sheet's locale.
-    for converted, number in (("B3", float(resistor_text)), ("C3", float(bandwidth_text))):
-        assert (cells[converted]["kind"], cells[converted]["value"]) == ("number", number)
-    if decimal_point == ".":
-        for converted, number in (("B2", float(resistor_text)), ("C2", float(bandwidth_text))):
-            assert (cells[converted]["kind"], cells[converted]["value"]) == ("number", number)
+    # The documented conversions: the sheet's own text-to-number function with the service answering in the
+    # sheet's decimal mark, or the one that is told the mark.
+    for converted, number in (("B2", resistor), ("B3", resistor), ("C2", bandwidth), ("C3", bandwidth)):
+        assert (cells[converted]["kind"], cells[converted]["value"]) == ("number", number), cells[converted]
+    # A number cell joins into the URL in the sheet's decimal mark, which the service was told.
+    assert (cells["D3"]["string"], cells["D4"]["kind"], cells["D4"]["value"]) == (resistor_text, "number", 300.0)
+    # A refused input and a failing design show our line, never a number or the sheet's generic error.
+    assert cells["D1"]["string"] == "error: current_a: unknown unit 'ma'; did you mean 'mA'?"
+    failing = cells["D2"]["string"]
+    assert cells["D2"]["kind"] == "text" and failing.startswith("fails: led_current_rating: 0")
+    assert failing.endswith(f" > limit 0{mark}03") or f" > limit 0{mark}03;" in failing, failing

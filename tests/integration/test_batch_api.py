@@ -71,7 +71,7 @@ def test_csv_in_and_out_with_units(client: FlaskClient, seeded: Any) -> None:
     response = client.post("/v1/batch/led-string", data=table, content_type="text/csv", headers={"Accept": "text/csv"})
     assert response.status_code == 200 and response.mimetype == "text/csv"
     lines = list(csv.DictReader(io.StringIO(response.get_data(as_text=True))))
-    assert [line["ok"] for line in lines] == ["true", "true"]
+    assert [line["computed"] for line in lines] == ["true", "true"]
     # (9 - 3 x 2.1) V / 15 mA = 180 ohm, an E24 value (IEC 60063).
     assert float(lines[0]["resistor_ohm"]) == 180.0
     # (12 - 6.3) V / 20 mA = 285 ohm, up to the E24 300 ohm: 2 strings of 5.7 V / 300 ohm = 19 mA.
@@ -103,9 +103,9 @@ def test_query_form_answers_a_cell(client: FlaskClient, seeded: Any) -> None:
     assert picked.mimetype == "text/plain"
     assert float(picked.get_data(as_text=True)) == full.get_json()["results"]["resistor_ohm"]
     flag = client.get(
-        "/v1/calc/slew-limit?slew_rate_v_per_s=0.5 V/us&frequency_hz=20 kHz&amplitude_v=5&pick=slew_limited"
+        "/v1/calc/slew-limit?slew_rate_v_per_s=0.5 V/us&frequency_hz=20 kHz&amplitude_v=1&pick=slew_limited"
     )
-    assert flag.get_data(as_text=True) == "true"
+    assert flag.get_data(as_text=True) == "false"  # a slew-limited design fails its check: 409, not "true"
     table = client.get(f"/v1/calc/led-string?{query}&format=csv")
     header, values = table.get_data(as_text=True).splitlines()
     assert header.split(",")[1] == "resistor_ohm" and float(values.split(",")[1]) == 300.0
@@ -163,7 +163,7 @@ def test_csv_answer_cells_never_start_a_formula(client: FlaskClient, lead: str) 
     table = f"{header},supply_v\n1,-12 V\n"
     response = client.post("/v1/batch/led-string", data=table, content_type="text/csv", headers={"Accept": "text/csv"})
     (line,) = csv.DictReader(io.StringIO(response.get_data(as_text=True)))
-    assert line["ok"] == "false" and line["problem"].startswith(f"'{lead}HYPERLINK(")
+    assert line["computed"] == "false" and line["problem"].startswith(f"'{lead}HYPERLINK(")
     cells = [cell for row in csv.reader(io.StringIO(response.get_data(as_text=True))) for cell in row]
     assert not [cell for cell in cells if cell[:1] in ("=", "+", "-", "@", "\t", "\r")]
 

@@ -58,9 +58,9 @@ def test_a_physically_impossible_row_is_refused_as_such_and_the_others_computed(
 
 
 def test_csv_blanks_are_absent_and_bad_bodies_refused() -> None:
-    records, blank_is_absent = read_records(CALC, b"supply_v,strings\n12 V,\n", True, 5)
-    assert records == [{"supply_v": "12 V", "strings": ""}] and blank_is_absent
-    parsed = parse_rows(CALC, records, PartResolver(None), blank_is_absent)
+    records = read_records(CALC, b"supply_v,strings\n12 V,\n", True, 5)
+    assert records.rows == [{"supply_v": "12 V", "strings": ""}] and records.blank_is_absent
+    parsed = parse_rows(CALC, records.rows, PartResolver(None), records.blank_is_absent)
     assert np.isnan(parsed.columns["current_a"][0]) and parsed.columns["strings"][0] == 1.0
     with pytest.raises(MalformedBody):
         read_records(CALC, b"[{", False, 5)

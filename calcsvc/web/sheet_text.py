@@ -1,0 +1,39 @@
+"""Text for a spreadsheet cell or a CSV file: numbers without float noise in the caller's decimal mark, and one
+line naming each check a design fails with its value and limit (JSON keeps full precision)."""
+
+from __future__ import annotations
+
+import math
+from collections.abc import Iterable
+from typing import Any
+
+# Enough for any design value; few enough that float noise (0.019500000000000003) never shows.
+SIGNIFICANT_DIGITS = 12
+
+
+def number_text(value: float, comma: bool = False) -> str:
+    """``value`` as a spreadsheet reads it back: ``0.0195``, ``300.0``, ``1e-05`` (``0,0195`` with ``comma``)."""
+    text = repr(float(f"{value:.{SIGNIFICANT_DIGITS}g}"))
+    return text.replace(".", ",") if comma else text
+
+
+def cell_value(value: Any, comma: bool = False) -> str:
+    """A result as cell text: ``true``/``false``, a number, or empty where it does not apply."""
+    if value is None or (isinstance(value, float) and math.isnan(value)):
+        return ""
+    if isinstance(value, bool):
+        return "true" if value else "false"
+    if isinstance(value, int):
+        return str(value)
+    return number_text(value, comma)
+
+
+def failing_check(value: float, limit: float, comma: bool = False) -> str:
+    """``0.2 > limit 0.03``: a failing check's value, on the side of its limit it went."""
+    side = ">" if value > limit else "<"
+    return f"{number_text(value, comma)} {side} limit {number_text(limit, comma)}"
+
+
+def failing_checks(checks: Iterable[dict[str, Any]], comma: bool = False) -> dict[str, str]:
+    """The envelope's failing checks by name, each as :func:`failing_check` writes it."""
+    return {c["name"]: failing_check(c["value"], c["limit"], comma) for c in checks if not c["ok"]}
