@@ -31,8 +31,10 @@ _NUMBER = r"[+-]?(?:[0-9]+(?:\.[0-9]*)?|\.[0-9]+)(?:[eE][+-]?[0-9]+)?"
 _UNIT_CHARS = "A-Za-zµμΩ%/*^0-9.·-"
 _UNIT = rf"[A-Za-zµμΩ%][{_UNIT_CHARS}]*(?: +[{_UNIT_CHARS}]+)*"
 QUANTITY = rf" *({_NUMBER})(?: *({_UNIT}))? *"
-# As published in the OpenAPI document: either decimal mark, since the query form reads "0,02" with decimal=comma.
-QUANTITY_PATTERN = "^" + QUANTITY.replace(r"\.", "[.,]") + "$"
+# As published in the OpenAPI document: a decimal point in bodies; either mark in the query form, which reads
+# "0,02" with decimal=comma.
+QUANTITY_PATTERN = "^" + QUANTITY + "$"
+QUERY_QUANTITY_PATTERN = "^" + QUANTITY.replace(r"\.", "[.,]") + "$"
 _QUANTITY = re.compile(QUANTITY)
 # Unit text: names, products and quotients of names with optional integer powers; nothing that evaluates.
 _NAME = "[A-Za-zµμΩ]+(?: *(?:\\*\\*|\\^) *-?[0-9])?"

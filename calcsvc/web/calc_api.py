@@ -18,7 +18,7 @@ from calcsvc.csv_cells import CellWriter
 from calcsvc.service.calculate import check_inputs, run_calculation
 from calcsvc.service.duty import run_duty
 from calcsvc.service.errors import InvalidInput
-from calcsvc.units import UnitError, with_decimal_point
+from calcsvc.units import QUERY_QUANTITY_PATTERN, UnitError, with_decimal_point
 from calcsvc.web.auth import database, guard_reads
 from calcsvc.web.calc_schemas import budget_request_schema, camel, request_schema, response_schema
 from calcsvc.web.json_limits import LengthCheckingParser
@@ -66,7 +66,7 @@ def query_schema(calc: CalculationSpec) -> type[Schema]:
     """The POST inputs as query parameters, plus the spreadsheet-friendly output choices."""
     return _QueryForm.from_dict(
         {
-            **request_schema(calc)._declared_fields,
+            **request_schema(calc, QUERY_QUANTITY_PATTERN)._declared_fields,
             "pick": fields.String(
                 validate=validate.OneOf(calc.scalar_results()),
                 metadata={

@@ -8,6 +8,7 @@ from marshmallow import Schema, ValidationError, fields, validate, validates_sch
 
 from calcsvc.core.spec import BudgetSpec, Input, InputSet, Items, Result, Role, Samples
 from calcsvc.service.parts import MAX_REVISION, part_id_field
+from calcsvc.units import QUANTITY_PATTERN
 from calcsvc.web.quantity import Quantity
 
 
@@ -15,7 +16,7 @@ def camel(name: str) -> str:
     return "".join(part.capitalize() for part in name.replace("_", "-").split("-"))
 
 
-def input_field(spec: Input) -> fields.Field:
+def input_field(spec: Input, pattern: str = QUANTITY_PATTERN) -> fields.Field:
     if spec.max_length is not None:
         return fields.String(
             load_default=spec.default,
@@ -36,6 +37,7 @@ def input_field(spec: Input) -> fields.Field:
         maximum=spec.maximum,
         integer=spec.integer,
         description=spec.description + default,
+        pattern=pattern,
     )
 
 
@@ -52,8 +54,10 @@ def role_fields(role: Role) -> dict[str, fields.Field]:
     }
 
 
-def request_schema(calc: InputSet) -> type[Schema]:
-    attributes: dict[str, Any] = {spec.name: input_field(spec) for spec in calc.inputs}
+def request_schema(calc: InputSet, pattern: str = QUANTITY_PATTERN) -> type[Schema]:
+    """The inputs as a body (``pattern`` of quantity strings: a decimal point) or, with the query form's pattern,
+    as query parameters."""
+    attributes: dict[str, Any] = {spec.name: input_field(spec, pattern) for spec in calc.inputs}
     for role in calc.roles:
         attributes.update(role_fields(role))
     return Schema.from_dict(attributes, name=f"{camel(calc.name)}Request")

@@ -28,6 +28,7 @@ class Quantity(fields.Field):
         maximum: float | None = None,
         integer: bool = False,
         description: str = "",
+        pattern: str = QUANTITY_PATTERN,
         **kwargs: Any,
     ) -> None:
         self.unit = unit
@@ -56,7 +57,7 @@ class Quantity(fields.Field):
             metadata["oneOf"] = [number]
         else:
             # The parser's own pattern and length limit, so the published schema and the server agree.
-            text = {"type": "string", "maxLength": MAX_QUANTITY_LENGTH, "pattern": QUANTITY_PATTERN}
+            text = {"type": "string", "maxLength": MAX_QUANTITY_LENGTH, "pattern": pattern}
             metadata["oneOf"] = [number, text]
         super().__init__(metadata=metadata, **kwargs)
 

@@ -25,7 +25,7 @@ from calcsvc import create_app
 from calcsvc.data.part_ids import PATTERN as PART_ID
 from calcsvc.data.seed import load_seed
 from calcsvc.data.tokens import create_token
-from calcsvc.units import MAX_QUANTITY_LENGTH, QUANTITY_PATTERN
+from calcsvc.units import MAX_QUANTITY_LENGTH, QUANTITY_PATTERN, QUERY_QUANTITY_PATTERN
 
 REPO = Path(__file__).resolve().parents[2]
 SPEC = json.loads((REPO / "openapi" / "openapi.json").read_text())
@@ -617,10 +617,15 @@ def test_every_text_input_has_a_published_length_limit() -> None:
 
 def test_quantity_strings_are_published_with_the_parsers_pattern() -> None:
     published = {
-        (form.get("pattern"), form.get("maxLength"))
+        (operation, form.get("pattern"), form.get("maxLength"))
         for operation in OPERATIONS
         for each in request_inputs(operation)
         if "x-unit" in each.schema
         for form in each.text_forms
     }
-    assert published == {(QUANTITY_PATTERN, MAX_QUANTITY_LENGTH)}
+    # A body and the plots' query take a decimal point only; the calculations' query form also a comma (read
+    # with decimal=comma).
+    for operation, pattern, _ in published:
+        comma = operation.startswith("GET /v1/calc/")
+        assert pattern == (QUERY_QUANTITY_PATTERN if comma else QUANTITY_PATTERN), operation
+    assert {length for *_, length in published} == {MAX_QUANTITY_LENGTH}
