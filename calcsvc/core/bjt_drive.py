@@ -24,6 +24,8 @@ Pin stress corner
 Off state
     Off, the pin sinks only leakage, so its low level is vol·I_leak/I_rated (a resistive pin whose vol is stated
     at its rated current, taken as its source rating; common practice), not the vol stated at rated current.
+    With no rating given, vol is taken as stated at 1 mA, the least sink current logic pins state it at (common
+    practice, from memory): the most resistive pin a real rating would give.
     The leakage into the base when hot (collector-base leakage and the pin's input leakage) is taken as 1 µA
     (from memory, small-signal class near 125 °C). The base must stay below the hot turn-on threshold
     n·(0.6 V − 0.2 V) (0.6 V per junction at 25 °C, common practice):
@@ -51,6 +53,7 @@ HOT_RISE_K = 100.0  # 25 °C datasheet values to a 125 °C junction (from memory
 HOT_DROP_V = JUNCTION_TEMPCO_V_PER_K * HOT_RISE_K  # per junction
 TURN_ON_V = 0.6  # per junction at 25 °C (common practice)
 LEAKAGE_HOT_A = 1e-6  # leakage into the base, hot (from memory)
+VOL_RATED_UNKNOWN_A = 1e-3  # the current vol is taken as stated at when the pin's rating is unknown
 OVERDRIVE_MIN = 2.0  # hfe_min over the design ratio (common practice)
 PULLDOWN_PER_RB = 10.0  # pull-down about ten times the base resistor: a tenth of the drive (common practice)
 VCEO_DERATING = 1.2  # vceo_max_v at least 1.2 times the highest supply (common practice)
@@ -90,7 +93,8 @@ def off_base_voltage(
     drive_low_v: FloatArray, pin_rating_a: FloatArray, rb_ohm: FloatArray, rbe_ohm: FloatArray
 ) -> FloatArray:
     """The higher base voltage, hot, of the pin driven low and (with a pull-down) the pin floating; broadcasts."""
-    scale = np.where(np.isnan(pin_rating_a), 1.0, np.minimum(1.0, LEAKAGE_HOT_A / pin_rating_a))
+    rated = np.where(np.isnan(pin_rating_a), VOL_RATED_UNKNOWN_A, pin_rating_a)
+    scale = np.minimum(1.0, LEAKAGE_HOT_A / rated)
     v_low = drive_low_v * scale
     with np.errstate(invalid="ignore"):
         share = np.where(np.isnan(rbe_ohm), 1.0, rbe_ohm / (rb_ohm + rbe_ohm))

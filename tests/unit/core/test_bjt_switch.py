@@ -288,12 +288,16 @@ def test_collector_and_power_over_rating() -> None:
 
 def test_off_state_check() -> None:
     # Hot turn-on threshold per junction: 0.6 V at 25 °C (common practice) less 2 mV/K over 100 K (from memory)
-    # = 0.4 V. Without a pin rating the low level is taken as given; the base adds 1 µA (hot leakage) × 160 Ω.
-    out = compute(make(drive_low_v=[0.0, 0.39, 0.5]))
+    # = 0.4 V. A pin whose VOL is stated at the 1 µA it sinks when off sits at VOL itself; the base adds 1 µA
+    # (hot leakage) × 160 Ω.
+    out = compute(make(drive_low_v=[0.0, 0.39, 0.5], driver_current_max_a=1e-6))
     check = checks(out)["off_state"]
     assert check.ok.tolist() == [True, True, False]
     assert check.limit == pytest.approx([0.4, 0.4, 0.4])
     assert check.value == pytest.approx([160e-6, 0.39 + 160e-6, 0.5 + 160e-6])
+    # Without a rating VOL is taken as stated at 1 mA (common practice, from memory): 0.5 V × 1 µA / 1 mA.
+    out = compute(make(drive_low_v=0.5))
+    assert checks(out)["off_state"].value == pytest.approx(0.5e-3 + 160e-6)
 
 
 def test_off_state_reads_the_low_level_at_the_off_state_current() -> None:

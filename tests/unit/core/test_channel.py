@@ -26,7 +26,7 @@ DEMO: dict[str, Any] = {
     "current_max_a": 2.0,
     "capacity_ah": math.nan,
     "drive_high_v": 2.9,
-    "drive_low_v": 0.3,
+    "drive_low_v": 0.4,
     "source_current_max_a": 0.008,
     "hfe_min": 100.0,
     "hfe_typ": 200.0,
