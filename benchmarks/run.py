@@ -468,11 +468,9 @@ def endpoint_section(args: argparse.Namespace) -> tuple[list[Row], list[str]]:
     )
     notes = [
         f"Endpoint load: {args.clients} client processes × {args.threads} threads (http.client) against {workers} "
-        f"gunicorn sync workers; per endpoint {args.seconds:g} s counted, in {ENDPOINT_ROUNDS} alternating windows "
-        f"after {args.warmup:g} s warm-up each. The load generator runs on the same {cores} cores as the server and "
-        f"competes with it: it used {cpu} cores (CPU seconds per second). gunicorn's sync workers close the "
-        "connection after every answer, so each request opens a new TCP connection although the client would keep "
-        "it alive.",
+        f"gunicorn threaded workers; per endpoint {args.seconds:g} s counted, in {ENDPOINT_ROUNDS} alternating "
+        f"windows after {args.warmup:g} s warm-up each. The load generator runs on the same {cores} cores as the "
+        f"server and competes with it: it used {cpu} cores (CPU seconds per second).",
     ]
     return rows, notes
 
