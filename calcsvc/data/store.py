@@ -166,6 +166,39 @@ class PartStore:
             PartEvent(part_id=part_id, revision=revision, action=action, actor=actor, at=at, reason=reason)
         )
 
+    def _add_revision(
+        self,
+        current: tuple[str, int, str],
+        content: tuple[str, dict[str, Any]],
+        author: str,
+        at: datetime,
+        action: str,
+        reason: str | None = None,
+        approved: bool = False,
+    ) -> None:
+        """Store revision ``current`` = (part_id, revision, kind) with ``content`` = (description, parameters),
+        and the event that wrote it (then its approval, when the author approves it as it is written)."""
+        part_id, revision, kind = current
+        description, parameters = content
+        self.session.add(
+            PartRevision(
+                part_id=part_id,
+                revision=revision,
+                kind=kind,
+                description=description,
+                parameters=parameters,
+                author=author,
+                created_at=at,
+                approved_by=author if approved else None,
+                approved_at=at if approved else None,
+            )
+        )
+        self.session.flush()
+        self._event(part_id, revision, action, author, at, reason)
+        if approved:
+            self._event(part_id, revision, "approved", author, at)
+        self.session.flush()
+
     def create(
         self,
         part_id: str,
@@ -199,24 +232,7 @@ class PartStore:
             self.session.flush()
         except IntegrityError as exc:
             raise PartExists(f"a part '{part_id}' already exists", "part_id") from exc
-        self.session.add(
-            PartRevision(
-                part_id=part_id,
-                revision=1,
-                kind=kind,
-                description=description,
-                parameters=parameters,
-                author=author,
-                created_at=now,
-                approved_by=author if approve else None,
-                approved_at=now if approve else None,
-            )
-        )
-        self.session.flush()
-        self._event(part_id, 1, "created", author, now)
-        if approve:
-            self._event(part_id, 1, "approved", author, now)
-        self.session.flush()
+        self._add_revision((part_id, 1, kind), (description, parameters), author, now, "created", approved=approve)
         return self.get(part_id)
 
     def update(
@@ -250,20 +266,7 @@ class PartStore:
             if current.status == "retired":  # retired meanwhile, at the same revision
                 raise PartRetired(f"part '{part_id}' is retired; restore it before revising it", "part_id")
             raise StaleRevision(f"part '{part_id}' is no longer at revision {expected_revision}", "If-Match")
-        self.session.add(
-            PartRevision(
-                part_id=part_id,
-                revision=new_revision,
-                kind=current.kind,
-                description=description,
-                parameters=parameters,
-                author=author,
-                created_at=now,
-            )
-        )
-        self.session.flush()
-        self._event(part_id, new_revision, "edited", author, now)
-        self.session.flush()
+        self._add_revision((part_id, new_revision, current.kind), (description, parameters), author, now, "edited")
         self.session.expire_all()
         return self.get(part_id)
 
@@ -334,20 +337,14 @@ class PartStore:
         )
         if result.rowcount != 1:
             raise StaleRevision(f"part '{part_id}' is no longer at revision {expected_revision}", "If-Match")
-        self.session.add(
-            PartRevision(
-                part_id=part_id,
-                revision=new_revision,
-                kind=current.kind,
-                description=current.description,
-                parameters=current.parameters,
-                author=author,
-                created_at=now,
-            )
+        self._add_revision(
+            (part_id, new_revision, current.kind),
+            (current.description, current.parameters),
+            author,
+            now,
+            "restored",
+            reason,
         )
-        self.session.flush()
-        self._event(part_id, new_revision, "restored", author, now, reason)
-        self.session.flush()
         self.session.expire_all()
         return self.get(part_id)
 
