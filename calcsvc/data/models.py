@@ -61,6 +61,51 @@ class PartEvent(Base):
     reason: Mapped[str | None] = mapped_column(Text, nullable=True)
 
 
+class Design(Base):
+    """The current state of a saved design: its latest revision and whether it is active or retired."""
+
+    __tablename__ = "designs"
+
+    design_id: Mapped[str] = mapped_column(String(64), primary_key=True)
+    calculation: Mapped[str] = mapped_column(String(32))
+    owner: Mapped[str] = mapped_column(String(64))
+    description: Mapped[str] = mapped_column(Text, default="")
+    status: Mapped[str] = mapped_column(String(16), index=True)
+    revision: Mapped[int] = mapped_column(Integer)
+    updated_at: Mapped[datetime] = mapped_column(DateTime(timezone=True))
+    updated_by: Mapped[str] = mapped_column(String(64))
+
+
+class DesignRevision(Base):
+    """One immutable revision of a saved design: the request body as given, its inputs as the service read them
+    (SI), the part revisions they resolved to and the review at those revisions."""
+
+    __tablename__ = "design_revisions"
+
+    design_id: Mapped[str] = mapped_column(ForeignKey("designs.design_id"), primary_key=True)
+    revision: Mapped[int] = mapped_column(Integer, primary_key=True)
+    calculation: Mapped[str] = mapped_column(String(32))
+    owner: Mapped[str] = mapped_column(String(64))
+    description: Mapped[str] = mapped_column(Text, default="")
+    body: Mapped[dict[str, Any]] = mapped_column(JSON)
+    inputs: Mapped[dict[str, Any]] = mapped_column(JSON)
+    parts: Mapped[list[dict[str, Any]]] = mapped_column(JSON)
+    review: Mapped[dict[str, Any]] = mapped_column(JSON)
+    author: Mapped[str] = mapped_column(String(64))
+    created_at: Mapped[datetime] = mapped_column(DateTime(timezone=True))
+
+
+class DesignPart(Base):
+    """A part the current revision of a design uses, by role: what finds the designs a part edit touches."""
+
+    __tablename__ = "design_parts"
+
+    design_id: Mapped[str] = mapped_column(ForeignKey("designs.design_id"), primary_key=True)
+    role: Mapped[str] = mapped_column(String(32), primary_key=True)
+    part_id: Mapped[str] = mapped_column(String(64), index=True)
+    revision: Mapped[int] = mapped_column(Integer)
+
+
 class ApiToken(Base):
     """A bearer token: only its SHA-256 digest is kept."""
 

@@ -44,3 +44,15 @@ class InvalidPart(StoreError):
     def __init__(self, errors: dict[str, str]) -> None:
         super().__init__("the part is not valid", next(iter(errors), None))
         self.errors = errors
+
+
+class DesignNotFound(StoreError):
+    pass
+
+
+class DesignExists(StoreError):
+    pass
+
+
+class DesignRetired(StoreError):
+    pass

@@ -40,8 +40,13 @@ def duty_of(values: Mapping[str, Any]) -> float:
 
 def channel_inputs(values: Mapping[str, Any]) -> channel.ChannelInputs:
     """The core's one-row inputs from completed values (``complete(CHANNEL_INPUTS, ...)``)."""
-    columns = columns_of(CHANNEL_INPUTS, [dict(values)])
-    columns["duty_cycle"] = np.array([duty_of(values)])
+    return channel_rows([values])
+
+
+def channel_rows(rows: list[Mapping[str, Any]]) -> channel.ChannelInputs:
+    """The core's inputs with one row per channel of completed values, built column by column."""
+    columns = columns_of(CHANNEL_INPUTS, [dict(values) for values in rows])
+    columns["duty_cycle"] = np.array([duty_of(values) for values in rows], dtype=np.float64)
     columns["inverting"] = columns["configuration"] == "inverting"
     return channel.ChannelInputs(**{name: columns[name] for name in channel.ChannelInputs.__dataclass_fields__})
 
@@ -173,13 +178,17 @@ def review_document(values: dict[str, Any], parts: list[dict[str, Any]], warning
     return document
 
 
-def _resolve(database: Database, body: Mapping[str, Any]) -> Resolved:
-    """The parts resolved; a supply_tolerance given explicitly wins over a supply part's band."""
-    resolved = resolve_parts(database, CHANNEL_INPUTS.roles, body)
+def without_band(body: Mapping[str, Any], resolved: Resolved) -> Resolved:
+    """A supply_tolerance given explicitly wins over a supply part's band."""
     if "supply_tolerance" in body and not any(name in body for name in _BAND):
         for name in _BAND:
             resolved.values.pop(name, None)
     return resolved
+
+
+def _resolve(database: Database, body: Mapping[str, Any]) -> Resolved:
+    """The parts resolved, the band rule applied."""
+    return without_band(body, resolve_parts(database, CHANNEL_INPUTS.roles, body))
 
 
 def run_review(database: Database, body: Mapping[str, Any]) -> dict[str, Any]:

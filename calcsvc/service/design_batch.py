@@ -1,0 +1,145 @@
+"""Many saved designs reviewed in one pass, for the watch list and the impact of a part edit.
+
+Each design is a request with every part pinned to a revision (its own, today's approved one, or a draft put in
+its place). The part revisions are read once for all of them; the requests are resolved as a single request
+would be; then the designs of each calculation go through the core together: a channel's nominal review and
+worst-case corners are vectorised over rows, as a calculation's compute is. The Monte Carlo is not run: the
+verdict, the failing checks and the margins are the worst-case checks' (the review's yield is drawn per design
+and changes none of them). A design the core refuses is refused alone, with the core's reasons."""
+
+from __future__ import annotations
+
+import math
+from collections.abc import Mapping
+from dataclasses import dataclass
+from typing import Any
+
+from sqlalchemy.orm import Session
+
+from calcsvc.core import channel, tolerance
+from calcsvc.core.channel_spec import CHANNEL_INPUTS
+from calcsvc.core.registry import CALCULATIONS
+from calcsvc.core.spec import InputSet
+from calcsvc.data.part_lookup import revisions_of
+from calcsvc.service.calculate import columns_of, complete
+from calcsvc.service.design_outcome import check_entry, refused, summary
+from calcsvc.service.envelope import fingerprint, to_json_value
+from calcsvc.service.errors import ServiceError
+from calcsvc.service.resolve import PartResolver, resolve
+from calcsvc.service.review import channel_rows, without_band
+from calcsvc.service.search.common import on_accepted, problem_of
+
+CHANNEL = "channel"  # a saved design of the whole-channel review; otherwise the calculation's name
+
+
+def form_of(calculation: str) -> InputSet:
+    """The inputs a design of ``calculation`` holds (the channel review's, or one calculation's)."""
+    return CHANNEL_INPUTS if calculation == CHANNEL else CALCULATIONS[calculation]
+
+
+def pinned(inputs: Mapping[str, Any], revisions: Mapping[str, int]) -> dict[str, Any]:
+    """``inputs`` with each role's part pinned: ``revisions`` by role name."""
+    return {**inputs, **{f"{role}_revision": revision for role, revision in revisions.items()}}
+
+
+@dataclass(frozen=True)
+class Request:
+    calculation: str
+    body: dict[str, Any]  # inputs in SI, every referenced part pinned to a revision
+
+
+def _identity(calculation: str) -> tuple[str, str]:
+    """The name and version a design's fingerprint is made with, as its single review makes it."""
+    if calculation == CHANNEL:
+        return channel.NAME, channel.VERSION
+    return CALCULATIONS[calculation].name, CALCULATIONS[calculation].version
+
+
+def _resolved(request: Request, resolver: PartResolver) -> tuple[dict[str, Any], list[dict[str, Any]]]:
+    form = form_of(request.calculation)
+    found = resolve(form.roles, request.body, resolver)
+    if request.calculation == CHANNEL:
+        found = without_band(request.body, found)
+    return complete(form, found.values), found.parts
+
+
+def _channel_summaries(rows: list[dict[str, Any]]) -> list[dict[str, Any]]:
+    inputs = channel_rows(rows)
+    accepted, worst = on_accepted(inputs, tolerance.worst_case)
+    found: list[dict[str, Any]] = []
+    k = 0
+    for row in range(len(rows)):
+        if not accepted[row] or worst is None:
+            problem = problem_of(inputs, channel.validate, row)
+            found.append(refused("the channel is physically impossible with these parts", problem))
+            continue
+        entries = [
+            check_entry(
+                nominal.name,
+                bool(wc.check.ok[k]),
+                to_json_value(float(wc.check.value[k])),
+                to_json_value(float(wc.check.limit[k])),
+                to_json_value(float(wc.margin()[k])),
+            )
+            for nominal, wc in zip(worst.nominal.checks, worst.checks, strict=True)
+            if not math.isnan(float(nominal.limit[k]))  # no limit: the check does not apply to this design
+        ]
+        found.append(summary(entries))
+        k += 1
+    return found
+
+
+def _calculation_summaries(name: str, rows: list[dict[str, Any]]) -> list[dict[str, Any]]:
+    calc = CALCULATIONS[name]
+    inputs = calc.make_inputs(columns_of(calc, rows))
+    accepted, outcome = on_accepted(inputs, calc.compute)
+    found: list[dict[str, Any]] = []
+    k = 0
+    for row in range(len(rows)):
+        if not accepted[row] or outcome is None:
+            found.append(refused("physically impossible with these parts", problem_of(inputs, calc.validate, row)))
+            continue
+        entries = [
+            check_entry(
+                c.name,
+                bool(c.ok[k]),
+                to_json_value(float(c.value[k])),
+                float(c.limit[k]),
+                to_json_value(float(c.margin()[k])),
+            )
+            for c in outcome.checks
+            if not math.isnan(float(c.limit[k]))
+        ]
+        found.append(summary(entries))
+        k += 1
+    return found
+
+
+def review_many(session: Session, requests: list[Request]) -> list[dict[str, Any]]:
+    """The summary (``design_outcome.summary``, with its parts and fingerprint) of each request, in order."""
+    keys = {
+        (request.body[role.name], request.body[f"{role.name}_revision"])
+        for request in requests
+        for role in form_of(request.calculation).roles
+        if role.name in request.body and f"{role.name}_revision" in request.body
+    }
+    resolver = PartResolver(session, dict(revisions_of(session, keys)))
+    results: list[dict[str, Any] | None] = [None] * len(requests)
+    groups: dict[str, list[tuple[int, dict[str, Any], list[dict[str, Any]]]]] = {}
+    for index, request in enumerate(requests):
+        try:
+            values, parts = _resolved(request, resolver)
+        except ServiceError as exc:
+            results[index] = refused(exc.detail, exc.errors)
+            continue
+        groups.setdefault(request.calculation, []).append((index, values, parts))
+    for calculation, members in groups.items():
+        rows = [values for _, values, _ in members]
+        found = _channel_summaries(rows) if calculation == CHANNEL else _calculation_summaries(calculation, rows)
+        name, version = _identity(calculation)
+        for (index, values, parts), result in zip(members, found, strict=True):
+            inputs = {k: to_json_value(v) for k, v in values.items()}
+            if result["verdict"] != "error":
+                result["fingerprint"] = fingerprint(name, version, inputs, parts)
+            results[index] = {**result, "parts": parts}
+    return [result for result in results if result is not None]
