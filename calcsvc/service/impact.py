@@ -20,6 +20,10 @@ from calcsvc.service.designs import run_planned, today_requests
 _ORDER = {("pass", "fail"): 0, ("pass", "error"): 0, ("fail", "pass"): 1, ("error", "pass"): 1}
 
 
+def _turn(entry: dict[str, Any]) -> tuple[str, str]:
+    return entry["before"]["verdict"], entry["after"]["verdict"]
+
+
 def _entry(view: DesignView, before: dict[str, Any], after: dict[str, Any]) -> dict[str, Any]:
     return {
         "design_id": view.design_id,
@@ -40,7 +44,7 @@ def impacts(session: Session, views: list[DesignView], substitute: Mapping[str, 
     summaries = run_planned(session, planned)
     before, after = summaries[: len(views)], summaries[len(views) :]
     entries = [_entry(view, b, a) for view, b, a in zip(views, before, after, strict=True)]
-    return sorted(entries, key=lambda e: (_ORDER.get((e["before"]["verdict"], e["after"]["verdict"]), 2), e["design_id"]))
+    return sorted(entries, key=lambda e: (_ORDER.get(_turn(e), 2), e["design_id"]))
 
 
 def headline(part_id: str, revision: int, entries: list[dict[str, Any]]) -> dict[str, Any]:
@@ -93,5 +97,6 @@ def draft_impacts(session: Session) -> dict[str, list[dict[str, Any]]]:
         views, _ = store.list("active", store.using_part(part_id), limit=None)
         for entry in impacts(session, views, {part_id: revision}):
             if entry["changes"]:
-                found.setdefault(entry["design_id"], []).append({"part_id": part_id, "part_revision": revision, **entry})
+                change = {"part_id": part_id, "part_revision": revision, **entry}
+                found.setdefault(entry["design_id"], []).append(change)
     return found

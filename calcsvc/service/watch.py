@@ -36,7 +36,8 @@ def watch_list(
                 found[view.design_id]["drafts"] = drafts[view.design_id]
         if fails_at_current:
             current = run_today(session, views)
-            kept = [(view, summary) for view, summary in zip(views, current, strict=True) if summary["verdict"] != "pass"]
+            pairs = zip(views, current, strict=True)
+            kept = [(view, summary) for view, summary in pairs if summary["verdict"] != "pass"]
             views = [view for view, _ in kept]
             for view, summary in kept:
                 found[view.design_id]["current"] = summary
