@@ -21,7 +21,7 @@ from calcsvc.data.tokens import create_token
 REPO = Path(__file__).resolve().parent.parent
 POSTGRES_URL = os.environ.get("CALCSVC_TEST_DATABASE_URL", "")
 BACKENDS = ["sqlite", "postgresql"] if POSTGRES_URL else ["sqlite"]
-TABLES = ("part_events", "part_revisions", "parts", "api_tokens")
+TABLES = ("design_parts", "design_revisions", "designs", "part_events", "part_revisions", "parts", "api_tokens")
 
 
 def reset_postgres(url: str) -> None:

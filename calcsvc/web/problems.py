@@ -13,6 +13,9 @@ from werkzeug.exceptions import HTTPException
 
 from calcsvc.core.outcome import DomainError
 from calcsvc.data.store_errors import (
+    DesignExists,
+    DesignNotFound,
+    DesignRetired,
     InvalidPart,
     InvalidPartId,
     PartExists,
@@ -242,6 +245,9 @@ _STORE_STATUS: dict[type[StoreError], tuple[int, str]] = {
     PartRetired: (409, "part-retired"),
     PartNotRetired: (409, "part-not-retired"),
     InvalidPartId: (422, "invalid-part-id"),
+    DesignNotFound: (404, "design-not-found"),
+    DesignExists: (409, "design-exists"),
+    DesignRetired: (409, "design-retired"),
 }
 
 
