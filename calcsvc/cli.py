@@ -7,7 +7,7 @@ import argparse
 import sys
 from pathlib import Path
 
-from calcsvc import cli_local, cli_remote
+from calcsvc import cli_designs, cli_local, cli_remote
 from calcsvc.client import DEFAULT_URL, CalcsvcError
 from calcsvc.config import ConfigError
 from calcsvc.data.kinds import KINDS
@@ -77,6 +77,33 @@ def build_parser() -> argparse.ArgumentParser:
     )
     load.add_argument("file", type=Path)
     load.set_defaults(run=cli_remote.parts_import)
+
+    designs = commands.add_parser("designs", help="saved designs of a running server").add_subparsers(
+        dest="designs", required=True
+    )
+    listing = designs.add_parser("list", parents=[http], help="list the active saved designs as a table")
+    listing.add_argument("--affected-by-draft", action="store_true", help="only those a pending part draft changes")
+    listing.add_argument("--json", action="store_true", help="print the designs as JSON")
+    listing.set_defaults(run=cli_designs.designs_list)
+    check = designs.add_parser(
+        "check",
+        parents=[http],
+        help="review every saved design at today's approved parts (exit 1 when any fails)",
+        description="Exit status: 0 every active saved design passes at the parts' current approved revisions, "
+        "1 some design fails or cannot be reviewed (a part retired), 2 error.",
+    )
+    check.add_argument("--json", action="store_true", help="print the failing designs as JSON")
+    check.set_defaults(run=cli_designs.designs_check)
+    load = designs.add_parser(
+        "import",
+        parents=[http],
+        help="save request files (or the .json files of a folder) as designs named after the files",
+        description="Each file holds one request body; an existing design of the same name gets a new revision. "
+        "Exit status: 0 all saved, 1 some file refused, 2 other error.",
+    )
+    load.add_argument("files", type=Path, nargs="+")
+    load.add_argument("--calculation", default="channel", help="channel (default) or a calculation's name")
+    load.set_defaults(run=cli_designs.designs_import)
 
     calc = commands.add_parser(
         "calc",

@@ -96,7 +96,8 @@ def db_upgrade(_args: argparse.Namespace) -> int:
 
 def db_seed(args: argparse.Namespace) -> int:
     from calcsvc.data.database import Database
-    from calcsvc.data.seed import load_seed
+    from calcsvc.data.seed import SEED_AUTHOR, load_seed
+    from calcsvc.service.designs import DEMO_DESIGN_ID, seed_demo_design
 
     url, seed_dir = _app_database()
     database = Database(url)
@@ -106,6 +107,8 @@ def db_seed(args: argparse.Namespace) -> int:
             return 0
         added = load_seed(session, Path(seed_dir))
     print(f"seeded {added} new part(s) from {seed_dir}")
+    if seed_demo_design(database, SEED_AUTHOR):
+        print(f"saved the demo channel as the design '{DEMO_DESIGN_ID}'")
     return 0
 
 

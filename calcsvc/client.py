@@ -277,6 +277,39 @@ class Client:
         """Every revision of the part, oldest first, with parameters, author and approval."""
         return self._json("GET", f"{_part_path(part_id)}/revisions", idempotent=True)["revisions"]
 
+    # --- saved designs -------------------------------------------------------------------------------------
+
+    def list_designs(self, fails_at_current: bool = False, affected_by_draft: bool = False) -> list[dict[str, Any]]:
+        """Every active saved design, or only those the watch-list filters keep (each with what they found)."""
+        found: list[dict[str, Any]] = []
+        params: dict[str, Any] = {"status": "active", "limit": 500}
+        params |= {"fails_at_current": "true"} if fails_at_current else {}
+        params |= {"affected_by_draft": "true"} if affected_by_draft else {}
+        while True:
+            page = self._json("GET", "/v1/designs", idempotent=True, params={**params, "offset": len(found)})
+            found += page["items"]
+            if not page["items"] or len(found) >= page["total"]:
+                return found
+
+    def save_design(
+        self, design_id: str, request: dict[str, Any], calculation: str = "channel", description: str = ""
+    ) -> tuple[dict[str, Any], str]:
+        """Save a new design, or a new revision of an active one of that id; the design and its ETag."""
+        body = {"calculation": calculation, "description": description, "request": request}
+        path = f"/v1/designs/{quote(design_id, safe='')}"
+        try:
+            return self._part("POST", "/v1/designs", idempotent=False, json={"design_id": design_id, **body})
+        except CalcsvcError as exc:
+            if exc.status != 409:
+                raise
+        etag = self.request("GET", path, idempotent=True).headers.get("ETag", "")
+        return self._part("PUT", path, idempotent=False, json=body, headers={"If-Match": etag})
+
+    def part_impact(self, part_id: str, revision: int | None = None) -> dict[str, Any]:
+        """What a revision of a part (default: its current one) would do to the saved designs that use it."""
+        tail = "/impact" if revision is None else f"/revisions/{revision}/impact"
+        return self._json("GET", _part_path(part_id) + tail, idempotent=True)  # type: ignore[no-any-return]
+
 
 def _part_path(part_id: str) -> str:
     return f"/v1/parts/{quote(part_id, safe='')}"

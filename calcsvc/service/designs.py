@@ -13,8 +13,10 @@ from sqlalchemy.orm import Session
 from calcsvc.core.registry import CALCULATIONS
 from calcsvc.data.database import Database
 from calcsvc.data.design_store import DesignContent, DesignStore, DesignView
+from calcsvc.data.models import Design
 from calcsvc.data.part_lookup import latest_approved
 from calcsvc.service.calculate import run_calculation
+from calcsvc.service.demo import demo_channel, demo_si
 from calcsvc.service.design_batch import CHANNEL, Request, pinned, review_many
 from calcsvc.service.design_outcome import changes, check_changes, document_summary, refused
 from calcsvc.service.errors import ServiceError
@@ -146,3 +148,16 @@ def rereview(database: Database, design_id: str, revision: int | None = None) ->
         "changes": differ,
         "check_changes": check_changes(at_pins, current),
     }
+
+
+DEMO_DESIGN_ID = "greenhouse-demo"
+
+
+def seed_demo_design(database: Database, author: str) -> bool:
+    """Save the greenhouse demo channel as a design unless one of its id exists (a user's edits win)."""
+    with database.transaction() as session:
+        if session.get(Design, DEMO_DESIGN_ID) is not None:
+            return False
+    description = "the greenhouse grow-light demo channel: six channels of two strings of three red LEDs"
+    save(database, DesignDraft(DEMO_DESIGN_ID, CHANNEL, author, description, demo_channel(), demo_si()), author)
+    return True

@@ -20,11 +20,11 @@ from calcsvc.web.designs_schemas import (
     DesignListSchema,
     DesignQuerySchema,
     DesignRevisionsSchema,
-    SavedDesignSchema,
     DesignWriteSchema,
     ImpactSchema,
     RereviewQuerySchema,
     RereviewSchema,
+    SavedDesignSchema,
     read_request,
 )
 from calcsvc.web.parts_api import IfMatchSchema, expected_revision
