@@ -153,6 +153,8 @@ class DesignStore:
         """Save a new design as revision 1."""
         if not is_part_id(design_id):
             raise InvalidPartId(f"{design_id[:80]!r} is not a valid design_id: {ID_RULE}", "design_id")
+        if self.session.get(Design, design_id) is not None:
+            raise DesignExists(f"a design '{design_id}' already exists", "design_id")
         now = _now()
         self.session.add(
             Design(
@@ -168,7 +170,7 @@ class DesignStore:
         )
         try:
             self.session.flush()
-        except IntegrityError as exc:
+        except IntegrityError as exc:  # saved by someone else in the meantime
             raise DesignExists(f"a design '{design_id}' already exists", "design_id") from exc
         self._write_revision(design_id, 1, content, author, now)
         return self.get(design_id)

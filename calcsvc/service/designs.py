@@ -10,6 +10,7 @@ from typing import Any
 
 from sqlalchemy.orm import Session
 
+from calcsvc.core.outcome import DomainError
 from calcsvc.core.registry import CALCULATIONS
 from calcsvc.data.database import Database
 from calcsvc.data.design_store import DesignContent, DesignStore, DesignView
@@ -19,7 +20,7 @@ from calcsvc.service.calculate import run_calculation
 from calcsvc.service.demo import demo_channel, demo_si
 from calcsvc.service.design_batch import CHANNEL, Request, pinned, review_many
 from calcsvc.service.design_outcome import changes, check_changes, document_summary, refused
-from calcsvc.service.errors import ServiceError
+from calcsvc.service.errors import PhysicallyImpossible, ServiceError
 from calcsvc.service.review import run_review
 
 CALCULATION_NAMES = (CHANNEL, *CALCULATIONS)  # what a design may hold: the channel review or one calculation
@@ -122,6 +123,9 @@ def run_today(
 def _full(database: Database, calculation: str, body: Mapping[str, Any]) -> dict[str, Any]:
     try:
         return document_summary(run_request(database, calculation, body))
+    except DomainError as exc:
+        impossible = PhysicallyImpossible.of(exc.violations)
+        return refused(impossible.detail, impossible.errors)
     except ServiceError as exc:
         return refused(exc.detail, exc.errors)
 

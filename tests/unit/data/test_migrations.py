@@ -7,13 +7,16 @@ import os
 from collections.abc import Iterator
 from datetime import UTC, datetime
 from pathlib import Path
+from typing import Any
 
 import pytest
 from alembic import command
 from alembic.script import ScriptDirectory
 from sqlalchemy import create_engine, text
+from sqlalchemy import inspect as sa_inspect
 
 from calcsvc.data.database import Database, alembic_config
+from calcsvc.data.design_store import DesignContent, DesignStore
 from calcsvc.data.store import PartStore
 
 PARTS = {
@@ -135,3 +138,50 @@ def test_upgrade_from_the_first_migration_keeps_every_part(empty_url: str) -> No
             if part_id != "npn-spare":  # its revision 2, the restore, was written after the upgrade
                 assert kept == PARTS[part_id][1][number - 1]
     database.dispose()
+
+
+def test_saved_designs_tables_come_and_go_keeping_every_part(empty_url: str) -> None:
+    config = alembic_config(empty_url)
+    command.upgrade(config, "0003")
+    database = Database(empty_url)
+    with database.transaction() as session:
+        store = PartStore(session)
+        store.create("led-amber-3mm", "led", "", AMBER, "edna", approve=True)
+        store.update("led-amber-3mm", 1, "", {**AMBER, "vf_typ_v": 2.05}, "edna")
+    database.dispose()
+    before = _dump(empty_url)
+
+    command.upgrade(config, "head")
+    assert _dump(empty_url) == before
+    database = Database(empty_url)
+    content = DesignContent("channel", "edna", "", {"led": "led-amber-3mm"}, {"led": "led-amber-3mm"},
+                            [{"role": "led", "part_id": "led-amber-3mm", "revision": 2, "status": "draft"}],
+                            {"verdict": "pass"})  # fmt: skip
+    with database.transaction() as session:
+        DesignStore(session).create("bench-lamp", content, "edna")
+        assert DesignStore(session).using_part("led-amber-3mm") == ["bench-lamp"]
+    database.dispose()
+    assert _dump(empty_url) == before
+
+    command.downgrade(config, "0003")  # the design tables go; every part, revision and event stays
+    assert _dump(empty_url) == before
+    engine = create_engine(empty_url)
+    with engine.connect() as connection:
+        tables = set(sa_inspect(connection).get_table_names())
+    engine.dispose()
+    assert not tables & {"designs", "design_revisions", "design_parts"}
+
+
+AMBER = {"color": "amber", "vf_typ_v": 2.1, "vf_min_v": 1.9, "vf_max_v": 2.5, "if_test_a": 0.02, "if_max_a": 0.03}
+
+
+def _dump(url: str) -> list[list[Any]]:
+    """Every row of the parts tables, in a stable order, as plain values."""
+    engine = create_engine(url)
+    with engine.connect() as connection:
+        found = [
+            [tuple(str(v) for v in row) for row in connection.execute(text(f"SELECT * FROM {table} ORDER BY 1, 2"))]
+            for table in ("parts", "part_revisions", "part_events")
+        ]
+    engine.dispose()
+    return found
