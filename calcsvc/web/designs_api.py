@@ -27,8 +27,8 @@ from calcsvc.web.designs_schemas import (
     SavedDesignSchema,
     read_request,
 )
-from calcsvc.web.parts_api import IfMatchSchema, expected_revision
 from calcsvc.web.problems import Problem, error_response
+from calcsvc.web.revisioned import IfMatchSchema, expected_revision
 
 blp = Blueprint("designs", __name__, url_prefix="/v1/designs", description="Saved designs and their re-review")
 impact_blp = Blueprint("impact", __name__, url_prefix="/v1/parts", description="What a part edit does to designs")

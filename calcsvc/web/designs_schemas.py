@@ -12,9 +12,9 @@ from calcsvc.data.kinds import MAX_DESCRIPTION_LENGTH
 from calcsvc.service.designs import CALCULATION_NAMES
 from calcsvc.service.parts import NO_NUL, part_id_field
 from calcsvc.web.calc_schemas import PartUsedSchema, request_schema
-from calcsvc.web.parts_api import UtcDateTime
 from calcsvc.web.problems import Problem
 from calcsvc.web.review_schemas import REVIEW_REQUEST
+from calcsvc.web.revisioned import UtcDateTime
 
 # The body each kind of design holds is the body of its own endpoint, read by that endpoint's schema.
 REQUESTS: dict[str, Schema] = {"channel": REVIEW_REQUEST} | {

@@ -2,9 +2,7 @@
 
 from __future__ import annotations
 
-import re
 from dataclasses import asdict
-from datetime import UTC, datetime
 from typing import Any
 
 from flask import g, request, url_for
@@ -17,7 +15,6 @@ from calcsvc.data.kinds import KINDS, MAX_DESCRIPTION_LENGTH
 from calcsvc.data.part_history import ACTIONS
 from calcsvc.data.store import STATUSES, PartStore, PartView
 from calcsvc.service.parts import (
-    MAX_REVISION,
     NO_NUL,
     ParametersField,
     PartCreateSchema,
@@ -26,19 +23,9 @@ from calcsvc.service.parts import (
 from calcsvc.web.auth import database, reads, requires
 from calcsvc.web.metrics import record_parts_write
 from calcsvc.web.problems import Problem, error_response
+from calcsvc.web.revisioned import IfMatchSchema, UtcDateTime, expected_revision
 
 blp = Blueprint("parts", __name__, url_prefix="/v1/parts", description="The shared parts table")
-
-_ETAG = re.compile(r'(?:W/)?"(?P<part>[a-z0-9-]+)-r(?P<revision>[0-9]{1,10})"')  # used with fullmatch
-
-
-class UtcDateTime(fields.DateTime):
-    """The store writes UTC; SQLite returns it without the zone, which RFC 3339 date-time requires."""
-
-    def _serialize(self, value: datetime | None, attr: str | None, obj: Any, **kwargs: Any) -> str | None:
-        if value is not None and value.tzinfo is None:
-            value = value.replace(tzinfo=UTC)
-        return super()._serialize(value, attr, obj, **kwargs)
 
 
 class PartUpdateSchema(Schema):
@@ -106,28 +93,8 @@ class RevisionListSchema(Schema):
     revisions = fields.List(fields.Nested(RevisionSchema), required=True)
 
 
-class IfMatchSchema(Schema):
-    if_match = fields.String(data_key="If-Match", metadata={"description": "the ETag of the revision you read"})
-
-
 def part_response(view: PartView, status: int = 200) -> tuple[dict[str, Any], int, dict[str, str]]:
     return asdict(view), status, {"ETag": view.etag}
-
-
-def expected_revision(part_id: str) -> int:
-    """The revision the request's If-Match names: 428 without one, 412 when it names no revision of the part."""
-    header = request.headers.get("If-Match")
-    if header is None:
-        raise Problem(
-            428,
-            "send If-Match with the ETag of the revision you read, so you act on what you saw",
-            "if-match-missing",
-            {"If-Match": ["required"]},
-        )
-    match = _ETAG.fullmatch(header.strip())
-    if match is None or match["part"] != part_id or int(match["revision"]) > MAX_REVISION:
-        raise Problem(412, f"If-Match {header!r} does not name a revision of '{part_id}'", "stale-revision")
-    return int(match["revision"])
 
 
 @blp.before_request
