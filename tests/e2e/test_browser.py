@@ -173,3 +173,42 @@ def test_narrow_screen(browser: Any, served: tuple[str, dict[str, str]], tmp_pat
         shot(page, tmp_path, "6-narrow")
     finally:
         context.close()
+
+
+def test_a_draft_shows_its_impact_on_saved_designs_before_approval(
+    tab: Any, served: tuple[str, dict[str, str]], tmp_path: Path
+) -> None:
+    base, tokens = served
+    saved = requests.post(
+        f"{base}/v1/designs",
+        json={"design_id": "greenhouse-bench", "request": DEMO_CHANNEL},
+        headers=bearer(tokens["edna"]),
+        timeout=30,
+    )
+    assert saved.status_code == 201, saved.text
+    # A reel of the demo's red LEDs binned higher (invented, class-typical values): 2.6 to 3.4 V.
+    led = requests.get(f"{base}/v1/parts/led-red-5mm", timeout=5)
+    higher = {**led.json()["parameters"], "vf_typ_v": 2.9, "vf_min_v": 2.6, "vf_max_v": 3.4}
+    edited = requests.put(
+        f"{base}/v1/parts/led-red-5mm",
+        json={"parameters": higher},
+        headers={**bearer(tokens["edna"]), "If-Match": led.headers["ETag"]},
+        timeout=5,
+    )
+    assert edited.status_code == 200, edited.text
+    revision = edited.json()["revision"]
+
+    tab.goto(f"{base}/review/parts/led-red-5mm")
+    approval = tab.locator("section.approval").inner_text()
+    summary = f"Approving revision {revision} of led-red-5mm turns 1 saved design from pass to fail"
+    assert approval.index(summary) < approval.index(f"Approve revision {revision}")  # read before the button
+    design = tab.locator("#impact-greenhouse-bench").inner_text().replace("\N{NO-BREAK SPACE}", " ")
+    assert "pass → fail" in design and "headroom: 3.65 V → 950 mV" in design and "fails" in design
+    shot(tab, tmp_path, "impact-draft")
+
+    tab.get_by_label("Reviewer token").fill(tokens["rita"])
+    tab.get_by_role("button", name=f"Approve revision {revision}").click()
+    tab.wait_for_url(f"**/review/parts/led-red-5mm?approved={revision}")
+    assert tab.locator("#design-impact").count() == 0  # approved: nothing pending to weigh
+    failing = requests.get(f"{base}/v1/designs?fails_at_current=true", timeout=30).json()
+    assert [d["design_id"] for d in failing["items"]] == ["greenhouse-bench"]
