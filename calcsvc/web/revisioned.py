@@ -30,7 +30,7 @@ class IfMatchSchema(Schema):
 
 
 def expected_revision(resource_id: str) -> int:
-    """The revision the request's If-Match names: 428 without one, 412 when it names no revision of the part or design."""
+    """The revision the request's If-Match names: 428 without one, 412 when it names no revision of the resource."""
     header = request.headers.get("If-Match")
     if header is None:
         raise Problem(
