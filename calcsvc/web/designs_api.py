@@ -8,6 +8,7 @@ from typing import Any
 from flask import g, request, url_for
 from flask.views import MethodView
 from flask_smorest import Blueprint
+from marshmallow import RAISE
 
 from calcsvc.data import part_ids
 from calcsvc.data.design_store import DesignStore, DesignView
@@ -75,7 +76,7 @@ def _draft(design_id: str, body: dict[str, Any]) -> DesignDraft:
 @blp.route("")
 class Designs(MethodView):
     @reads
-    @blp.arguments(DesignQuerySchema, location="query")
+    @blp.arguments(DesignQuerySchema, location="query", unknown=RAISE)  # a misspelt filter is refused
     @blp.response(200, DesignListSchema)
     def get(self, query: dict[str, Any]) -> dict[str, Any]:
         """List saved designs in pages; the watch-list filters keep those failing at today's approved parts
@@ -142,6 +143,7 @@ class Design(MethodView):
     @error_response(blp, 404, "no such design")
     @error_response(blp, 412, "the design changed since the ETag was read")
     @error_response(blp, 428, "If-Match is missing")
+    @error_response(blp, 415, "a body was sent, and not as JSON (retiring takes none)")
     def delete(self, _headers: dict[str, Any], design_id: str) -> tuple[dict[str, Any], int, dict[str, str]]:
         """Retire the design (editor; If-Match): off the watch list and the impact lists, its revisions kept."""
         expected = expected_revision(design_id)
@@ -165,7 +167,7 @@ class DesignRevisions(MethodView):
 @blp.route("/<string:design_id>/review")
 class DesignReview(MethodView):
     @reads
-    @blp.arguments(RereviewQuerySchema, location="query")
+    @blp.arguments(RereviewQuerySchema, location="query", unknown=RAISE)
     @blp.response(200, RereviewSchema)
     @error_response(blp, 404, "no such design or revision")
     def get(self, query: dict[str, Any], design_id: str) -> dict[str, Any]:

@@ -101,6 +101,8 @@ def is_batch(operation: str) -> bool:
 def role_for(operation: str) -> str | None:
     if operation.startswith(("POST /v1/parts", "PUT /v1/parts", "DELETE /v1/parts")):
         return "reviewer" if operation.endswith("/approve") else "editor"
+    if operation.startswith(("POST /v1/designs", "PUT /v1/designs", "DELETE /v1/designs")):
+        return "editor"
     return None
 
 
@@ -341,7 +343,7 @@ def parts_cases() -> list[Case]:
                          ("status=%00", "status"), ("stauts=draft", "stauts")]:  # fmt: skip
         cases.append(Case("GET /v1/parts", query[:20], (422,), query=query, field=field))
     for operation in OPERATIONS:
-        if "{part_id}" in operation:
+        if "{part_id}" in operation or "{design_id}" in operation:
             role = role_for(operation)
             for why, part_id in ODD_IDS.items():
                 body = b"{}" if operation.startswith(("POST", "PUT")) else None
@@ -538,6 +540,7 @@ def send(case: Case, target: dict[str, Any]) -> Any:
     app: Flask = target["small"] if case.small_limit else target["app"]
     client = app.test_client()
     method, path = case.operation.split(" ", 1)
+    path = path.replace("{design_id}", case.part_id).replace("{revision}", "1")  # a design's id has the same rule
     url = path.replace("{part_id}", case.part_id) + (f"?{case.query}" if case.query else "")
     headers = bearer(target["tokens"][case.role]) if case.role else {}
     if case.if_match == "current":
