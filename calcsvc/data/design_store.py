@@ -65,6 +65,15 @@ def _view(row: DesignRevision, status: str) -> DesignView:
     return DesignView(row.design_id, row.revision, status, content, row.author, row.created_at)
 
 
+_LIGHT = ("design_id", "revision", "calculation", "owner", "description", "inputs", "parts", "author", "created_at")
+
+
+def _light_view(row: Any) -> DesignView:
+    """A revision read without the request as given and the saved review (both left empty)."""
+    content = DesignContent(row.calculation, row.owner, row.description, {}, dict(row.inputs), list(row.parts), {})
+    return DesignView(row.design_id, row.revision, row.status, content, row.author, row.created_at)
+
+
 class DesignStore:
     def __init__(self, session: Session) -> None:
         self.session = session
@@ -98,11 +107,14 @@ class DesignStore:
         design_ids: Collection[str] | None = None,
         offset: int = 0,
         limit: int | None = 50,
+        as_saved: bool = True,
     ) -> tuple[list[DesignView], int]:
-        """Current revisions by design_id, optionally of one status and among ``design_ids``; no limit: all."""
-        query = select(DesignRevision, Design.status).join(
-            Design, (Design.design_id == DesignRevision.design_id) & (Design.revision == DesignRevision.revision)
-        )
+        """Current revisions by design_id, optionally of one status and among ``design_ids``; no limit: all.
+        ``as_saved=False`` reads what re-reviewing needs (inputs and parts), leaving the request as given and
+        the saved review empty: thousands of designs are read in a fraction of the time."""
+        joined = (Design.design_id == DesignRevision.design_id) & (Design.revision == DesignRevision.revision)
+        columns = [DesignRevision] if as_saved else [getattr(DesignRevision, name) for name in _LIGHT]
+        query = select(*columns, Design.status).join(Design, joined)
         if status:
             query = query.where(Design.status == status)
         if design_ids is not None:
@@ -111,7 +123,9 @@ class DesignStore:
         query = query.order_by(Design.design_id).offset(offset)
         if limit is not None:
             query = query.limit(limit)
-        return [_view(row, status) for row, status in self.session.execute(query)], total
+        if as_saved:
+            return [_view(row, status) for row, status in self.session.execute(query)], total
+        return [_light_view(row) for row in self.session.execute(query)], total
 
     def using_part(self, part_id: str) -> list[str]:
         """The active designs whose current revision uses ``part_id`` in some role, by design_id."""

@@ -26,7 +26,8 @@ def complete(calc: InputSet, values: dict[str, Any]) -> dict[str, Any]:
     if missing:
         raise InvalidInput("missing inputs: " + ", ".join(missing), missing)
     filled = {spec.name: spec.default for spec in calc.inputs if spec.default is not None}
-    filled.update({k: v for k, v in values.items() if k in {spec.name for spec in calc.inputs}})
+    names = {spec.name for spec in calc.inputs}
+    filled.update({k: v for k, v in values.items() if k in names})
     for spec in calc.inputs:
         if spec.integer and spec.name in filled:
             filled[spec.name] = int(filled[spec.name])

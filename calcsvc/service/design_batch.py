@@ -9,11 +9,11 @@ and changes none of them). A design the core refuses is refused alone, with the 
 
 from __future__ import annotations
 
-import math
 from collections.abc import Mapping
 from dataclasses import dataclass
 from typing import Any
 
+import numpy as np
 from sqlalchemy.orm import Session
 
 from calcsvc.core import channel, tolerance
@@ -63,9 +63,34 @@ def _resolved(request: Request, resolver: PartResolver) -> tuple[dict[str, Any],
     return complete(form, found.values), found.parts
 
 
+def _rows_of_checks(names: list[str], applies: list[Any], numbers: list[tuple[Any, Any, Any, Any]]) -> list[Any]:
+    """Per row, the checks that apply there, each with its (ok, value, limit, margin): arrays in, rows out."""
+    columns = [
+        (name, a.tolist(), ok.tolist(), to_json_value(value), to_json_value(limit), to_json_value(margin))
+        for name, a, (ok, value, limit, margin) in zip(names, applies, numbers, strict=True)
+    ]
+    count = len(columns[0][1]) if columns else 0
+    return [
+        [
+            check_entry(name, ok[k], value[k], limit[k], margin[k])
+            for name, a, ok, value, limit, margin in columns
+            if a[k]
+        ]
+        for k in range(count)
+    ]
+
+
 def _channel_summaries(rows: list[dict[str, Any]]) -> list[dict[str, Any]]:
     inputs = channel_rows(rows)
     accepted, worst = on_accepted(inputs, tolerance.worst_case)
+    checked: list[list[dict[str, Any]]] = []
+    if worst is not None:
+        # A check applies where its nominal limit is known; its numbers are those at its worst corner.
+        checked = _rows_of_checks(
+            [w.name for w in worst.checks],
+            [~np.isnan(n.limit) for n in worst.nominal.checks],
+            [(w.check.ok, w.check.value, w.check.limit, w.margin()) for w in worst.checks],
+        )
     found: list[dict[str, Any]] = []
     k = 0
     for row in range(len(rows)):
@@ -73,18 +98,7 @@ def _channel_summaries(rows: list[dict[str, Any]]) -> list[dict[str, Any]]:
             problem = problem_of(inputs, channel.validate, row)
             found.append(refused("the channel is physically impossible with these parts", problem))
             continue
-        entries = [
-            check_entry(
-                nominal.name,
-                bool(wc.check.ok[k]),
-                to_json_value(float(wc.check.value[k])),
-                to_json_value(float(wc.check.limit[k])),
-                to_json_value(float(wc.margin()[k])),
-            )
-            for nominal, wc in zip(worst.nominal.checks, worst.checks, strict=True)
-            if not math.isnan(float(nominal.limit[k]))  # no limit: the check does not apply to this design
-        ]
-        found.append(summary(entries))
+        found.append(summary(checked[k]))
         k += 1
     return found
 
@@ -93,24 +107,20 @@ def _calculation_summaries(name: str, rows: list[dict[str, Any]]) -> list[dict[s
     calc = CALCULATIONS[name]
     inputs = calc.make_inputs(columns_of(calc, rows))
     accepted, outcome = on_accepted(inputs, calc.compute)
+    checked: list[list[dict[str, Any]]] = []
+    if outcome is not None:
+        checked = _rows_of_checks(
+            [c.name for c in outcome.checks],
+            [~np.isnan(c.limit) for c in outcome.checks],
+            [(c.ok, c.value, c.limit, c.margin()) for c in outcome.checks],
+        )
     found: list[dict[str, Any]] = []
     k = 0
     for row in range(len(rows)):
         if not accepted[row] or outcome is None:
             found.append(refused("physically impossible with these parts", problem_of(inputs, calc.validate, row)))
             continue
-        entries = [
-            check_entry(
-                c.name,
-                bool(c.ok[k]),
-                to_json_value(float(c.value[k])),
-                float(c.limit[k]),
-                to_json_value(float(c.margin()[k])),
-            )
-            for c in outcome.checks
-            if not math.isnan(float(c.limit[k]))
-        ]
-        found.append(summary(entries))
+        found.append(summary(checked[k]))
         k += 1
     return found
 

@@ -24,9 +24,9 @@ def checks_of(document: Mapping[str, Any]) -> list[dict[str, Any]]:
     return entries
 
 
-def summary(checks: Iterable[Mapping[str, Any]], fingerprint: str | None = None) -> dict[str, Any]:
+def summary(checks: Iterable[dict[str, Any]], fingerprint: str | None = None) -> dict[str, Any]:
     """The verdict (pass: every applicable check passes), the failing checks and the tightest margin."""
-    listed = [dict(c) for c in checks]
+    listed = list(checks)
     rated = [c for c in listed if isinstance(c["margin"], int | float) and math.isfinite(c["margin"])]
     tightest = min(rated, key=lambda c: c["margin"], default=None)
     return {
@@ -42,6 +42,11 @@ def summary(checks: Iterable[Mapping[str, Any]], fingerprint: str | None = None)
 def document_summary(document: Mapping[str, Any]) -> dict[str, Any]:
     """The summary of a full review or calculation answer, with its parts and fingerprint."""
     return {**summary(checks_of(document), document.get("fingerprint")), "parts": list(document.get("parts", []))}
+
+
+def outline(found: Mapping[str, Any]) -> dict[str, Any]:
+    """A summary without its list of checks (an impact lists the checks that change apart)."""
+    return {key: value for key, value in found.items() if key != "checks"}
 
 
 def refused(detail: str, errors: Mapping[str, list[str]] | None = None) -> dict[str, Any]:

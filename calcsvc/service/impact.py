@@ -14,7 +14,7 @@ from calcsvc.data.database import Database
 from calcsvc.data.design_store import DesignStore, DesignView
 from calcsvc.data.models import DesignPart, Part
 from calcsvc.data.store import PartStore
-from calcsvc.service.design_outcome import changes, check_changes
+from calcsvc.service.design_outcome import changes, check_changes, outline
 from calcsvc.service.designs import run_planned, today_requests
 
 _ORDER = {("pass", "fail"): 0, ("pass", "error"): 0, ("fail", "pass"): 1, ("error", "pass"): 1}
@@ -30,8 +30,8 @@ def _entry(view: DesignView, before: dict[str, Any], after: dict[str, Any]) -> d
         "revision": view.revision,
         "owner": view.content.owner,
         "description": view.content.description,
-        "before": before,
-        "after": after,
+        "before": outline(before),
+        "after": outline(after),
         "changes": changes(before, after),
         "check_changes": check_changes(before, after),
     }
@@ -71,7 +71,7 @@ def part_impact(database: Database, part_id: str, revision: int | None = None) -
         parts = PartStore(session)
         target = parts.get(part_id) if revision is None else parts.get_revision(part_id, revision)
         store = DesignStore(session)
-        views, _ = store.list("active", store.using_part(part_id), limit=None)
+        views, _ = store.list("active", store.using_part(part_id), limit=None, as_saved=False)
         entries = impacts(session, views, {part_id: target.revision})
     return {
         "part_id": part_id,
@@ -94,7 +94,7 @@ def draft_impacts(session: Session) -> dict[str, list[dict[str, Any]]]:
     store = DesignStore(session)
     found: dict[str, list[dict[str, Any]]] = {}
     for part_id, revision in drafted:
-        views, _ = store.list("active", store.using_part(part_id), limit=None)
+        views, _ = store.list("active", store.using_part(part_id), limit=None, as_saved=False)
         for entry in impacts(session, views, {part_id: revision}):
             if entry["changes"]:
                 change = {"part_id": part_id, "part_revision": revision, **entry}
