@@ -23,7 +23,7 @@ from calcsvc.core.spec import InputSet
 from calcsvc.data.part_lookup import revisions_of
 from calcsvc.service.calculate import columns_of, complete
 from calcsvc.service.design_outcome import check_entry, refused, summary
-from calcsvc.service.envelope import fingerprint, to_json_value
+from calcsvc.service.envelope import fingerprint, row_notices, to_json_value
 from calcsvc.service.errors import ServiceError
 from calcsvc.service.resolve import PartResolver, resolve
 from calcsvc.service.review import channel_rows, without_band
@@ -98,7 +98,7 @@ def _channel_summaries(rows: list[dict[str, Any]]) -> list[dict[str, Any]]:
             problem = problem_of(inputs, channel.validate, row)
             found.append(refused("the channel is physically impossible with these parts", problem))
             continue
-        found.append(summary(checked[k]))
+        found.append(summary(checked[k], row_notices(worst.nominal.cautions, k)))
         k += 1
     return found
 
@@ -120,7 +120,7 @@ def _calculation_summaries(name: str, rows: list[dict[str, Any]]) -> list[dict[s
         if not accepted[row] or outcome is None:
             found.append(refused("physically impossible with these parts", problem_of(inputs, calc.validate, row)))
             continue
-        found.append(summary(checked[k]))
+        found.append(summary(checked[k], row_notices(outcome.cautions, k)))
         k += 1
     return found
 

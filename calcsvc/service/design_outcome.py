@@ -24,8 +24,9 @@ def checks_of(document: Mapping[str, Any]) -> list[dict[str, Any]]:
     return entries
 
 
-def summary(checks: Iterable[dict[str, Any]], fingerprint: str | None = None) -> dict[str, Any]:
-    """The verdict (pass: every applicable check passes), the failing checks and the tightest margin."""
+def summary(checks: Iterable[dict[str, Any]], cautions: list[str], fingerprint: str | None = None) -> dict[str, Any]:
+    """The verdict (pass: every applicable check passes), the failing checks and the tightest margin, with the
+    review's cautions (what could hurt someone or something) carried as they are."""
     listed = list(checks)
     rated = [c for c in listed if isinstance(c["margin"], int | float) and math.isfinite(c["margin"])]
     tightest = min(rated, key=lambda c: c["margin"], default=None)
@@ -35,13 +36,15 @@ def summary(checks: Iterable[dict[str, Any]], fingerprint: str | None = None) ->
         "tightest_check": None if tightest is None else tightest["name"],
         "tightest_margin": None if tightest is None else tightest["margin"],
         "checks": listed,
+        "cautions": cautions,
         "fingerprint": fingerprint,
     }
 
 
 def document_summary(document: Mapping[str, Any]) -> dict[str, Any]:
     """The summary of a full review or calculation answer, with its parts and fingerprint."""
-    return {**summary(checks_of(document), document.get("fingerprint")), "parts": list(document.get("parts", []))}
+    found = summary(checks_of(document), list(document.get("cautions", [])), document.get("fingerprint"))
+    return {**found, "parts": list(document.get("parts", []))}
 
 
 def outline(found: Mapping[str, Any]) -> dict[str, Any]:
@@ -57,6 +60,7 @@ def refused(detail: str, errors: Mapping[str, list[str]] | None = None) -> dict[
         "tightest_check": None,
         "tightest_margin": None,
         "checks": [],
+        "cautions": [],
         "fingerprint": None,
         "problem": {"detail": detail, "errors": dict(errors or {})},
     }

@@ -67,10 +67,9 @@ def design_data(view: DesignView, extra: dict[str, Any] | None = None) -> dict[s
 
 
 def _draft(design_id: str, body: dict[str, Any]) -> DesignDraft:
-    given = (request.get_json(silent=True) or {}).get("request", body["request"])
     inputs = read_request(body["calculation"], body["request"])
     owner = body["owner"] or g.identity.name
-    return DesignDraft(design_id, body["calculation"], owner, body["description"], given, inputs)
+    return DesignDraft(design_id, body["calculation"], owner, body["description"], body["request"], inputs)
 
 
 @blp.route("")

@@ -43,6 +43,7 @@ def _single(database: Database, calculation: str, body: dict[str, Any]) -> dict[
 def test_the_batched_pass_agrees_with_each_full_review(database: Database) -> None:
     singles = [_single(database, calculation, body) for calculation, body in DESIGNS]
     assert {s["verdict"] for s in singles if s} == {"pass", "fail"} and None in singles  # every outcome is covered
+    assert any(s and s["cautions"] for s in singles)  # the over-voltage op-amp's caution is carried too
     requests = []
     for (calculation, body), single in zip(DESIGNS, singles, strict=True):
         pins = {p["role"]: p["revision"] for p in single["parts"]} if single else {}
@@ -53,7 +54,7 @@ def test_the_batched_pass_agrees_with_each_full_review(database: Database) -> No
         if single is None:
             assert batch["verdict"] == "error" and batch["problem"]["errors"]
             continue
-        for key in ("verdict", "failing", "tightest_check", "fingerprint", "parts"):
+        for key in ("verdict", "failing", "tightest_check", "fingerprint", "parts", "cautions"):
             assert batch[key] == single[key], key
         assert batch["tightest_margin"] == pytest.approx(single["tightest_margin"], rel=1e-12)
         assert [(c["name"], c["ok"]) for c in batch["checks"]] == [(c["name"], c["ok"]) for c in single["checks"]]
