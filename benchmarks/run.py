@@ -324,9 +324,10 @@ def sweep_loop(inputs: closed_loop.ClosedLoopInputs) -> list[tuple[float, float,
     return out
 
 
-def channel() -> ChannelInputs:
+def channel(ambient_c: float = 25.0, ambient_min_c: float = math.nan, ambient_max_c: float = math.nan) -> ChannelInputs:
     """One greenhouse channel (see SINGLE_BODY) with the seed parts' values and no front stage, pushed to 27 mA
-    per string: some builds then exceed the LEDs' rating, so the failing samples' path is timed too."""
+    per string: some builds then exceed the LEDs' rating, so the failing samples' path is timed too. The ambient
+    as given (default: a fixed 25 °C)."""
 
     def one(x: float) -> np.ndarray:
         return np.array([x])
@@ -343,6 +344,11 @@ def channel() -> ChannelInputs:
         vceo_max_v=one(40.0), rbe_ohm=nan, drive_supply_v=one(3.3), resistor_tolerance=nan, inverting=np.array([False]),
         gain=nan, gbw_hz=nan, open_loop_gain=nan, slew_rate_v_per_s=nan, output_headroom_v=nan, signal_hz=nan,
         amplitude_v=nan, opamp_supply_min_v=nan, opamp_supply_max_v=nan, input_offset_v=nan, output_offset_max_v=nan,
+        ambient_c=one(ambient_c), ambient_min_c=one(ambient_min_c), ambient_max_c=one(ambient_max_c),
+        tj_max_c=one(150.0), rth_ja_k_per_w=one(250.0), rth_jc_k_per_w=nan, heatsink_k_per_w=nan,
+        led_tj_max_c=one(100.0), led_rth_jb_k_per_w=one(200.0), led_rth_ba_k_per_w=one(150.0),
+        vf_tempco_v_per_k=one(-0.002), if_derating_knee_c=one(60.0), resistor_rated_to_c=one(70.0),
+        resistor_zero_power_c=one(155.0),
     )  # fmt: skip
 
 

@@ -12,7 +12,7 @@ from calcsvc.core import bjt_switch, closed_loop, duty_power, eseries, led_strin
 from calcsvc.core.outcome import BoolArray, FloatArray, Outcome
 
 if TYPE_CHECKING:  # ``channel`` builds on this module; the inputs type is needed for annotations only
-    from calcsvc.core.channel import ChannelInputs
+    from calcsvc.core.channel_inputs import ChannelInputs
 
 
 def resistor_tolerance(inputs: ChannelInputs) -> FloatArray:
