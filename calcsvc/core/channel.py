@@ -14,7 +14,8 @@ Chain (each step is an existing core calculation; this module only wires them to
     1. ``led_string`` with the transistor's ``vce_sat_v`` as the switch drop: string resistor, nominal and
        worst-case string current. Nominal collector current Ic = strings × nominal string current;
        worst-case Ic_max = strings × the highest string current: at the top of the supply band, the lowest
-       Vf and the lowest resistor within its tolerance.
+       Vf, the lowest resistor within its tolerance and the hottest ambient (the string's coupled
+       electro-thermal point, ``channel_thermal``: a warm string's forward voltage falls and its current rises).
     2. ``bjt_switch`` with collector current **Ic_max**: base resistor, saturation, pin current, ratings.
        The base is sized for the worst-case maximum collector current, not the nominal one: the base
        resistor's job is to guarantee saturation, and a base sized for the nominal current runs short of
@@ -223,7 +224,8 @@ def validate(inputs: ChannelInputs) -> list[Violation]:
     n = row_count(i)
     found = _Collector(n)
     found.stage(_own_violations(i))
-    found.stage(channel_thermal.validate(i))
+    heat_found = channel_thermal.validate(i)
+    found.stage(heat_found)
 
     led_in = led_inputs(i)
     drop = {"switch_drop_v": "vce_sat_v"}
@@ -236,6 +238,7 @@ def validate(inputs: ChannelInputs) -> list[Violation]:
         found.stage(extra, drop, drop, subset=led_ok)
         led_ok[led_ok] = ~_rows_of(extra, int(led_ok.sum()))
 
+    led_ok &= ~_rows_of(heat_found, n)  # the highest current needs the thermal inputs too
     # The switch and supply stages need the LED stage's currents; rows it rejects get a harmless 1 A.
     ic_nominal, ic_max = np.ones(n), np.ones(n)
     if led_ok.any():
