@@ -40,8 +40,8 @@ DETAILS = {
     "tj_max_c (common practice).",
     "led_thermal_runaway": "At tj_max_c the string's own heat must not drive its junction higher: otherwise there is "
     "no stable operating point below tj_max_c (thermal runaway).",
-    "resistor_derated_power": "The string resistor's dissipation must stay within its rating derated by the IEC 60115-1 "
-    "curve (full to 70 °C, zero at 155 °C; from memory).",
+    "resistor_derated_power": "The string resistor's dissipation must stay within its rating derated by the "
+    "IEC 60115-1 curve (full to 70 °C, zero at 155 °C; from memory).",
     "transistor_junction_temperature": "The transistor's junction (Ta + P·Rθ) must stay 20 K below its tj_max_c "
     "(common practice).",
     "transistor_derated_power": "The transistor's average dissipation must not exceed (tj_max_c − Ta)/Rθ, its rating "
@@ -61,12 +61,19 @@ def ambient_range(i: ChannelInputs) -> tuple[FloatArray, FloatArray]:
 def transistor_rth(i: ChannelInputs) -> tuple[FloatArray, FloatArray]:
     """The transistor's junction-to-ambient Rθ and the cap on its derated limit (no cap with a heat sink)."""
     sink = ~np.isnan(i.heatsink_k_per_w)
-    free_air = np.where(np.isnan(i.rth_ja_k_per_w), thermal.rth_from_rating(i.tj_max_c, i.power_max_w), i.rth_ja_k_per_w)
+    free_air = np.where(
+        np.isnan(i.rth_ja_k_per_w), thermal.rth_from_rating(i.tj_max_c, i.power_max_w), i.rth_ja_k_per_w
+    )
     return np.where(sink, i.rth_jc_k_per_w + i.heatsink_k_per_w, free_air), np.where(sink, np.inf, i.power_max_w)
 
 
 def led_point(
-    i: ChannelInputs, row: Row, supply_v: np.ndarray, string_vf_v: np.ndarray, resistor_ohm: np.ndarray, ambient_c: np.ndarray
+    i: ChannelInputs,
+    row: Row,
+    supply_v: np.ndarray,
+    string_vf_v: np.ndarray,
+    resistor_ohm: np.ndarray,
+    ambient_c: np.ndarray,
 ) -> thermal.LedPoint:
     """The strings' coupled point; ``row`` shapes a per-row input to broadcast against the other arrays."""
     return thermal.led_operating_point(
@@ -141,14 +148,24 @@ def validate(i: ChannelInputs) -> list[Violation]:
             bad = np.isinf(x) | (x <= ABSOLUTE_ZERO_C)
             require(v, bad, name, f"{name} ({first_bad(x, bad)} °C) must be a temperature above absolute zero")
         bad = i.ambient_min_c > i.ambient_c
-        require(v, bad, "ambient_min_c", f"ambient_min_c ({first_bad(i.ambient_min_c, bad)} °C) cannot exceed ambient_c")
+        require(
+            v, bad, "ambient_min_c", f"ambient_min_c ({first_bad(i.ambient_min_c, bad)} °C) cannot exceed ambient_c"
+        )
         bad = i.ambient_max_c < i.ambient_c
-        require(v, bad, "ambient_max_c", f"ambient_max_c ({first_bad(i.ambient_max_c, bad)} °C) cannot be below ambient_c")
+        require(
+            v, bad, "ambient_max_c", f"ambient_max_c ({first_bad(i.ambient_max_c, bad)} °C) cannot be below ambient_c"
+        )
         for name in ("tj_max_c", "led_tj_max_c"):
             x = getattr(i, name)
             bad = x <= thermal.REFERENCE_C
             require(v, bad, name, f"{name} ({first_bad(x, bad)} °C) must exceed 25 °C, where ratings are stated")
-        for name in ("rth_ja_k_per_w", "rth_jc_k_per_w", "heatsink_k_per_w", "led_rth_jb_k_per_w", "led_rth_ba_k_per_w"):
+        for name in (
+            "rth_ja_k_per_w",
+            "rth_jc_k_per_w",
+            "heatsink_k_per_w",
+            "led_rth_jb_k_per_w",
+            "led_rth_ba_k_per_w",
+        ):
             x = getattr(i, name)
             bad = np.isinf(x) | (x < 0)
             require(v, bad, name, f"{name} ({first_bad(x, bad)} K/W) must be a finite thermal resistance of at least 0")
@@ -162,10 +179,17 @@ def validate(i: ChannelInputs) -> list[Violation]:
         require(v, bad, "vf_tempco_v_per_k", f"vf_tempco_v_per_k ({first_bad(i.vf_tempco_v_per_k, bad)} V/K) {message}")
         bad = i.resistor_zero_power_c <= i.resistor_rated_to_c
         message = "must exceed resistor_rated_to_c"
-        require(v, bad, "resistor_zero_power_c", f"resistor_zero_power_c ({first_bad(i.resistor_zero_power_c, bad)} °C) {message}")
+        require(
+            v,
+            bad,
+            "resistor_zero_power_c",
+            f"resistor_zero_power_c ({first_bad(i.resistor_zero_power_c, bad)} °C) {message}",
+        )
         bad = i.if_derating_knee_c >= i.led_tj_max_c
         message = "must lie below led_tj_max_c"
-        require(v, bad, "if_derating_knee_c", f"if_derating_knee_c ({first_bad(i.if_derating_knee_c, bad)} °C) {message}")
+        require(
+            v, bad, "if_derating_knee_c", f"if_derating_knee_c ({first_bad(i.if_derating_knee_c, bad)} °C) {message}"
+        )
     return v
 
 
@@ -180,7 +204,7 @@ def stage(i: ChannelInputs, led: Outcome, switch: Outcome) -> Outcome:
     rating = resistor_rating(led)
     hottest = hottest_led(point)
     found = checks(i, lambda x: x, ta, hottest, point.heating_at_max_c, resistor_power, rating, transistor_power)
-    rth, cap = transistor_rth(i)
+    rth, _ = transistor_rth(i)
     results = {
         "ambient_c": ta,
         "led_junction_c": point.junction_c,
@@ -189,7 +213,9 @@ def stage(i: ChannelInputs, led: Outcome, switch: Outcome) -> Outcome:
         "thermal_iterations": point.iterations.astype(np.float64),
         "led_current_limit_a": led_current_limit(i, lambda x: x, ta),
         "resistor_power_hot_w": resistor_power,
-        "resistor_hot_spot_c": thermal.resistor_hot_spot(ta, resistor_power, rating, i.resistor_rated_to_c, i.resistor_zero_power_c),
+        "resistor_hot_spot_c": thermal.resistor_hot_spot(
+            ta, resistor_power, rating, i.resistor_rated_to_c, i.resistor_zero_power_c
+        ),
         "resistor_derated_limit_w": found["resistor_derated_power"][1],
         "transistor_power_hot_w": transistor_power,
         "transistor_rth_k_per_w": rth,
@@ -197,8 +223,8 @@ def stage(i: ChannelInputs, led: Outcome, switch: Outcome) -> Outcome:
         "transistor_derated_limit_w": found["transistor_derated_power"][1],
     }
     outcome_checks = [
-        Check(name, np.asarray(ok, dtype=bool), np.asarray(value, dtype=np.float64), np.asarray(limit, dtype=np.float64),
-              "max", DETAILS[name])
+        Check(name, np.asarray(ok, dtype=bool), np.asarray(value, dtype=float), np.asarray(limit, dtype=float), "max",
+              DETAILS[name])
         for name, (value, limit, ok) in found.items()
     ]  # fmt: skip
     return Outcome(results=results, checks=outcome_checks, cautions=cautions(i, results, point.runaway))

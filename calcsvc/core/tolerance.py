@@ -3,18 +3,19 @@
 The resistors are chosen once, at nominal values, by ``channel.review``; a built channel then has actual
 values within the tolerances, and every check is re-evaluated with the chosen resistors held fixed:
 
-    string current  I  = max(Vs − ΣVf(Tj) − Vce_sat, 0) / R_led   (dark below its drop; Tj: ``channel_thermal``)
+    string current  I  = max(Vs − ΣVf(Tj) − Vce_sat, 0) / R_led  (dark below its drop; Tj: channel_thermal)
     collector       Ic = Σ over strings of I                     (the switch saturated)
     base current    Ib = (V_drive − Vbe_sat) / Rb − Vbe_sat/Rbe  (Rbe: the pull-down, where given, nominal)
     saturation      Ic/Ib < hfe                                  (the actual gain, not hfe_min)
     pin current     (V_dd − Vbe_hot) / Rb                        (the pin's stress corner, ``bjt_drive``)
     transistor      P  = (Vce_sat·Ic + Vbe_sat·Ib)·D;  supply: channels·Ic peak, channels·Ic·D average
 
-and the LED-stage rules per string: I ≤ if_max, derated at the ambient (``led_current_rating``), Vs − ΣVf − Vce_sat ≥ 10 % of Vs
-(``headroom``), 2·I²·R_led within the largest standard rating (``resistor_rating``); the front stage's
-``output_swing`` with Vs as its rail span, and Vs against the op-amp's supply range (``opamp_supply_min`` at
-the low supply, ``opamp_supply_max`` at the high one); the thermal checks of ``channel_thermal``. Checks that depend on no toleranced value keep their nominal
-result. ``DEPENDS_ON`` lists what each check depends on.
+and the LED-stage rules per string: I ≤ if_max, derated at the ambient (``led_current_rating``),
+Vs − ΣVf − Vce_sat ≥ 10 % of Vs (``headroom``), 2·I²·R_led within the largest standard rating
+(``resistor_rating``); the front stage's ``output_swing`` with Vs as its rail span, and Vs against the op-amp's
+supply range (``opamp_supply_min`` at the low supply, ``opamp_supply_max`` at the high one); the thermal checks
+of ``channel_thermal``. Checks that depend on no toleranced value keep their nominal result. ``DEPENDS_ON``
+lists what each check depends on.
 
 Toleranced quantities
     supply within its band (``channel_stages.supply_band``: a battery from end of discharge to fresh, else
@@ -156,7 +157,12 @@ def evaluate_at(inputs: ChannelInputs, nominal: ChannelReview, at: Point) -> lis
     i = inputs
     row = at.row
     point = channel_thermal.led_point(
-        i, lambda x: row(x)[..., None], at.supply_v[..., None], at.string_vf_v, at.led_resistor_ohm, at.ambient_c[..., None]
+        i,
+        lambda x: row(x)[..., None],
+        at.supply_v[..., None],
+        at.string_vf_v,
+        at.led_resistor_ohm,
+        at.ambient_c[..., None],
     )
     v_r = at.supply_v[..., None] - point.string_vf_v - row(i.vce_sat_v)[..., None]
     current = point.current_a

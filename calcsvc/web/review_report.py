@@ -81,12 +81,17 @@ def _yield_line(review: dict[str, Any]) -> str:
 def heat_line(review: dict[str, Any]) -> str:
     """Each part's temperature and derated limit at the review's ambient, and the largest passing ambient."""
     heat = review["stages"]["thermal"]
-    led = "runs away (no stable temperature)" if heat["led_junction_c"] is None else f"{number(heat['led_junction_c'])} °C"
+    led = (
+        "runs away (no stable temperature)"
+        if heat["led_junction_c"] is None
+        else f"{number(heat['led_junction_c'])} °C"
+    )
     top = review["max_ambient_c"]
     passing = "fails already at the coldest ambient" if top is None else f"passes up to {number(top)} °C ambient"
     return (
-        f"At {number(heat['ambient_c'])} °C ambient: LED junction {led} (current {number(heat['led_current_hot_a'])} A, "
-        f"limit {number(heat['led_current_limit_a'])} A); transistor junction {number(heat['transistor_junction_c'])} °C "
+        f"At {number(heat['ambient_c'])} °C ambient: LED junction {led} "
+        f"(current {number(heat['led_current_hot_a'])} A, limit {number(heat['led_current_limit_a'])} A); "
+        f"transistor junction {number(heat['transistor_junction_c'])} °C "
         f"(derated limit {number(heat['transistor_derated_limit_w'])} W); string resistor hot spot "
         f"{number(heat['resistor_hot_spot_c'])} °C (derated limit {number(heat['resistor_derated_limit_w'])} W). "
         f"The design {passing}."

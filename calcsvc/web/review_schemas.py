@@ -20,7 +20,9 @@ class CornerCheckSchema(Schema):
 
 class ReviewCheckSchema(CheckSchema):
     stage = fields.String(required=True)
-    part = fields.String(metadata={"description": "the part a thermal check judges: led, transistor or string resistor"})
+    part = fields.String(
+        metadata={"description": "the part a thermal check judges: led, transistor or string resistor"}
+    )
     nominal_ok = fields.Boolean(required=True)
     worst_case = fields.Nested(CornerCheckSchema, required=True)
 

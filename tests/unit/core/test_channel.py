@@ -10,8 +10,7 @@ import pytest
 from hypothesis import given, settings
 from hypothesis import strategies as st
 
-from calcsvc.core import eseries
-from calcsvc.core import channel_thermal
+from calcsvc.core import channel_thermal, eseries
 from calcsvc.core.channel import FRONT_STAGE_FIELDS, ChannelInputs, review, validate
 from calcsvc.core.outcome import DomainError
 

@@ -121,7 +121,9 @@ LIMITS_FALLING = ("transistor_derated_limit_w", "resistor_derated_limit_w", "led
 
 @settings(max_examples=60, derandomize=True, deadline=None)
 @given(rows=st.lists(channel_rows(), min_size=1, max_size=3), rise=st.floats(0.0, 40.0))
-def test_raising_the_ambient_never_cools_a_part_nor_raises_a_derated_limit(rows: list[dict[str, Any]], rise: float) -> None:
+def test_raising_the_ambient_never_cools_a_part_nor_raises_a_derated_limit(
+    rows: list[dict[str, Any]], rise: float
+) -> None:
     cool = rows_to_inputs([row | {"ambient_min_c": math.nan, "ambient_max_c": math.nan} for row in rows])
     warm = rows_to_inputs([row | {"ambient_c": row["ambient_c"] + rise, "ambient_min_c": math.nan,
                                   "ambient_max_c": math.nan} for row in rows])  # fmt: skip

@@ -186,11 +186,27 @@ BRUTE_ROWS: list[dict[str, Any]] = [
     DEMO | {"opamp_supply_min_v": 11.5, "opamp_supply_max_v": 12.5, "output_offset_max_v": 0.02},
     # A greenhouse from a cold start to a hot summer day, LEDs drifting -2 mV/K, on a 35 mA class rating
     # derated from 40 °C: the hot end lowers every string's forward voltage and raises its current.
-    DEMO | {"ambient_c": 30.0, "ambient_min_c": 0.0, "ambient_max_c": 55.0, "vf_tempco_v_per_k": -0.002,
-            "if_derating_knee_c": 40.0, "if_max_a": 0.035, "rth_ja_k_per_w": math.nan},
+    DEMO
+    | {
+        "ambient_c": 30.0,
+        "ambient_min_c": 0.0,
+        "ambient_max_c": 55.0,
+        "vf_tempco_v_per_k": -0.002,
+        "if_derating_knee_c": 40.0,
+        "if_max_a": 0.035,
+        "rth_ja_k_per_w": math.nan,
+    },
     # A string with little headroom at 45 °C: four LEDs on 12 V, self-heating raises its current steeply.
-    DEMO | NO_FRONT_STAGE | {"leds_in_series": 5.0, "vf_tempco_v_per_k": -0.004, "ambient_c": 45.0,
-                             "ambient_min_c": 20.0, "current_a": 0.025, "led_rth_ba_k_per_w": 600.0},
+    DEMO
+    | NO_FRONT_STAGE
+    | {
+        "leds_in_series": 5.0,
+        "vf_tempco_v_per_k": -0.004,
+        "ambient_c": 45.0,
+        "ambient_min_c": 20.0,
+        "current_a": 0.025,
+        "led_rth_ba_k_per_w": 600.0,
+    },
 ]
 
 
@@ -254,11 +270,24 @@ def test_greenhouse_demo_worst_case_by_hand() -> None:
         "headroom": (4.0, {"supply": "low", "vf": "max", "led_resistor": "low", "ambient": "cold"}),
         "saturation": (
             (2 * 7.0 / 285) / (2.05 / 409.5),
-            {"supply": "high", "vf": "min", "led_resistor": "low", "base_resistor": "high", "hfe": "min", "ambient": "cold"},
+            {
+                "supply": "high",
+                "vf": "min",
+                "led_resistor": "low",
+                "base_resistor": "high",
+                "hfe": "min",
+                "ambient": "cold",
+            },
         ),
         "driver_current": (2.65 / 370.5, {"base_resistor": "low", "pin_high": "at its supply", "vbe": "hot"}),
-        "supply_peak_current": (6 * 2 * 7.0 / 285, {"supply": "high", "vf": "min", "led_resistor": "low", "ambient": "cold"}),
-        "supply_average_current": (3 * 2 * 7.0 / 285, {"supply": "high", "vf": "min", "led_resistor": "low", "ambient": "cold"}),
+        "supply_peak_current": (
+            6 * 2 * 7.0 / 285,
+            {"supply": "high", "vf": "min", "led_resistor": "low", "ambient": "cold"},
+        ),
+        "supply_average_current": (
+            3 * 2 * 7.0 / 285,
+            {"supply": "high", "vf": "min", "led_resistor": "low", "ambient": "cold"},
+        ),
         "output_swing": (1.0, {"supply": "low"}),
         "off_state": (0.4 * 1e-6 / 0.008 + 1e-6 * 409.5, {"base_resistor": "high", "leakage": "hot"}),
         "voltage_rating": (12.6, {"supply": "high"}),
