@@ -13,6 +13,7 @@ import numpy as np
 
 from calcsvc.core import channel, monte_carlo, thermal_limit, tolerance, usable_runtime
 from calcsvc.core.channel_spec import CHANNEL_INPUTS, CHECK_UNITS, STAGES
+from calcsvc.core.heat_curves import HeatCurves, heat_curves
 from calcsvc.core.outcome import Check, FloatArray, Outcome, raise_violations
 from calcsvc.data.database import Database
 from calcsvc.service.calculate import columns_of, complete
@@ -226,3 +227,10 @@ def most_failing(database: Database, body: Mapping[str, Any]) -> Distribution:
     if np.ptp(limits) > 1e-9 * np.abs(limits).max():
         return Distribution(name, drawn / limits, 1.0, "", relative=True)
     return Distribution(name, drawn, float(limits[0]), CHECK_UNITS[name], relative=False)
+
+
+def heat_of(database: Database, body: Mapping[str, Any]) -> HeatCurves:
+    """Each heated part's temperature against the ambient for the request's design, held as reviewed."""
+    values = complete(CHANNEL_INPUTS, _resolve(database, body).values)
+    inputs, nominal = _nominal(values, 1, int(values["seed"]))
+    return heat_curves(inputs, nominal)

@@ -3,6 +3,7 @@ with the JSON number for number."""
 
 from __future__ import annotations
 
+import io
 import json
 import re
 from pathlib import Path
@@ -10,6 +11,7 @@ from typing import Any
 
 import pytest
 from flask.testing import FlaskClient
+from PIL import Image
 from helpers import assert_problem
 
 DEMO = json.loads((Path(__file__).resolve().parents[2] / "examples" / "greenhouse-channel.json").read_text())
@@ -223,3 +225,18 @@ def test_darlington_channel_asks_the_pin_for_a_fraction_of_a_milliamp(client: Fl
     assert data["verdict"] == "pass"
     assert switch["forced_beta_design"] == pytest.approx(250 / 1.05)
     assert switch["drive_current_a"] < 0.3e-3 and switch["drive_current_max_a"] < 0.5e-3
+
+
+def test_heat_plot_draws_each_parts_temperature_against_ambient(client: FlaskClient, seeded: Any) -> None:
+    body = {**DEMO, "ambient_c": 40, "ambient_min_c": 10, "ambient_max_c": 55, "samples": 0}
+    png = client.post("/v1/review/channel/heat.png", json=body)
+    assert png.status_code == 200 and png.mimetype == "image/png"
+    image = Image.open(io.BytesIO(png.data))
+    marked = {k: float(v) for k, v in (pair.split("=") for pair in image.info["Description"].split("; "))}
+    heat = review(client, body)["stages"]["thermal"]
+    assert marked["ambient_c"] == 40.0
+    for name in ("led_junction_c", "transistor_junction_c", "resistor_hot_spot_c"):
+        assert marked[name] == pytest.approx(heat[name], rel=1e-12), name
+    assert marked["led_limit_c"] == 100.0 - 20.0 and marked["transistor_limit_c"] == 150.0 - 20.0
+    svg = client.post("/v1/review/channel/heat.svg", json=body)
+    assert svg.mimetype == "image/svg+xml" and b"LED junction" in svg.data
