@@ -11,8 +11,8 @@ from typing import Any
 
 import pytest
 from flask.testing import FlaskClient
-from PIL import Image
 from helpers import assert_problem
+from PIL import Image
 
 DEMO = json.loads((Path(__file__).resolve().parents[2] / "examples" / "greenhouse-channel.json").read_text())
 EXPLICIT = {
