@@ -43,7 +43,7 @@ from calcsvc.core import closed_loop, eseries, led_string, monte_carlo, toleranc
 from calcsvc.core.channel import ChannelInputs
 from calcsvc.core.channel_spec import CHANNEL_INPUTS
 from calcsvc.core.led_string import SPEC as LED_STRING
-from calcsvc.core.outcome import DomainError
+from calcsvc.core.outcome import DomainError, take
 from calcsvc.core.spec import InputSet, Role
 from calcsvc.data.store import PartView
 from calcsvc.service.calculate import columns_of, complete
@@ -414,7 +414,45 @@ def core_section(repeats: int) -> tuple[list[Row], list[str]]:
             f"{(times[large] / large) / (times[small] / small):.2f} (time per sample)",
         )
     )
+    rows += temperature_rows(repeats, notes)
     return rows, notes
+
+
+def temperature_rows(repeats: int, notes: list[str]) -> list[Row]:
+    """The cost of an ambient range (a cold start at 0 °C to a 45 °C summer enclosure) against the same run at a
+    fixed 25 °C: the Monte Carlo judges each build at both ends, the worst case doubles its corners. Both runs
+    solve the LEDs' coupled electro-thermal point (it is part of the model at any ambient)."""
+    fixed, ranged = channel(), channel(25.0, 0.0, 45.0)
+    samples = MONTE_CARLO_SAMPLES[1]
+    times = {}
+    for name, one in (("fixed", fixed), ("range", ranged)):
+        times[name], found = best_of(repeats, lambda one=one: monte_carlo.monte_carlo(one, samples=samples, seed=1))
+        notes.append(f"Monte Carlo at {name} ambient, {samples:,} samples: yield {found.fraction:.4f}.")
+    rows = [
+        Row(
+            "core",
+            f"channel Monte Carlo, {samples:,} samples, ambient 0–45 °C",
+            duration(times["range"]),
+            "same run at a fixed 25 °C",
+            duration(times["fixed"]),
+            f"{times['range'] / times['fixed']:.2f}× the time",
+        )
+    ]
+    count = 10_000
+    many = {name: take(one, np.zeros(count, dtype=np.intp)) for name, one in (("fixed", fixed), ("range", ranged))}
+    for name, inputs in many.items():
+        times[name], _ = best_of(repeats, lambda inputs=inputs: tolerance.worst_case(inputs))
+    rows.append(
+        Row(
+            "core",
+            f"channel worst case, {count:,} rows, ambient 0–45 °C",
+            duration(times["range"]),
+            "same rows at a fixed 25 °C",
+            duration(times["fixed"]),
+            f"{times['range'] / times['fixed']:.2f}× the time",
+        )
+    )
+    return rows
 
 
 def throughput(server: Server, path: str, body: bytes, seconds: float, args: argparse.Namespace) -> Tally:
