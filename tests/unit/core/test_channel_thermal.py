@@ -60,7 +60,7 @@ def test_a_design_passing_at_25_c_fails_at_55_c_on_the_transistor_and_names_the_
     # The edge is where the worst corner's junction reaches Tj,max less the 20 K margin (common practice).
     at_edge = make(**GROW, ambient_c=25.0, ambient_max_c=top)
     tj = worst_case(at_edge).check("transistor_junction_temperature").check.value[0]
-    assert tj == pytest.approx(150.0 - 20.0, abs=1e-6)
+    assert tj == pytest.approx(150.0 - 20.0, abs=1e-4)
     assert worst_case(make(**GROW, ambient_c=25.0, ambient_max_c=top + 0.01)).failing() != [[]]
 
 
@@ -70,7 +70,7 @@ def test_a_cool_designs_largest_ambient_is_bounded_by_its_parts_and_a_failing_on
     top = max_ambient(cool, review(cool))[0]
     assert 78.0 < top < 80.0 < SEARCH_MAX_C
     junction = worst_case(make(**NO_FRONT_STAGE, current_a=0.002, ambient_max_c=top)).check("led_junction_temperature")
-    assert junction.check.value[0] == pytest.approx(100.0 - 20.0, abs=1e-6)
+    assert junction.check.value[0] == pytest.approx(100.0 - 20.0, abs=1e-4)
     broken = make(**GROW, ambient_c=60.0)
     assert math.isnan(max_ambient(broken, review(broken))[0])
 
