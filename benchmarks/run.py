@@ -46,7 +46,7 @@ from calcsvc.core import closed_loop, eseries, led_string, monte_carlo, toleranc
 from calcsvc.core.channel import ChannelInputs
 from calcsvc.core.channel_spec import CHANNEL_INPUTS
 from calcsvc.core.led_string import SPEC as LED_STRING
-from calcsvc.core.outcome import DomainError
+from calcsvc.core.outcome import DomainError, take
 from calcsvc.core.spec import InputSet, Role
 from calcsvc.data.store import PartView
 from calcsvc.service.calculate import columns_of, complete
@@ -329,9 +329,10 @@ def sweep_loop(inputs: closed_loop.ClosedLoopInputs) -> list[tuple[float, float,
     return out
 
 
-def channel() -> ChannelInputs:
+def channel(ambient_c: float = 25.0, ambient_min_c: float = math.nan, ambient_max_c: float = math.nan) -> ChannelInputs:
     """One greenhouse channel (see SINGLE_BODY) with the seed parts' values and no front stage, pushed to 27 mA
-    per string: some builds then exceed the LEDs' rating, so the failing samples' path is timed too."""
+    per string: some builds then exceed the LEDs' rating, so the failing samples' path is timed too. The ambient
+    as given (default: a fixed 25 °C)."""
 
     def one(x: float) -> np.ndarray:
         return np.array([x])
@@ -348,6 +349,11 @@ def channel() -> ChannelInputs:
         vceo_max_v=one(40.0), rbe_ohm=nan, drive_supply_v=one(3.3), resistor_tolerance=nan, inverting=np.array([False]),
         gain=nan, gbw_hz=nan, open_loop_gain=nan, slew_rate_v_per_s=nan, output_headroom_v=nan, signal_hz=nan,
         amplitude_v=nan, opamp_supply_min_v=nan, opamp_supply_max_v=nan, input_offset_v=nan, output_offset_max_v=nan,
+        ambient_c=one(ambient_c), ambient_min_c=one(ambient_min_c), ambient_max_c=one(ambient_max_c),
+        tj_max_c=one(150.0), rth_ja_k_per_w=one(250.0), rth_jc_k_per_w=nan, heatsink_k_per_w=nan,
+        led_tj_max_c=one(100.0), led_rth_jb_k_per_w=one(200.0), led_rth_ba_k_per_w=one(150.0),
+        vf_tempco_v_per_k=one(-0.002), if_derating_knee_c=one(60.0), resistor_rated_to_c=one(70.0),
+        resistor_zero_power_c=one(155.0),
     )  # fmt: skip
 
 
@@ -413,7 +419,45 @@ def core_section(repeats: int) -> tuple[list[Row], list[str]]:
             f"{(times[large] / large) / (times[small] / small):.2f} (time per sample)",
         )
     )
+    rows += temperature_rows(repeats, notes)
     return rows, notes
+
+
+def temperature_rows(repeats: int, notes: list[str]) -> list[Row]:
+    """The cost of an ambient range (a cold start at 0 °C to a 45 °C summer enclosure) against the same run at a
+    fixed 25 °C: the Monte Carlo judges each build at both ends, the worst case doubles its corners. Both runs
+    solve the LEDs' coupled electro-thermal point (it is part of the model at any ambient)."""
+    fixed, ranged = channel(), channel(25.0, 0.0, 45.0)
+    samples = MONTE_CARLO_SAMPLES[1]
+    times = {}
+    for name, one in (("fixed", fixed), ("range", ranged)):
+        times[name], found = best_of(repeats, lambda one=one: monte_carlo.monte_carlo(one, samples=samples, seed=1))
+        notes.append(f"Monte Carlo at {name} ambient, {samples:,} samples: yield {found.fraction:.4f}.")
+    rows = [
+        Row(
+            "core",
+            f"channel Monte Carlo, {samples:,} samples, ambient 0–45 °C",
+            duration(times["range"]),
+            "same run at a fixed 25 °C",
+            duration(times["fixed"]),
+            f"{times['range'] / times['fixed']:.2f}× the time",
+        )
+    ]
+    count = 10_000
+    many = {name: take(one, np.zeros(count, dtype=np.intp)) for name, one in (("fixed", fixed), ("range", ranged))}
+    for name, inputs in many.items():
+        times[name], _ = best_of(repeats, lambda inputs=inputs: tolerance.worst_case(inputs))
+    rows.append(
+        Row(
+            "core",
+            f"channel worst case, {count:,} rows, ambient 0–45 °C",
+            duration(times["range"]),
+            "same rows at a fixed 25 °C",
+            duration(times["fixed"]),
+            f"{times['range'] / times['fixed']:.2f}× the time",
+        )
+    )
+    return rows
 
 
 def throughput(server: Server, path: str, body: bytes, seconds: float, args: argparse.Namespace) -> Tally:

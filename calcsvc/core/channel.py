@@ -14,7 +14,8 @@ Chain (each step is an existing core calculation; this module only wires them to
     1. ``led_string`` with the transistor's ``vce_sat_v`` as the switch drop: string resistor, nominal and
        worst-case string current. Nominal collector current Ic = strings × nominal string current;
        worst-case Ic_max = strings × the highest string current: at the top of the supply band, the lowest
-       Vf and the lowest resistor within its tolerance.
+       Vf, the lowest resistor within its tolerance and the hottest ambient (the string's coupled
+       electro-thermal point, ``channel_thermal``: a warm string's forward voltage falls and its current rises).
     2. ``bjt_switch`` with collector current **Ic_max**: base resistor, saturation, pin current, ratings.
        The base is sized for the worst-case maximum collector current, not the nominal one: the base
        resistor's job is to guarantee saturation, and a base sized for the nominal current runs short of
@@ -31,6 +32,8 @@ Chain (each step is an existing core calculation; this module only wires them to
        (``slew_rate``, ``output_swing``, and the supply against the op-amp's rated range: ``opamp_supply_min``,
        ``opamp_supply_max``); the output offset from ``input_offset_v`` against ``output_offset_max_v``
        (``output_offset``).
+    5. Heat at ``ambient_c`` (``channel_thermal``): the strings' coupled electro-thermal point, each part's
+       temperature and derated limit, and the thermal checks.
 
 Assumptions
     Those of the four calculations; a base-emitter pull-down only where ``rbe_ohm`` is given; the base current
@@ -45,7 +48,8 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from calcsvc.core import bjt_switch, closed_loop, duty_power, led_string, slew
+from calcsvc.core import bjt_switch, channel_thermal, closed_loop, duty_power, led_string, slew
+from calcsvc.core.channel_inputs import FRONT_STAGE_FIELDS, ChannelInputs
 from calcsvc.core.channel_stages import (
     closed_loop_inputs,
     collector_currents,
@@ -70,83 +74,9 @@ from calcsvc.core.outcome import (
 )
 
 NAME = "channel-review"
-VERSION = "2"
+VERSION = "3"
 
-# Front-stage inputs besides gbw_hz, whose presence (non-NaN) marks a row as having a front stage.
-FRONT_STAGE_FIELDS = (
-    "gain",
-    "open_loop_gain",
-    "slew_rate_v_per_s",
-    "output_headroom_v",
-    "signal_hz",
-    "amplitude_v",
-    "opamp_supply_min_v",
-    "opamp_supply_max_v",
-    "input_offset_v",
-    "output_offset_max_v",
-)
-
-
-@dataclass(frozen=True)
-class ChannelInputs:
-    """Per-row inputs, arrays of shape ``(n,)``; field names are the flat JSON input names.
-
-    NaN marks an optional value as not given: ``supply_min_v`` and ``supply_max_v`` (together: the band is
-    ``supply_v`` ± ``supply_tolerance``), ``capacity_ah``, ``source_current_max_a`` (pin rating unknown:
-    ``driver_current`` does not apply), ``resistor_tolerance`` (the series' default, for both resistors),
-    and the front stage (NaN ``gbw_hz``: no front stage on that row; then every other front-stage field must
-    be NaN too). With a front stage, ``gain`` (magnitude, V/V) and ``slew_rate_v_per_s`` are required and
-    ``open_loop_gain``, ``output_headroom_v``, ``signal_hz``, ``amplitude_v`` (peak), the op-amp's supply
-    range ``opamp_supply_min_v``/``opamp_supply_max_v``, ``input_offset_v`` and the allowed
-    ``output_offset_max_v`` stay optional.
-    ``leds_in_series``, ``strings`` and ``channels`` hold whole numbers as floats; ``e_series`` is a numpy str
-    array, ``inverting`` a bool array.
-    """
-
-    supply_v: FloatArray
-    supply_tolerance: FloatArray
-    supply_min_v: FloatArray
-    supply_max_v: FloatArray
-    current_max_a: FloatArray
-    capacity_ah: FloatArray
-    drive_high_v: FloatArray
-    drive_low_v: FloatArray
-    source_current_max_a: FloatArray
-    hfe_min: FloatArray
-    hfe_typ: FloatArray
-    vbe_sat_v: FloatArray
-    vce_sat_v: FloatArray
-    ic_max_a: FloatArray
-    power_max_w: FloatArray
-    vf_typ_v: FloatArray
-    vf_min_v: FloatArray
-    vf_max_v: FloatArray
-    if_max_a: FloatArray
-    leds_in_series: FloatArray
-    strings: FloatArray
-    current_a: FloatArray
-    duty_cycle: FloatArray
-    channels: FloatArray
-    e_series: np.ndarray
-    forced_beta: FloatArray  # NaN: from the part
-    vce_sat_forced_beta: FloatArray
-    base_junctions: FloatArray
-    vceo_max_v: FloatArray  # NaN: not checked
-    rbe_ohm: FloatArray  # NaN: no base pull-down
-    drive_supply_v: FloatArray  # NaN: not given
-    resistor_tolerance: FloatArray
-    inverting: BoolArray
-    gain: FloatArray
-    gbw_hz: FloatArray
-    open_loop_gain: FloatArray
-    slew_rate_v_per_s: FloatArray
-    output_headroom_v: FloatArray
-    signal_hz: FloatArray
-    amplitude_v: FloatArray
-    opamp_supply_min_v: FloatArray
-    opamp_supply_max_v: FloatArray
-    input_offset_v: FloatArray
-    output_offset_max_v: FloatArray
+__all__ = ["FRONT_STAGE_FIELDS", "ChannelInputs", "ChannelReview", "review", "validate"]
 
 
 @dataclass(frozen=True)
@@ -159,6 +89,7 @@ class ChannelReview:
     switch: Outcome
     supply: Outcome
     front_stage: Outcome
+    thermal: Outcome  # at ambient_c: ``channel_thermal``
     has_front_stage: BoolArray
     collector_current_a: FloatArray  # nominal: strings × nominal string current
     collector_current_max_a: FloatArray  # worst case; the base resistor is sized for this
@@ -293,6 +224,8 @@ def validate(inputs: ChannelInputs) -> list[Violation]:
     n = row_count(i)
     found = _Collector(n)
     found.stage(_own_violations(i))
+    heat_found = channel_thermal.validate(i)
+    found.stage(heat_found)
 
     led_in = led_inputs(i)
     drop = {"switch_drop_v": "vce_sat_v"}
@@ -305,6 +238,7 @@ def validate(inputs: ChannelInputs) -> list[Violation]:
         found.stage(extra, drop, drop, subset=led_ok)
         led_ok[led_ok] = ~_rows_of(extra, int(led_ok.sum()))
 
+    led_ok &= ~_rows_of(heat_found, n)  # the highest current needs the thermal inputs too
     # The switch and supply stages need the LED stage's currents; rows it rejects get a harmless 1 A.
     ic_nominal, ic_max = np.ones(n), np.ones(n)
     if led_ok.any():
@@ -397,8 +331,9 @@ def review(inputs: ChannelInputs, validated: bool = False) -> ChannelReview:
     switch = bjt_switch.compute(switch_inputs(i, ic_max), validated=True)
     supply = duty_power.compute(supply_inputs(i, ic_nominal), validated=True)
     front = front_stage(i, validated=True)
+    heat = channel_thermal.stage(i, led, switch)
 
-    sections = (led, switch, supply, front)
+    sections = (led, switch, supply, front, heat)
     checks = [c for s in sections for c in s.checks]
     ok = np.ones(i.supply_v.shape[0], dtype=bool)
     for c in checks:
@@ -408,6 +343,7 @@ def review(inputs: ChannelInputs, validated: bool = False) -> ChannelReview:
         switch=switch,
         supply=supply,
         front_stage=front,
+        thermal=heat,
         has_front_stage=has_front_stage(i),
         collector_current_a=ic_nominal,
         collector_current_max_a=ic_max,

@@ -8,11 +8,11 @@ from typing import TYPE_CHECKING
 
 import numpy as np
 
-from calcsvc.core import bjt_switch, closed_loop, duty_power, eseries, led_string, slew
+from calcsvc.core import bjt_switch, channel_thermal, closed_loop, duty_power, eseries, led_string, slew
 from calcsvc.core.outcome import BoolArray, FloatArray, Outcome
 
 if TYPE_CHECKING:  # ``channel`` builds on this module; the inputs type is needed for annotations only
-    from calcsvc.core.channel import ChannelInputs
+    from calcsvc.core.channel_inputs import ChannelInputs
 
 
 def resistor_tolerance(inputs: ChannelInputs) -> FloatArray:
@@ -125,11 +125,13 @@ def supply_band(i: ChannelInputs) -> tuple[FloatArray, FloatArray]:
 
 def collector_currents(i: ChannelInputs, led: Outcome) -> tuple[FloatArray, FloatArray]:
     """The switch carries every string: nominal Ic from the nominal string current, Ic_max from the highest
-    (the base is sized for it: ``channel``'s docstring): top of the supply band, lowest Vf, low resistor."""
+    (the base is sized for it: ``channel``'s docstring): top of the supply band, lowest Vf, low resistor, and
+    the hottest ambient, where each string's forward voltage has fallen at its coupled electro-thermal point."""
     _, high = supply_band(i)
     low_resistor = led.results["resistor_ohm"] * (1.0 - resistor_tolerance(i))
-    highest = led_string.string_current(high - i.leds_in_series * i.vf_min_v - i.vce_sat_v, low_resistor)
-    return led.results["total_current_a"], i.strings * highest
+    _, hottest = channel_thermal.ambient_range(i)
+    point = channel_thermal.led_point(i, lambda x: x, high, i.leds_in_series * i.vf_min_v, low_resistor, hottest)
+    return led.results["total_current_a"], i.strings * point.current_a
 
 
 def has_front_stage(inputs: ChannelInputs) -> BoolArray:

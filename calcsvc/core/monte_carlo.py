@@ -9,7 +9,8 @@ string's drop is the sum of its own LEDs' draws); each
 string's resistor and the base resistor independently uniform within their tolerance; the gain
 log-uniform between hfe_min and hfe_max (gain spreads are multiplicative). The other channels on the
 supply are taken as copies of the sampled one, which overstates the spread of the total supply current
-(conservative). Each sample stays inside the corners' box, so a design that passes the worst case
+(conservative). Every build is evaluated at both ends of the ambient range (``channel_thermal``) and passes
+only if it passes at both. Each sample stays inside the corners' box, so a design that passes the worst case
 yields exactly 1. The passing fraction carries a Wilson score interval (Wilson 1927).
 
 Forward voltage (``vf_model``)
@@ -29,6 +30,7 @@ always give the same result.
 
 from __future__ import annotations
 
+import dataclasses
 from dataclasses import dataclass
 
 import numpy as np
@@ -36,6 +38,7 @@ import numpy.typing as npt
 
 from calcsvc.core.channel import ChannelInputs, ChannelReview, review, validate
 from calcsvc.core.channel_stages import resistor_tolerance, supply_band
+from calcsvc.core.channel_thermal import ambient_range
 from calcsvc.core.outcome import Check, FloatArray, Violation, raise_violations, require, row_count
 from calcsvc.core.tolerance import Point, evaluate_at, hfe_max
 
@@ -177,7 +180,27 @@ def _draw(
     led_r = spread(nominal.led_string.results["resistor_ohm"][0], tol, (1, count, strings))
     base_r = spread(nominal.switch.results["rb_ohm"][0], tol, (1, count))
     hfe = np.exp(rng.uniform(np.log(i.hfe_min[0]), np.log(hfe_max(i)[0]), (1, count)))
-    return Point((count,), supply, vf, led_r, base_r, hfe)
+    cold, _ = ambient_range(i)
+    return Point((count,), supply, vf, led_r, base_r, hfe, cold.reshape(1, 1))
+
+
+def _over_ambient(inputs: ChannelInputs, nominal: ChannelReview, at: Point) -> list[Check]:
+    """Every check of the builds at ``at`` at both ends of the ambient range, each at the end worse for it."""
+    cold, hot = ambient_range(inputs)
+    found = evaluate_at(inputs, nominal, at)
+    if hot[0] == cold[0]:
+        return found
+    warm = evaluate_at(inputs, nominal, dataclasses.replace(at, ambient_c=hot.reshape(1, 1)))
+    both = []
+    for a, b in zip(found, warm, strict=True):
+        a_ok, a_value, a_limit = _every_sample(a, at.points[0])
+        b_ok, b_value, b_limit = _every_sample(b, at.points[0])
+        with np.errstate(invalid="ignore"):
+            hotter = np.nan_to_num(b.margin(), nan=np.inf) < np.nan_to_num(a.margin(), nan=np.inf)
+        hotter = np.broadcast_to(hotter, a_ok.shape)
+        pick = np.where(hotter, b_value, a_value), np.where(hotter, b_limit, a_limit)
+        both.append(Check(a.name, a_ok & b_ok, *pick, a.sense, a.detail))
+    return both
 
 
 def _every_sample(check: Check, count: int) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
@@ -213,7 +236,7 @@ def monte_carlo(
     parts: list[list[Check]] = []
     for start in range(0, samples, chunk):
         count = min(chunk, samples - start)
-        checks = evaluate_at(inputs, nominal, _draw(inputs, nominal, rng, count, vf_model, vf_bin_width_v))
+        checks = _over_ambient(inputs, nominal, _draw(inputs, nominal, rng, count, vf_model, vf_bin_width_v))
         parts.append([Check(c.name, *_every_sample(c, count), c.sense, c.detail) for c in checks])
 
     names = [c.name for c in nominal.checks]

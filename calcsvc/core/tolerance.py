@@ -3,32 +3,36 @@
 The resistors are chosen once, at nominal values, by ``channel.review``; a built channel then has actual
 values within the tolerances, and every check is re-evaluated with the chosen resistors held fixed:
 
-    string current  I  = max(Vs − ΣVf − Vce_sat, 0) / R_led       (the string stays dark below its drop)
+    string current  I  = max(Vs − ΣVf(Tj) − Vce_sat, 0) / R_led  (dark below its drop; Tj: channel_thermal)
     collector       Ic = Σ over strings of I                     (the switch saturated)
     base current    Ib = (V_drive − Vbe_sat) / Rb − Vbe_sat/Rbe  (Rbe: the pull-down, where given, nominal)
     saturation      Ic/Ib < hfe                                  (the actual gain, not hfe_min)
     pin current     (V_dd − Vbe_hot) / Rb                        (the pin's stress corner, ``bjt_drive``)
     transistor      P  = (Vce_sat·Ic + Vbe_sat·Ib)·D;  supply: channels·Ic peak, channels·Ic·D average
 
-and the LED-stage rules per string: I ≤ if_max (``led_current_rating``), Vs − ΣVf − Vce_sat ≥ 10 % of Vs
-(``headroom``), 2·I²·R_led within the largest standard rating (``resistor_rating``); the front stage's
-``output_swing`` with Vs as its rail span, and Vs against the op-amp's supply range (``opamp_supply_min`` at
-the low supply, ``opamp_supply_max`` at the high one). Checks that depend on no toleranced value keep their nominal
-result. ``DEPENDS_ON`` lists what each check depends on.
+and the LED-stage rules per string: I ≤ if_max, derated at the ambient (``led_current_rating``),
+Vs − ΣVf − Vce_sat ≥ 10 % of Vs (``headroom``), 2·I²·R_led within the largest standard rating
+(``resistor_rating``); the front stage's ``output_swing`` with Vs as its rail span, and Vs against the op-amp's
+supply range (``opamp_supply_min`` at the low supply, ``opamp_supply_max`` at the high one); the thermal checks
+of ``channel_thermal``. Checks that depend on no toleranced value keep their nominal result. ``DEPENDS_ON``
+lists what each check depends on.
 
 Toleranced quantities
     supply within its band (``channel_stages.supply_band``: a battery from end of discharge to fresh, else
     ±supply_tolerance); LED forward voltage within [vf_min_v, vf_max_v]; both resistors
     ±resistor_tolerance (NaN: the series' default); transistor gain between hfe_min and
     hfe_max = hfe_typ + (hfe_typ − hfe_min), the same spread above typical as below (datasheets rarely give
-    a maximum). Drive and saturation voltages are taken as the worst-case constants given.
+    a maximum); the ambient between ``ambient_min_c`` and ``ambient_max_c`` (``channel_thermal``), where each
+    string's current is its coupled electro-thermal point, its forward voltage falling as it warms. Drive and
+    saturation voltages are taken as the worst-case constants given.
 
 Worst case
     Every check's margin is monotonic in each toleranced quantity, so its extreme over the tolerance box
-    lies at one of the 32 corners (supply × Vf × LED resistor × base resistor × hfe, each at either end),
+    lies at one of the 64 corners (supply × Vf × LED resistor × base resistor × hfe × ambient, each at either
+    end),
     with every string at the same corner. All rows are evaluated in one pass with each quantity's two
     settings on an axis of its own, so broadcasting computes each check only at the corners of the
-    quantities it depends on (``saturation`` at all 32, ``driver_current`` at 2). Per check the corner of
+    quantities it depends on (``saturation`` at all 64, ``driver_current`` at 2). Per check the corner of
     least margin is reported (ties: the first corner in ``CORNERS`` order, low/min before high/max), with
     the settings of the quantities that check depends on.
 
@@ -46,7 +50,7 @@ from dataclasses import dataclass
 import numpy as np
 import numpy.typing as npt
 
-from calcsvc.core import bjt_drive, led_string, load_current, slew
+from calcsvc.core import bjt_drive, channel_thermal, led_string, load_current, slew
 from calcsvc.core.channel import ChannelInputs, ChannelReview, failing_names, review
 from calcsvc.core.channel_stages import has_front_stage, resistor_tolerance, slew_inputs, supply_band
 from calcsvc.core.outcome import (
@@ -59,23 +63,24 @@ from calcsvc.core.outcome import (
 
 IntArray = npt.NDArray[np.intp]
 
-QUANTITIES = ("supply", "vf", "led_resistor", "base_resistor", "hfe")
+QUANTITIES = ("supply", "vf", "led_resistor", "base_resistor", "hfe", "ambient")
 SETTINGS: dict[str, tuple[str, str]] = {
     "supply": ("low", "high"),
     "vf": ("min", "max"),
     "led_resistor": ("low", "high"),
     "base_resistor": ("low", "high"),
     "hfe": ("min", "max"),
+    "ambient": ("cold", "hot"),
 }
 CORNERS: tuple[dict[str, str], ...] = tuple(
     dict(zip(QUANTITIES, combo, strict=True)) for combo in itertools.product(*(SETTINGS[q] for q in QUANTITIES))
 )
 CORNER_AXES = tuple(len(SETTINGS[q]) for q in QUANTITIES)  # CORNERS in C order over these axes
 
-_LED = ("supply", "vf", "led_resistor")
+_LED = ("supply", "vf", "led_resistor", "ambient")
 DEPENDS_ON: dict[str, tuple[str, ...]] = {
     "led_current_rating": _LED,
-    "headroom": ("supply", "vf"),
+    "headroom": _LED,
     "resistor_rating": _LED,
     "saturation": QUANTITIES,
     "vce_sat_guarantee": (*_LED, "base_resistor"),
@@ -93,6 +98,11 @@ DEPENDS_ON: dict[str, tuple[str, ...]] = {
     "opamp_supply_min": ("supply",),
     "opamp_supply_max": ("supply",),
     "output_offset": (),
+    "led_junction_temperature": _LED,
+    "led_thermal_runaway": _LED,
+    "resistor_derated_power": _LED,
+    "transistor_junction_temperature": (*_LED, "base_resistor"),
+    "transistor_derated_power": (*_LED, "base_resistor"),
 }
 """The toleranced quantities each check depends on; checks depending on none keep their nominal result."""
 
@@ -124,6 +134,7 @@ class Point:
     led_resistor_ohm: FloatArray  # per string
     base_resistor_ohm: FloatArray
     hfe: FloatArray
+    ambient_c: FloatArray
 
     def row(self, x: np.ndarray) -> np.ndarray:
         """A per-row array ``(n,)`` as ``(n, 1, …)``, to broadcast against the points."""
@@ -145,8 +156,16 @@ def evaluate_at(inputs: ChannelInputs, nominal: ChannelReview, at: Point) -> lis
     against ``(n, *at.points)`` and have length 1 on the axes of points it does not vary over."""
     i = inputs
     row = at.row
-    v_r = at.supply_v[..., None] - at.string_vf_v - row(i.vce_sat_v)[..., None]
-    current = led_string.string_current(v_r, at.led_resistor_ohm)
+    point = channel_thermal.led_point(
+        i,
+        lambda x: row(x)[..., None],
+        at.supply_v[..., None],
+        at.string_vf_v,
+        at.led_resistor_ohm,
+        at.ambient_c[..., None],
+    )
+    v_r = at.supply_v[..., None] - point.string_vf_v - row(i.vce_sat_v)[..., None]
+    current = point.current_a
     # Each of the s evaluated strings stands for strings/s real ones.
     ic = row(i.strings / at.string_vf_v.shape[-1]) * _per_string(current, np.sum)
     i_rbe = np.where(np.isnan(i.rbe_ohm), 0.0, i.vbe_sat_v / i.rbe_ohm)
@@ -166,10 +185,11 @@ def evaluate_at(inputs: ChannelInputs, nominal: ChannelReview, at: Point) -> lis
     worst_current = _per_string(current, np.max)
     headroom = _per_string(v_r, np.min)
     headroom_limit = led_string.HEADROOM_FRACTION * at.supply_v
-    resistor_need = led_string.DERATING_FACTOR * _per_string(current**2 * at.led_resistor_ohm, np.max)
+    resistor_power = _per_string(current**2 * at.led_resistor_ohm, np.max)
+    resistor_need = led_string.DERATING_FACTOR * resistor_power
     max_rating = led_string.POWER_RATINGS_W[-1]
     rating = {
-        "if_max_a": row(i.if_max_a),
+        "if_max_a": channel_thermal.led_current_limit(i, row, at.ambient_c),
         "source": row(i.source_current_max_a),
         "ic_max": row(i.ic_max_a),
         "power_max": row(i.power_max_w),
@@ -192,6 +212,16 @@ def evaluate_at(inputs: ChannelInputs, nominal: ChannelReview, at: Point) -> lis
         "supply_average_current": (supply_average, rating["supply"], ~(supply_average > rating["supply"])),
         "supply_peak_current": (supply_peak, rating["supply"], ~(supply_peak > rating["supply"])),
         **_rail_checks(inputs, nominal, at.supply_v),
+        **channel_thermal.checks(
+            i,
+            row,
+            at.ambient_c,
+            _per_string(channel_thermal.hottest_led(point), np.max),
+            _per_string(point.heating_at_max_c, np.max),
+            resistor_power,
+            row(channel_thermal.resistor_rating(nominal.led_string)),
+            power,
+        ),
     }
     checks = []
     for c in nominal.checks:
@@ -289,6 +319,7 @@ def corner_points(inputs: ChannelInputs, nominal: ChannelReview) -> Point:
         led_resistor_ohm=settings("led_resistor", r_led * (1.0 - tol), r_led * (1.0 + tol))[..., None],
         base_resistor_ohm=settings("base_resistor", r_base * (1.0 - tol), r_base * (1.0 + tol)),
         hfe=settings("hfe", i.hfe_min, hfe_max(i)),
+        ambient_c=settings("ambient", *channel_thermal.ambient_range(i)),
     )
 
 

@@ -22,6 +22,7 @@ class Param:
     choices: tuple[str, ...] = ()
     text: bool = False
     integer: bool = False
+    negative: bool = False  # at most zero instead (a falling temperature coefficient)
     # Why no calculation uses it ("": some calculation's part role reads it); shown with the kind's parameters.
     informational: str = ""
 
@@ -59,6 +60,14 @@ KINDS: dict[str, tuple[Param, ...]] = {
         Param(
             "base_junctions", "dimensionless", "base-emitter junctions: 2 for a Darlington", optional=True, integer=True
         ),
+        Param("tj_max_c", "degC", "maximum junction temperature", optional=True),
+        Param(
+            "rth_ja_k_per_w",
+            "K/W",
+            "junction-to-ambient thermal resistance without a heat sink; absent: from power_max_w at 25 °C",
+            optional=True,
+        ),
+        Param("rth_jc_k_per_w", "K/W", "junction-to-case thermal resistance, for a heat sink", optional=True),
     ),
     "led": (
         Param("color", "", "emitted colour, free text", text=True, informational="names the part for people"),
@@ -73,6 +82,23 @@ KINDS: dict[str, tuple[Param, ...]] = {
             "for the design current when it differs much from this one",
         ),
         Param("if_max_a", "A", "continuous forward current rating"),
+        Param("tj_max_c", "degC", "maximum junction temperature", optional=True),
+        Param("rth_jb_k_per_w", "K/W", "junction-to-board thermal resistance", optional=True),
+        Param("rth_ba_k_per_w", "K/W", "board-to-ambient thermal resistance, per LED", optional=True),
+        Param(
+            "vf_tempco_v_per_k",
+            "V/K",
+            "forward-voltage temperature coefficient (negative)",
+            optional=True,
+            positive=False,
+            negative=True,
+        ),
+        Param(
+            "if_derating_knee_c",
+            "degC",
+            "ambient above which the maximum current falls linearly to zero at tj_max_c",
+            optional=True,
+        ),
     ),
     "supply": (
         Param("supply_v", "V", "nominal output voltage"),
@@ -106,6 +132,7 @@ ORDERED: dict[str, tuple[tuple[str, str, bool], ...]] = {
         ("vf_min_v", "vf_typ_v", False),
         ("vf_typ_v", "vf_max_v", False),
         ("if_test_a", "if_max_a", False),
+        ("if_derating_knee_c", "tj_max_c", True),
     ),
     "driver": (("vol_v", "voh_v", True),),
     "supply": (("supply_min_v", "supply_v", False), ("supply_v", "supply_max_v", False)),
@@ -146,6 +173,9 @@ def validate_parameters(kind: str, parameters: dict[str, Any]) -> dict[str, str]
             errors[name] = "must be a finite number"
         elif param.fraction and not 0 <= value < 1:
             errors[name] = "must be a fraction from 0 up to (not including) 1"
+        elif param.negative:
+            if value > 0:
+                errors[name] = "must not be positive"
         elif param.positive and value <= 0:
             errors[name] = "must be greater than zero"
         elif param.integer and value != int(value):

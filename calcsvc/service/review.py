@@ -11,8 +11,9 @@ from typing import Any
 
 import numpy as np
 
-from calcsvc.core import channel, monte_carlo, tolerance, usable_runtime
+from calcsvc.core import channel, monte_carlo, thermal_limit, tolerance, usable_runtime
 from calcsvc.core.channel_spec import CHANNEL_INPUTS, CHECK_UNITS, STAGES
+from calcsvc.core.heat_curves import HeatCurves, heat_curves
 from calcsvc.core.outcome import Check, FloatArray, Outcome, raise_violations
 from calcsvc.data.database import Database
 from calcsvc.service.calculate import columns_of, complete
@@ -96,13 +97,19 @@ def _stage_results(outcome: Outcome) -> dict[str, Any]:
     }
 
 
+# The part each thermal check judges, by the name's start (the review's roles; the string resistor has none).
+_HEATED = {"led_": "led", "transistor_": "transistor", "resistor_": "string resistor"}
+
+
 def _check_entry(nominal: Check, worst: tolerance.WorstCheck, stage: str) -> dict[str, Any] | None:
     limit = float(nominal.limit[0])
     if math.isnan(limit):
         return None  # does not apply to this design (e.g. no front stage, pin rating unknown)
+    part = next((name for start, name in _HEATED.items() if nominal.name.startswith(start)), None)
     return {
         "name": nominal.name,
         "stage": stage,
+        **({"part": part} if stage == "thermal" and part else {}),
         "ok": bool(worst.check.ok[0]),
         "value": to_json_value(float(nominal.value[0])),
         "limit": limit,
@@ -151,6 +158,8 @@ def review_document(values: dict[str, Any], parts: list[dict[str, Any]], warning
     usable = usable_runtime.usable_runtime(done.inputs, nominal)
     stages["supply"]["stop_v"] = to_json_value(float(usable.stop_v[0]))
     stages["supply"]["usable_runtime_h"] = to_json_value(float(usable.usable_runtime_h[0]))
+    max_ambient = float(thermal_limit.max_ambient(done.inputs, nominal)[0])
+    stages["thermal"]["max_ambient_c"] = to_json_value(max_ambient)
     notes = row_notices(nominal.warnings, 0)
     if not math.isnan(usable.usable_runtime_h[0]):
         notes.append(
@@ -168,6 +177,7 @@ def review_document(values: dict[str, Any], parts: list[dict[str, Any]], warning
         "failing": [c["name"] for c in checks if not c["ok"]],
         "failing_nominal": [c["name"] for c in checks if not c["nominal_ok"]],
         "max_duty_cycle": to_json_value(float(nominal.max_duty_cycle[0])),
+        "max_ambient_c": to_json_value(max_ambient),
         "stages": stages,
         "checks": checks,
         "yield": None if done.found is None else yield_entry(done.found),
@@ -226,3 +236,10 @@ def most_failing(database: Database, body: Mapping[str, Any]) -> Distribution:
     if np.ptp(limits) > 1e-9 * np.abs(limits).max():
         return Distribution(name, drawn / limits, 1.0, "", relative=True)
     return Distribution(name, drawn, float(limits[0]), CHECK_UNITS[name], relative=False)
+
+
+def heat_of(database: Database, body: Mapping[str, Any]) -> HeatCurves:
+    """Each heated part's temperature against the ambient for the request's design, held as reviewed."""
+    values = complete(CHANNEL_INPUTS, _resolve(database, body).values)
+    inputs, nominal = _nominal(values, 1, int(values["seed"]))
+    return heat_curves(inputs, nominal)

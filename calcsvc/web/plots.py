@@ -25,6 +25,7 @@ from matplotlib.figure import Figure
 from matplotlib.ticker import EngFormatter, NullFormatter
 
 from calcsvc.core.curves import ClosedLoopCurves, LedCurves, SlewCurves
+from calcsvc.core.heat_curves import HeatCurves
 
 FORMATS = {"svg": "image/svg+xml", "png": "image/png"}
 
@@ -289,6 +290,51 @@ def led_string_plot(curves: LedCurves, fmt: str) -> Plot:
         "current_max_a": curves.worst_max_a,
         "resistor_ohm": curves.resistor_ohm,
         "if_max_a": curves.if_max_a,
+    }
+    return _render(figure, fmt, title, markers)
+
+
+@_locked
+def heat_plot(curves: HeatCurves, fmt: str) -> Plot:
+    """Each part's temperature against the ambient, its limit dashed in the same colour, the range shaded."""
+    figure, (ax,) = _figure()
+    ta = curves.ambient_c
+    if curves.ambient_max_c > curves.ambient_min_c:
+        ax.axvspan(
+            curves.ambient_min_c, curves.ambient_max_c, color=BAND, alpha=0.6, linewidth=0, label="ambient range"
+        )
+    parts = (
+        ("LED junction", curves.led_junction_c, curves.led_limit_c, CURVE, "LED Tj,max − 20 K"),
+        (
+            "transistor junction",
+            curves.transistor_junction_c,
+            curves.transistor_limit_c,
+            INK,
+            "transistor Tj,max − 20 K",
+        ),
+        ("resistor hot spot", curves.resistor_hot_spot_c, curves.resistor_limit_c, REFERENCE, "resistor zero-power"),
+    )
+    for label, temperature, limit, colour, limit_label in parts:
+        ax.plot(ta, temperature, color=colour, linewidth=2.0, label=label)
+        ax.axhline(limit, color=colour, linewidth=1.2, linestyle="--", label=limit_label)
+    runaway = np.isnan(curves.led_junction_c)
+    if runaway.any():
+        ax.axvline(float(ta[np.argmax(runaway)]), color=LIMIT, linewidth=1.6, label="LED string runs away")
+    ax.axvline(curves.operating_ambient_c, color=OPERATING, linewidth=1.0, linestyle=":", label="ambient")
+    ax.set_xlim(float(ta[0]), float(ta[-1]))
+    ax.set_xlabel("ambient [°C]")
+    ax.set_ylabel("temperature [°C]")
+    _legend(ax, loc="upper left")
+    title = "Part temperatures against ambient"
+    _title(figure, title)
+    at = int(np.argmin(np.abs(ta - curves.operating_ambient_c)))
+    markers = {
+        "ambient_c": float(ta[at]),
+        "led_junction_c": float(curves.led_junction_c[at]),
+        "transistor_junction_c": float(curves.transistor_junction_c[at]),
+        "resistor_hot_spot_c": float(curves.resistor_hot_spot_c[at]),
+        "led_limit_c": curves.led_limit_c,
+        "transistor_limit_c": curves.transistor_limit_c,
     }
     return _render(figure, fmt, title, markers)
 

@@ -12,7 +12,7 @@ from flask.views import MethodView
 from flask_smorest import Blueprint
 
 from calcsvc.core import channel
-from calcsvc.service.review import Distribution, most_failing, run_review
+from calcsvc.service.review import Distribution, heat_of, most_failing, run_review
 from calcsvc.web import plots
 from calcsvc.web.auth import database, guard_reads
 from calcsvc.web.images import image_response
@@ -82,5 +82,19 @@ def _register_histogram(fmt: str) -> None:
     blp.route(f"/channel/histogram.{fmt}", endpoint=f"histogram-{fmt}")(Histogram)
 
 
+def _register_heat(fmt: str) -> None:
+    class Heat(MethodView):
+        @blp.arguments(REVIEW_REQUEST)
+        @blp.response(200, {"type": "string"}, content_type=plots.FORMATS[fmt], description=f"the plot ({fmt})")
+        @error_response(blp, 404, "a referenced part does not exist")
+        def post(self, body: dict[str, Any]) -> Response:
+            """Each part's temperature against the ambient, with its limit; same body as the review."""
+            return image_response(plots.heat_plot(heat_of(database(), body), fmt))
+
+    Heat.__name__ = f"Heat{fmt.capitalize()}"
+    blp.route(f"/channel/heat.{fmt}", endpoint=f"heat-{fmt}")(Heat)
+
+
 for _fmt in plots.FORMATS:
     _register_histogram(_fmt)
+    _register_heat(_fmt)

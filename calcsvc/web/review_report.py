@@ -78,6 +78,26 @@ def _yield_line(review: dict[str, Any]) -> str:
     )
 
 
+def heat_line(review: dict[str, Any]) -> str:
+    """Each part's temperature and derated limit at the review's ambient, and the largest passing ambient."""
+    heat = review["stages"]["thermal"]
+    led = (
+        "runs away (no stable temperature)"
+        if heat["led_junction_c"] is None
+        else f"{number(heat['led_junction_c'])} °C"
+    )
+    top = review["max_ambient_c"]
+    passing = "fails already at the coldest ambient" if top is None else f"passes up to {number(top)} °C ambient"
+    return (
+        f"At {number(heat['ambient_c'])} °C ambient: LED junction {led} "
+        f"(current {number(heat['led_current_hot_a'])} A, limit {number(heat['led_current_limit_a'])} A); "
+        f"transistor junction {number(heat['transistor_junction_c'])} °C "
+        f"(derated limit {number(heat['transistor_derated_limit_w'])} W); string resistor hot spot "
+        f"{number(heat['resistor_hot_spot_c'])} °C (derated limit {number(heat['resistor_derated_limit_w'])} W). "
+        f"The design {passing}."
+    )
+
+
 def render_markdown(review: dict[str, Any]) -> str:
     verdict = review["verdict"].upper()
     lines = [f"# Channel review: {verdict}", ""]
@@ -86,6 +106,8 @@ def render_markdown(review: dict[str, Any]) -> str:
     lines += [
         f"Largest duty cycle the supply allows for {review['inputs'].get('channels', 1)} channel(s): "
         f"{number(review['max_duty_cycle'])}.",
+        "",
+        heat_line(review),
         "",
         _yield_line(review),
         "",
@@ -143,6 +165,7 @@ def render_html(review: dict[str, Any]) -> str:
         f"<h1>Channel review: <span class='verdict {escape(review['verdict'])}'>{escape(review['verdict'].upper())}"
         f"</span></h1>{failing}"
         f"<p>Largest duty cycle the supply allows: {escape(number(review['max_duty_cycle']))}.</p>"
+        f"<p>{escape(heat_line(review))}</p>"
         f"<p>{escape(_yield_line(review))}</p>"
         f"<h2>Checks</h2>{render_table_html(review)}"
         f"<h2>Parts</h2><ul>{parts or '<li>none: every value was given explicitly</li>'}</ul>"

@@ -20,6 +20,9 @@ class CornerCheckSchema(Schema):
 
 class ReviewCheckSchema(CheckSchema):
     stage = fields.String(required=True)
+    part = fields.String(
+        metadata={"description": "the part a thermal check judges: led, transistor or string resistor"}
+    )
     nominal_ok = fields.Boolean(required=True)
     worst_case = fields.Nested(CornerCheckSchema, required=True)
 
@@ -48,6 +51,14 @@ class ReviewSchema(Schema):
     failing = fields.List(fields.String(), required=True, metadata={"description": "checks failing at some corner"})
     failing_nominal = fields.List(fields.String(), required=True)
     max_duty_cycle = fields.Float(allow_none=True, required=True)
+    max_ambient_c = fields.Float(
+        allow_none=True,
+        required=True,
+        metadata={
+            "description": "largest ambient (°C) at which every check passes at every corner, from the cold end "
+            "of the range up (null: fails already there; 200: passes up to the search's bound)"
+        },
+    )
     stages = fields.Dict(required=True, metadata={"description": "results of each stage (front_stage null if none)"})
     checks = fields.List(fields.Nested(ReviewCheckSchema), required=True)
     yield_ = fields.Nested(YieldSchema, allow_none=True, required=True, attribute="yield", data_key="yield")

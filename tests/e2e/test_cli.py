@@ -21,7 +21,10 @@ from calcsvc.client import Client
 pytest_plugins = ("live_server",)
 
 LED_RED = ["--supply", "supply-adapter-12v-2a", "--led", "led-red-5mm", "--leds_in_series", "3"]
-LED_HEADER = "part_id,kind,description,color,vf_typ_v,vf_min_v,vf_max_v,if_test_a,if_max_a\n"
+LED_HEADER = (
+    "part_id,kind,description,color,vf_typ_v,vf_min_v,vf_max_v,if_test_a,if_max_a,"
+    "tj_max_c,rth_jb_k_per_w,rth_ba_k_per_w,vf_tempco_v_per_k,if_derating_knee_c\n"
+)
 
 
 def table(url: str) -> dict[str, tuple[str, str, dict[str, Any]]]:
@@ -72,7 +75,7 @@ def test_export_writes_si_columns_for_one_kind(seeded: Flask, live_url: str, tmp
     lines = path.read_text().splitlines()
     assert lines[0] + "\n" == LED_HEADER
     red = next(line for line in lines if line.startswith("led-red-5mm,"))
-    assert red.endswith(",red,2.1,1.9,2.5,0.02,0.03")
+    assert red.endswith(",red,2.1,1.9,2.5,0.02,0.03,100,200,150,-0.002,60")
     assert len(lines) == 1 + 6
 
 
@@ -89,7 +92,8 @@ def test_export_writes_formula_text_inert_and_reads_it_back_unchanged(
     rows = {row[0]: row for row in csv.reader(io.StringIO(path.read_text()))}
     for part_id, description in descriptions.items():
         assert rows[part_id][2] == "'" + description
-    assert rows["led-red-5mm"][4:] == ["2.1", "1.9", "2.5", "0.02", "0.03"]  # numbers stay numbers
+    # Numbers stay numbers.
+    assert rows["led-red-5mm"][4:] == ["2.1", "1.9", "2.5", "0.02", "0.03", "100", "200", "150", "-0.002", "60"]
     capsys.readouterr()
     assert main(["parts", "import", str(path), "--url", live_url, "--token", tokens["edna"]]) == 0
     assert "created 0, updated 0, unchanged 9" in capsys.readouterr().out

@@ -25,9 +25,11 @@ def save_demo(client: FlaskClient, tokens: dict[str, str], design_id: str = "gre
 
 
 def edit_led(client: FlaskClient, tokens: dict[str, str], parameters: dict[str, Any]) -> None:
-    etag = client.get("/v1/parts/led-red-5mm").headers["ETag"]
-    headers = {**bearer(tokens["edna"]), "If-Match": etag}
-    response = client.put("/v1/parts/led-red-5mm", json={"parameters": parameters}, headers=headers)
+    current = client.get("/v1/parts/led-red-5mm")
+    headers = {**bearer(tokens["edna"]), "If-Match": current.headers["ETag"]}
+    # A new reel of the same LED: only the changed parameters differ, its thermal data stay.
+    changed = {**current.get_json()["parameters"], **parameters}
+    response = client.put("/v1/parts/led-red-5mm", json={"parameters": changed}, headers=headers)
     assert response.status_code == 200, response.get_json()
 
 
@@ -70,11 +72,15 @@ def test_a_higher_forward_voltage_turns_the_design_from_pass_to_fail(
     first = impact["designs"][0]
     assert first["design_id"] == "greenhouse-demo"
     assert (first["before"]["verdict"], first["after"]["verdict"]) == ("pass", "fail")
-    assert first["after"]["failing"] == ["headroom"] and "verdict" in first["changes"]
+    # The new reel's low end (3 x 2.6 V) draws more than the LED's rating, its high end leaves no headroom.
+    assert {"headroom", "led_current_rating"} <= set(first["after"]["failing"]) and "verdict" in first["changes"]
     headroom = next(c for c in first["check_changes"] if c["name"] == "headroom")
     # Headroom at the worst corner: the adapter's low end 12 V x 0.95 = 11.4 V, less three LEDs at their highest
-    # forward voltage and the transistor's saturation voltage: 11.4 - 3 x 3.4 - 0.25 = 0.95 V (was 3.65 V).
-    assert headroom["after"]["value"] == pytest.approx(0.95) and headroom["before"]["value"] == pytest.approx(3.65)
+    # forward voltage and the transistor's saturation voltage: 11.4 - 3 x 3.4 - 0.25 = 0.95 V (was 3.65 V) with
+    # the LEDs at the air's temperature; their own few kelvin of self-heating lower each Vf by 4 mV/K (under
+    # 0.1 V for the three at this corner's current).
+    assert 0.95 < headroom["after"]["value"] < 0.95 + 0.1
+    assert 3.65 < headroom["before"]["value"] < 3.65 + 0.1
     assert headroom["after"]["ok"] is False and headroom["after"]["value"] < headroom["after"]["limit"]
     assert client.get("/v1/parts/led-red-5mm/revisions/2/impact").get_json() == impact
     # The approved revision put back in changes nothing.
@@ -88,7 +94,7 @@ def test_a_higher_forward_voltage_turns_the_design_from_pass_to_fail(
     approve = {**bearer(tokens["rita"]), "If-Match": '"led-red-5mm-r2"'}
     assert client.post("/v1/parts/led-red-5mm/approve", headers=approve).status_code == 200
     failing = client.get("/v1/designs?fails_at_current=true").get_json()
-    assert failing["total"] == 2 and failing["items"][0]["current"]["failing"] == ["headroom"]
+    assert failing["total"] == 2 and "headroom" in failing["items"][0]["current"]["failing"]
     again = client.get("/v1/designs/greenhouse-demo/review").get_json()
     assert (again["pinned"]["verdict"], again["current"]["verdict"]) == ("pass", "fail")
     assert again["pinned"]["reproduced"] is True and again["differs"] is True

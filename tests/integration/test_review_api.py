@@ -3,6 +3,7 @@ with the JSON number for number."""
 
 from __future__ import annotations
 
+import io
 import json
 import re
 from pathlib import Path
@@ -11,6 +12,7 @@ from typing import Any
 import pytest
 from flask.testing import FlaskClient
 from helpers import assert_problem
+from PIL import Image
 
 DEMO = json.loads((Path(__file__).resolve().parents[2] / "examples" / "greenhouse-channel.json").read_text())
 EXPLICIT = {
@@ -19,6 +21,8 @@ EXPLICIT = {
     "hfe_min": 80, "hfe_typ": 180, "vbe_sat_v": 0.9, "vce_sat_v": 0.25, "ic_max_a": 0.3, "power_max_w": 0.5,
     "vce_sat_forced_beta": 10, "base_junctions": 1, "vceo_max_v": 45,
     "vf_typ_v": 2.1, "vf_min_v": 1.9, "vf_max_v": 2.5, "if_max_a": 0.03,
+    "tj_max_c": 150, "rth_ja_k_per_w": 250, "led_tj_max_c": 100, "led_rth_jb_k_per_w": 200, "led_rth_ba_k_per_w": 150,
+    "vf_tempco_v_per_k": -0.002, "if_derating_knee_c": 60,
     "leds_in_series": 3, "strings": 2, "current_a": 0.02, "duty_cycle": 0.5, "channels": 6, "samples": 2000,
 }  # fmt: skip
 
@@ -32,8 +36,8 @@ def review(client: FlaskClient, body: dict[str, Any]) -> dict[str, Any]:
 def test_greenhouse_demo_passes_with_every_stage(client: FlaskClient, seeded: Any) -> None:
     data = review(client, DEMO)
     assert data["verdict"] == "pass" and data["failing"] == []
-    assert set(data["stages"]) == {"led_string", "switch", "supply", "front_stage"}
-    assert {c["stage"] for c in data["checks"]} == {"led_string", "switch", "supply", "front_stage"}
+    assert set(data["stages"]) == {"led_string", "switch", "supply", "front_stage", "thermal"}
+    assert {c["stage"] for c in data["checks"]} == {"led_string", "switch", "supply", "front_stage", "thermal"}
     assert {p["role"] for p in data["parts"]} == {"supply", "driver", "transistor", "led", "opamp"}
     # (12 - 3 x 2.1 - 0.25) V / 20 mA = 272.5 ohm, rounded up to the E24 value 300 ohm (IEC 60063).
     assert data["stages"]["led_string"]["resistor_ohm"] == 300.0
@@ -51,6 +55,64 @@ def test_greenhouse_demo_passes_with_every_stage(client: FlaskClient, seeded: An
     assert checks["opamp_supply_max"]["worst_case"]["limit"] == 30.0
     # Output offset: 2.5 mV × noise gain 20 (Franco, 3rd ed., §5.4, from memory), A0 150 000 V/V.
     assert data["stages"]["front_stage"]["output_offset_v"] == pytest.approx(0.05 / (1 + 20 / 150_000))
+
+
+HEAT_RESULTS = (
+    "led_junction_c", "led_current_limit_a", "transistor_junction_c", "transistor_derated_limit_w",
+    "resistor_hot_spot_c", "resistor_derated_limit_w", "thermal_iterations", "max_ambient_c",
+)  # fmt: skip
+
+
+def test_greenhouse_demo_at_45_c_shows_every_parts_temperature_and_derated_limit(
+    client: FlaskClient, seeded: Any
+) -> None:
+    data = review(client, {**DEMO, "ambient_c": "45 degC", "samples": 500})
+    heat = data["stages"]["thermal"]
+    assert heat["ambient_c"] == 45.0
+    assert all(isinstance(heat[name], float) for name in HEAT_RESULTS), heat
+    # Every part is warmer than the air; the transistor's rating is derated to (150 − 45)/250 W (thermal Ohm's law).
+    assert min(heat["led_junction_c"], heat["transistor_junction_c"], heat["resistor_hot_spot_c"]) > 45.0
+    assert heat["transistor_derated_limit_w"] == pytest.approx(105 / 250)
+    thermal = {c["name"]: c for c in data["checks"] if c["stage"] == "thermal"}
+    assert {c["part"] for c in thermal.values()} == {"led", "transistor", "string resistor"}
+    assert data["max_ambient_c"] == heat["max_ambient_c"]
+    assert any("warm enclosure" in caution for caution in data["cautions"])
+    assert any("datasheet" in caution for caution in data["cautions"])
+
+
+GROW_CHANNEL = {
+    **DEMO, "transistor": "npn-darlington-1a", "led": "led-deep-red-grow-1w", "current_a": "200 mA",
+    "duty_cycle": 1.0, "channels": 1, "samples": 0,
+}  # fmt: skip
+
+
+def test_a_design_passing_at_25_c_and_failing_at_55_c_names_the_check_the_part_and_the_largest_ambient(
+    client: FlaskClient, seeded: Any
+) -> None:
+    cool = review(client, {**GROW_CHANNEL, "ambient_c": 25})
+    assert cool["verdict"] == "pass", cool["failing"]
+    assert 25.0 < cool["max_ambient_c"] < 55.0
+    hot = review(client, {**GROW_CHANNEL, "ambient_c": 55})
+    assert hot["verdict"] == "fail"
+    failing = [c for c in hot["checks"] if not c["ok"]]
+    assert {(c["name"], c["part"]) for c in failing} >= {("transistor_junction_temperature", "transistor")}
+    assert hot["max_ambient_c"] is None  # fails already at its own (coldest) ambient
+    headers = {"Accept": "text/markdown"}
+    report = client.post("/v1/review/channel", json={**GROW_CHANNEL, "ambient_c": 25}, headers=headers)
+    assert "The design passes up to 36" in report.get_data(as_text=True)
+
+
+def test_thermal_runaway_is_a_failing_check_not_an_error(client: FlaskClient, seeded: Any) -> None:
+    # Five 1 W-class LEDs on 13 V through a Darlington: 0.4 V of headroom, no stable temperature below Tj,max.
+    body = {
+        **GROW_CHANNEL, "supply": None, "supply_v": 13, "supply_tolerance": 0.05, "current_max_a": 2,
+        "leds_in_series": 5, "current_a": "300 mA", "vf_tempco_v_per_k": "-4 mV/K",
+    }  # fmt: skip
+    del body["supply"]
+    data = review(client, body)
+    assert "led_thermal_runaway" in data["failing"]
+    assert data["stages"]["thermal"]["led_junction_c"] is None
+    assert any("runaway" in caution for caution in data["cautions"])
 
 
 @pytest.mark.parametrize(
@@ -163,3 +225,18 @@ def test_darlington_channel_asks_the_pin_for_a_fraction_of_a_milliamp(client: Fl
     assert data["verdict"] == "pass"
     assert switch["forced_beta_design"] == pytest.approx(250 / 1.05)
     assert switch["drive_current_a"] < 0.3e-3 and switch["drive_current_max_a"] < 0.5e-3
+
+
+def test_heat_plot_draws_each_parts_temperature_against_ambient(client: FlaskClient, seeded: Any) -> None:
+    body = {**DEMO, "ambient_c": 40, "ambient_min_c": 10, "ambient_max_c": 55, "samples": 0}
+    png = client.post("/v1/review/channel/heat.png", json=body)
+    assert png.status_code == 200 and png.mimetype == "image/png"
+    image = Image.open(io.BytesIO(png.data))
+    marked = {k: float(v) for k, v in (pair.split("=") for pair in image.info["Description"].split("; "))}
+    heat = review(client, body)["stages"]["thermal"]
+    assert marked["ambient_c"] == 40.0
+    for name in ("led_junction_c", "transistor_junction_c", "resistor_hot_spot_c"):
+        assert marked[name] == pytest.approx(heat[name], rel=1e-12), name
+    assert marked["led_limit_c"] == 100.0 - 20.0 and marked["transistor_limit_c"] == 150.0 - 20.0
+    svg = client.post("/v1/review/channel/heat.svg", json=body)
+    assert svg.mimetype == "image/svg+xml" and b"LED junction" in svg.data

@@ -329,11 +329,38 @@ def test_best_channel_design_reruns_identically_through_the_review(client: Flask
             "transistor_power_w": stages["switch"]["transistor_power_w"],
             "supply_average_current_a": stages["supply"]["average_current_a"],
             "supply_power_w": stages["supply"]["average_power_w"],
+            "led_junction_c": stages["thermal"]["led_junction_c"],
+            "transistor_junction_c": stages["thermal"]["transistor_junction_c"],
+            "resistor_hot_spot_c": stages["thermal"]["resistor_hot_spot_c"],
             "max_duty_cycle": review["max_duty_cycle"],
         }, rel=1e-12)  # fmt: skip
         assert design["cautions"] == review["cautions"]
     # Ranked by the least margin, descending.
     assert margins == sorted(margins, reverse=True)
+
+
+GROW_SEARCH = {
+    **DEMO, "led": "led-deep-red-grow-1w", "transistor": {}, "current_a": "200 mA", "duty_cycle": 1.0,
+    "channels": 1, "samples": 0,
+}  # fmt: skip
+
+
+def test_channel_search_judges_each_candidate_at_the_given_ambient(client: FlaskClient, seeded: Any) -> None:
+    # Two strings of three 1 W-class LEDs at 200 mA: the Darlington drops 1.1 V at 0.4 A, about 0.5 W in
+    # 140 K/W, so its junction keeps 20 K below 150 °C at 25 °C ambient but not at 55 °C.
+    def darlington(body: dict[str, Any]) -> dict[str, Any]:
+        designs = channel_select(client, body)["designs"]
+        used = [{p["role"]: p["part_id"] for p in d["parts"]} for d in designs]
+        return next(d for d, parts in zip(designs, used, strict=True) if parts["transistor"] == "npn-darlington-1a")
+
+    cool = darlington({**GROW_SEARCH, "ambient_c": 25})
+    assert cool["verdict"] == "pass"
+    hot = darlington({**GROW_SEARCH, "ambient_c": "55 degC"})
+    assert hot["verdict"] == "fail" and "transistor_junction_temperature" in hot["failing"]
+    assert hot["numbers"]["transistor_junction_c"] > cool["numbers"]["transistor_junction_c"] + 30.0
+    only = channel_select(client, {**GROW_SEARCH, "ambient_c": 55, "only_passing": True})["designs"]
+    # The Darlington, the only design passing at 25 °C (the others overdrive the 3.3 V pin), is left out at 55 °C.
+    assert only == []
 
 
 def test_channel_rank_by_supply_power(client: FlaskClient, seeded: Any) -> None:

@@ -39,6 +39,9 @@ NUMBERS = {
     "transistor_power_w": ("switch", "transistor_power_w"),
     "supply_average_current_a": ("supply", "average_current_a"),
     "supply_power_w": ("supply", "average_power_w"),
+    "led_junction_c": ("thermal", "led_junction_c"),
+    "transistor_junction_c": ("thermal", "transistor_junction_c"),
+    "resistor_hot_spot_c": ("thermal", "resistor_hot_spot_c"),
 }
 CHANNEL_RANKINGS = ("margin", "supply_power_w", "yield")
 

@@ -25,7 +25,7 @@ from calcsvc.web.metrics import record_calculation
 from calcsvc.web.pages.common import bp, shown
 from calcsvc.web.problems import Problem, service_problem
 from calcsvc.web.quantity import Quantity
-from calcsvc.web.review_report import number, render_markdown, render_table_html
+from calcsvc.web.review_report import heat_line, number, render_markdown, render_table_html
 
 # What a value of the channel form may hold: printable ASCII and the unit symbols, 80 characters at most
 # (no control characters or NUL, which PostgreSQL refuses, and nothing worth parsing at length).
@@ -52,6 +52,9 @@ ChannelForm = Schema.from_dict(
         "gain": Quantity(VOLTAGE_RATIO, minimum=0, exclusive_minimum=True),
         "signal_hz": Quantity("Hz", minimum=0, exclusive_minimum=True),
         "amplitude_v": Quantity("V", minimum=0, exclusive_minimum=True),
+        "ambient_c": Quantity("degC", minimum=-60, maximum=200),
+        "ambient_min_c": Quantity("degC", minimum=-60, maximum=200),
+        "ambient_max_c": Quantity("degC", minimum=-60, maximum=200),
         "samples": Quantity("dimensionless", minimum=0, maximum=monte_carlo.MAX_SAMPLES, integer=True),
         "seed": Quantity("dimensionless", minimum=0, maximum=2**32 - 1, integer=True),
     },
@@ -77,6 +80,11 @@ CHANNEL_FIELDS: dict[str, tuple[tuple[str, str, str], ...]] = {
         ("gain", "Preamp gain", "V/V, non-inverting"),
         ("signal_hz", "Signal frequency", "in Hz, or with a unit: 1 kHz"),
         ("amplitude_v", "Output amplitude, peak", "in V, or with a unit: 500 mV"),
+    ),
+    "Temperature": (
+        ("ambient_c", "Ambient", "in °C: the enclosure's air (25 °C if empty)"),
+        ("ambient_min_c", "Coldest ambient", "in °C: a cold start (the ambient if empty)"),
+        ("ambient_max_c", "Hottest ambient", "in °C: the hottest expected day (the ambient if empty)"),
     ),
     "Production yield": (
         ("samples", "Simulated builds", "a whole number; 0: no yield"),
@@ -151,6 +159,7 @@ def channel() -> Response:
         review=review,
         checks_table=Markup(render_table_html(review)) if review else None,  # the report's table, escaped there
         report=render_markdown(review) if review else None,
+        heat=heat_line(review) if review else None,
         number=number,
         errors=errors,
         message=message,

@@ -10,6 +10,7 @@ import numpy as np
 import pytest
 from hypothesis import given, settings
 from hypothesis import strategies as st
+from scipy.optimize import brentq
 from scipy.stats import binomtest
 from test_channel import DEMO, FRONT_CHECKS, NO_FRONT_STAGE, channel_rows, make, rows_to_inputs
 
@@ -30,7 +31,54 @@ def pin_current(row: dict[str, Any], r_b: float, at_supply: bool, hot: bool) -> 
     return (high - vbe) / r_b
 
 
-def corner_values(row: dict[str, Any], r_led: float, rb: float, corner: dict[str, str]) -> dict[str, tuple]:
+def led_heat(row: dict[str, Any], vs: float, vf25: float, r: float, ta: float) -> dict[str, float]:
+    """A string's junction by brentq on Tj = Ta + Rθ·Vf(Tj)·I(Tj), Vf(T) = Vf25 + k·(T − 25) per LED (−2 mV/K
+    class, from memory), I = max(Vs − Vce − N·Vf, 0)/R; runaway where the balance is negative at Tj,max."""
+    n, k, tmax = row["leds_in_series"], row["vf_tempco_v_per_k"], row["led_tj_max_c"]
+    rth = row["led_rth_jb_k_per_w"] + row["led_rth_ba_k_per_w"]
+
+    def led_power(t: float) -> float:
+        vf = vf25 + k * (t - 25.0)
+        return vf * max(vs - row["vce_sat_v"] - n * vf, 0.0) / r
+
+    def balance(t: float) -> float:
+        return t - ta - rth * led_power(t)
+
+    at_max = ta + rth * led_power(tmax)
+    if balance(tmax) < 0:
+        return {"vf": vf25 + k * (tmax - 25.0), "junction": at_max, "at_max": at_max}
+    t = ta if balance(ta) == 0 else brentq(balance, ta, tmax, xtol=1e-12, rtol=1e-14)
+    return {"vf": vf25 + k * (t - 25.0), "junction": t, "at_max": at_max}
+
+
+def thermal_checks(
+    row: dict[str, Any], ta: float, heat: dict[str, float], i_string: float, rating: float, r: float, power: float
+) -> dict[str, tuple]:
+    """The thermal checks in plain floats: thermal Ohm's law, a 20 K junction margin (common practice), the
+    IEC 60115-1 resistor curve (from memory) on the rating the LED stage chose."""
+    rth = row["rth_ja_k_per_w"]
+    if math.isnan(rth):
+        rth = (row["tj_max_c"] - 25.0) / row["power_max_w"]
+    tj = ta + power * rth
+    derated = min(max((row["tj_max_c"] - ta) / rth, 0.0), row["power_max_w"])
+    resistor_fraction = min(max((155.0 - ta) / (155.0 - 70.0), 0.0), 1.0)
+    led_max = row["led_tj_max_c"]
+    return {
+        "led_junction_temperature": (heat["junction"], led_max - 20.0, heat["junction"] <= led_max - 20.0),
+        "led_thermal_runaway": (heat["at_max"], led_max, heat["at_max"] <= led_max),
+        "resistor_derated_power": (
+            i_string**2 * r,
+            rating * resistor_fraction,
+            i_string**2 * r <= rating * resistor_fraction,
+        ),
+        "transistor_junction_temperature": (tj, row["tj_max_c"] - 20.0, tj <= row["tj_max_c"] - 20.0),
+        "transistor_derated_power": (power, derated, power <= derated),
+    }
+
+
+def corner_values(
+    row: dict[str, Any], r_led: float, rb: float, corner: dict[str, str], resistor_rating_w: float
+) -> dict[str, tuple]:
     """(value, limit, ok) of every check for one row at one corner, in plain floats (Ohm's law, KVL)."""
     tol = row["resistor_tolerance"]
     if math.isnan(tol):
@@ -45,6 +93,10 @@ def corner_values(row: dict[str, Any], r_led: float, rb: float, corner: dict[str
     r_b = rb * (1 + sign["base_resistor"] * tol)
     hfe = row["hfe_min"] if corner["hfe"] == "min" else 2 * row["hfe_typ"] - row["hfe_min"]
 
+    ambient = row[f"ambient_{'min' if corner['ambient'] == 'cold' else 'max'}_c"]
+    ta = row["ambient_c"] if math.isnan(ambient) else ambient
+    heat = led_heat(row, vs, vf, r, ta)
+    vf = heat["vf"]
     v_r = vs - row["leds_in_series"] * vf - row["vce_sat_v"]
     i_string = max(v_r, 0.0) / r
     ic = row["strings"] * i_string
@@ -62,8 +114,10 @@ def corner_values(row: dict[str, Any], r_led: float, rb: float, corner: dict[str
     def at_most(value: float, limit: float) -> tuple:
         return value, limit, math.isnan(limit) or value <= limit
 
+    knee, led_max = row["if_derating_knee_c"], row["led_tj_max_c"]  # linear from the knee to Tj,max
+    if_max = row["if_max_a"] * (1.0 if math.isnan(knee) else min(max((led_max - ta) / (led_max - knee), 0.0), 1.0))
     out = {
-        "led_current_rating": at_most(i_string, row["if_max_a"]),
+        "led_current_rating": at_most(i_string, if_max),
         "headroom": (v_r, 0.1 * vs, v_r >= 0.1 * vs),  # 10 % of the supply (common practice)
         "resistor_rating": at_most(2 * i_string**2 * r, 5.0),  # twice the dissipation within 5 W
         "saturation": (ic / ib, hfe, ic / ib < hfe),
@@ -76,6 +130,7 @@ def corner_values(row: dict[str, Any], r_led: float, rb: float, corner: dict[str
         "off_state": at_most(v_low + 1e-6 * r_b, 0.4 * row["base_junctions"]),
         "supply_average_current": at_most(supply_avg, row["current_max_a"]),
         "supply_peak_current": at_most(supply_peak, row["current_max_a"]),
+        **thermal_checks(row, ta, heat, i_string, resistor_rating_w, r, power),
     }
     if math.isnan(row["gbw_hz"]):
         front = ("gain_achievable", "signal_in_band", "slew_rate", "output_swing", "output_offset")
@@ -129,6 +184,29 @@ BRUTE_ROWS: list[dict[str, Any]] = [
     # An op-amp rated 11.5-12.5 V on the 12 V ±5 % supply: inside at nominal, outside at both ends; an
     # allowed output offset of 20 mV against 2.5 mV × 10.
     DEMO | {"opamp_supply_min_v": 11.5, "opamp_supply_max_v": 12.5, "output_offset_max_v": 0.02},
+    # A greenhouse from a cold start to a hot summer day, LEDs drifting -2 mV/K, on a 35 mA class rating
+    # derated from 40 °C: the hot end lowers every string's forward voltage and raises its current.
+    DEMO
+    | {
+        "ambient_c": 30.0,
+        "ambient_min_c": 0.0,
+        "ambient_max_c": 55.0,
+        "vf_tempco_v_per_k": -0.002,
+        "if_derating_knee_c": 40.0,
+        "if_max_a": 0.035,
+        "rth_ja_k_per_w": math.nan,
+    },
+    # A string with little headroom at 45 °C: four LEDs on 12 V, self-heating raises its current steeply.
+    DEMO
+    | NO_FRONT_STAGE
+    | {
+        "leds_in_series": 5.0,
+        "vf_tempco_v_per_k": -0.004,
+        "ambient_c": 45.0,
+        "ambient_min_c": 20.0,
+        "current_a": 0.025,
+        "led_rth_ba_k_per_w": 600.0,
+    },
 ]
 
 
@@ -138,8 +216,9 @@ def test_worst_case_matches_brute_force_enumeration() -> None:
     for k, row in enumerate(BRUTE_ROWS):
         r_led = float(wc.nominal.led_string.results["resistor_ohm"][k])
         rb = float(wc.nominal.switch.results["rb_ohm"][k])
+        rating = float(wc.nominal.led_string.results["resistor_rating_w"][k])
         table = {
-            combo: corner_values(row, r_led, rb, dict(zip(QUANTITIES, combo, strict=True)))
+            combo: corner_values(row, r_led, rb, dict(zip(QUANTITIES, combo, strict=True)), rating)
             for combo in itertools.product(*settings_lists)
         }
         for worst in wc.checks:
@@ -164,7 +243,8 @@ def test_depends_on_is_exact() -> None:
     for row in BRUTE_ROWS:
         out = review(rows_to_inputs([row]))
         r_led, rb = float(out.led_string.results["resistor_ohm"][0]), float(out.switch.results["rb_ohm"][0])
-        tables.append({i: corner_values(row, r_led, rb, c) for i, c in enumerate(CORNERS)})
+        rating = float(out.led_string.results["resistor_rating_w"][0])
+        tables.append({i: corner_values(row, r_led, rb, c, rating) for i, c in enumerate(CORNERS)})
     for name, depends in DEPENDS_ON.items():
         for q in QUANTITIES:
             changes = False
@@ -186,15 +266,28 @@ def test_greenhouse_demo_worst_case_by_hand() -> None:
     # supply: 6 × 49.123 mA = 0.29474 A peak, half that on average; output swing 11.4/2 − 1.5 = 4.2 V.
     wc = worst_case(make())
     expect = {
-        "led_current_rating": (7.0 / 285, {"supply": "high", "vf": "min", "led_resistor": "low"}),
-        "headroom": (4.0, {"supply": "low", "vf": "max"}),
+        "led_current_rating": (7.0 / 285, {"supply": "high", "vf": "min", "led_resistor": "low", "ambient": "cold"}),
+        "headroom": (4.0, {"supply": "low", "vf": "max", "led_resistor": "low", "ambient": "cold"}),
         "saturation": (
             (2 * 7.0 / 285) / (2.05 / 409.5),
-            {"supply": "high", "vf": "min", "led_resistor": "low", "base_resistor": "high", "hfe": "min"},
+            {
+                "supply": "high",
+                "vf": "min",
+                "led_resistor": "low",
+                "base_resistor": "high",
+                "hfe": "min",
+                "ambient": "cold",
+            },
         ),
         "driver_current": (2.65 / 370.5, {"base_resistor": "low", "pin_high": "at its supply", "vbe": "hot"}),
-        "supply_peak_current": (6 * 2 * 7.0 / 285, {"supply": "high", "vf": "min", "led_resistor": "low"}),
-        "supply_average_current": (3 * 2 * 7.0 / 285, {"supply": "high", "vf": "min", "led_resistor": "low"}),
+        "supply_peak_current": (
+            6 * 2 * 7.0 / 285,
+            {"supply": "high", "vf": "min", "led_resistor": "low", "ambient": "cold"},
+        ),
+        "supply_average_current": (
+            3 * 2 * 7.0 / 285,
+            {"supply": "high", "vf": "min", "led_resistor": "low", "ambient": "cold"},
+        ),
         "output_swing": (1.0, {"supply": "low"}),
         "off_state": (0.4 * 1e-6 / 0.008 + 1e-6 * 409.5, {"base_resistor": "high", "leakage": "hot"}),
         "voltage_rating": (12.6, {"supply": "high"}),
@@ -263,6 +356,7 @@ def test_nominal_pass_can_hide_a_worst_case_saturation_failure() -> None:
         "led_resistor": "low",
         "base_resistor": "high",
         "hfe": "min",
+        "ambient": "cold",
     }
     assert sat.margin()[0] < 0
 

@@ -35,14 +35,14 @@ def test_a_battery_band_gives_the_worst_case_corners() -> None:
     x = make(**PACK, **NO_FRONT_STAGE)
     worst = worst_case(x)
     headroom = worst.check("headroom")
-    assert headroom.corner(0) == {"supply": "low", "vf": "max"}
+    assert headroom.corner(0) == {"supply": "low", "vf": "max", "led_resistor": "low", "ambient": "cold"}
     assert headroom.check.limit[0] == pytest.approx(0.1 * 6.0)  # 10 % of the end-of-discharge voltage
     assert headroom.check.value[0] == pytest.approx(6.0 - 3 * 2.4 - 0.2)  # below the string's drop: dark
     # The string resistor is chosen at 9 V: (9 − 3 × 2.0 − 0.2) V / 20 mA = 140 Ω → 150 Ω (E24); the highest
     # current flows from a fresh pack through the lowest LEDs and a resistor 5 % low (Ohm's law).
     assert worst.nominal.led_string.results["resistor_ohm"][0] == 150.0
     current = worst.check("led_current_rating")
-    assert current.corner(0) == {"supply": "high", "vf": "min", "led_resistor": "low"}
+    assert current.corner(0) == {"supply": "high", "vf": "min", "led_resistor": "low", "ambient": "cold"}
     assert current.check.value[0] == pytest.approx((9.6 - 3 * 1.8 - 0.2) / (150 * 0.95))
     # The base resistor is sized for that highest current, so the switch saturates on a fresh pack too.
     assert worst.nominal.collector_current_max_a[0] == pytest.approx(2 * (9.6 - 3 * 1.8 - 0.2) / (150 * 0.95))

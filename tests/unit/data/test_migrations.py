@@ -20,7 +20,10 @@ from calcsvc.data.design_store import DesignContent, DesignStore
 from calcsvc.data.store import PartStore
 
 PARTS = {
-    "led-amber-3mm": ("led", [{"color": "amber", "vf_typ_v": 2.1}, {"color": "amber", "vf_typ_v": 2.05}]),
+    "led-amber-3mm": (
+        "led",
+        [{"color": "amber", "vf_typ_v": 2.1}, {"color": "amber", "vf_typ_v": 2.05, "tj_max_c": 110.0}],
+    ),
     "npn-spare": ("bjt", [{"polarity": "npn", "hfe_min": 100}]),
     "supply-bench-12v": ("supply", [{"supply_v": 12.0, "supply_tolerance": 0.05}, {"supply_v": 12.0}]),
     "driver-pin-3v3": ("driver", [{"voh_v": 2.9, "vol_v": 0.4}]),
@@ -31,9 +34,13 @@ STATUS = {
     "supply-bench-12v": "draft",
     "driver-pin-3v3": "draft",
 }
-# What 0003 writes into every stored revision that lacks it (the conservative defaults its docstring states).
+# What 0004 writes (the conservative thermal defaults its docstring states); a value already present stays.
+LED_HEAT = {"tj_max_c": 100.0, "rth_jb_k_per_w": 300.0, "rth_ba_k_per_w": 200.0, "vf_tempco_v_per_k": -0.004}
+# What 0003 and 0004 write into every stored revision that lacks it (the conservative defaults they state).
 ADDED = {
-    ("npn-spare", 1): {"vce_sat_forced_beta": 10, "base_junctions": 1},
+    ("led-amber-3mm", 1): LED_HEAT,
+    ("led-amber-3mm", 2): {k: v for k, v in LED_HEAT.items() if k != "tj_max_c"},  # its own 110 °C is kept
+    ("npn-spare", 1): {"vce_sat_forced_beta": 10, "base_junctions": 1, "tj_max_c": 125.0},
     ("supply-bench-12v", 1): {"supply_min_v": 11.4, "supply_max_v": 12.6},  # 12 V ± 5 %
     ("supply-bench-12v", 2): {"supply_min_v": 12.0, "supply_max_v": 12.0},  # no tolerance: the band is the point
     ("driver-pin-3v3", 1): {"vdd_v": 3.3},  # the smallest common logic supply at or above a 2.9 V high level
@@ -142,7 +149,7 @@ def test_upgrade_from_the_first_migration_keeps_every_part(empty_url: str) -> No
 
 def test_saved_designs_tables_come_and_go_keeping_every_part(empty_url: str) -> None:
     config = alembic_config(empty_url)
-    command.upgrade(config, "0003")
+    command.upgrade(config, "0004")
     database = Database(empty_url)
     with database.transaction() as session:
         store = PartStore(session)
@@ -163,7 +170,7 @@ def test_saved_designs_tables_come_and_go_keeping_every_part(empty_url: str) -> 
     database.dispose()
     assert _dump(empty_url) == before
 
-    command.downgrade(config, "0003")  # the design tables go; every part, revision and event stays
+    command.downgrade(config, "0004")  # the design tables go; every part, revision and event stays
     assert _dump(empty_url) == before
     engine = create_engine(empty_url)
     with engine.connect() as connection:

@@ -5,7 +5,7 @@ the designs a part edit touches are one indexed query.
 No existing table is changed: every part, revision and event is kept as it is.
 
 Revision ID: 0005
-Revises: 0003
+Revises: 0004
 Create Date: 2026-12-03
 """
 
@@ -13,7 +13,7 @@ import sqlalchemy as sa
 from alembic import op
 
 revision = "0005"
-down_revision = "0003"
+down_revision = "0004"
 branch_labels = None
 depends_on = None
 

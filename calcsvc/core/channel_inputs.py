@@ -1,0 +1,100 @@
+"""The channel review's per-row inputs (``channel``), one array per flat JSON input name."""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+import numpy as np
+
+from calcsvc.core.outcome import BoolArray, FloatArray
+
+# Front-stage inputs besides gbw_hz, whose presence (non-NaN) marks a row as having a front stage.
+FRONT_STAGE_FIELDS = (
+    "gain",
+    "open_loop_gain",
+    "slew_rate_v_per_s",
+    "output_headroom_v",
+    "signal_hz",
+    "amplitude_v",
+    "opamp_supply_min_v",
+    "opamp_supply_max_v",
+    "input_offset_v",
+    "output_offset_max_v",
+)
+
+
+@dataclass(frozen=True)
+class ChannelInputs:
+    """Per-row inputs, arrays of shape ``(n,)``; field names are the flat JSON input names.
+
+    NaN marks an optional value as not given: ``supply_min_v`` and ``supply_max_v`` (together: the band is
+    ``supply_v`` ± ``supply_tolerance``), ``capacity_ah``, ``source_current_max_a`` (pin rating unknown:
+    ``driver_current`` does not apply), ``resistor_tolerance`` (the series' default, for both resistors),
+    and the front stage (NaN ``gbw_hz``: no front stage on that row; then every other front-stage field must
+    be NaN too). With a front stage, ``gain`` (magnitude, V/V) and ``slew_rate_v_per_s`` are required and
+    ``open_loop_gain``, ``output_headroom_v``, ``signal_hz``, ``amplitude_v`` (peak), the op-amp's supply
+    range ``opamp_supply_min_v``/``opamp_supply_max_v``, ``input_offset_v`` and the allowed
+    ``output_offset_max_v`` stay optional.
+    ``leds_in_series``, ``strings`` and ``channels`` hold whole numbers as floats; ``e_series`` is a numpy str
+    array, ``inverting`` a bool array.
+    """
+
+    supply_v: FloatArray
+    supply_tolerance: FloatArray
+    supply_min_v: FloatArray
+    supply_max_v: FloatArray
+    current_max_a: FloatArray
+    capacity_ah: FloatArray
+    drive_high_v: FloatArray
+    drive_low_v: FloatArray
+    source_current_max_a: FloatArray
+    hfe_min: FloatArray
+    hfe_typ: FloatArray
+    vbe_sat_v: FloatArray
+    vce_sat_v: FloatArray
+    ic_max_a: FloatArray
+    power_max_w: FloatArray
+    vf_typ_v: FloatArray
+    vf_min_v: FloatArray
+    vf_max_v: FloatArray
+    if_max_a: FloatArray
+    leds_in_series: FloatArray
+    strings: FloatArray
+    current_a: FloatArray
+    duty_cycle: FloatArray
+    channels: FloatArray
+    e_series: np.ndarray
+    forced_beta: FloatArray  # NaN: from the part
+    vce_sat_forced_beta: FloatArray
+    base_junctions: FloatArray
+    vceo_max_v: FloatArray  # NaN: not checked
+    rbe_ohm: FloatArray  # NaN: no base pull-down
+    drive_supply_v: FloatArray  # NaN: not given
+    resistor_tolerance: FloatArray
+    inverting: BoolArray
+    gain: FloatArray
+    gbw_hz: FloatArray
+    open_loop_gain: FloatArray
+    slew_rate_v_per_s: FloatArray
+    output_headroom_v: FloatArray
+    signal_hz: FloatArray
+    amplitude_v: FloatArray
+    opamp_supply_min_v: FloatArray
+    opamp_supply_max_v: FloatArray
+    input_offset_v: FloatArray
+    output_offset_max_v: FloatArray
+    # Heat (``channel_thermal``); NaN marks an optional value as not given.
+    ambient_c: FloatArray
+    ambient_min_c: FloatArray  # NaN: ambient_c
+    ambient_max_c: FloatArray  # NaN: ambient_c
+    tj_max_c: FloatArray
+    rth_ja_k_per_w: FloatArray  # NaN: from the power rating at 25 °C
+    rth_jc_k_per_w: FloatArray  # with heatsink_k_per_w: a heat sink
+    heatsink_k_per_w: FloatArray  # NaN: none
+    led_tj_max_c: FloatArray
+    led_rth_jb_k_per_w: FloatArray
+    led_rth_ba_k_per_w: FloatArray
+    vf_tempco_v_per_k: FloatArray
+    if_derating_knee_c: FloatArray  # NaN: no current derating curve
+    resistor_rated_to_c: FloatArray
+    resistor_zero_power_c: FloatArray

@@ -1,0 +1,174 @@
+"""Heat in parts: thermal Ohm's law, derating curves and the LED string's electro-thermal operating point.
+
+Every function takes and returns arrays that broadcast against each other, so single rows, batches, the
+worst-case corners and the Monte Carlo share them. Temperatures in °C, thermal resistances in K/W.
+
+Thermal Ohm's law (any heat-conduction text, e.g. Sedra & Smith, *Microelectronic Circuits*, the section on
+power dissipation of transistors)
+    Tj = Ta + P·Rθ. A part rated ``P_rated`` at 25 °C ambient without a heat sink reaches Tj,max exactly
+    there, so Rθja = (Tj,max − 25 °C)/P_rated, and its derated limit at Ta is (Tj,max − Ta)/Rθja, never above
+    the rating (a datasheet's curve is flat below 25 °C). With a heat sink Rθ = Rθjc + Rθca (the sink's
+    figure, interface included) and the limit is not capped by the free-air rating.
+
+Fixed resistors (IEC 60115-1, the usual derating curve; from memory)
+    Full rated power up to the rated ambient (70 °C), falling linearly to zero at the zero-power temperature
+    (155 °C). The curve implies the hot spot: at rated power and 70 °C the element sits at 155 °C, so
+    T_hot = Ta + P·(155 − 70)/P_rated.
+
+LED current derating (the shape datasheets draw; common practice)
+    Where a part gives a knee, its maximum current is full up to the knee ambient and falls linearly to zero
+    at its Tj,max.
+
+The coupled LED point
+    A string of N LEDs with series resistor R across ``headroom_v`` (supply less switch drop):
+    Vf(T) = Vf25 + k·(Tj − 25) per LED (k < 0: about −2 mV/K, from memory), I(T) = max(H − N·Vf(T), 0)/R,
+    P(T) = Vf(T)·I(T) per LED and Tj = Ta + Rθ·P(Tj). The solve is a Newton iteration on
+    g(T) = T − Ta − Rθ·P(T) from Tj,max downwards, kept inside a bracket [Ta, Tj,max] by bisection, for all
+    points at once; it reports the iterations each point needed. g(Ta) ≤ 0; where g(Tj,max) < 0 there is no
+    stable point below Tj,max: the string runs away (reported, not solved).
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+import numpy as np
+import numpy.typing as npt
+
+from calcsvc.core.outcome import BoolArray, FloatArray
+
+REFERENCE_C = 25.0  # the ambient at which ratings and forward voltages are stated
+JUNCTION_MARGIN_K = 20.0  # keep junctions this far below Tj,max (common practice: 20–25 K)
+RESISTOR_RATED_TO_C = 70.0  # IEC 60115-1 derating curve (from memory)
+RESISTOR_ZERO_POWER_C = 155.0  # IEC 60115-1 derating curve (from memory)
+SOLVE_TOLERANCE_K = 1e-9
+MAX_ITERATIONS = 100  # Newton with bisection needs well under 60 (bisection alone halves 100 K to 1e-9 K in 37)
+
+
+def junction_temperature(ambient_c: npt.ArrayLike, power_w: npt.ArrayLike, rth_k_per_w: npt.ArrayLike) -> FloatArray:
+    """Thermal Ohm's law: Tj = Ta + P·Rθ."""
+    return np.asarray(ambient_c, dtype=np.float64) + np.asarray(power_w) * np.asarray(rth_k_per_w)
+
+
+def rth_from_rating(tj_max_c: npt.ArrayLike, power_rated_w: npt.ArrayLike) -> FloatArray:
+    """Rθja implied by a power rating at 25 °C ambient without a heat sink: (Tj,max − 25)/P_rated."""
+    return (np.asarray(tj_max_c, dtype=np.float64) - REFERENCE_C) / np.asarray(power_rated_w)
+
+
+def derated_power(
+    tj_max_c: npt.ArrayLike, ambient_c: npt.ArrayLike, rth_k_per_w: npt.ArrayLike, cap_w: npt.ArrayLike = np.inf
+) -> FloatArray:
+    """The largest dissipation keeping the junction at Tj,max at this ambient, (Tj,max − Ta)/Rθ, in [0, cap]."""
+    with np.errstate(divide="ignore", invalid="ignore"):
+        limit = (np.asarray(tj_max_c, dtype=np.float64) - np.asarray(ambient_c)) / np.asarray(rth_k_per_w)
+    return np.clip(limit, 0.0, cap_w)
+
+
+def resistor_derating(
+    ambient_c: npt.ArrayLike,
+    rated_to_c: npt.ArrayLike = RESISTOR_RATED_TO_C,
+    zero_power_c: npt.ArrayLike = RESISTOR_ZERO_POWER_C,
+) -> FloatArray:
+    """The fraction of a fixed resistor's rated power allowed at this ambient (1 up to ``rated_to_c``, then
+    linear to 0 at ``zero_power_c``)."""
+    zero = np.asarray(zero_power_c, dtype=np.float64)
+    return np.clip((zero - np.asarray(ambient_c)) / (zero - np.asarray(rated_to_c)), 0.0, 1.0)
+
+
+def resistor_hot_spot(
+    ambient_c: npt.ArrayLike,
+    power_w: npt.ArrayLike,
+    rating_w: npt.ArrayLike,
+    rated_to_c: npt.ArrayLike = RESISTOR_RATED_TO_C,
+    zero_power_c: npt.ArrayLike = RESISTOR_ZERO_POWER_C,
+) -> FloatArray:
+    """The hot-spot temperature the derating curve implies: Ta + P·(zero − rated_to)/P_rated."""
+    rth = (np.asarray(zero_power_c, dtype=np.float64) - np.asarray(rated_to_c)) / np.asarray(rating_w)
+    return junction_temperature(ambient_c, power_w, rth)
+
+
+def current_derating(ambient_c: npt.ArrayLike, knee_c: npt.ArrayLike, tj_max_c: npt.ArrayLike) -> FloatArray:
+    """The fraction of an LED's maximum current allowed at this ambient: 1 up to the knee, linear to 0 at
+    Tj,max; 1 where no knee is given (NaN)."""
+    knee = np.asarray(knee_c, dtype=np.float64)
+    with np.errstate(divide="ignore", invalid="ignore"):
+        share = np.clip((np.asarray(tj_max_c) - np.asarray(ambient_c)) / (np.asarray(tj_max_c) - knee), 0.0, 1.0)
+    return np.where(np.isnan(knee), 1.0, share)
+
+
+@dataclass(frozen=True)
+class LedPoint:
+    """The coupled operating point of LED strings; arrays in the broadcast shape of the inputs."""
+
+    junction_c: FloatArray  # NaN where the string runs away
+    string_vf_v: FloatArray  # the string's forward voltage at its junction temperature
+    current_a: FloatArray
+    led_power_w: FloatArray  # per LED
+    iterations: npt.NDArray[np.int64]
+    runaway: BoolArray  # no stable point at or below Tj,max
+    heating_at_max_c: FloatArray  # Ta + Rθ·P(Tj,max): where heat at Tj,max would drive the junction
+
+
+def led_operating_point(
+    headroom_v: npt.ArrayLike,
+    string_vf_v: npt.ArrayLike,
+    resistor_ohm: npt.ArrayLike,
+    leds_in_series: npt.ArrayLike,
+    vf_tempco_v_per_k: npt.ArrayLike,
+    rth_k_per_w: npt.ArrayLike,
+    ambient_c: npt.ArrayLike,
+    tj_max_c: npt.ArrayLike,
+) -> LedPoint:
+    """Solve Tj = Ta + Rθ·Vf(Tj)·I(Tj) for every point at once (model: module docstring).
+
+    ``string_vf_v`` is the string's forward voltage at 25 °C; ``rth_k_per_w`` is one LED's junction to ambient.
+    """
+    arrays = np.broadcast_arrays(
+        *(
+            np.asarray(x, dtype=np.float64)
+            for x in (headroom_v, string_vf_v, resistor_ohm, leds_in_series, vf_tempco_v_per_k, rth_k_per_w)
+        ),
+        np.asarray(ambient_c, dtype=np.float64),
+        np.asarray(tj_max_c, dtype=np.float64),
+    )
+    head, vf25, r, n, k, rth, ta, tmax = arrays
+
+    def balance(t: FloatArray) -> tuple[FloatArray, FloatArray, FloatArray, FloatArray]:
+        vf = vf25 + n * k * (t - REFERENCE_C)
+        lit = head > vf
+        current = np.where(lit, head - vf, 0.0) / r
+        power = vf / n * current
+        slope = k * current + np.where(lit, vf / n * (-n * k / r), 0.0)
+        return t - ta - rth * power, 1.0 - rth * slope, vf, current
+
+    g_top, *_ = balance(tmax)
+    runaway = g_top < 0.0
+    low, high = ta.copy(), tmax.copy()
+    t = tmax.copy()
+    iterations = np.zeros(t.shape, dtype=np.int64)
+    active = ~runaway
+    for _ in range(MAX_ITERATIONS):
+        if not active.any():
+            break
+        g, slope, _, _ = balance(t)
+        low = np.where(active & (g < 0.0), t, low)
+        high = np.where(active & (g >= 0.0), t, high)
+        with np.errstate(divide="ignore", invalid="ignore"):
+            newton = t - g / slope
+        outside = ~np.isfinite(newton) | (newton < low) | (newton > high)
+        step = np.where(outside, 0.5 * (low + high), newton)
+        settled = (np.abs(step - t) <= SOLVE_TOLERANCE_K) | (g == 0.0)
+        iterations += active
+        t = np.where(active, step, t)
+        active &= ~settled
+    _, _, vf, current = balance(t)
+    junction = np.where(runaway, np.nan, t)
+    return LedPoint(
+        junction_c=junction,
+        string_vf_v=vf,
+        current_a=current,
+        led_power_w=vf / n * current,
+        iterations=iterations,
+        runaway=runaway,
+        heating_at_max_c=tmax - g_top,
+    )
