@@ -37,7 +37,8 @@ import numpy as np
 import orjson
 import synthetic_parts
 from server import REPO, Server, gunicorn, peak_rss_bytes
-from traffic import Client, Tally, drive
+from traffic import Client, drive
+from wrk_load import WRK_INSTALL, Window, measured, run_wrk, wrk_path
 
 from calcsvc.core import closed_loop, eseries, led_string, monte_carlo, tolerance
 from calcsvc.core.channel import ChannelInputs
@@ -55,7 +56,6 @@ from calcsvc.service.search.role import RoleSearch, search_role
 RESULTS = REPO / "benchmarks" / "RESULTS.md"
 JSON = {"Content-Type": "application/json"}
 ENDPOINT_TARGET = 0.7  # calculation endpoint at least 0.7 of the bare route's requests/s
-ENDPOINT_ROUNDS = 2
 BATCH_ROWS_PER_S_TARGET = 200_000
 BATCH_SPEEDUP_TARGET = 100.0
 SINGLE_REQUESTS = 1_000
@@ -140,13 +140,6 @@ def markdown_table(rows: list[Row]) -> str:
     )
 
 
-def cpu_model() -> str:
-    for line in Path("/proc/cpuinfo").read_text().splitlines():
-        if line.startswith("model name"):
-            return line.partition(":")[2].strip()
-    return platform.machine()
-
-
 def machine() -> dict[str, str]:
     memory = next(line.split()[1] for line in Path("/proc/meminfo").read_text().splitlines() if "MemTotal" in line)
     load = ", ".join(f"{x:.2f}" for x in os.getloadavg())
@@ -158,7 +151,7 @@ def machine() -> dict[str, str]:
         "python": platform.python_version(),
         "numpy": np.__version__,
         "gunicorn": version("gunicorn"),
-        "cpu": cpu_model(),
+        "architecture": platform.machine(),
         "load average (1, 5, 15 min) at start": load,
     }
 
@@ -411,66 +404,99 @@ def core_section(repeats: int) -> tuple[list[Row], list[str]]:
     return rows, notes
 
 
-def throughput(server: Server, path: str, body: bytes, seconds: float, args: argparse.Namespace) -> Tally:
-    tally = drive(
-        server.port,
-        lambda client, _rng: client.request(path, "POST", path, body, JSON),
-        seconds=seconds,
-        warmup=args.warmup,
-        processes=args.clients,
-        threads=args.threads,
-    )
-    bad = {key: count for key, count in tally.statuses.items() if key[1] != 200}
-    if bad:
-        raise RuntimeError(f"{path} answered other than 200: {bad}")
-    return tally
+def python_window(server: Server, path: str, body: bytes, seconds: float, args: argparse.Namespace) -> Window:
+    """One window of the Python load generator (when wrk is missing); its warm-up runs before the server's CPU is
+    read, so CPU per request counts only the requests counted."""
+    drive(server.port, lambda client, _rng: client.request(path, "POST", path, body, JSON), seconds=args.warmup,
+          warmup=0.0, processes=args.clients, threads=args.threads)  # fmt: skip
+
+    def run() -> tuple[int, float, float, int]:
+        tally = drive(
+            server.port,
+            lambda client, _rng: client.request(path, "POST", path, body, JSON),
+            seconds=seconds,
+            warmup=0.0,
+            processes=args.clients,
+            threads=args.threads,
+        )
+        bad = sum(count for key, count in tally.statuses.items() if key[1] != 200)
+        return tally.requests, tally.seconds, tally.client_cpu_s, bad
+
+    return measured(server, run)
+
+
+def endpoint_window(server: Server, path: str, body: bytes, seconds: float, args: argparse.Namespace) -> Window:
+    if args.no_wrk or wrk_path() is None:
+        window = python_window(server, path, body, seconds, args)
+    else:
+        run_wrk(server, path, body, args.warmup, args.connections)  # warm-up, not counted
+        window = run_wrk(server, path, body, seconds, args.connections)
+    if window.errors:
+        raise RuntimeError(f"{path} answered other than 200 ({window.errors} times)")
+    return window
 
 
 def endpoint_section(args: argparse.Namespace) -> tuple[list[Row], list[str]]:
     single, parts = orjson.dumps(SINGLE_BODY), orjson.dumps(PARTS_BODY)
     runs = {"echo": ("/bench/echo", single), "numbers": ("/v1/calc/led-string", single),
             "parts": ("/v1/calc/led-string", parts)}  # fmt: skip
-    tallies = {name: Tally() for name in runs}
+    totals = {name: Window() for name in runs}
+    ratios: dict[str, list[float]] = {"numbers": [], "parts": []}
+    cpu_ratios: dict[str, list[float]] = {"numbers": [], "parts": []}
     with gunicorn("echo_app:app") as server:
         workers = len(server.workers())
-        # Alternating short windows: a change in the machine's other load hits every endpoint alike.
-        for _ in range(ENDPOINT_ROUNDS):
-            for name, (path, body) in runs.items():
-                window = throughput(server, path, body, args.seconds / ENDPOINT_ROUNDS, args)
-                tallies[name].merge(window)
-                tallies[name].seconds += window.seconds
-    ceiling, numbers, by_part = tallies["echo"], tallies["numbers"], tallies["parts"]
-    per_s = {name: t.requests / t.seconds for name, t in (("echo", ceiling), ("numbers", numbers), ("parts", by_part))}
-    rows = [
-        Row(
-            "endpoint",
-            "POST /v1/calc/led-string, numbers",
-            rate(per_s["numbers"], "req"),
-            "POST /bench/echo (bare JSON route, same app)",
-            rate(per_s["echo"], "req"),
-            f"{per_s['numbers'] / per_s['echo']:.2f}",
-            f"≥ {ENDPOINT_TARGET}",
-            verdict(per_s["numbers"] / per_s["echo"] >= ENDPOINT_TARGET),
-        ),
-        Row(
-            "endpoint",
-            "POST /v1/calc/led-string, 3 part references",
-            rate(per_s["parts"], "req"),
-            "POST /bench/echo",
-            rate(per_s["echo"], "req"),
-            f"{per_s['parts'] / per_s['echo']:.2f}",
-        ),
-    ]
+        # Alternating short windows: a change in the machine's other load hits every endpoint alike; the ratio
+        # of each round is taken, and the median of the rounds reported.
+        for _ in range(args.rounds):
+            found = {name: endpoint_window(server, path, body, args.seconds / args.rounds, args)
+                     for name, (path, body) in runs.items()}  # fmt: skip
+            for name, window in found.items():
+                totals[name].add(window)
+            for name in ratios:
+                ratios[name].append(found[name].per_s / found["echo"].per_s)
+                cpu_ratios[name].append(found["echo"].server_cpu_per_request_s / found[name].server_cpu_per_request_s)
+    echo = totals["echo"]
+    rows = []
+    for name, label in (("numbers", "numbers"), ("parts", "3 part references")):
+        ratio, cpu_ratio = statistics.median(ratios[name]), statistics.median(cpu_ratios[name])
+        rows += [
+            Row(
+                "endpoint",
+                f"POST /v1/calc/led-string, {label}",
+                rate(totals[name].per_s, "req"),
+                "POST /bench/echo (bare JSON route, same app)",
+                rate(echo.per_s, "req"),
+                f"{ratio:.2f} (rounds: {', '.join(f'{r:.2f}' for r in ratios[name])})",
+                f"≥ {ENDPOINT_TARGET}",
+                verdict(ratio >= ENDPOINT_TARGET),
+            ),
+            Row(
+                "endpoint",
+                f"server CPU per request, {label}",
+                duration(totals[name].server_cpu_per_request_s),
+                "server CPU per request, echo",
+                duration(echo.server_cpu_per_request_s),
+                f"{cpu_ratio:.2f} (echo CPU / this CPU)",
+                f"≥ {ENDPOINT_TARGET}",
+                verdict(cpu_ratio >= ENDPOINT_TARGET),
+            ),
+        ]
     cores = len(os.sched_getaffinity(0))
-    cpu = ", ".join(
-        f"{name} {t.client_cpu_s / t.seconds:.2f}"
-        for name, t in (("echo", ceiling), ("numbers", numbers), ("parts", by_part))
-    )
+    share = ", ".join(f"{name} {w.client_share:.0%}" for name, w in totals.items())
+    if args.no_wrk or wrk_path() is None:
+        generator = (
+            f"the Python load generator ({args.clients} processes × {args.threads} threads, http.client; wrk was "
+            f"{'not wanted' if args.no_wrk else f'not found: {WRK_INSTALL} gives it'}), so compare the server "
+            "CPU per request rather than the rates"
+        )
+    else:
+        generator = f"wrk (Debian's package, {WRK_INSTALL}), 1 thread, {args.connections} kept-alive connections"
     notes = [
-        f"Endpoint load: {args.clients} client processes × {args.threads} threads (http.client) against {workers} "
-        f"gunicorn threaded workers; per endpoint {args.seconds:g} s counted, in {ENDPOINT_ROUNDS} alternating "
-        f"windows after {args.warmup:g} s warm-up each. The load generator runs on the same {cores} cores as the "
-        f"server and competes with it: it used {cpu} cores (CPU seconds per second).",
+        f"Endpoint load: {generator}, against {workers} gunicorn threaded workers; per endpoint {args.seconds:g} s "
+        f"counted, in {args.rounds} alternating rounds, each after {args.warmup:g} s of uncounted warm-up; the "
+        "ratio is the median of the rounds' ratios. The load generator runs on the same "
+        f"{cores} cores as the server; its share of the CPU both used: {share}. Server CPU per request is the "
+        "user + system time of the master and workers (/proc) over the requests of the window.",
     ]
     return rows, notes
 
@@ -825,7 +851,10 @@ def main(argv: list[str] | None = None) -> int:
     parser = argparse.ArgumentParser(description=__doc__.splitlines()[0] if __doc__ else None)
     parser.add_argument("--seconds", type=float, default=5.0, help="counted seconds per endpoint (default 5)")
     parser.add_argument("--warmup", type=float, default=1.0, help="uncounted seconds before each (default 1)")
-    parser.add_argument("--clients", type=int, default=2, help="load generator processes (default 2)")
+    parser.add_argument("--rounds", type=int, default=3, help="alternating endpoint rounds (default 3)")
+    parser.add_argument("--connections", type=int, default=8, help="wrk's kept-alive connections (default 8)")
+    parser.add_argument("--no-wrk", action="store_true", help="drive the endpoints with the Python clients")
+    parser.add_argument("--clients", type=int, default=2, help="Python load generator processes (default 2)")
     parser.add_argument("--threads", type=int, default=2, help="connections per client process (default 2)")
     parser.add_argument("--rows", type=int, default=100_000, help="rows in the batch (default 100,000)")
     parser.add_argument("--repeats", type=int, default=3, help="runs per batch and core figure (default 3)")
