@@ -10,7 +10,7 @@ import pytest
 
 from calcsvc.core import led_string
 from calcsvc.data.database import Database
-from calcsvc.service.batch import parse_rows, read_records, run_batch
+from calcsvc.service.batch import parse_cells, parse_rows, read_records, run_batch
 from calcsvc.service.errors import InvalidInput, MalformedBody, PhysicallyImpossible, TooLarge, UnknownPart
 from calcsvc.service.resolve import PartResolver
 
@@ -59,8 +59,8 @@ def test_a_physically_impossible_row_is_refused_as_such_and_the_others_computed(
 
 def test_csv_blanks_are_absent_and_bad_bodies_refused() -> None:
     records = read_records(CALC, b"supply_v,strings\n12 V,\n", True, 5)
-    assert records.rows == [{"supply_v": "12 V", "strings": ""}] and records.blank_is_absent
-    parsed = parse_rows(CALC, records.rows, PartResolver(None), records.blank_is_absent)
+    assert records.cells.values == {"supply_v": ["12 V"], "strings": [""]} and records.blank_is_absent
+    parsed = parse_cells(CALC, records.cells, PartResolver(None), records.blank_is_absent)
     assert np.isnan(parsed.columns["current_a"][0]) and parsed.columns["strings"][0] == 1.0
     with pytest.raises(MalformedBody):
         read_records(CALC, b"[{", False, 5)
