@@ -28,7 +28,7 @@ from calcsvc.service.resolve import PartResolver, resolve
 from calcsvc.units import MAX_QUANTITY_LENGTH, UnitError, parse_quantity, with_decimal_point
 
 __all__ = ["Batch", "ParsedRows", "Records", "parse_cells", "parse_rows", "read_records", "run_batch"]
-_SCALARS = frozenset((int, float, str))  # exact types: bool, a subclass of int, is refused on the slow path
+_NUMBERS = frozenset((int, float))  # exact types: bool, a subclass of int, is refused on the slow path
 
 
 @dataclass
@@ -52,6 +52,12 @@ class RowErrors:
         detail = "; ".join(f"{name}: {' '.join(messages)}" for name, messages in errors.items())
         return self.kinds[row](detail, errors)
 
+    def rows_of(self, name: str, n: int) -> np.ndarray:
+        """The rows already refused for ``name``."""
+        found = np.zeros(n, dtype=bool)
+        found[[row for row, errors in self.by_row.items() if name in errors]] = True
+        return found
+
     def mask(self, n: int) -> np.ndarray:
         bad = np.zeros(n, dtype=bool)
         bad[list(self.by_row)] = True
@@ -71,20 +77,21 @@ class ParsedRows:
 def _number_column(
     spec: Input, raw: list[Any], errors: RowErrors, blank_is_absent: bool, decimal_comma: bool
 ) -> np.ndarray:
-    # With a decimal comma "1.5" must be refused, so numeric strings cannot take numpy's fast path.
-    if set(map(type, raw)) <= (_SCALARS - {str} if decimal_comma else _SCALARS):  # one C-level pass over the cells
+    types = set(map(type, raw))  # one C-level pass over the cells
+    if types <= _NUMBERS:
         try:
-            # Fast path: every cell a number or a bare numeric string ("" never converts), so a NaN here was
-            # written as NaN by the caller, which is an error, not "absent". A list or null cell takes the slow
-            # path: numpy would turn [1] into a second axis and null into NaN.
+            # Fast path: every cell a JSON number, so a NaN here was written as NaN by the caller, which is an
+            # error, not "absent". A list or null cell takes the slow path: numpy would turn [1] into a second
+            # axis and null into NaN.
             column = np.array(raw, dtype=np.float64)
         except (TypeError, ValueError, OverflowError):
             pass
         else:
             errors.add_rows(np.isnan(column), spec.name, "must be a finite number")
             return column
-    if blank_is_absent and not decimal_comma:
-        column = _plain_numbers(raw)
+    # With a decimal comma "1.5" must be refused, so numeric strings go to the unit parser.
+    elif types == {str} and not decimal_comma:
+        column = _plain_numbers(raw, blank_is_absent)
         if column is not None:
             return column
     cache: dict[str, float | str] = {}
@@ -118,17 +125,17 @@ def _number_column(
     return column
 
 
-_PLAIN_NUMBER = r"[+-]?(?:[0-9]+(?:\.[0-9]*)?|\.[0-9]+)(?:[eE][+-]?[0-9]+)?"
+_PLAIN_NUMBER = r" *[+-]?(?:[0-9]+(?:\.[0-9]*)?|\.[0-9]+)(?:[eE][+-]?[0-9]+)? *"  # as calcsvc.units.QUANTITY
 _PLAIN_NUMBERS = re.compile(rf"(?:{_PLAIN_NUMBER}\n)*+")
 
 
-def _plain_numbers(raw: list[Any]) -> np.ndarray | None:
-    """A CSV column whose cells are all blank or plain decimal numbers, converted in bulk (blank: NaN, not
-    given), or None when some cell needs the unit parser. One regular-expression pass over the joined cells
-    proves each a number the unit parser would read as itself, so the values are the ones it would give."""
-    if not all(type(cell) is str for cell in raw):
-        return None
-    given = [cell for cell in raw if cell]
+def _plain_numbers(raw: list[str], blank_is_absent: bool) -> np.ndarray | None:
+    """A column of text cells that are all plain decimal numbers (or blank, in CSV: NaN, not given), converted
+    in bulk; None when some cell needs the unit parser. One regular-expression pass over the joined cells proves
+    each a number the unit parser would read as itself (ASCII digits, no unit), so the values are the ones it
+    would give; anything else (units, "nan", "1_0", other scripts' digits) goes to the unit parser, which
+    answers it as a single request would."""
+    given = [cell for cell in raw if cell] if blank_is_absent else raw
     text = "\n".join(given) + "\n" if given else ""
     if max(map(len, given), default=0) > MAX_QUANTITY_LENGTH or _PLAIN_NUMBERS.fullmatch(text) is None:
         return None
@@ -138,7 +145,7 @@ def _plain_numbers(raw: list[Any]) -> np.ndarray | None:
     if len(given) == len(raw):
         return numbers
     column = np.full(len(raw), math.nan)
-    column[np.array([bool(cell) for cell in raw])] = numbers
+    column[np.array([bool(cell) for cell in raw], dtype=bool)] = numbers
     return column
 
 
@@ -200,6 +207,8 @@ def parse_cells(
     for spec in calc.inputs:
         missing = ~present[spec.name]
         if spec.required:
+            # A cell refused above is not also missing: a single request stops at its first fault too.
+            missing &= ~errors.rows_of(spec.name, n)
             errors.add_rows(missing, spec.name, f"required: give {spec.name} or reference a part that provides it")
         elif spec.default is not None:
             columns[spec.name][missing] = spec.default

@@ -7,6 +7,8 @@ import math
 from collections.abc import Iterable
 from typing import Any
 
+import numpy as np
+
 # Enough for any design value; few enough that float noise (0.019500000000000003) never shows.
 SIGNIFICANT_DIGITS = 12
 
@@ -37,3 +39,26 @@ def failing_check(value: float, limit: float, comma: bool = False) -> str:
 def failing_checks(checks: Iterable[dict[str, Any]], comma: bool = False) -> dict[str, str]:
     """The envelope's failing checks by name, each as :func:`failing_check` writes it."""
     return {c["name"]: failing_check(c["value"], c["limit"], comma) for c in checks if not c["ok"]}
+
+
+def number_texts(values: np.ndarray, comma: bool = False) -> list[str]:
+    """``cell_value`` of every element of a float column, formatted in bulk: one ``%`` over the whole column,
+    ``float`` and ``repr`` mapped over it (the steps of ``number_text``), empty where it does not apply."""
+    if values.size == 0:
+        return []
+    rounded = (f"%.{SIGNIFICANT_DIGITS}g\n" * values.size % tuple(values.tolist())).split("\n")[:-1]
+    texts = list(map(repr, map(float, rounded)))
+    for k in np.flatnonzero(np.isnan(values)).tolist():
+        texts[k] = ""
+    if comma:
+        texts = "\n".join(texts).replace(".", ",").split("\n")
+    return texts
+
+
+def column_texts(values: np.ndarray, comma: bool = False) -> list[str]:
+    """``cell_value`` of every element of a result column (numbers, flags or whole numbers)."""
+    if values.dtype == np.bool_:
+        return np.where(values, "true", "false").tolist()
+    if values.dtype.kind in "iu":
+        return list(map(str, values.tolist()))
+    return number_texts(values.astype(np.float64), comma)
