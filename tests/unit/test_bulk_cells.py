@@ -13,7 +13,8 @@ def awkward_values() -> np.ndarray:
     rng = np.random.default_rng(5)
     magnitudes = 10.0 ** rng.uniform(-320, 308, 2000)
     signs = rng.choice([-1.0, 1.0], 2000)
-    special = [284.99999999999994, -7.000000000000001, 0.0, -0.0, np.nan, np.inf, -np.inf, 0.1 + 0.2, 300.0, 1e16, 1e-5, 123456789012.5, 5e-324, 1.7e308]
+    special = [284.99999999999994, -7.000000000000001, 0.0, -0.0]
+    special += [np.nan, np.inf, -np.inf, 0.1 + 0.2, 300.0, 1e16, 1e-5, 123456789012.5, 5e-324, 1.7e308]
     return np.concatenate([magnitudes * signs, np.round(rng.uniform(0, 100, 500), 3), special])
 
 
