@@ -24,8 +24,9 @@ blp = Blueprint(
     "batch",
     __name__,
     url_prefix="/v1/batch",
-    description="Many rows of one calculation in one request: a JSON array of input objects or a CSV table "
-    "(header row = input names; cells may carry units such as '9 V'). A bad row does not fail the batch.",
+    description="Many rows of one calculation in one request: a JSON array of input objects, a JSON object of "
+    "input arrays (one per name) or a CSV table (header row = input names; cells may carry units such as '9 V'). "
+    "A bad row does not fail the batch.",
 )
 guard_reads(blp)  # calculations read the parts table
 
@@ -79,8 +80,19 @@ def _batch_doc(calc: CalculationSpec) -> dict[str, Any]:
             "content": {
                 "application/json": {
                     "schema": {
-                        "type": "array",
-                        "items": {"$ref": f"#/components/schemas/{schema_name.removesuffix('Schema')}"},
+                        "oneOf": [
+                            {
+                                "type": "array",
+                                "description": "rows: one object of inputs per row",
+                                "items": {"$ref": f"#/components/schemas/{schema_name.removesuffix('Schema')}"},
+                            },
+                            {
+                                "type": "object",
+                                "description": "columns: one array per input name, all of one length (element "
+                                "i belongs to row i; null: not given on that row); the fastest to read",
+                                "additionalProperties": {"type": "array"},
+                            },
+                        ]
                     }
                 },
                 CSV: {
