@@ -58,6 +58,8 @@ RESULTS = REPO / "benchmarks" / "RESULTS.md"
 JSON = {"Content-Type": "application/json"}
 ENDPOINT_TARGET = 0.7  # calculation endpoint at least 0.7 of the bare route's requests/s
 BATCH_TARGETS = {"rows": 80_000, "columns": 400_000, "csv": 100_000}  # rows/s end to end, 100,000 rows
+CORE_OVER_MINIMAL_TARGET = 1.5  # the core per row at 1,000,000 rows against a minimal numpy expression
+FIXED_COST_TARGET_S = 50e-6  # one call of the core on one row
 RSS_TARGET = 300 * 2**20  # a worker's peak resident memory during any 100,000-row batch
 SINGLE_REQUESTS = 1_000
 CORE_ROWS = 1_000_000
@@ -286,6 +288,31 @@ def led_string_loop(rows: list[tuple[Any, ...]]) -> list[tuple[float, ...]]:
     return out
 
 
+def led_string_minimal(inputs: led_string.LedStringInputs) -> dict[str, np.ndarray]:
+    """The LED string's results as one plain numpy expression each: the yardstick for the core's own overhead
+    (its validation, checks, notices and bookkeeping)."""
+    vs, ts, nl, vsw = inputs.supply_v, inputs.supply_tolerance, inputs.leds_in_series, inputs.switch_drop_v
+    tr = eseries.default_tolerance_rows(inputs.e_series)
+    v_r = vs - nl * inputs.vf_typ_v - vsw
+    r_exact = v_r / inputs.current_a
+    r = eseries.pick_at_or_above_rows(r_exact, inputs.e_series)
+    current = v_r / r
+    v_r_high = vs * (1.0 + ts) - nl * inputs.vf_min_v - vsw
+    power_max = v_r_high**2 / (r * (1.0 - tr))
+    return {
+        "resistor_exact_ohm": r_exact,
+        "resistor_ohm": r,
+        "current_a": current,
+        "current_min_a": np.maximum(vs * (1.0 - ts) - nl * inputs.vf_max_v - vsw, 0.0) / (r * (1.0 + tr)),
+        "current_max_a": v_r_high / (r * (1.0 - tr)),
+        "resistor_power_w": current**2 * r,
+        "resistor_power_max_w": power_max,
+        "led_power_w": nl * inputs.vf_typ_v * current,
+        "total_current_a": inputs.strings * current,
+        "efficiency": nl * inputs.vf_typ_v / vs,
+    }
+
+
 def sweep_inputs() -> closed_loop.ClosedLoopInputs:
     """The sensor preamp: non-inverting, gain 20 on a 1 MHz op-amp, swept from 10 Hz to 1 MHz."""
 
@@ -380,6 +407,36 @@ def core_section(repeats: int) -> tuple[list[Row], list[str]]:
             f"{plain / vectorized:.0f}× faster",
         )
     )
+
+    minimal, _ = best_of(repeats, lambda: led_string_minimal(inputs))
+    rows.append(
+        Row(
+            "core",
+            f"LED string, {CORE_ROWS:,} rows (numpy, incl. validation)",
+            f"{duration(vectorized)} ({duration(vectorized / CORE_ROWS)}/row)",
+            "a minimal numpy expression of its results (no validation, checks or notices)",
+            f"{duration(minimal)} ({duration(minimal / CORE_ROWS)}/row)",
+            f"{vectorized / minimal:.2f}×",
+            f"≤ {CORE_OVER_MINIMAL_TARGET}×",
+            verdict(vectorized / minimal <= CORE_OVER_MINIMAL_TARGET),
+        )
+    )
+    single = led_inputs(designs(1, seed=3))
+    calls = 2_000
+    per_call = statistics.median(best_of(1, lambda: led_string.compute(single))[0] for _ in range(calls))
+    rows.append(
+        Row(
+            "core",
+            "LED string, one row: fixed cost of a call",
+            duration(per_call),
+            "the target",
+            duration(FIXED_COST_TARGET_S),
+            f"{per_call / FIXED_COST_TARGET_S:.1f}× the target",
+            f"≤ {duration(FIXED_COST_TARGET_S)}",
+            verdict(per_call <= FIXED_COST_TARGET_S),
+        )
+    )
+    notes.append(f"Fixed cost of a call: median of {calls:,} calls of led_string.compute on one row.")
 
     one = channel()
     times = {}
