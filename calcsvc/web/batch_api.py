@@ -14,7 +14,7 @@ from calcsvc.core.spec import CalculationSpec
 from calcsvc.service.batch import run_batch
 from calcsvc.service.errors import InvalidInput
 from calcsvc.web.auth import database, guard_reads
-from calcsvc.web.batch_csv import csv_body
+from calcsvc.web.batch_csv import csv_chunks
 from calcsvc.web.batch_json import json_columns, streamed_rows
 from calcsvc.web.calc_schemas import request_schema
 from calcsvc.web.metrics import record_calculation
@@ -58,7 +58,7 @@ def answer(calc: CalculationSpec) -> Response:
         CSV in request.accept_mimetypes.values()
         and request.accept_mimetypes.best_match(["application/json", CSV]) == CSV
     ):
-        return Response(csv_body(calc, batch), mimetype=CSV)
+        return Response(csv_chunks(calc, batch), mimetype=CSV)
     body = {
         "calculation": calc.name,
         "version": calc.version,

@@ -13,7 +13,7 @@ import pytest
 from flask.testing import FlaskClient
 from helpers import assert_problem
 
-from calcsvc.web import batch_json
+from calcsvc.web import batch_csv, batch_json
 
 NAMES = ("supply_v", "vf_typ_v", "vf_min_v", "vf_max_v", "if_max_a", "leds_in_series", "current_a", "e_series")
 
@@ -122,3 +122,13 @@ def test_a_numeric_string_cell_reads_as_a_single_request_reads_it(client: FlaskC
             assert row["problem"]["errors"] == single["errors"]
         else:
             assert row["results"] == single["results"]
+
+
+def test_the_streamed_csv_is_the_whole_table(client: FlaskClient, seeded: Any, monkeypatch: pytest.MonkeyPatch) -> None:
+    table = as_csv(varied_rows(60))
+    headers = {"Accept": "text/csv"}
+    whole = client.post("/v1/batch/led-string", data=table, content_type="text/csv", headers=headers).data
+    monkeypatch.setattr(batch_csv, "CHUNK_ROWS", 7)
+    chunked = client.post("/v1/batch/led-string", data=table, content_type="text/csv", headers=headers).data
+    assert chunked == whole
+    assert whole.count(b"\n") == 61 and b"must be greater than 0 A" in whole  # every row, refused ones too
