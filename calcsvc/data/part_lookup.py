@@ -21,13 +21,36 @@ from dataclasses import dataclass
 from datetime import datetime
 from typing import Any
 
-from sqlalchemy import and_, column, func, or_, select, table
+from sqlalchemy import and_, bindparam, column, func, or_, select, table, tuple_
 from sqlalchemy.orm import Session
 
 from calcsvc.data.models import Part, PartRevision
 
 MAX_CACHED_REVISIONS = 4096  # a few hundred bytes each; far more than the parts a deployment references
 _SCHEMA_VERSION = select(func.max(column("version_num"))).select_from(table("alembic_version")).scalar_subquery()
+_REVISION = tuple_(PartRevision.part_id, PartRevision.revision)
+# Built once, so SQLAlchemy compiles them once: the lists are bound per request ("expanding" parameters).
+_REFERENCED = (
+    select(
+        Part.part_id,
+        Part.revision,
+        Part.status,
+        PartRevision.revision,
+        PartRevision.created_at,
+        PartRevision.approved_by,
+        _SCHEMA_VERSION,
+    )
+    .join(PartRevision, PartRevision.part_id == Part.part_id)
+    .where(
+        or_(
+            and_(Part.part_id.in_(bindparam("current", expanding=True)), PartRevision.revision == Part.revision),
+            _REVISION.in_(bindparam("pinned", expanding=True)),
+        )
+    )
+)
+_CONTENT = select(PartRevision.part_id, PartRevision.revision, PartRevision.kind, PartRevision.parameters).where(
+    _REVISION.in_(bindparam("revisions", expanding=True))
+)
 
 
 @dataclass(frozen=True)
@@ -78,22 +101,7 @@ def look_up(
         return {}
     current = [part_id for part_id, revision in wanted if revision is None]
     pinned = [(part_id, revision) for part_id, revision in wanted if revision is not None]
-    conditions = [and_(Part.part_id == part_id, PartRevision.revision == revision) for part_id, revision in pinned]
-    if current:
-        conditions.append(and_(Part.part_id.in_(current), PartRevision.revision == Part.revision))
-    rows = session.execute(
-        select(
-            Part.part_id,
-            Part.revision,
-            Part.status,
-            PartRevision.revision,
-            PartRevision.created_at,
-            PartRevision.approved_by,
-            _SCHEMA_VERSION,
-        )
-        .join(PartRevision, PartRevision.part_id == Part.part_id)
-        .where(or_(*conditions))
-    ).all()
+    rows = session.connection().execute(_REFERENCED, {"current": current, "pinned": pinned}).all()
     database = str(session.get_bind().url)
     found: dict[tuple[str, int | None], tuple[Key, str]] = {}
     for part_id, current_revision, current_status, revision, created, approved_by, schema in rows:
@@ -118,10 +126,6 @@ def _fill(session: Session, cache: RevisionCache, keys: list[Key]) -> None:
     if not keys:
         return
     by_revision = {(key[2], key[3]): key for key in keys}
-    rows = session.execute(
-        select(PartRevision.part_id, PartRevision.revision, PartRevision.kind, PartRevision.parameters).where(
-            or_(*(and_(PartRevision.part_id == p, PartRevision.revision == r) for p, r in by_revision))
-        )
-    ).all()
+    rows = session.connection().execute(_CONTENT, {"revisions": list(by_revision)}).all()
     for part_id, revision, kind, parameters in rows:
         cache.put(by_revision[(part_id, revision)], (kind, dict(parameters)))
