@@ -13,6 +13,7 @@ from calcsvc.core.registry import CALCULATIONS
 from calcsvc.core.spec import CalculationSpec
 from calcsvc.service.batch import run_batch
 from calcsvc.service.errors import InvalidInput
+from calcsvc.service.gc_pause import return_free_memory
 from calcsvc.web.auth import database, guard_reads
 from calcsvc.web.batch_csv import csv_chunks
 from calcsvc.web.batch_json import json_columns, streamed_rows
@@ -58,7 +59,7 @@ def answer(calc: CalculationSpec) -> Response:
         CSV in request.accept_mimetypes.values()
         and request.accept_mimetypes.best_match(["application/json", CSV]) == CSV
     ):
-        return Response(csv_chunks(calc, batch), mimetype=CSV)
+        return _released(Response(csv_chunks(calc, batch), mimetype=CSV))
     body = {
         "calculation": calc.name,
         "version": calc.version,
@@ -68,8 +69,14 @@ def answer(calc: CalculationSpec) -> Response:
     }
     if request.args.get("layout") == "columns":
         body.update(json_columns(calc, batch))
-        return Response(orjson.dumps(body, option=orjson.OPT_SERIALIZE_NUMPY), mimetype="application/json")
-    return Response(streamed_rows(calc, batch, body), mimetype="application/json")
+        return _released(Response(orjson.dumps(body, option=orjson.OPT_SERIALIZE_NUMPY), mimetype="application/json"))
+    return _released(Response(streamed_rows(calc, batch, body), mimetype="application/json"))
+
+
+def _released(response: Response) -> Response:
+    """Once the answer is sent, the batch's memory goes back to the operating system."""
+    response.call_on_close(return_free_memory)
+    return response
 
 
 def _batch_doc(calc: CalculationSpec) -> dict[str, Any]:
