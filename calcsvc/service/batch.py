@@ -157,7 +157,7 @@ def parse_rows(
     decimal_comma: bool = False,
 ) -> ParsedRows:
     """Typed columns of every input of a list of row objects (see ``parse_cells``)."""
-    return parse_cells(calc, cells_of_rows(records), resolver, blank_is_absent, decimal_comma)
+    return parse_cells(calc, cells_of_rows(records, calc.accepted()), resolver, blank_is_absent, decimal_comma)
 
 
 def parse_cells(

@@ -10,7 +10,9 @@ from __future__ import annotations
 
 import csv
 import io
+from collections.abc import Collection
 from dataclasses import dataclass, field
+from operator import methodcaller
 from typing import Any
 
 import numpy as np
@@ -40,14 +42,19 @@ class Cells:
         return self.values.get(name) or [None] * self.n
 
 
-def cells_of_rows(records: list[Any]) -> Cells:
-    """The cells of a JSON array of row objects (a row that is not an object gives nothing)."""
+def cells_of_rows(records: list[Any], accepted: Collection[str] = ()) -> Cells:
+    """The cells of a JSON array of row objects (a row that is not an object gives nothing). Which rows carry a
+    name is only needed for names not in ``accepted`` (they refuse the rows that carry them)."""
     not_objects = [row for row, record in enumerate(records) if not isinstance(record, dict)]
     if not_objects:
         records = [r if isinstance(r, dict) else {} for r in records]
     names: set[str] = set().union(*records)
-    values = {name: [record.get(name) for record in records] for name in names}
-    keyed = {name: np.array([name in record for record in records], dtype=bool) for name in names}
+    values = {name: list(map(methodcaller("get", name), records)) for name in names}
+    keyed = {
+        name: np.array(list(map(methodcaller("__contains__", name), records)), dtype=bool)
+        for name in names
+        if name not in accepted
+    }
     return Cells(len(records), values, keyed, not_objects)
 
 
@@ -195,7 +202,7 @@ def read_records(
                 name: [row.pop(name, "") if isinstance(row, dict) else "" for row in data]
                 for name in dict.fromkeys(labels)
             }
-            cells = cells_of_rows(data)
+            cells = cells_of_rows(data, calc.accepted())
         else:
             raise InvalidInput.on(
                 "body",
