@@ -81,6 +81,15 @@ def peak_rss_bytes(pid: int) -> int:
     raise RuntimeError(f"/proc/{pid}/status has no VmHWM")
 
 
+def reset_peak_rss(pid: int) -> bool:
+    """Reset the process's VmHWM to its current RSS (Linux: "5" to /proc/<pid>/clear_refs); False if refused."""
+    try:
+        Path(f"/proc/{pid}/clear_refs").write_text("5")
+    except OSError:
+        return False
+    return True
+
+
 @dataclass(frozen=True)
 class Server:
     host: str

@@ -30,6 +30,15 @@ def safe_cell(value: Any) -> Any:
     return value
 
 
+def safe_cells(column: list[Any]) -> list[Any]:
+    """:func:`safe_cell` over a column, visiting its cells only when some text cell may need it."""
+    texts = column if set(map(type, column)) <= {str} else [cell for cell in column if type(cell) is str]
+    joined = "\x00" + "\x00".join(texts)
+    if any("\x00" + lead in joined for lead in (*_FORMULA_LEADS, "'")):
+        return [safe_cell(cell) for cell in column]
+    return column
+
+
 def original_cell(text: str) -> str:
     """The text :func:`safe_cell` was given, from the cell it wrote."""
     if text.startswith("'") and _runs_as_formula(text.lstrip("'")):

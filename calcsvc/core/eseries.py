@@ -182,8 +182,26 @@ def is_standard(values: npt.ArrayLike, series: str) -> BoolArray:
 # ---- per-row helpers for calculations whose ``e_series`` input is a string array -------------------------
 
 
+class _LastMasks:
+    """The masks of the last names array seen: one calculation asks for them several times (validation, the
+    default tolerance, the pick), always with its own ``e_series`` array, which nothing changes after. One
+    tuple, replaced whole, so a thread never pairs one array with another's masks."""
+
+    last: tuple[np.ndarray | None, dict[str, BoolArray]] = (None, {})
+
+
 def _series_masks(names: np.ndarray) -> dict[str, BoolArray]:
-    """Each series name present with the rows that use it; most batches use one series on every row."""
+    """Each series name present with the rows that use it; most batches use one series on every row. The
+    masks are shared: read them, never change them."""
+    last_names, last_masks = _LastMasks.last
+    if last_names is names:
+        return last_masks
+    masks = _masks_of(names)
+    _LastMasks.last = (names, masks)
+    return masks
+
+
+def _masks_of(names: np.ndarray) -> dict[str, BoolArray]:
     if not names.size:
         return {}  # no rows: no series to pick from (an empty name would be refused as unknown)
     first = str(names.flat[0])

@@ -145,6 +145,8 @@ def require_practical(
             if name in divisors:
                 bad |= (size != 0.0) & (size < PRACTICAL_MIN)
                 limits = f"{PRACTICAL_MIN:g} to {PRACTICAL_MAX:g}"
+            if not bad.any():
+                continue  # the message is written only for an input that breaks the rule
             require(
                 violations,
                 bad if rows_of is None or not bad.any() else rows_of(bad),

@@ -5,6 +5,7 @@ query-string form, the command line, the searches and the plots are all derived 
 
 from __future__ import annotations
 
+import math
 from collections.abc import Callable, Collection
 from dataclasses import dataclass
 from typing import Any, Literal
@@ -61,6 +62,23 @@ class Input:
                 found.append((rows, message))
                 refused |= rows
         return found
+
+    def refusal(self, value: float) -> str | None:
+        """``refusals`` of one given value, with plain floats (a single request's field): the message of its first
+        broken rule, or None. Same rules, same order, same messages, without numpy's per-call cost."""
+        if math.isinf(value):
+            return "must be a finite number"
+        if math.isnan(value):
+            return None
+        unit = "" if self.unit == "dimensionless" else f" {self.unit}"
+        if self.integer and value != round(value):
+            return "must be a whole number"
+        if self.minimum is not None and (value <= self.minimum if self.exclusive_minimum else value < self.minimum):
+            relation = "greater than" if self.exclusive_minimum else "at least"
+            return f"must be {relation} {self.minimum:g}{unit}"
+        if self.maximum is not None and value > self.maximum:
+            return f"must be at most {self.maximum:g}{unit}"
+        return None
 
 
 @dataclass(frozen=True)

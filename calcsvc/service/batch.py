@@ -1,41 +1,34 @@
-"""Many rows of one calculation: the body read as rows, the rows as typed columns, one pass of the core.
+"""Many rows of one calculation: the body read as cells (calcsvc.service.batch_read), the cells as typed
+columns, one pass of the core.
 
-A batch is parsed without a per-row schema: each input becomes one numpy column, unit strings are
-converted once per distinct string, and every bad cell becomes an error on its own row, so one bad row
-never fails the batch. A row is refused with the same kind of error and the same messages a single request
-with its inputs would get.
+A batch is parsed without a per-row schema: each input becomes one numpy column, plain numbers are converted
+in bulk, unit strings once per distinct string, and every bad cell becomes an error on its own row, so one
+bad row never fails the batch. A row is refused with the same kind of error and the same messages a single
+request with its inputs would get.
 """
 
 from __future__ import annotations
 
-import csv
-import io
-import itertools
 import math
+import re
 from dataclasses import dataclass, field
 from typing import Any
 
 import numpy as np
-import orjson
 
 from calcsvc.core.outcome import DomainError, Outcome
 from calcsvc.core.spec import CalculationSpec, Columns, Input, Role
 from calcsvc.data.database import Database
 from calcsvc.data.part_ids import is_part_id
-from calcsvc.service.errors import (
-    InvalidInput,
-    MalformedBody,
-    PhysicallyImpossible,
-    ServiceError,
-    TooLarge,
-)
+from calcsvc.service.batch_read import BATCH_SIZE, Cells, Records, cells_of_rows, read_records
+from calcsvc.service.errors import InvalidInput, PhysicallyImpossible, ServiceError, TooLarge
+from calcsvc.service.gc_pause import paused_gc
 from calcsvc.service.parts import MAX_REVISION
 from calcsvc.service.resolve import PartResolver, resolve
-from calcsvc.units import UnitError, parse_quantity, with_decimal_point
+from calcsvc.units import MAX_QUANTITY_LENGTH, UnitError, parse_quantity, with_decimal_point
 
-EXTRA_CELLS = "cells_beyond_the_header"
-BATCH_SIZE = "batch-size"  # the kind of TooLarge a batch answers
-_SCALARS = frozenset((int, float, str))  # exact types: bool, a subclass of int, is refused on the slow path
+__all__ = ["Batch", "ParsedRows", "Records", "parse_cells", "parse_rows", "read_records", "run_batch"]
+_NUMBERS = frozenset((int, float))  # exact types: bool, a subclass of int, is refused on the slow path
 
 
 @dataclass
@@ -59,6 +52,12 @@ class RowErrors:
         detail = "; ".join(f"{name}: {' '.join(messages)}" for name, messages in errors.items())
         return self.kinds[row](detail, errors)
 
+    def rows_of(self, name: str, n: int) -> np.ndarray:
+        """The rows already refused for ``name``."""
+        found = np.zeros(n, dtype=bool)
+        found[[row for row, errors in self.by_row.items() if name in errors]] = True
+        return found
+
     def mask(self, n: int) -> np.ndarray:
         bad = np.zeros(n, dtype=bool)
         bad[list(self.by_row)] = True
@@ -78,17 +77,22 @@ class ParsedRows:
 def _number_column(
     spec: Input, raw: list[Any], errors: RowErrors, blank_is_absent: bool, decimal_comma: bool
 ) -> np.ndarray:
-    # With a decimal comma "1.5" must be refused, so numeric strings cannot take numpy's fast path.
-    if set(map(type, raw)) <= (_SCALARS - {str} if decimal_comma else _SCALARS):  # one C-level pass over the cells
+    types = set(map(type, raw))  # one C-level pass over the cells
+    if types <= _NUMBERS:
         try:
-            # Fast path: every cell a number or a bare numeric string ("" never converts), so a NaN here was
-            # written as NaN by the caller, which is an error, not "absent". A list or null cell takes the slow
-            # path: numpy would turn [1] into a second axis and null into NaN.
+            # Fast path: every cell a JSON number, so a NaN here was written as NaN by the caller, which is an
+            # error, not "absent". A list or null cell takes the slow path: numpy would turn [1] into a second
+            # axis and null into NaN.
             column = np.array(raw, dtype=np.float64)
         except (TypeError, ValueError, OverflowError):
             pass
         else:
             errors.add_rows(np.isnan(column), spec.name, "must be a finite number")
+            return column
+    # With a decimal comma "1.5" must be refused, so numeric strings go to the unit parser.
+    elif types == {str} and not decimal_comma:
+        column = _plain_numbers(raw, blank_is_absent)
+        if column is not None:
             return column
     cache: dict[str, float | str] = {}
     column = np.full(len(raw), math.nan)
@@ -121,6 +125,30 @@ def _number_column(
     return column
 
 
+_PLAIN_NUMBER = r" *[+-]?(?:[0-9]+(?:\.[0-9]*)?|\.[0-9]+)(?:[eE][+-]?[0-9]+)? *"  # as calcsvc.units.QUANTITY
+_PLAIN_NUMBERS = re.compile(rf"(?:{_PLAIN_NUMBER}\n)*+")
+
+
+def _plain_numbers(raw: list[str], blank_is_absent: bool) -> np.ndarray | None:
+    """A column of text cells that are all plain decimal numbers (or blank, in CSV: NaN, not given), converted
+    in bulk; None when some cell needs the unit parser. One regular-expression pass over the joined cells proves
+    each a number the unit parser would read as itself (ASCII digits, no unit), so the values are the ones it
+    would give; anything else (units, "nan", "1_0", other scripts' digits) goes to the unit parser, which
+    answers it as a single request would."""
+    given = [cell for cell in raw if cell] if blank_is_absent else raw
+    text = "\n".join(given) + "\n" if given else ""
+    if max(map(len, given), default=0) > MAX_QUANTITY_LENGTH or _PLAIN_NUMBERS.fullmatch(text) is None:
+        return None
+    numbers = np.array(given, dtype=np.float64)
+    if not np.isfinite(numbers).all():  # beyond float64: the unit parser names the fault
+        return None
+    if len(given) == len(raw):
+        return numbers
+    column = np.full(len(raw), math.nan)
+    column[np.array([bool(cell) for cell in raw], dtype=bool)] = numbers
+    return column
+
+
 def parse_rows(
     calc: CalculationSpec,
     records: list[dict[str, Any]],
@@ -128,31 +156,37 @@ def parse_rows(
     blank_is_absent: bool = False,
     decimal_comma: bool = False,
 ) -> ParsedRows:
+    """Typed columns of every input of a list of row objects (see ``parse_cells``)."""
+    return parse_cells(calc, cells_of_rows(records, calc.accepted()), resolver, blank_is_absent, decimal_comma)
+
+
+def parse_cells(
+    calc: CalculationSpec,
+    cells: Cells,
+    resolver: PartResolver,
+    blank_is_absent: bool = False,
+    decimal_comma: bool = False,
+) -> ParsedRows:
     """Typed columns of every input, parts resolved once per distinct reference, errors per row."""
-    n = len(records)
+    n = cells.n
     errors = RowErrors()
     allowed = set(calc.accepted())
-    if set(map(type, records)) != {dict}:
-        for row, record in enumerate(records):
-            if not isinstance(record, dict):
-                errors.add(row, "row", "each row must be an object of input names and values")
-        records = [r if isinstance(r, dict) else {} for r in records]
+    for row in cells.not_objects:
+        errors.add(row, "row", "each row must be an object of input names and values")
     # Inputs no row mentions are filled without visiting the rows; most batches use a few columns.
-    seen: set[str] = set().union(*records)
-    if not seen <= allowed:
-        for row, record in enumerate(records):
-            for name in record.keys() - allowed:
-                errors.add(row, name, "Unknown field.")
+    seen = set(cells.values)
+    for name in seen - allowed:
+        errors.add_rows(cells.carried_by(name), name, "Unknown field.")
 
     columns: Columns = {}
     for spec in calc.inputs:
         if spec.name not in seen:
             columns[spec.name] = np.full(n, "", dtype=object) if spec.choices else np.full(n, math.nan)
             continue
-        raw = [record.get(spec.name) for record in records]
+        raw = cells.values[spec.name]
         if spec.choices:
             values = np.array([("" if v is None else str(v)) for v in raw], dtype=object)
-            bad = np.array([v not in spec.choices and v not in ("", None) for v in raw])
+            bad = np.array([v not in spec.choices and v not in ("", None) for v in raw], dtype=bool)
             errors.add_rows(bad, spec.name, f"Must be one of: {', '.join(spec.choices)}.")
             columns[spec.name] = values
         else:
@@ -165,7 +199,7 @@ def parse_rows(
     warnings: dict[int, list[str]] = {}
     for role in calc.roles:
         if role.name in seen or f"{role.name}_revision" in seen:
-            _resolve_role(role, records, columns, parts, warnings, errors, resolver, blank_is_absent)
+            _resolve_role(role, cells, columns, parts, warnings, errors, resolver, blank_is_absent)
 
     present = {
         name: (column != "") if column.dtype == object else ~np.isnan(column) for name, column in columns.items()
@@ -173,6 +207,8 @@ def parse_rows(
     for spec in calc.inputs:
         missing = ~present[spec.name]
         if spec.required:
+            # A cell refused above is not also missing: a single request stops at its first fault too.
+            missing &= ~errors.rows_of(spec.name, n)
             errors.add_rows(missing, spec.name, f"required: give {spec.name} or reference a part that provides it")
         elif spec.default is not None:
             columns[spec.name][missing] = spec.default
@@ -184,7 +220,7 @@ def parse_rows(
 
 def _resolve_role(
     role: Role,
-    records: list[dict[str, Any]],
+    cells: Cells,
     columns: Columns,
     parts: dict[int, list[dict[str, Any]]],
     warnings: dict[int, list[str]],
@@ -194,9 +230,9 @@ def _resolve_role(
 ) -> None:
     """Fill the inputs a part provides on the rows that name it, looking each distinct part up once."""
     groups: dict[tuple[str, int | None], list[int]] = {}
-    for row, record in enumerate(records):
-        part_id = record.get(role.name)
-        revision = record.get(f"{role.name}_revision")
+    for row, (part_id, revision) in enumerate(
+        zip(cells.column(role.name), cells.column(f"{role.name}_revision"), strict=True)
+    ):
         if blank_is_absent:
             part_id = part_id or None
             revision = revision or None
@@ -240,90 +276,6 @@ def _resolve_role(
 
 
 # ---- a whole batch ------------------------------------------------------------------------------------------
-
-
-def _refuse_more_than_rows_hold(calc: CalculationSpec, body: bytes | str, limit: int, separator: str = ",") -> None:
-    """Refused before parsing when the body has more separators than ``limit`` rows of named inputs could: each
-    row holds at most one value per input name, so millions of tiny rows or one huge array inside a cell
-    are refused before Python builds an object for each element."""
-    names = len(calc.inputs) + 2 * len(calc.roles)
-    if body.count(separator if isinstance(body, str) else separator.encode()) >= (limit + 1) * names:
-        message = f"the body holds more values than {limit:,} rows of at most {names} inputs each"
-        raise TooLarge.on("body", message, BATCH_SIZE)
-
-
-def _too_many_rows(count: int | str, limit: int) -> TooLarge:
-    return TooLarge(f"{count} rows is more than this server takes in one batch ({limit})", slug=BATCH_SIZE)
-
-
-@dataclass
-class Records:
-    """The rows of a batch body as read, before any input is parsed."""
-
-    rows: list[Any]
-    blank_is_absent: bool  # CSV: a blank cell means "not given"
-    separator: str  # between CSV cells, in and out: ";" where the comma is the decimal mark
-    decimal_comma: bool
-    lines: list[int]  # each row's number as a spreadsheet shows it: the header is row 1, so the first row is 2
-    labels: dict[str, list[Any]]  # the caller's label columns, passed through to the answer
-
-
-def _detect_separator(text: str) -> str:
-    """A sheet saved where the comma is the decimal mark separates cells by ';': the header (input names,
-    which hold neither) says which."""
-    header = text.partition("\n")[0]
-    return ";" if header.count(";") > header.count(",") else ","
-
-
-def read_records(
-    calc: CalculationSpec,
-    body: bytes,
-    is_csv: bool,
-    limit: int,
-    labels: tuple[str, ...] = (),
-    decimal: str | None = None,
-) -> Records:
-    """The rows of a JSON array or a CSV table (its separator detected, a byte-order mark ignored), with the
-    ``labels`` columns set aside; ``decimal`` ("point" or "comma") defaults to what the separator implies."""
-    if is_csv:
-        text = body.decode("utf-8-sig", "replace")  # "CSV UTF-8" as spreadsheets save it starts with a BOM
-        separator = _detect_separator(text)
-        _refuse_more_than_rows_hold(calc, text, limit, separator)
-        # A short row's missing cells are blank (not given); cells beyond the header become an unknown field of
-        # their row, which refuses that row instead of dropping data that was likely shifted.
-        reader = csv.DictReader(
-            io.StringIO(text, newline=""), delimiter=separator, skipinitialspace=True, restkey=EXTRA_CELLS, restval=""
-        )
-        records, lines = [], []
-        try:
-            # Reading stops one row past the limit: a body of millions of short lines is never built.
-            for row in itertools.islice(reader, limit + 1):
-                records.append({k.strip(): v.strip() if isinstance(v, str) else v for k, v in row.items()})
-                lines.append(reader.line_num)  # blank lines skipped still count, as in the sheet
-        except csv.Error as exc:
-            raise MalformedBody(f"the request body is not a valid CSV table: {exc}") from exc
-        if len(records) > limit:
-            raise _too_many_rows(f"more than {limit}", limit)
-        data: list[Any] = records
-    else:
-        separator = ","
-        _refuse_more_than_rows_hold(calc, body, limit)
-        try:
-            data = orjson.loads(body)
-        except orjson.JSONDecodeError as exc:
-            raise MalformedBody(f"the request body is not valid JSON: {exc}") from exc
-        if not isinstance(data, list):
-            raise InvalidInput.on(
-                "body", "the body must be a JSON array of input objects (or a CSV table with Content-Type: text/csv)"
-            )
-        if len(data) > limit:
-            raise _too_many_rows(len(data), limit)
-        lines = list(range(2, len(data) + 2))
-    columns = {
-        name: [row.pop(name, "") if isinstance(row, dict) else "" for row in data] for name in dict.fromkeys(labels)
-    }
-    comma = decimal == "comma" or (decimal is None and separator == ";")
-    return Records(data, is_csv, separator, comma, lines, columns)
 
 
 def _refuse_large_sweeps(parsed: ParsedRows, limit: int) -> None:
@@ -374,10 +326,15 @@ def run_batch(
     decimal: str | None = None,
 ) -> Batch:
     """Every row of ``body`` (a JSON array or a CSV table) through ``calc``; a bad row carries its refusal."""
-    records = read_records(calc, body, is_csv, max_rows, labels, decimal)
-    if not records.rows:
-        raise InvalidInput.on("body", "the batch holds no rows")
-    with database.transaction() as session:
-        parsed = parse_rows(calc, records.rows, PartResolver(session), records.blank_is_absent, records.decimal_comma)
-    _refuse_large_sweeps(parsed, max_sweep_points)
-    return evaluate(calc, parsed, records)
+    # Reading and parsing build an object per cell: the cyclic collector, which would pass over them again and
+    # again, waits until the batch is computed (see calcsvc.service.gc_pause).
+    with paused_gc():
+        records = read_records(calc, body, is_csv, max_rows, labels, decimal)
+        if not records.cells.n:
+            raise InvalidInput.on("body", "the batch holds no rows")
+        with database.transaction() as session:
+            resolver = PartResolver(session)
+            parsed = parse_cells(calc, records.cells, resolver, records.blank_is_absent, records.decimal_comma)
+        records.cells = Cells(parsed.n, {})  # the raw cells are parsed: let them go before computing
+        _refuse_large_sweeps(parsed, max_sweep_points)
+        return evaluate(calc, parsed, records)

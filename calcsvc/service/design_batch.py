@@ -20,7 +20,7 @@ from calcsvc.core import channel, tolerance
 from calcsvc.core.channel_spec import CHANNEL_INPUTS
 from calcsvc.core.registry import CALCULATIONS
 from calcsvc.core.spec import InputSet
-from calcsvc.data.part_lookup import revisions_of
+from calcsvc.data.bulk_parts import revisions_of
 from calcsvc.service.calculate import columns_of, complete
 from calcsvc.service.design_outcome import check_entry, refused, summary
 from calcsvc.service.envelope import fingerprint, row_notices, to_json_value

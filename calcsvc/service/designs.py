@@ -12,10 +12,10 @@ from sqlalchemy.orm import Session
 
 from calcsvc.core.outcome import DomainError
 from calcsvc.core.registry import CALCULATIONS
+from calcsvc.data.bulk_parts import latest_approved
 from calcsvc.data.database import Database
 from calcsvc.data.design_store import DesignContent, DesignStore, DesignView
 from calcsvc.data.models import Design
-from calcsvc.data.part_lookup import latest_approved
 from calcsvc.service.calculate import run_calculation
 from calcsvc.service.demo import demo_channel, demo_si
 from calcsvc.service.design_batch import CHANNEL, Request, pinned, review_many

@@ -10,28 +10,39 @@ from sqlalchemy.orm import Session
 
 from calcsvc.core.spec import Role
 from calcsvc.data.database import Database
-from calcsvc.data.store import PartStore, PartView
+from calcsvc.data.part_lookup import Referenced, look_up
+from calcsvc.data.store import PartStore
 from calcsvc.data.store_errors import PartNotFound
 from calcsvc.service.errors import InvalidInput, RetiredPartReference, UnknownPart, WrongPartKind
 
 
 @dataclass
 class PartResolver:
-    """Looks each distinct (part, revision) up once, however many rows or roles name it."""
+    """Looks each distinct (part, revision) up once, however many rows or roles name it: the parts a request names
+    are read together in one query (calcsvc.data.part_lookup, which caches revisions' content per process)."""
 
     session: Session | None  # None when the request names no part
-    cache: dict[tuple[str, int | None], PartView] = field(default_factory=dict)
+    cache: dict[tuple[str, int | None], Referenced] = field(default_factory=dict)
 
-    def part(self, role: str, part_id: str, revision: int | None) -> PartView:
+    def prefetch(self, references: list[tuple[str, int | None]]) -> None:
+        """Read every part in ``references`` in one go; one that does not exist is refused later, by ``part``."""
+        wanted = [reference for reference in references if reference not in self.cache]
+        if wanted and self.session is not None:
+            self.cache.update(look_up(self.session, wanted))
+
+    def part(self, role: str, part_id: str, revision: int | None) -> Referenced:
         key = (part_id, revision)
+        if key not in self.cache:
+            self.prefetch([key])
         if key not in self.cache:
             assert self.session is not None, "a part is named, so the resolver needs a session"
             store = PartStore(self.session)
-            try:
-                self.cache[key] = store.get(part_id) if revision is None else store.get_revision(part_id, revision)
+            try:  # the store names what is missing: the part, or the revision
+                found = store.get(part_id) if revision is None else store.get_revision(part_id, revision)
             except PartNotFound as exc:
                 field_name = role if revision is None or "revision" not in str(exc) else f"{role}_revision"
                 raise UnknownPart.on(field_name, str(exc)) from exc
+            self.cache[key] = Referenced(found.part_id, found.kind, found.parameters, found.status, found.revision)
         return self.cache[key]
 
 
@@ -42,11 +53,22 @@ class Resolved:
     warnings: list[str]
 
 
+def _references(roles: tuple[Role, ...], body: Mapping[str, Any]) -> list[tuple[str, int | None]]:
+    """The (part_id, revision) pairs ``body`` names, where both are of the types a reference takes."""
+    found = []
+    for role in roles:
+        part_id, revision = body.get(role.name), body.get(f"{role.name}_revision")
+        if isinstance(part_id, str) and (revision is None or type(revision) is int):
+            found.append((part_id, revision))
+    return found
+
+
 def resolve(roles: tuple[Role, ...], body: Mapping[str, Any], resolver: PartResolver) -> Resolved:
     """Explicit values win over a part's; each referenced part is checked against its role."""
     values = {k: v for k, v in body.items() if v is not None}
     parts: list[dict[str, Any]] = []
     warnings: list[str] = []
+    resolver.prefetch(_references(roles, body))
     for role in roles:
         part_id = body.get(role.name)
         revision = body.get(f"{role.name}_revision")

@@ -2,10 +2,8 @@
 
 from __future__ import annotations
 
-import io
 from typing import Any
 
-import numpy as np
 import orjson
 from flask import Response, current_app, request
 from flask.views import MethodView
@@ -13,175 +11,28 @@ from flask_smorest import Blueprint
 
 from calcsvc.core.registry import CALCULATIONS
 from calcsvc.core.spec import CalculationSpec
-from calcsvc.csv_cells import CellWriter
-from calcsvc.service.batch import Batch, ParsedRows, Records, run_batch
-from calcsvc.service.envelope import SWEEP_KEYS, row_sweeps, to_json_value
+from calcsvc.service.batch import run_batch
 from calcsvc.service.errors import InvalidInput
+from calcsvc.service.gc_pause import return_free_memory
 from calcsvc.web.auth import database, guard_reads
+from calcsvc.web.batch_csv import csv_chunks
+from calcsvc.web.batch_json import json_columns, streamed_rows
 from calcsvc.web.calc_schemas import request_schema
 from calcsvc.web.metrics import record_calculation
-from calcsvc.web.problems import error_response, problem_document, service_problem
-from calcsvc.web.sheet_text import cell_value, failing_check
+from calcsvc.web.problems import error_response
 
 blp = Blueprint(
     "batch",
     __name__,
     url_prefix="/v1/batch",
-    description="Many rows of one calculation in one request: a JSON array of input objects or a CSV table "
-    "(header row = input names; cells may carry units such as '9 V'). A bad row does not fail the batch.",
+    description="Many rows of one calculation in one request: a JSON array of input objects, a JSON object of "
+    "input arrays (one per name) or a CSV table (header row = input names; cells may carry units such as '9 V'). "
+    "A bad row does not fail the batch.",
 )
 guard_reads(blp)  # calculations read the parts table
 
 CSV = "text/csv"
 MAX_LABELS_LENGTH = 1000  # label column names, comma-separated
-
-
-def _row_problem(parsed: ParsedRows, row: int) -> dict[str, Any]:
-    """A bad row's problem document, as a single request with its inputs would have been answered."""
-    return problem_document(service_problem(parsed.errors.refusal(row)))
-
-
-def _passes(outcome: Any, count: int) -> np.ndarray:
-    """Whether each computed row passes every check that applies to it (a check with no limit there does not)."""
-    passes = np.ones(count, dtype=bool)
-    for check in outcome.checks:
-        passes &= check.ok | np.isnan(check.limit)
-    return passes
-
-
-def _labels(records: Records, row: int) -> dict[str, Any]:
-    return {name: values[row] for name, values in records.labels.items()}
-
-
-def json_rows(calc: CalculationSpec, batch: Batch) -> list[dict[str, Any]]:
-    parsed, ok_rows, outcome = batch.parsed, batch.ok_rows, batch.outcome
-    n = parsed.n
-    passes = _passes(outcome, ok_rows.size).tolist()
-    names = [name for name in calc.scalar_results() if name in outcome.results]
-    results = [to_json_value(outcome.results[name]) for name in names]
-    sweeps = row_sweeps(outcome, ok_rows.size)
-    checks = [
-        (c.name, c.ok.tolist(), to_json_value(c.value), to_json_value(c.limit), to_json_value(c.margin()))
-        for c in outcome.checks
-    ]
-    notices: dict[str, list[list[str]]] = {"warnings": [[] for _ in ok_rows], "cautions": [[] for _ in ok_rows]}
-    for kind, found in (("warnings", outcome.warnings), ("cautions", outcome.cautions)):
-        for notice in found:
-            for k in np.flatnonzero(notice.rows):
-                notices[kind][k].append(notice.message)
-    rows: list[dict[str, Any]] = [{}] * n
-    for k, row in enumerate(ok_rows.tolist()):
-        row_results = dict(zip(names, (column[k] for column in results), strict=True))
-        if sweeps[k] is not None:
-            row_results["sweep"] = {key: to_json_value(values) for key, values in sweeps[k].items()}
-        rows[row] = {
-            "row": row,
-            **({"labels": _labels(batch.records, row)} if batch.records.labels else {}),
-            "ok": True,
-            "passes": passes[k],
-            "results": row_results,
-            "checks": [
-                {"name": name, "ok": ok[k], "value": value[k], "limit": limit[k], "margin": margin[k]}
-                for name, ok, value, limit, margin in checks
-                if limit[k] is not None  # a check whose limit is unknown on this row does not apply
-            ],
-            "warnings": parsed.warnings.get(row, []) + notices["warnings"][k],
-            "cautions": notices["cautions"][k],
-            "parts": parsed.parts.get(row, []),
-        }
-    for row in parsed.errors.by_row:
-        labels = {"labels": _labels(batch.records, row)} if batch.records.labels else {}
-        rows[row] = {"row": row, **labels, "ok": False, "passes": None, "problem": _row_problem(parsed, row)}
-    return rows
-
-
-def json_columns(calc: CalculationSpec, batch: Batch) -> dict[str, Any]:
-    """The same answer as ``json_rows``, one array per result and check (element i belongs to row i).
-
-    Arrays go to the serializer as they are, with no object per row, which is what makes large batches fast.
-    A row that was not computed has ok false, passes false, null results and null check values, and its problem.
-    """
-    parsed, ok_rows, outcome = batch.parsed, batch.ok_rows, batch.outcome
-    n = parsed.n
-
-    def full(column: np.ndarray, fill: Any = np.nan) -> np.ndarray:
-        out = np.full((n, *column.shape[1:]), fill, dtype=column.dtype)
-        out[ok_rows] = column
-        return out
-
-    ok = np.zeros(n, dtype=bool)
-    ok[ok_rows] = True
-    results = {name: full(outcome.results[name]) for name in calc.scalar_results() if name in outcome.results}
-    if "sweep_row" in outcome.results:
-        # One array per row that sweeps (its own length), null for the others.
-        sweeps: list[dict[str, np.ndarray] | None] = [None] * n
-        for row, sweep in zip(ok_rows.tolist(), row_sweeps(outcome, ok_rows.size), strict=True):
-            sweeps[row] = sweep
-        results["sweep"] = {key: [None if s is None else s[key] for s in sweeps] for key in SWEEP_KEYS}
-    checks = {
-        check.name: {
-            "ok": full(check.ok, False),
-            "value": full(check.value),
-            "limit": full(check.limit),
-            "margin": full(check.margin()),
-        }
-        for check in outcome.checks
-    }
-    notices = {
-        kind: [{"message": notice.message, "rows": ok_rows[notice.rows]} for notice in found]
-        for kind, found in (("warnings", outcome.warnings), ("cautions", outcome.cautions))
-    }
-    part_warnings = [{"message": m, "rows": [row]} for row, found in parsed.warnings.items() for m in found]
-    notices["warnings"] = part_warnings + notices["warnings"]
-    return {
-        "layout": "columns",
-        **({"labels": batch.records.labels} if batch.records.labels else {}),
-        "ok": ok,
-        "passes": full(_passes(outcome, ok_rows.size), False),
-        "results": results,
-        "checks": checks,
-        **notices,
-        "parts": {str(row): used for row, used in parsed.parts.items()},
-        "problems": {str(row): _row_problem(parsed, row) for row in parsed.errors.by_row},
-    }
-
-
-def csv_body(calc: CalculationSpec, batch: Batch) -> str:
-    """One line per row, numbered as the sheet numbers it (header = row 1): its labels, whether it was computed and
-    passes its checks, every scalar result, the failing checks with value and limit, its cautions, its problem."""
-    parsed, ok_rows, outcome, records = batch.parsed, batch.ok_rows, batch.outcome, batch.records
-    comma = records.decimal_comma
-    names = [name for name in calc.scalar_results() if name in outcome.results]
-    labels = list(records.labels)
-    table: list[list[Any]] = [
-        [records.lines[row], *(records.labels[name][row] for name in labels), "false", ""]
-        + [""] * len(names)
-        + ["", "", ""]
-        for row in range(parsed.n)
-    ]
-    columns = [outcome.results[name].tolist() for name in names]
-    checks = [(c.name, c.ok.tolist(), c.value.tolist(), c.limit.tolist()) for c in outcome.checks]
-    cautions: list[list[str]] = [[] for _ in ok_rows]
-    for notice in outcome.cautions:
-        for k in np.flatnonzero(notice.rows):
-            cautions[k].append(notice.message)
-    for k, row in enumerate(ok_rows.tolist()):
-        failing = [
-            f"{name} {failing_check(value[k], limit[k], comma)}"
-            for name, ok, value, limit in checks
-            if not ok[k] and limit[k] == limit[k]  # a check with no limit on this row does not apply
-        ]
-        cells = [cell_value(column[k], comma) for column in columns]
-        passes = "false" if failing else "true"
-        table[row][len(labels) + 1 :] = ["true", passes, *cells, "; ".join(failing), " ".join(cautions[k]), ""]
-    for row in parsed.errors.by_row:
-        table[row][-1] = parsed.errors.refusal(row).detail
-    out = io.StringIO()
-    # The problem quotes the caller's column names, the labels are the caller's text: both may start a formula.
-    writer = CellWriter(out, lineterminator="\n", delimiter=records.separator)
-    writer.writerow(["row", *labels, "computed", "passes", *names, "failing_checks", "cautions", "problem"])
-    writer.writerows(table)
-    return out.getvalue()
 
 
 def answer(calc: CalculationSpec) -> Response:
@@ -208,7 +59,7 @@ def answer(calc: CalculationSpec) -> Response:
         CSV in request.accept_mimetypes.values()
         and request.accept_mimetypes.best_match(["application/json", CSV]) == CSV
     ):
-        return Response(csv_body(calc, batch), mimetype=CSV)
+        return _released(Response(csv_chunks(calc, batch), mimetype=CSV))
     body = {
         "calculation": calc.name,
         "version": calc.version,
@@ -218,9 +69,14 @@ def answer(calc: CalculationSpec) -> Response:
     }
     if request.args.get("layout") == "columns":
         body.update(json_columns(calc, batch))
-    else:
-        body["rows"] = json_rows(calc, batch)
-    return Response(orjson.dumps(body, option=orjson.OPT_SERIALIZE_NUMPY), mimetype="application/json")
+        return _released(Response(orjson.dumps(body, option=orjson.OPT_SERIALIZE_NUMPY), mimetype="application/json"))
+    return _released(Response(streamed_rows(calc, batch, body), mimetype="application/json"))
+
+
+def _released(response: Response) -> Response:
+    """Once the answer is sent, the batch's memory goes back to the operating system."""
+    response.call_on_close(return_free_memory)
+    return response
 
 
 def _batch_doc(calc: CalculationSpec) -> dict[str, Any]:
@@ -231,8 +87,19 @@ def _batch_doc(calc: CalculationSpec) -> dict[str, Any]:
             "content": {
                 "application/json": {
                     "schema": {
-                        "type": "array",
-                        "items": {"$ref": f"#/components/schemas/{schema_name.removesuffix('Schema')}"},
+                        "oneOf": [
+                            {
+                                "type": "array",
+                                "description": "rows: one object of inputs per row",
+                                "items": {"$ref": f"#/components/schemas/{schema_name.removesuffix('Schema')}"},
+                            },
+                            {
+                                "type": "object",
+                                "description": "columns: one array per input name, all of one length (element "
+                                "i belongs to row i; null: not given on that row); the fastest to read",
+                                "additionalProperties": {"type": "array"},
+                            },
+                        ]
                     }
                 },
                 CSV: {

@@ -5,7 +5,6 @@ from __future__ import annotations
 import math
 from typing import Any
 
-import numpy as np
 from marshmallow import ValidationError, fields
 
 from calcsvc.core.spec import Input
@@ -15,7 +14,7 @@ from calcsvc.units import MAX_QUANTITY_LENGTH, QUANTITY_PATTERN, VOLTAGE_RATIO, 
 class Quantity(fields.Field):
     """Float in ``unit`` (SI), or a string such as ``"4.7 kohm"`` converted to it.
 
-    ``minimum``/``exclusive_minimum``/``maximum`` are enforced after conversion (by ``Input.refusals``) and
+    ``minimum``/``exclusive_minimum``/``maximum`` are enforced after conversion (by ``Input.refusal``) and
     published in the spec.
     """
 
@@ -78,9 +77,9 @@ class Quantity(fields.Field):
             raise ValidationError("must be a number or a string with a unit")
         if math.isnan(number):  # NaN means "not given" to the checker; a caller who sends one is refused here
             raise ValidationError("must be a finite number")
-        refusals = self.range.refusals(np.array([number]))
-        if refusals:
-            raise ValidationError(refusals[0][1])
+        refused = self.range.refusal(number)
+        if refused:
+            raise ValidationError(refused)
         return number
 
     def _serialize(self, value: Any, attr: str | None, obj: Any, **kwargs: Any) -> float | None:

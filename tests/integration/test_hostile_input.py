@@ -85,13 +85,19 @@ def _schema(ref_or_schema: dict[str, Any]) -> dict[str, Any]:
 def numeric_property(operation: dict[str, Any]) -> str | None:
     """A property of the JSON body (or of a batch row) that takes a number, to carry hostile numbers."""
     schema = _schema(operation["requestBody"]["content"]["application/json"]["schema"])
-    if schema.get("type") == "array":
-        schema = _schema(schema["items"])
+    if "oneOf" in schema or schema.get("type") == "array":
+        schema = _schema(batch_row(schema))
     for name, prop in sorted(schema.get("properties", {}).items()):
         kinds = [prop.get("type")] + [alt.get("type") for alt in prop.get("oneOf", [])]
         if "number" in kinds:
             return name
     return None
+
+
+def batch_row(schema: dict[str, Any]) -> dict[str, Any]:
+    """The schema of one row of a batch body (which may also come as an object of columns)."""
+    rows = next(alternative for alternative in schema.get("oneOf", [schema]) if alternative.get("type") == "array")
+    return rows["items"]
 
 
 def is_batch(operation: str) -> bool:
@@ -403,7 +409,7 @@ def request_inputs(operation: str) -> list[Input]:
     body = spec.get("requestBody", {}).get("content", {}).get("application/json")
     if body:
         schema = _schema(body["schema"])
-        found += inputs(schema["items"] if is_batch(operation) else schema)  # a batch: the inputs of a row
+        found += inputs(batch_row(schema) if is_batch(operation) else schema)  # a batch: the inputs of a row
     return found
 
 

@@ -10,7 +10,8 @@ import pytest
 
 from calcsvc.core import led_string
 from calcsvc.data.database import Database
-from calcsvc.service.batch import parse_rows, read_records, run_batch
+from calcsvc.service.batch import parse_cells, parse_rows, read_records, run_batch
+from calcsvc.service.batch_read import Cells
 from calcsvc.service.errors import InvalidInput, MalformedBody, PhysicallyImpossible, TooLarge, UnknownPart
 from calcsvc.service.resolve import PartResolver
 
@@ -59,8 +60,8 @@ def test_a_physically_impossible_row_is_refused_as_such_and_the_others_computed(
 
 def test_csv_blanks_are_absent_and_bad_bodies_refused() -> None:
     records = read_records(CALC, b"supply_v,strings\n12 V,\n", True, 5)
-    assert records.rows == [{"supply_v": "12 V", "strings": ""}] and records.blank_is_absent
-    parsed = parse_rows(CALC, records.rows, PartResolver(None), records.blank_is_absent)
+    assert records.cells.values == {"supply_v": ["12 V"], "strings": [""]} and records.blank_is_absent
+    parsed = parse_cells(CALC, records.cells, PartResolver(None), records.blank_is_absent)
     assert np.isnan(parsed.columns["current_a"][0]) and parsed.columns["strings"][0] == 1.0
     with pytest.raises(MalformedBody):
         read_records(CALC, b"[{", False, 5)
@@ -69,3 +70,18 @@ def test_csv_blanks_are_absent_and_bad_bodies_refused() -> None:
     with pytest.raises(TooLarge) as too_many:
         read_records(CALC, b"[{}, {}, {}]", False, 2)
     assert too_many.value.slug == "batch-size"
+
+
+def test_csv_numbers_read_in_bulk_as_the_unit_parser_reads_each_cell() -> None:
+    cells = ["12", "", "1_0", "١٢", "nan", "1e400", "0" * 70 + "1", "+.5", "9 V", "-3", "7."]
+    common = {name: [value] * len(cells) for name, value in {**LED, "current_a": "0.02"}.items()}
+    together = parse_cells(CALC, Cells(len(cells), {**common, "supply_v": cells}), PartResolver(None), True)
+    for row, cell in enumerate(cells):
+        alone = parse_cells(CALC, Cells(1, {**{k: v[:1] for k, v in common.items()}, "supply_v": [cell]}),
+                            PartResolver(None), True)  # fmt: skip
+        assert together.errors.by_row.get(row) == alone.errors.by_row.get(0), cell
+        np.testing.assert_equal(together.columns["supply_v"][row], alone.columns["supply_v"][0])
+    numbers = [cell for cell in cells if cell in ("12", "+.5", "-3", "7.")]
+    whole = parse_cells(CALC, Cells(4, {**{k: v[:4] for k, v in common.items()}, "supply_v": numbers}),
+                        PartResolver(None), True)  # fmt: skip
+    assert whole.columns["supply_v"].tolist() == [12.0, 0.5, -3.0, 7.0]

@@ -1,0 +1,134 @@
+"""One batch in every shape it may arrive in (an array of rows, an object of columns, a CSV table) gets the same
+answer, whichever shape it is answered in; the streamed rows answer is the whole answer, chunk by chunk."""
+
+from __future__ import annotations
+
+import csv
+import io
+from typing import Any
+
+import numpy as np
+import orjson
+import pytest
+from flask.testing import FlaskClient
+from helpers import assert_problem
+
+from calcsvc.web import batch_csv, batch_json
+
+NAMES = ("supply_v", "vf_typ_v", "vf_min_v", "vf_max_v", "if_max_a", "leds_in_series", "current_a", "e_series")
+
+
+def varied_rows(n: int) -> list[dict[str, Any]]:
+    """Designs that pass, fail a check, carry cautions, name parts, write units, leave inputs out or are refused."""
+    rng = np.random.default_rng(11)
+    rows: list[dict[str, Any]] = []
+    for k in range(n):
+        row: dict[str, Any] = {
+            "supply_v": float(np.round(rng.uniform(4.0, 30.0), 3)),
+            "vf_typ_v": 2.1,
+            "vf_min_v": 1.9,
+            "vf_max_v": 2.5,
+            "if_max_a": float(rng.choice([0.03, 0.5])),
+            "leds_in_series": int(rng.integers(1, 5)),
+            "current_a": float(np.round(rng.uniform(0.002, 0.4), 4)),
+            "e_series": str(rng.choice(["E12", "E24", "E96"])),
+        }
+        if k % 5 == 0:
+            row["supply_v"] = f"{row['supply_v']} V"
+        if k % 7 == 0:
+            row["current_a"] = "20 mA"
+        if k % 11 == 0:
+            for name in ("vf_typ_v", "vf_min_v", "vf_max_v", "if_max_a"):
+                del row[name]
+            row["led"] = "led-red-5mm"
+        if k % 13 == 0:
+            row["current_a"] = -1  # refused
+        if k % 17 == 0:
+            del row["e_series"]  # the default
+        rows.append(row)
+    return rows
+
+
+def as_columns(rows: list[dict[str, Any]]) -> dict[str, list[Any]]:
+    names = list(dict.fromkeys(name for row in rows for name in row))
+    return {name: [row.get(name) for row in rows] for name in names}
+
+
+def as_csv(rows: list[dict[str, Any]]) -> str:
+    out = io.StringIO()
+    writer = csv.DictWriter(out, fieldnames=list(as_columns(rows)), lineterminator="\n", restval="")
+    writer.writeheader()
+    writer.writerows(rows)
+    return out.getvalue()
+
+
+def test_rows_columns_and_csv_bodies_get_the_same_answers(client: FlaskClient, seeded: Any) -> None:
+    rows = varied_rows(300)
+    csv_body = as_csv(rows)
+    for query, accept in (("", "application/json"), ("?layout=columns", "application/json"), ("", "text/csv")):
+        answers = [
+            client.post(f"/v1/batch/led-string{query}", json=rows, headers={"Accept": accept}).data,
+            client.post(f"/v1/batch/led-string{query}", json=as_columns(rows), headers={"Accept": accept}).data,
+            client.post(
+                f"/v1/batch/led-string{query}", data=csv_body, content_type="text/csv", headers={"Accept": accept}
+            ).data,
+        ]
+        if accept == "text/csv":
+            # Rows are numbered as a sheet numbers them, header = row 1, for JSON bodies too.
+            assert answers[0] == answers[1] == answers[2]
+        else:
+            first = orjson.loads(answers[0])
+            assert first["ok_count"] < first["count"] == 300  # some refused, the rest computed
+            assert orjson.loads(answers[1]) == first
+            assert orjson.loads(answers[2]) == first
+
+
+def test_a_column_shaped_body_leaves_a_null_cell_out(client: FlaskClient) -> None:
+    body = {"supply_v": [12, 12], "vf_typ_v": [2.1, 2.1], "vf_min_v": [1.9, 1.9], "vf_max_v": [2.5, 2.5],
+            "if_max_a": [0.03, 0.03], "leds_in_series": [3, 3], "current_a": [0.02, 0.02], "strings": [None, 2],
+            "colour": [None, "red"]}  # fmt: skip
+    answer = client.post("/v1/batch/led-string", json=body).get_json()
+    assert [row["ok"] for row in answer["rows"]] == [True, False]
+    assert answer["rows"][0]["results"]["total_current_a"] == answer["rows"][0]["results"]["current_a"]
+    assert answer["rows"][1]["problem"]["errors"] == {"colour": ["Unknown field."]}
+
+
+@pytest.mark.parametrize(
+    "body", [{"supply_v": 12}, {"supply_v": [12, 12], "current_a": [0.02]}], ids=["not-an-array", "lengths"]
+)
+def test_a_malformed_column_shaped_body_is_refused(client: FlaskClient, body: dict[str, Any]) -> None:
+    assert_problem(client.post("/v1/batch/led-string", json=body), 422, "body")
+
+
+def test_the_streamed_rows_are_the_whole_answer(
+    client: FlaskClient, seeded: Any, monkeypatch: pytest.MonkeyPatch
+) -> None:
+    rows = varied_rows(60)
+    whole = client.post("/v1/batch/led-string", json=rows).data
+    monkeypatch.setattr(batch_json, "CHUNK_ROWS", 7)
+    chunked = client.post("/v1/batch/led-string", json=rows)
+    assert chunked.data == whole
+    assert [row["row"] for row in orjson.loads(whole)["rows"]] == list(range(60))
+
+
+@pytest.mark.parametrize("text", ["1_0", "١٢", "nan", "1e400", " 12 ", "12 V", "+.5e1"])
+def test_a_numeric_string_cell_reads_as_a_single_request_reads_it(client: FlaskClient, text: str) -> None:
+    design = {"vf_typ_v": 2.1, "vf_min_v": 1.9, "vf_max_v": 2.5, "if_max_a": 0.03, "leds_in_series": 3}
+    design |= {"current_a": 0.02, "supply_v": text}
+    single = client.post("/v1/calc/led-string", json=design).get_json()
+    for body in ([design], as_columns([design])):
+        row = client.post("/v1/batch/led-string", json=body).get_json()["rows"][0]
+        if "errors" in single:
+            assert row["problem"]["errors"] == single["errors"]
+        else:
+            assert row["results"] == single["results"]
+
+
+def test_the_streamed_csv_is_the_whole_table(client: FlaskClient, seeded: Any, monkeypatch: pytest.MonkeyPatch) -> None:
+    table = as_csv(varied_rows(60))
+    headers = {"Accept": "text/csv"}
+    whole = client.post("/v1/batch/led-string", data=table, content_type="text/csv", headers=headers).data
+    monkeypatch.setattr(batch_csv, "CHUNK_ROWS", 7)
+    chunked = client.post("/v1/batch/led-string", data=table, content_type="text/csv", headers=headers).data
+    assert chunked == whole
+    assert whole.count(b"\n") == 61 and b"must be greater than 0 A" in whole  # every row, refused ones too

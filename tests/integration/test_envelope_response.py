@@ -1,0 +1,31 @@
+"""The envelope is written without a second marshmallow pass: it must already be what the published response
+schema would dump, for every calculation (numbers, flags and a sweep)."""
+
+from __future__ import annotations
+
+from typing import Any
+
+import pytest
+from flask.testing import FlaskClient
+
+from calcsvc.core.registry import CALCULATIONS
+from calcsvc.web.calc_schemas import response_schema
+
+BODIES = {
+    "led-string": {"supply": "supply-adapter-12v-2a", "led": "led-red-5mm", "leds_in_series": 3, "current_a": "20 mA"},
+    "bjt-switch": {"transistor": "npn-small-signal", "driver": "driver-mcu-3v3", "collector_current_a": 0.04},
+    "closed-loop-bandwidth": {"gain": 10, "gbw_hz": 1e6, "sweep_start_hz": 10, "sweep_stop_hz": 1e6, "sweep_points": 4},
+    "slew-limit": {"slew_rate_v_per_s": "0.5 V/us", "frequency_hz": "20 kHz", "amplitude_v": 5},
+}
+
+
+@pytest.mark.parametrize("name", sorted(CALCULATIONS))
+def test_the_envelope_is_what_the_response_schema_dumps(client: FlaskClient, seeded: Any, name: str) -> None:
+    calc = CALCULATIONS[name]
+    for answer in (
+        client.post(f"/v1/calc/{name}", json=BODIES[name]),
+        client.get(f"/v1/calc/{name}", query_string=BODIES[name]),
+    ):
+        assert answer.status_code == 200, answer.get_json()
+        envelope = answer.get_json()
+        assert response_schema(calc.name, calc.results)().dump(envelope) == envelope
