@@ -17,6 +17,7 @@ from calcsvc.csv_cells import CellWriter
 from calcsvc.service.batch import Batch, ParsedRows, Records, run_batch
 from calcsvc.service.envelope import SWEEP_KEYS, row_sweeps, to_json_value
 from calcsvc.service.errors import InvalidInput
+from calcsvc.service.safety import SAFETY_LINE
 from calcsvc.web.auth import database, guard_reads
 from calcsvc.web.calc_schemas import request_schema
 from calcsvc.web.metrics import record_calculation
@@ -215,6 +216,7 @@ def answer(calc: CalculationSpec) -> Response:
         "count": parsed.n,
         "ok_count": int(ok_rows.size),
         "check_details": {check.name: check.detail for check in outcome.checks},
+        "safety": SAFETY_LINE,
     }
     if request.args.get("layout") == "columns":
         body.update(json_columns(calc, batch))

@@ -24,6 +24,7 @@ from calcsvc.service.parts import (
     convert_parameters,
 )
 from calcsvc.web.auth import database, reads, requires
+from calcsvc.web.calc_schemas import safety_field
 from calcsvc.web.metrics import record_parts_write
 from calcsvc.web.problems import Problem, error_response
 
@@ -66,8 +67,13 @@ class PartSchema(Schema):
     approved_by = fields.String(allow_none=True, required=True)
 
 
+class PartAnswerSchema(PartSchema):
+    safety = safety_field()
+
+
 class PartListSchema(Schema):
     items = fields.List(fields.Nested(PartSchema), required=True)
+    safety = safety_field()
     total = fields.Integer(required=True)
     offset = fields.Integer(required=True)
     limit = fields.Integer(required=True)
@@ -104,6 +110,7 @@ class RevisionSchema(Schema):
 class RevisionListSchema(Schema):
     part_id = fields.String(required=True)
     revisions = fields.List(fields.Nested(RevisionSchema), required=True)
+    safety = safety_field()
 
 
 class IfMatchSchema(Schema):
@@ -159,7 +166,7 @@ class Parts(MethodView):
 
     @requires("editor")
     @blp.arguments(PartCreateSchema)
-    @blp.response(201, PartSchema, headers={"Location": {"schema": {"type": "string"}}})
+    @blp.response(201, PartAnswerSchema, headers={"Location": {"schema": {"type": "string"}}})
     @error_response(blp, 401, "no valid token")
     @error_response(blp, 403, "the token's role may not create parts")
     @error_response(blp, 409, "a part with this id exists")
@@ -179,7 +186,7 @@ class Parts(MethodView):
 @blp.route("/<string:part_id>")
 class Part(MethodView):
     @reads
-    @blp.response(200, PartSchema, headers={"ETag": {"schema": {"type": "string"}}})
+    @blp.response(200, PartAnswerSchema, headers={"ETag": {"schema": {"type": "string"}}})
     @error_response(blp, 404, "no such part")
     def get(self, part_id: str) -> tuple[dict[str, Any], int, dict[str, str]]:
         """One part at its current revision, with the revision's ETag."""
@@ -189,7 +196,7 @@ class Part(MethodView):
     @requires("editor")
     @blp.arguments(IfMatchSchema, location="headers")
     @blp.arguments(PartUpdateSchema)
-    @blp.response(200, PartSchema, headers={"ETag": {"schema": {"type": "string"}}})
+    @blp.response(200, PartAnswerSchema, headers={"ETag": {"schema": {"type": "string"}}})
     @error_response(blp, 401, "no valid token")
     @error_response(blp, 403, "the token's role may not edit parts")
     @error_response(blp, 404, "no such part")
@@ -213,7 +220,7 @@ class Part(MethodView):
     @requires("editor")
     @blp.arguments(IfMatchSchema, location="headers")
     @blp.arguments(ReasonSchema, required=False)
-    @blp.response(200, PartSchema, headers={"ETag": {"schema": {"type": "string"}}})
+    @blp.response(200, PartAnswerSchema, headers={"ETag": {"schema": {"type": "string"}}})
     @error_response(blp, 401, "no valid token")
     @error_response(blp, 403, "the token's role may not retire parts")
     @error_response(blp, 404, "no such part")
@@ -235,7 +242,7 @@ class Part(MethodView):
 class Approve(MethodView):
     @requires("reviewer")
     @blp.arguments(IfMatchSchema, location="headers")
-    @blp.response(200, PartSchema, headers={"ETag": {"schema": {"type": "string"}}})
+    @blp.response(200, PartAnswerSchema, headers={"ETag": {"schema": {"type": "string"}}})
     @error_response(blp, 401, "no valid token")
     @error_response(blp, 403, "not a reviewer, or the reviewer wrote this revision")
     @error_response(blp, 404, "no such part")
@@ -257,7 +264,7 @@ class Restore(MethodView):
     @requires("editor")
     @blp.arguments(IfMatchSchema, location="headers")
     @blp.arguments(ReasonSchema, required=False)
-    @blp.response(200, PartSchema, headers={"ETag": {"schema": {"type": "string"}}})
+    @blp.response(200, PartAnswerSchema, headers={"ETag": {"schema": {"type": "string"}}})
     @error_response(blp, 401, "no valid token")
     @error_response(blp, 403, "the token's role may not restore parts")
     @error_response(blp, 404, "no such part")

@@ -24,6 +24,7 @@ from calcsvc.data.store_errors import (
     StoreError,
 )
 from calcsvc.service.errors import MalformedBody, PhysicallyImpossible, ServiceError, TooLarge, UnknownPart
+from calcsvc.service.safety import SAFETY_LINE
 
 PROBLEM_MIMETYPE = "application/problem+json"
 log = logging.getLogger("calcsvc")
@@ -42,6 +43,7 @@ class ProblemSchema(Schema):
         values=fields.List(fields.String()),
         metadata={"description": "messages keyed by the offending field (dotted path for nested fields)"},
     )
+    safety = fields.String(required=True, metadata={"description": "the standing safety line every answer carries"})
 
 
 RETRY_AFTER_HEADER = {
@@ -145,6 +147,7 @@ def problem_document(problem: Problem, instance: str | None = None) -> dict[str,
         body["instance"] = instance
     if problem.errors:
         body["errors"] = problem.errors
+    body["safety"] = SAFETY_LINE
     return body
 
 

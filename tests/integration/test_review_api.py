@@ -118,6 +118,13 @@ def _numbers(text: str) -> list[float]:
     return [float(x) for x in re.findall(r"-?\d+(?:\.\d+)?(?:e[+-]?\d+)?", text)]
 
 
+def _with_unit(cell: str, unit: str) -> float:
+    """A report cell's number, which must carry the check's unit."""
+    number, _, shown = cell.partition(" ")
+    assert shown == unit, cell
+    return float(number)
+
+
 def test_markdown_report_agrees_with_the_json(client: FlaskClient, seeded: Any) -> None:
     data = review(client, DEMO)
     response = client.post("/v1/review/channel", json=DEMO, headers={"Accept": "text/markdown"})
@@ -125,11 +132,15 @@ def test_markdown_report_agrees_with_the_json(client: FlaskClient, seeded: Any) 
     report = response.get_data(as_text=True)
     assert report.startswith("# Channel review: PASS") and data["fingerprint"] in report
     rows = {line.split("|")[1].strip(): line for line in report.splitlines() if line.startswith("| ")}
+    units = {"led_current_rating": "A", "headroom": "V", "resistor_rating": "W", "driver_current": "A",
+             "signal_in_band": "Hz", "slew_rate": "V/s", "saturation": ""}  # fmt: skip
     for check in data["checks"]:
         cells = [cell.strip() for cell in rows[check["name"]].split("|")[1:-1]]
-        assert float(cells[2]) == pytest.approx(check["value"], rel=1e-5)
-        assert float(cells[3]) == pytest.approx(check["limit"], rel=1e-5)
-        assert float(cells[5]) == pytest.approx(check["worst_case"]["value"], rel=1e-5)
+        unit = units.get(check["name"], cells[2].partition(" ")[2])
+        assert _with_unit(cells[2], unit) == pytest.approx(check["value"], rel=1e-5)
+        assert _with_unit(cells[3], unit) == pytest.approx(check["limit"], rel=1e-5)
+        assert cells[4] == f"{check['margin'] * 100:.3g} %"
+        assert _with_unit(cells[5], unit) == pytest.approx(check["worst_case"]["value"], rel=1e-5)
         assert cells[-1] == ("pass" if check["ok"] else "FAIL")
     for name, value in data["inputs"].items():
         if isinstance(value, int | float):
@@ -152,7 +163,22 @@ def test_yield_histogram_of_the_most_failing_check(client: FlaskClient) -> None:
     assert png.status_code == 200 and png.mimetype == "image/png" and png.data.startswith(b"\x89PNG")
     svg = client.post("/v1/review/channel/histogram.svg", json=weak)
     assert svg.mimetype == "image/svg+xml" and b"saturation" in svg.data
-    assert_problem(client.post("/v1/review/channel/histogram.svg", json=EXPLICIT), 422, "samples")
+
+
+def test_a_passing_design_plots_its_tightest_check_or_the_one_asked_for(client: FlaskClient) -> None:
+    data = review(client, EXPLICIT)
+    tightest = data["yield"]["tightest_check"]
+    assert data["yield"]["most_failing_check"] is None and tightest is not None
+    # Every build passes; the builds stay inside the corners' box, so no build comes closer than the worst corner.
+    worst = {c["name"]: c["worst_case"]["margin"] for c in data["checks"]}
+    assert worst[tightest] - 1e-12 <= data["yield"]["least_margin"] and data["yield"]["least_margin"] > 0
+    svg = client.post("/v1/review/channel/histogram.svg", json=EXPLICIT)
+    assert svg.status_code == 200 and f"{tightest}: 2000 of 2000 samples".encode() in svg.data
+    headroom = client.post("/v1/review/channel/histogram.svg?check=headroom", json=EXPLICIT)
+    assert headroom.status_code == 200 and b"headroom (value / its limit): 2000 of 2000" in headroom.data
+    assert_problem(client.post("/v1/review/channel/histogram.svg?check=nothing", json=EXPLICIT), 422, "check")
+    # No op-amp in this design: its checks do not apply, so there is nothing to plot for them.
+    assert_problem(client.post("/v1/review/channel/histogram.svg?check=slew_rate", json=EXPLICIT), 422, "check")
 
 
 def test_darlington_channel_asks_the_pin_for_a_fraction_of_a_milliamp(client: FlaskClient, seeded: Any) -> None:

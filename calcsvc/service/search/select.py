@@ -19,6 +19,7 @@ from calcsvc.data.store import PartStore, PartView
 from calcsvc.service.envelope import to_json_value
 from calcsvc.service.errors import InvalidInput, ServiceError, TooLarge, UnknownPart, WrongPartKind
 from calcsvc.service.resolve import PartResolver, resolve
+from calcsvc.service.safety import supply_cautions
 from calcsvc.service.search.channel import YIELD_SHORTLIST, combinations, search_channel
 from calcsvc.service.search.common import IMPOSSIBLE, IMPOSSIBLE_DETAIL, PartFilter, choose
 from calcsvc.service.search.ranking import Ranking
@@ -244,6 +245,8 @@ def run_channel_select(database: Database, body: dict[str, Any], max_combination
         entry = search.entry(int(row))
         entry["parts"] = sorted(fixed.parts + entry["parts"], key=lambda p: ROLE_ORDER[p["role"]])
         entry["request"] = {**pinned, **_pins(entry["parts"])}
+        searched_supply = [p.parameters for p in search.parts_of(int(row)) if p.kind == "supply"]
+        entry["cautions"] += fixed.cautions + [c for supply in searched_supply for c in supply_cautions(supply)]
         designs.append(entry)
     details = {c.name: c.detail for c in search.worst.nominal.checks} if search.worst else {}
     document = {
