@@ -15,6 +15,7 @@ from marshmallow import RAISE, Schema, fields, validate
 from calcsvc.data import part_ids
 from calcsvc.data.kinds import KINDS, MAX_DESCRIPTION_LENGTH
 from calcsvc.data.part_history import ACTIONS
+from calcsvc.data.review_notes import MAX_NOTE_LENGTH, comment, send_back
 from calcsvc.data.store import STATUSES, PartStore, PartView
 from calcsvc.service.parts import (
     MAX_REVISION,
@@ -290,6 +291,67 @@ class Revisions(MethodView):
     @error_response(blp, 404, "no such part")
     def get(self, part_id: str) -> dict[str, Any]:
         """Every revision of a part, oldest first, with its parameters, author and approval."""
+        return _history(part_id)
+
+
+class SendBackSchema(Schema):
+    reason = fields.String(
+        required=True,
+        validate=[validate.Length(min=1, max=MAX_NOTE_LENGTH), NO_NUL],
+        metadata={"description": "why the draft goes back to its author, kept with the revision"},
+    )
+
+
+class CommentSchema(Schema):
+    comment = fields.String(
+        required=True,
+        validate=[validate.Length(min=1, max=MAX_NOTE_LENGTH), NO_NUL],
+        metadata={"description": "the remark, kept with the revision"},
+    )
+
+
+def _history(part_id: str) -> dict[str, Any]:
+    with database().transaction() as session:
+        revisions = PartStore(session).revisions(part_id)
+    return {"part_id": part_id, "revisions": [asdict(r) for r in revisions]}
+
+
+@blp.route("/<string:part_id>/send-back")
+class SendBack(MethodView):
+    @requires("reviewer")
+    @blp.arguments(IfMatchSchema, location="headers")
+    @blp.arguments(SendBackSchema)
+    @blp.response(200, PartAnswerSchema, headers={"ETag": {"schema": {"type": "string"}}})
+    @error_response(blp, 401, "no valid token")
+    @error_response(blp, 403, "not a reviewer")
+    @error_response(blp, 404, "no such part")
+    @error_response(blp, 409, "the revision is not a draft, or the part is retired")
+    @error_response(blp, 412, "the revision If-Match names is no longer current")
+    @error_response(blp, 428, "If-Match is missing")
+    def post(
+        self, _headers: dict[str, Any], body: dict[str, Any], part_id: str
+    ) -> tuple[dict[str, Any], int, dict[str, str]]:
+        """Send the draft If-Match names back to its author with a reason (reviewer): it stays a draft, and the
+        reason is a `returned` event of that revision, shown in its history and on the review page."""
+        revision = expected_revision(part_id)
         with database().transaction() as session:
-            revisions = PartStore(session).revisions(part_id)
-        return {"part_id": part_id, "revisions": [asdict(r) for r in revisions]}
+            send_back(session, part_id, revision, g.identity.name, body["reason"])
+            view = PartStore(session).get(part_id)
+        record_parts_write("send_back")
+        return part_response(view)
+
+
+@blp.route("/<string:part_id>/revisions/<int:revision>/comments")
+class Comments(MethodView):
+    @requires("editor")
+    @blp.arguments(CommentSchema)
+    @blp.response(201, RevisionListSchema)
+    @error_response(blp, 401, "no valid token")
+    @error_response(blp, 404, "no such part or revision")
+    def post(self, body: dict[str, Any], part_id: str, revision: int) -> dict[str, Any]:
+        """Comment on a revision (editor or reviewer): a `commented` event of that revision, part of its history.
+        Answers the part's revisions with their events."""
+        with database().transaction() as session:
+            comment(session, part_id, revision, g.identity.name, body["comment"])
+        record_parts_write("comment")
+        return _history(part_id)

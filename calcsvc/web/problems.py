@@ -15,6 +15,7 @@ from calcsvc.core.outcome import DomainError
 from calcsvc.data.store_errors import (
     InvalidPart,
     InvalidPartId,
+    NotADraft,
     PartExists,
     PartNotFound,
     PartNotRetired,
@@ -244,6 +245,7 @@ _STORE_STATUS: dict[type[StoreError], tuple[int, str]] = {
     SelfApproval: (403, "self-approval"),
     PartRetired: (409, "part-retired"),
     PartNotRetired: (409, "part-not-retired"),
+    NotADraft: (409, "not-a-draft"),
     InvalidPartId: (422, "invalid-part-id"),
 }
 
