@@ -72,6 +72,7 @@ class ParsedRows:
     present: dict[str, np.ndarray]  # which rows gave each input (explicitly or through a part)
     parts: dict[int, list[dict[str, Any]]]  # only rows that name parts
     warnings: dict[int, list[str]]
+    cautions: dict[int, list[str]]  # the standing cautions of the parts a row names (a supply's kind)
     errors: RowErrors
 
 
@@ -163,9 +164,10 @@ def parse_rows(
 
     parts: dict[int, list[dict[str, Any]]] = {}
     warnings: dict[int, list[str]] = {}
+    cautions: dict[int, list[str]] = {}
     for role in calc.roles:
         if role.name in seen or f"{role.name}_revision" in seen:
-            _resolve_role(role, records, columns, parts, warnings, errors, resolver, blank_is_absent)
+            _resolve_role(role, records, columns, parts, (warnings, cautions), errors, resolver, blank_is_absent)
 
     present = {
         name: (column != "") if column.dtype == object else ~np.isnan(column) for name, column in columns.items()
@@ -179,7 +181,7 @@ def parse_rows(
     for spec in calc.inputs:
         if spec.choices:
             columns[spec.name] = columns[spec.name].astype(str)
-    return ParsedRows(n, columns, present, parts, warnings, errors)
+    return ParsedRows(n, columns, present, parts, warnings, cautions, errors)
 
 
 def _resolve_role(
@@ -187,12 +189,14 @@ def _resolve_role(
     records: list[dict[str, Any]],
     columns: Columns,
     parts: dict[int, list[dict[str, Any]]],
-    warnings: dict[int, list[str]],
+    notes: tuple[dict[int, list[str]], dict[int, list[str]]],
     errors: RowErrors,
     resolver: PartResolver,
     blank_is_absent: bool,
 ) -> None:
-    """Fill the inputs a part provides on the rows that name it, looking each distinct part up once."""
+    """Fill the inputs a part provides on the rows that name it, looking each distinct part up once; ``notes``
+    collects each row's warnings and cautions about the parts it names."""
+    warnings, cautions = notes
     groups: dict[tuple[str, int | None], list[int]] = {}
     for row, record in enumerate(records):
         part_id = record.get(role.name)
@@ -237,6 +241,8 @@ def _resolve_role(
             parts.setdefault(row, []).extend(resolved.parts)
             if resolved.warnings:
                 warnings.setdefault(row, []).extend(resolved.warnings)
+            if resolved.cautions:
+                cautions.setdefault(row, []).extend(resolved.cautions)
 
 
 # ---- a whole batch ------------------------------------------------------------------------------------------

@@ -15,7 +15,7 @@ SAFETY_LINE = (
 # A supply part's ``source``; without one, a part that states a capacity is taken for a battery pack.
 SUPPLY_CAUTIONS: dict[str, str] = {
     "mains_adapter": (
-        "Mains adapter: use a certified unit and keep its mains side dry and enclosed; a greenhouse or any damp "
+        "Mains adapter: use a certified unit and keep its mains side dry and enclosed. A greenhouse or any damp "
         "place needs an enclosure and wiring rated for it, as local electrical codes require."
     ),
     "battery": (

@@ -87,7 +87,7 @@ def json_rows(calc: CalculationSpec, batch: Batch) -> list[dict[str, Any]]:
                 if limit[k] is not None  # a check whose limit is unknown on this row does not apply
             ],
             "warnings": parsed.warnings.get(row, []) + notices["warnings"][k],
-            "cautions": notices["cautions"][k],
+            "cautions": notices["cautions"][k] + parsed.cautions.get(row, []),
             "parts": parsed.parts.get(row, []),
         }
     for row in parsed.errors.by_row:
@@ -134,6 +134,7 @@ def json_columns(calc: CalculationSpec, batch: Batch) -> dict[str, Any]:
     }
     part_warnings = [{"message": m, "rows": [row]} for row, found in parsed.warnings.items() for m in found]
     notices["warnings"] = part_warnings + notices["warnings"]
+    notices["cautions"] += [{"message": m, "rows": [row]} for row, found in parsed.cautions.items() for m in found]
     return {
         "layout": "columns",
         **({"labels": batch.records.labels} if batch.records.labels else {}),
@@ -174,7 +175,8 @@ def csv_body(calc: CalculationSpec, batch: Batch) -> str:
         ]
         cells = [cell_value(column[k], comma) for column in columns]
         passes = "false" if failing else "true"
-        table[row][len(labels) + 1 :] = ["true", passes, *cells, "; ".join(failing), " ".join(cautions[k]), ""]
+        noted = " ".join(cautions[k] + parsed.cautions.get(row, []))
+        table[row][len(labels) + 1 :] = ["true", passes, *cells, "; ".join(failing), noted, ""]
     for row in parsed.errors.by_row:
         table[row][-1] = parsed.errors.refusal(row).detail
     out = io.StringIO()

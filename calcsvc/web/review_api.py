@@ -14,10 +14,10 @@ from marshmallow import Schema, fields, validate
 
 from calcsvc.core import channel
 from calcsvc.core.channel_spec import CHECK_UNITS
-from calcsvc.service.review import Distribution, distribution, run_review
+from calcsvc.service.review import distribution, run_review
 from calcsvc.web import plots
 from calcsvc.web.auth import database, guard_reads
-from calcsvc.web.images import image_response
+from calcsvc.web.images import check_histogram, image_response
 from calcsvc.web.metrics import record_calculation
 from calcsvc.web.problems import error_response
 from calcsvc.web.review_report import render_html, render_markdown
@@ -38,14 +38,6 @@ class HistogramQuery(Schema):
         validate=validate.OneOf(list(CHECK_UNITS)),
         metadata={"description": "the check to plot; absent: the most failing one, else the tightest"},
     )
-
-
-def histogram(found: Distribution, fmt: str) -> plots.Plot:
-    """The Monte Carlo distribution of one check, with its limit marked."""
-    if found.relative:
-        # Only the value relative to its own limit shows which builds fail.
-        return plots.histogram(found.values, found.limit, f"{found.check} (value / its limit)", "", fmt)
-    return plots.histogram(found.values, found.limit, found.check, found.unit, fmt)
 
 
 REPORTS = {"text/markdown": render_markdown, "text/html": render_html}
@@ -88,7 +80,7 @@ def _register_histogram(fmt: str) -> None:
             """Monte Carlo histogram of one check over the simulated builds, its limit marked: the check named by
             ?check=, else the one that fails most often, else (every build passes) the tightest one, whose least
             margin is smallest. Same body as the review."""
-            return image_response(histogram(distribution(database(), body, query.get("check")), fmt))
+            return image_response(check_histogram(distribution(database(), body, query.get("check")), fmt))
 
     Histogram.__name__ = f"Histogram{fmt.capitalize()}"
     blp.route(f"/channel/histogram.{fmt}", endpoint=f"histogram-{fmt}")(Histogram)

@@ -151,7 +151,8 @@ def test_opamp_page_shows_its_plots_pinned_to_the_revision(client: FlaskClient, 
     assert len(parsed.images) == 2
     closed_loop, slew = parsed.images
     assert closed_loop.startswith("/v1/plots/closed-loop.svg?") and "opamp_revision=1" in closed_loop
-    assert "gain=10" in closed_loop
+    # At the demo channel's operating point: its preamp's gain 20, 2 V peak at 1 kHz.
+    assert "gain=20" in closed_loop and "amplitude_v=2.0" in slew and "frequency_hz=1000.0" in slew
     assert slew.startswith("/v1/plots/slew-limit.svg?") and "supply_v=12.0" in slew
     for url in parsed.images:
         response = client.get(url.replace("&amp;", "&"))
@@ -227,6 +228,34 @@ def test_approval_refusals_show_on_the_page(
     assert status_of(client, OPAMP_ID) == "draft"
 
 
+def send_back(client: FlaskClient, part_id: str, token: str, reason: str) -> Any:
+    """Post the part page's send-back form as a browser would."""
+    _, parsed = page(client, f"/review/parts/{part_id}")
+    return client.post(f"/review/parts/{part_id}/send-back", data={**parsed.hidden, "token": token, "reason": reason})
+
+
+def test_a_reviewer_sends_a_draft_back_from_the_page_and_the_author_sees_why(
+    client: FlaskClient, seeded: Any, tokens: dict[str, str]
+) -> None:
+    edit(client, tokens["edna"], OPAMP_ID, OPAMP_PARAMETERS)
+    response = send_back(client, OPAMP_ID, tokens["rita"], "gbw_hz: the datasheet gives 1.2 MHz <typ>")
+    assert response.status_code == 303 and response.headers["Location"].endswith("?returned=2")
+    html, parsed = page(client, response.headers["Location"])
+    assert "Revision 2 sent back to edna." in html and parsed.text["part-status"] == "draft"
+    assert "Sent back</strong> by rita" in html and "gbw_hz: the datasheet gives 1.2 MHz &lt;typ&gt;" in html
+    revision_2 = html[html.index('id="revision-2"') : html.index('id="revision-1"')]
+    assert "Sent back by rita" in revision_2
+    events = client.get(f"/v1/parts/{OPAMP_ID}/revisions").get_json()["revisions"][1]["events"]
+    assert [(e["action"], e["reason"]) for e in events][-1] == ("returned", "gbw_hz: the datasheet gives 1.2 MHz <typ>")
+    for who, reason, status, message in (
+        ("edna", "why", 403, "sending a draft back needs a reviewer"),
+        ("rita", "  ", 422, "Say why the draft goes back"),
+    ):
+        refused = send_back(client, OPAMP_ID, tokens[who], reason)
+        assert refused.status_code == status and message in refused.get_data(as_text=True)
+    assert status_of(client, OPAMP_ID) == "draft"
+
+
 def test_author_cannot_approve_their_own_revision(client: FlaskClient, seeded: Any, tokens: dict[str, str]) -> None:
     edit(client, tokens["rita"], OPAMP_ID, OPAMP_PARAMETERS)  # a reviewer may edit, but not approve her edit
     response = approve(client, OPAMP_ID, tokens["rita"])
@@ -295,7 +324,7 @@ def test_demo_channel_review_shows_the_verdict_checks_and_report(app: Flask, cli
     html, parsed = page(client, "/review/channel?" + urlencode(DEMO_CHANNEL))
     expected = run_review(app.extensions["calcsvc.db"], channel_body(DEMO_CHANNEL))
     assert parsed.text["verdict"] == expected["verdict"]
-    assert "<table class='checks'>" in html and '<pre class="report"># Channel review:' in html
+    assert "<table class='checks stack'>" in html and '<pre class="report"># Channel review:' in html
     assert all(check["name"] in html for check in expected["checks"])
     json_url = re.search(r'<a href="([^"]+)">This review as JSON</a>', html)
     assert json_url is not None

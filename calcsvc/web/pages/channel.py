@@ -22,12 +22,11 @@ from calcsvc.service.parts import part_id_field
 from calcsvc.service.review import distribution, run_review
 from calcsvc.units import VOLTAGE_RATIO
 from calcsvc.web.auth import database
-from calcsvc.web.images import image_response
+from calcsvc.web.images import check_histogram, image_response
 from calcsvc.web.metrics import record_calculation
 from calcsvc.web.pages.common import bp, shown
 from calcsvc.web.problems import Problem, service_problem
 from calcsvc.web.quantity import Quantity
-from calcsvc.web.review_api import histogram
 from calcsvc.web.review_report import (
     number,
     render_bom_html,
@@ -213,7 +212,7 @@ def channel_histogram() -> Response:
     """The form's channel's Monte Carlo histogram (its tightest or most failing check), for the result page."""
     found = distribution(database(), channel_body(request.args))
     record_calculation(channel_review.NAME, 1)
-    return image_response(histogram(found, "svg"))
+    return image_response(check_histogram(found, "svg"))
 
 
 @bp.get("/channel.json")

@@ -28,7 +28,7 @@ from calcsvc.service.errors import ServiceError
 from calcsvc.service.parts import MAX_REVISION
 from calcsvc.service.safety import supply_cautions
 from calcsvc.web.auth import database
-from calcsvc.web.images import PANELS, endpoint
+from calcsvc.web.images import PANELS, PLOT_CALCULATIONS, endpoint
 from calcsvc.web.metrics import record_calculation, record_parts_write
 from calcsvc.web.pages.common import (
     CSRF_FIELD,
@@ -147,12 +147,13 @@ def _fits(body: dict[str, Any]) -> bool:
 
 
 def _cautions_at(name: str, query: dict[str, Any]) -> tuple[str, ...]:
-    """The cautions of calculation ``name`` at a plot's operating point (none when it refuses the point)."""
+    """The cautions of the calculation plot ``name`` draws, at its operating point (none when it refuses it)."""
     try:
-        answer = run_calculation(database(), CALCULATIONS[name], query)
+        calculation = PLOT_CALCULATIONS[name]
+        answer = run_calculation(database(), CALCULATIONS[calculation], query)
     except (DomainError, ServiceError):
         return ()
-    record_calculation(name, 1)
+    record_calculation(calculation, 1)
     return tuple(answer["cautions"])
 
 
@@ -257,24 +258,26 @@ def part_page(part_id: str) -> Response:
     return _part_page(part_id)
 
 
-def _as_reviewer(part_id: str, doing: str, act: Callable[[Session, str, int], object]) -> int:
+def _as_reviewer(part_id: str, doing: tuple[str, str], act: Callable[[Session, str, int], object]) -> int:
     """Run ``act(session, reviewer, revision)`` for the revision the form names, as the holder of the form's
-    token, who must be a reviewer; a PageError says why not. Returns the revision."""
+    token, who must be a reviewer; a PageError says why not. ``doing``: the action as a verb and as a gerund.
+    Returns the revision."""
+    verb, gerund = doing
     if not csrf_valid():
         raise PageError(400, "This form has expired or did not come from this page: reload the page and try again.")
     token = request.form.get("token", "").strip()
     if not token:
-        raise PageError(401, f"Paste your reviewer token to {doing}.")
+        raise PageError(401, f"Paste your reviewer token to {verb}.")
     revision = whole_number(request.form.get("revision"), 1, MAX_REVISION)
     if revision is None:
-        raise PageError(400, f"The form did not say which revision to {doing}: reload the page.")
+        raise PageError(400, f"The form did not say which revision to {verb}: reload the page.")
     try:
         with database().transaction() as session:
             identity = identify(session, token)
             if identity is None:
                 raise PageError(401, "That token is not valid (revoked or mistyped).")
             if not identity.may("reviewer"):
-                raise PageError(403, f"Token '{identity.name}' is an {identity.role}'s; to {doing} needs a reviewer.")
+                raise PageError(403, f"Token '{identity.name}' is an {identity.role}'s; {gerund} needs a reviewer.")
             act(session, identity.name, revision)
     except SelfApproval as exc:
         raise PageError(403, f"{exc}: another reviewer must approve it.") from exc
@@ -287,7 +290,11 @@ def _as_reviewer(part_id: str, doing: str, act: Callable[[Session, str, int], ob
 
 def _approve(part_id: str) -> None:
     """Approve the revision the form names; a PageError says why not."""
-    _as_reviewer(part_id, "approve", lambda session, who, revision: PartStore(session).approve(part_id, revision, who))
+    _as_reviewer(
+        part_id,
+        ("approve", "approving"),
+        lambda session, who, revision: PartStore(session).approve(part_id, revision, who),
+    )
     record_parts_write("approve")
 
 
@@ -297,7 +304,9 @@ def _send_back(part_id: str) -> int:
     if not reason or len(reason) > MAX_NOTE_LENGTH or "\x00" in reason:
         raise PageError(422, f"Say why the draft goes back: 1 to {MAX_NOTE_LENGTH} characters.")
     revision = _as_reviewer(
-        part_id, "send a draft back", lambda session, who, revision: send_back(session, part_id, revision, who, reason)
+        part_id,
+        ("send a draft back", "sending a draft back"),
+        lambda session, who, revision: send_back(session, part_id, revision, who, reason),
     )
     record_parts_write("send_back")
     return revision
