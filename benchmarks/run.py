@@ -140,13 +140,6 @@ def markdown_table(rows: list[Row]) -> str:
     )
 
 
-def cpu_model() -> str:
-    for line in Path("/proc/cpuinfo").read_text().splitlines():
-        if line.startswith("model name"):
-            return line.partition(":")[2].strip()
-    return platform.machine()
-
-
 def machine() -> dict[str, str]:
     memory = next(line.split()[1] for line in Path("/proc/meminfo").read_text().splitlines() if "MemTotal" in line)
     load = ", ".join(f"{x:.2f}" for x in os.getloadavg())
@@ -158,7 +151,8 @@ def machine() -> dict[str, str]:
         "python": platform.python_version(),
         "numpy": np.__version__,
         "gunicorn": version("gunicorn"),
-        "cpu": cpu_model(),
+        # The architecture and core count say what the figures need; a processor's brand and product line do not.
+        "cpu": f"{platform.machine()}, {os.cpu_count()} cores",
         "load average (1, 5, 15 min) at start": load,
     }
 

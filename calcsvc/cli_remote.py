@@ -257,7 +257,10 @@ def calc(args: argparse.Namespace) -> int:
     if args.json:
         print(json.dumps(result, indent=2))
         return 1 if failed else 0
-    out = [f"{result['calculation']}  (fingerprint {result['fingerprint'][:16]})"]
+    verdict = "FAILS: " + ", ".join(c["name"] for c in failed) if failed else "passes every check"
+    out = [f"{result['calculation']}: {verdict}", f"fingerprint {result['fingerprint']}"]
+    # Cautions first, under the verdict, with the standing safety line.
+    out += ["CAUTIONS:", *(f"  ! {c}" for c in result["cautions"]), f"  ! {result['safety']}"]
     if result["parts"]:
         rows = [[p["role"], p["part_id"], str(p["revision"]), p["status"]] for p in result["parts"]]
         out += ["parts:", _indent(_table(["ROLE", "PART_ID", "REV", "STATUS"], rows))]
@@ -268,8 +271,8 @@ def calc(args: argparse.Namespace) -> int:
             [
                 "OK" if c["ok"] else "FAIL",
                 c["name"],
-                _cell(c["value"]),
-                _cell(c["limit"]),
+                f"{_cell(c['value'])} {c['unit']}".rstrip(),
+                f"{_cell(c['limit'])} {c['unit']}".rstrip(),
                 "-" if c["margin"] is None else f"{100 * c['margin']:+.1f} %",
             ]
             for c in result["checks"]
@@ -277,6 +280,5 @@ def calc(args: argparse.Namespace) -> int:
         out += ["checks:", _indent(_table(["", "CHECK", "VALUE", "LIMIT", "MARGIN"], rows))]
         out += [f"  FAIL {c['name']}: {c['detail']}" for c in failed]
     out += ["warnings:", *(f"  - {w}" for w in result["warnings"])] if result["warnings"] else []
-    out += ["CAUTIONS:", *(f"  ! {c}" for c in result["cautions"])] if result["cautions"] else []
     print("\n".join(out))
     return 1 if failed else 0

@@ -52,7 +52,10 @@ class CalcsvcError(Exception):
         errors: dict[str, list[str]] | None = None,
         instance: str | None = None,
     ) -> None:
-        super().__init__(f"{status} {title}: {detail}" if status else f"{title}: {detail}")
+        reasons = "; ".join(f"{name}: {message}" for name, messages in (errors or {}).items() for message in messages)
+        message = f"{status} {title}: {detail}" if status else f"{title}: {detail}"
+        # The detail names the fields; the reasons say what is wrong with each.
+        super().__init__(f"{message} ({reasons})" if reasons else message)
         self.status = status
         self.title = title
         self.detail = detail

@@ -10,6 +10,7 @@ from typing import Any
 
 import numpy as np
 
+from calcsvc.core.channel_spec import CHECK_UNITS
 from calcsvc.core.outcome import Outcome
 from calcsvc.service.safety import SAFETY_LINE
 
@@ -76,6 +77,7 @@ def row_checks(outcome: Outcome, row: int) -> list[dict[str, Any]]:
         checks.append(
             {
                 "name": check.name,
+                "unit": CHECK_UNITS.get(check.name, ""),
                 "ok": bool(check.ok[row]),
                 "value": to_json_value(float(check.value[row])),
                 "limit": limit,

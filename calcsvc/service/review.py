@@ -99,6 +99,7 @@ def _check_entry(nominal: Check, worst: tolerance.WorstCheck, stage: str) -> dic
         return None  # does not apply to this design (e.g. no front stage, pin rating unknown)
     return {
         "name": nominal.name,
+        "unit": CHECK_UNITS[nominal.name],
         "stage": stage,
         "ok": bool(worst.check.ok[0]),
         "value": to_json_value(float(nominal.value[0])),

@@ -19,7 +19,17 @@ from calcsvc.core.outcome import DomainError
 from calcsvc.data.database import Database, is_busy
 from calcsvc.data.store_errors import StoreError
 from calcsvc.service.errors import ServiceError
-from calcsvc.web import batch_api, calc_api, health, parts_api, plots_api, review_api, review_page, select_api
+from calcsvc.web import (
+    batch_api,
+    calc_api,
+    health,
+    landing,
+    parts_api,
+    plots_api,
+    review_api,
+    review_page,
+    select_api,
+)
 from calcsvc.web.observability import install_observability
 from calcsvc.web.problems import (
     PROBLEM_MIMETYPE,
@@ -148,6 +158,7 @@ def create_app(config: Mapping[str, Any] | None = None) -> Flask:
     api.register_blueprint(plots_api.blp)
     api.register_blueprint(select_api.blp)
     app.register_blueprint(review_page.bp)
+    app.register_blueprint(landing.bp)
 
     app.register_error_handler(Problem, problem_response)
     app.register_error_handler(ServiceError, lambda error: problem_response(service_problem(error)))

@@ -133,6 +133,7 @@ def safety_field() -> fields.String:
 
 class CheckSchema(Schema):
     name = fields.String(required=True)
+    unit = fields.String(required=True, metadata={"description": "unit of value and limit (empty: a ratio)"})
     ok = fields.Boolean(required=True)
     value = fields.Float(required=True, allow_none=True)
     limit = fields.Float(required=True)

@@ -345,7 +345,7 @@ class SendBack(MethodView):
 class Comments(MethodView):
     @requires("editor")
     @blp.arguments(CommentSchema)
-    @blp.response(201, RevisionListSchema)
+    @blp.response(200, RevisionListSchema)
     @error_response(blp, 401, "no valid token")
     @error_response(blp, 404, "no such part or revision")
     def post(self, body: dict[str, Any], part_id: str, revision: int) -> dict[str, Any]:

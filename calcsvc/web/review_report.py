@@ -7,8 +7,6 @@ from typing import Any
 
 from markupsafe import escape
 
-from calcsvc.core.channel_spec import CHECK_UNITS
-
 _SUFFIX_UNITS = (
     ("_v_per_s", "V/s"),
     ("_ohm", "Ω"),
@@ -54,7 +52,7 @@ def _corner(corner: dict[str, str]) -> str:
 def _check_rows(review: dict[str, Any]) -> list[list[str]]:
     rows = []
     for check in review["checks"]:
-        unit = CHECK_UNITS.get(check["name"], "")
+        unit = check["unit"]
         worst = check["worst_case"]
         rows.append(
             [
