@@ -56,6 +56,7 @@ class CalcsvcError(Exception):
         message = f"{status} {title}: {detail}" if status else f"{title}: {detail}"
         # The detail names the fields; the reasons say what is wrong with each.
         super().__init__(f"{message} ({reasons})" if reasons else message)
+        self.headline = message
         self.status = status
         self.title = title
         self.detail = detail
@@ -90,7 +91,7 @@ class CalcsvcError(Exception):
 
     def describe(self) -> str:
         """The message with one line per field error, for people reading a terminal."""
-        lines = [str(self)]
+        lines = [self.headline]
         lines += [f"  {name}: {' '.join(messages)}" for name, messages in self.errors.items()]
         return "\n".join(lines)
 
