@@ -6,6 +6,7 @@ from __future__ import annotations
 
 from datetime import UTC, datetime
 
+from sqlalchemy import select
 from sqlalchemy.orm import Session
 
 from calcsvc.data.models import Part, PartEvent, PartRevision
@@ -47,6 +48,23 @@ def comment(session: Session, part_id: str, revision: int, actor: str, text: str
     event = PartEvent(part_id=part_id, revision=revision, action="commented", actor=actor, at=_now(), reason=text)
     session.add(event)
     session.flush()
+
+
+def returns(session: Session, revisions: list[tuple[str, int]]) -> dict[tuple[str, int], tuple[str, str]]:
+    """The last send-back (reviewer, reason) of each of these (part_id, revision) that was sent back."""
+    wanted = set(revisions)
+    if not wanted:
+        return {}
+    found: dict[tuple[str, int], tuple[str, str]] = {}
+    query = (
+        select(PartEvent)
+        .where(PartEvent.action == "returned", PartEvent.part_id.in_({part_id for part_id, _ in wanted}))
+        .order_by(PartEvent.id)
+    )
+    for event in session.scalars(query):
+        if (event.part_id, event.revision) in wanted:
+            found[(event.part_id, event.revision)] = (event.actor, event.reason or "")
+    return found
 
 
 def _now() -> datetime:

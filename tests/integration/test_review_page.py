@@ -245,6 +245,8 @@ def test_a_reviewer_sends_a_draft_back_from_the_page_and_the_author_sees_why(
     assert "Sent back</strong> by rita" in html and "gbw_hz: the datasheet gives 1.2 MHz &lt;typ&gt;" in html
     revision_2 = html[html.index('id="revision-2"') : html.index('id="revision-1"')]
     assert "Sent back by rita" in revision_2
+    listed, _ = page(client, "/review/")
+    assert "sent back by rita: gbw_hz: the datasheet gives 1.2 MHz &lt;typ&gt;" in listed  # in the drafts list too
     events = client.get(f"/v1/parts/{OPAMP_ID}/revisions").get_json()["revisions"][1]["events"]
     assert [(e["action"], e["reason"]) for e in events][-1] == ("returned", "gbw_hz: the datasheet gives 1.2 MHz <typ>")
     for who, reason, status, message in (

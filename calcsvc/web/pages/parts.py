@@ -17,7 +17,7 @@ from calcsvc.core.registry import CALCULATIONS
 from calcsvc.data.kinds import KINDS, params_of
 from calcsvc.data.part_history import RevisionView
 from calcsvc.data.part_ids import is_part_id
-from calcsvc.data.review_notes import MAX_NOTE_LENGTH, send_back
+from calcsvc.data.review_notes import MAX_NOTE_LENGTH, returns, send_back
 from calcsvc.data.store import STATUSES, PartStore, PartView
 from calcsvc.data.store_errors import NotADraft, PartNotFound, PartRetired, SelfApproval, StaleRevision
 from calcsvc.data.tokens import identify
@@ -99,6 +99,7 @@ def parts_list() -> Response:
         store = PartStore(session)
         parts, total = store.list(kind, status, start, PAGE_SIZE)
         drafts, draft_total = store.list(None, "draft", 0, DRAFTS_SHOWN)
+        sent_back = returns(session, [(d.part_id, d.revision) for d in drafts])
     page = render_template(
         "review/parts.html",
         parts=parts,
@@ -107,6 +108,7 @@ def parts_list() -> Response:
         page_size=PAGE_SIZE,
         drafts=drafts,
         draft_total=draft_total,
+        sent_back=sent_back,
         kinds=list(KINDS),
         statuses=STATUSES,
         kind=kind,
