@@ -511,3 +511,16 @@ def test_a_retirement_and_its_reason_are_in_the_page_history(
     assert "Retired by edna on " in html and ": no longer stocked" in html
     assert "may restore it as a new draft revision" in html
     assert client.get("/review/parts/opamp-general-1mhz%0A").status_code == 404
+
+
+def test_a_high_power_leds_plot_shows_the_heat_cautions_of_its_operating_point(
+    client: FlaskClient, seeded: Any
+) -> None:
+    html, parsed = page(client, "/review/parts/led-deep-red-grow-1w")
+    assert len(parsed.images) == 1 and "current_a=0.35" in parsed.images[0]
+    cautions = html[html.index('class="caution plot-cautions"') :]
+    # At 350 mA the string resistor dissipates watts: the calculation's heat cautions sit under its plot.
+    assert "runs hot" in cautions and "High-power LEDs" in cautions and "Mains adapter" in cautions
+    # A supply part's page states the standing cautions every design on it carries.
+    supply_page, _ = page(client, "/review/parts/supply-battery-9v-6aa")
+    assert "never recharge primary" in supply_page and 'id="standing-cautions"' in supply_page
