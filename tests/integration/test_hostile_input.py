@@ -100,7 +100,7 @@ def is_batch(operation: str) -> bool:
 
 def role_for(operation: str) -> str | None:
     if operation.startswith(("POST /v1/parts", "PUT /v1/parts", "DELETE /v1/parts")):
-        return "reviewer" if operation.endswith("/approve") else "editor"
+        return "reviewer" if operation.endswith(("/approve", "/send-back")) else "editor"
     return None
 
 
@@ -110,8 +110,10 @@ def body_template(operation: str) -> Any:
         return {"part_id": "hostile-part", "kind": "bjt", "parameters": {"hfe_min": "@"}}
     if operation == "PUT /v1/parts/{part_id}":
         return {"parameters": {"hfe_min": "@"}}
-    if operation.startswith("DELETE /v1/parts") or operation.endswith("/restore"):
+    if operation.startswith("DELETE /v1/parts") or operation.endswith(("/restore", "/send-back")):
         return {"reason": "@"}
+    if operation.endswith("/comments"):
+        return {"comment": "@"}
     name = numeric_property(OPERATIONS[operation]) or "zzz_unknown"
     return [{name: "@"}] if is_batch(operation) else {name: "@"}
 
@@ -538,7 +540,7 @@ def send(case: Case, target: dict[str, Any]) -> Any:
     app: Flask = target["small"] if case.small_limit else target["app"]
     client = app.test_client()
     method, path = case.operation.split(" ", 1)
-    url = path.replace("{part_id}", case.part_id) + (f"?{case.query}" if case.query else "")
+    url = path.replace("{part_id}", case.part_id).replace("{revision}", "1") + (f"?{case.query}" if case.query else "")
     headers = bearer(target["tokens"][case.role]) if case.role else {}
     if case.if_match == "current":
         headers["If-Match"] = client.get(f"/v1/parts/{case.part_id}").headers["ETag"]
