@@ -189,3 +189,53 @@ def test_darlington_channel_asks_the_pin_for_a_fraction_of_a_milliamp(client: Fl
     assert data["verdict"] == "pass"
     assert switch["forced_beta_design"] == pytest.approx(250 / 1.05)
     assert switch["drive_current_a"] < 0.3e-3 and switch["drive_current_max_a"] < 0.5e-3
+
+
+def _bom_rows(report: str, title: str) -> list[list[str]]:
+    """The rows of one bill-of-materials table of the Markdown report, as cells."""
+    section = report[report.index(f"### {title}") :].split("\n\n")[1]
+    return [[cell.strip() for cell in line.split("|")[1:-1]] for line in section.splitlines()[2:]]
+
+
+@pytest.mark.parametrize("accept", ["text/markdown", "text/html"])
+def test_every_bill_of_materials_value_in_the_reports_equals_the_json(
+    client: FlaskClient, seeded: Any, accept: str
+) -> None:
+    data = review(client, {**DEMO, "samples": 0})
+    bom = data["bill_of_materials"]
+    # (12.6 - 3 x 1.9 - 0.25) V across 300 ohm x 0.95 at worst: 0.155 W, doubled (common practice) 0.31 W -> 0.5 W.
+    led = bom["per_channel"][0]
+    assert (led["value_ohm"], led["count"], led["series"], led["tolerance"]) == (300.0, 2, "E24", 0.05)
+    assert led["dissipation_max_w"] == pytest.approx(6.65**2 / 285) and led["rating_min_w"] == 0.5
+    assert led["rating_min_w"] == data["stages"]["led_string"]["resistor_rating_w"]
+    # The base resistor at the pin's stress corner: P = I^2 R (Joule) with R at its low end, 0.0198 W -> 0.125 W.
+    base = bom["per_channel"][1]
+    switch = data["stages"]["switch"]
+    assert base["value_ohm"] == switch["rb_ohm"] == 360.0
+    assert base["dissipation_max_w"] == pytest.approx(switch["drive_current_max_a"] ** 2 * 360 * 0.95)
+    assert base["rating_min_w"] == 0.125
+    whole = {entry["item"]: entry["count"] for entry in bom["whole_design"]}
+    assert whole == {"led_resistor": 12, "base_resistor": 6, "switch_transistor": 6, "led": 36, "supply": 1,
+                     "front_stage_opamp": 1}  # fmt: skip
+
+    markdown = client.post("/v1/review/channel", json={**DEMO, "samples": 0}, headers={"Accept": "text/markdown"})
+    report = markdown.get_data(as_text=True)
+    if accept == "text/html":
+        html = client.post("/v1/review/channel", json={**DEMO, "samples": 0}, headers={"Accept": accept})
+        page = html.get_data(as_text=True)
+        cells = re.findall(r"<td data-label='[^']*'>([^<]*)</td>", page)
+    for title, entries in (("Per channel", bom["per_channel"]), ("Whole design", bom["whole_design"])):
+        rows = _bom_rows(report, title)
+        assert len(rows) == len(entries)
+        for row, entry in zip(rows, entries, strict=True):
+            assert int(row[1]) == entry["count"]
+            if entry["kind"] == "resistor":
+                assert row[2] == f"{entry['value_ohm']:.6g} Ω" and row[4] == f"{entry['rating_min_w']:.6g} W"
+                assert row[3] == f"{entry['series']}, ±{entry['tolerance'] * 100:.3g} %"
+            else:
+                assert row[5] == f"{entry['part_id']} r{entry['revision']}"
+            if accept == "text/html":
+                assert all(cell in cells for cell in row)
+    # Cautions first: right under the verdict, with the safety line, before the bill of materials.
+    assert report.index("## Cautions") < report.index("## Bill of materials") < report.index("## Checks")
+    assert report.index(data["cautions"][0]) < report.index(data["safety"]) < report.index("## Bill of materials")
