@@ -86,9 +86,11 @@ def _changes(before: dict[str, Any] | None, after: dict[str, Any]) -> str:
 
 
 def _lifecycle(revision: dict[str, Any]) -> list[str]:
-    """Retirements, restores and renames of a revision (creation, edits and approval have their own columns)."""
+    """Retirements, restores, renames, send-backs and comments of a revision (creation, edits and approval have
+    their own columns)."""
+    words = {"returned": "sent back", "commented": "comment"}
     return [
-        f"{e['action']} by {e['actor']}" + (f": {e['reason']}" if e["reason"] else "")
+        f"{words.get(e['action'], e['action'])} by {e['actor']}" + (f": {e['reason']}" if e["reason"] else "")
         for e in revision["events"]
         if e["action"] not in ("created", "edited", "approved")
     ]
@@ -133,6 +135,7 @@ def parts_show(args: argparse.Namespace) -> int:
     ]
     print("\nrevisions:")
     print(_indent(_table(["REV", "CREATED", "AUTHOR", "APPROVED_BY", "CHANGES"], revisions)))
+    print(f"\n{part['safety']}")
     return 0
 
 

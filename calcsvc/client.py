@@ -264,6 +264,17 @@ class Client:
         the part has changed since. Never retried."""
         return self._part("POST", f"{_part_path(part_id)}/approve", idempotent=False, headers={"If-Match": etag})
 
+    def send_back_part(self, part_id: str, etag: str, reason: str) -> tuple[Part, str]:
+        """Send the draft ``etag`` names back to its author with ``reason`` (reviewer token); it stays a draft and
+        the reason is kept with the revision. 412 when the part changed since, 409 when it is not a draft."""
+        path = f"{_part_path(part_id)}/send-back"
+        return self._part("POST", path, idempotent=False, json={"reason": reason}, headers={"If-Match": etag})
+
+    def comment_revision(self, part_id: str, revision: int, comment: str) -> list[dict[str, Any]]:
+        """Comment on one revision (any token); returns every revision with its events, the comment included."""
+        path = f"{_part_path(part_id)}/revisions/{int(revision)}/comments"
+        return self._json("POST", path, idempotent=False, json={"comment": comment})["revisions"]
+
     def retire_part(self, part_id: str, etag: str, reason: str | None = None) -> tuple[Part, str]:
         """Withdraw the part at the revision ``etag`` names from new designs (editor token), recording
         ``reason`` in its history; its revisions stay readable and pinnable. 412 when it changed since."""

@@ -227,6 +227,14 @@ def test_parts_list_and_show(seeded: Flask, live_url: str, tokens: dict[str, str
     out = capsys.readouterr().out
     assert re.search(r"if_max_a +0.025 +A\n", out)
     assert "if_max_a 0.03 -> 0.025" in out  # the history says what each revision changed
+    assert out.rstrip().endswith(SAFETY_LINE)
+    # A reviewer sends the draft back and comments; the author reads both in the history.
+    with Client(live_url, tokens["rita"]) as rita:
+        rita.send_back_part("led-red-5mm", rita.get_part("led-red-5mm")[1], "25 mA is the pulsed rating")
+        rita.comment_revision("led-red-5mm", 2, "the continuous one is 20 mA")
+    assert main(["parts", "show", "led-red-5mm", "--url", live_url]) == 0
+    out = capsys.readouterr().out
+    assert "sent back by rita: 25 mA is the pulsed rating; comment by rita: the continuous one is 20 mA" in out
     with Client(live_url, tokens["edna"]) as edna:
         edna.retire_part("led-red-5mm", edna.get_part("led-red-5mm")[1], reason="dimmer than its replacement")
     assert main(["parts", "show", "led-red-5mm", "--url", live_url]) == 0
