@@ -14,6 +14,7 @@ from calcsvc.service.safety import SAFETY_LINE, SUPPLY_CAUTIONS
 
 DEMO = json.loads((Path(__file__).resolve().parents[2] / "examples" / "greenhouse-channel.json").read_text())
 LED_ON_ADAPTER = {"supply": "supply-adapter-12v-2a", "led": "led-red-5mm", "leds_in_series": 3, "current_a": 0.02}
+ANY_LED = {k: v for k, v in LED_ON_ADAPTER.items() if k != "led"}
 BUDGET_ON_BATTERY = {
     "supply": "supply-battery-9v-6aa",
     "loads": [{"name": "grow channel", "peak_current_a": 0.04, "duty_cycle": 0.5, "count": 6}],
@@ -28,7 +29,7 @@ def test_every_json_answer_carries_the_safety_line(client: FlaskClient, seeded: 
         client.post("/v1/batch/led-string", json=[LED_ON_ADAPTER]),
         client.post("/v1/batch/led-string?layout=columns", json=[LED_ON_ADAPTER]),
         client.post("/v1/review/channel", json={**DEMO, "samples": 100}),
-        client.post("/v1/select/led-string", json={**LED_ON_ADAPTER, "search": "led"}),
+        client.post("/v1/select/led-string", json={**ANY_LED, "search": "led"}),
         client.post("/v1/select/channel", json={**DEMO, "samples": 0, "led": ["led-red-5mm"]}),
         client.get("/v1/parts"),
         client.get("/v1/parts/led-red-5mm"),
@@ -67,3 +68,11 @@ def test_a_mains_adapter_and_a_battery_pack_carry_standing_cautions(client: Flas
     assert with_capacity["cautions"] == [SUPPLY_CAUTIONS["battery"]]
     rows = client.post("/v1/batch/led-string", json=[LED_ON_ADAPTER]).get_json()["rows"]
     assert SUPPLY_CAUTIONS["mains_adapter"] in rows[0]["cautions"]
+    # A search carries them per candidate: the fixed adapter's, or each searched supply's own.
+    leds = client.post("/v1/select/led-string", json={**ANY_LED, "search": "led"}).get_json()["candidates"]
+    assert leds and all(SUPPLY_CAUTIONS["mains_adapter"] in c["cautions"] for c in leds)
+    any_supply = {k: v for k, v in LED_ON_ADAPTER.items() if k != "supply"}
+    supplies = client.post("/v1/select/led-string", json={**any_supply, "search": "supply"}).get_json()["candidates"]
+    by_id = {c["part_id"]: c["cautions"] for c in supplies}
+    assert SUPPLY_CAUTIONS["battery"] in by_id["supply-battery-9v-6aa"]
+    assert SUPPLY_CAUTIONS["mains_adapter"] in by_id["supply-adapter-12v-2a"]

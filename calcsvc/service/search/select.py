@@ -171,10 +171,13 @@ def run_select(
     _bound(len(parts), "candidates", max_combinations)
     search = search_role(calc, fixed.values, role, parts, [r.requirement for r in required], ranking)
     pinned = {k: to_json_value(v) for k, v in {**given, **_pins(fixed.parts)}.items()}
+    by_id = {part.part_id: part for part in parts}
     candidates = []
     for row in search.rows:
         entry = search.entry(int(row))
         entry["request"] = {**pinned, role.name: entry["part_id"], f"{role.name}_revision": entry["revision"]}
+        searched = supply_cautions(by_id[entry["part_id"]].parameters) if role.kind == "supply" else []
+        entry["cautions"] = list(dict.fromkeys(entry["cautions"] + fixed.cautions + searched))
         candidates.append(entry)
     main = search.evaluations[0]
     document = {
