@@ -162,7 +162,8 @@ def machine() -> dict[str, str]:
         "python": platform.python_version(),
         "numpy": np.__version__,
         "gunicorn": version("gunicorn"),
-        "architecture": platform.machine(),
+        # The architecture and core count say what the figures need; a processor's brand and product line do not.
+        "cpu": f"{platform.machine()}, {os.cpu_count()} cores",
         "load average (1, 5, 15 min) at start": load,
     }
 

@@ -43,6 +43,8 @@ def build_parser() -> argparse.ArgumentParser:
     create.add_argument("--name", required=True)
     create.add_argument("--role", required=True, choices=("editor", "reviewer"))
     create.set_defaults(run=cli_local.on_database(cli_local.token_create))
+    listing = token.add_parser("list", help="the tokens' names, roles and creation times (never the tokens)")
+    listing.set_defaults(run=cli_local.on_database(cli_local.token_list))
     revoke = token.add_parser("revoke", help="remove a token")
     revoke.add_argument("name")
     revoke.set_defaults(run=cli_local.on_database(cli_local.token_revoke))

@@ -89,8 +89,13 @@ def db_upgrade(_args: argparse.Namespace) -> int:
     from calcsvc.data.database import upgrade
 
     url, _ = _app_database()
-    upgrade(url)
-    print(f"database schema is current ({_redact(url)})")
+    before, after = upgrade(url)
+    if before is None:
+        print(f"database created at schema {after} ({_redact(url)})")
+    elif before != after:
+        print(f"database schema upgraded from {before} to {after} ({_redact(url)})")
+    else:
+        print(f"database schema is current at {after} ({_redact(url)})")
     return 0
 
 
@@ -169,6 +174,21 @@ def token_create(args: argparse.Namespace) -> int:
         token = create_token(session, args.name, args.role)
     print(token)
     print(f"token '{args.name}' ({args.role}) created; it is shown only this once", file=sys.stderr)
+    return 0
+
+
+def token_list(_args: argparse.Namespace) -> int:
+    from calcsvc.data.database import Database
+    from calcsvc.data.tokens import list_tokens
+
+    url, _ = _app_database()
+    with Database(url).transaction() as session:
+        tokens = list_tokens(session)
+    width = max([len("NAME")] + [len(t.name) for t in tokens])
+    print(f"{'NAME':<{width}}  ROLE      CREATED")
+    for t in tokens:
+        print(f"{t.name:<{width}}  {t.role:<8}  {t.created_at:%Y-%m-%d %H:%M}")
+    print(f"{len(tokens)} token(s); a token itself is shown only when it is created", file=sys.stderr)
     return 0
 
 

@@ -86,9 +86,11 @@ def _changes(before: dict[str, Any] | None, after: dict[str, Any]) -> str:
 
 
 def _lifecycle(revision: dict[str, Any]) -> list[str]:
-    """Retirements, restores and renames of a revision (creation, edits and approval have their own columns)."""
+    """Retirements, restores, renames, send-backs and comments of a revision (creation, edits and approval have
+    their own columns)."""
+    words = {"returned": "sent back", "commented": "comment"}
     return [
-        f"{e['action']} by {e['actor']}" + (f": {e['reason']}" if e["reason"] else "")
+        f"{words.get(e['action'], e['action'])} by {e['actor']}" + (f": {e['reason']}" if e["reason"] else "")
         for e in revision["events"]
         if e["action"] not in ("created", "edited", "approved")
     ]
@@ -133,6 +135,7 @@ def parts_show(args: argparse.Namespace) -> int:
     ]
     print("\nrevisions:")
     print(_indent(_table(["REV", "CREATED", "AUTHOR", "APPROVED_BY", "CHANGES"], revisions)))
+    print(f"\n{part['safety']}")
     return 0
 
 
@@ -257,7 +260,10 @@ def calc(args: argparse.Namespace) -> int:
     if args.json:
         print(json.dumps(result, indent=2))
         return 1 if failed else 0
-    out = [f"{result['calculation']}  (fingerprint {result['fingerprint'][:16]})"]
+    verdict = "FAILS: " + ", ".join(c["name"] for c in failed) if failed else "passes every check"
+    out = [f"{result['calculation']}: {verdict}", f"fingerprint {result['fingerprint']}"]
+    # Cautions first, under the verdict, with the standing safety line.
+    out += ["CAUTIONS:", *(f"  ! {c}" for c in result["cautions"]), f"  ! {result['safety']}"]
     if result["parts"]:
         rows = [[p["role"], p["part_id"], str(p["revision"]), p["status"]] for p in result["parts"]]
         out += ["parts:", _indent(_table(["ROLE", "PART_ID", "REV", "STATUS"], rows))]
@@ -268,8 +274,8 @@ def calc(args: argparse.Namespace) -> int:
             [
                 "OK" if c["ok"] else "FAIL",
                 c["name"],
-                _cell(c["value"]),
-                _cell(c["limit"]),
+                f"{_cell(c['value'])} {c['unit']}".rstrip(),
+                f"{_cell(c['limit'])} {c['unit']}".rstrip(),
                 "-" if c["margin"] is None else f"{100 * c['margin']:+.1f} %",
             ]
             for c in result["checks"]
@@ -277,6 +283,5 @@ def calc(args: argparse.Namespace) -> int:
         out += ["checks:", _indent(_table(["", "CHECK", "VALUE", "LIMIT", "MARGIN"], rows))]
         out += [f"  FAIL {c['name']}: {c['detail']}" for c in failed]
     out += ["warnings:", *(f"  - {w}" for w in result["warnings"])] if result["warnings"] else []
-    out += ["CAUTIONS:", *(f"  ! {c}" for c in result["cautions"])] if result["cautions"] else []
     print("\n".join(out))
     return 1 if failed else 0

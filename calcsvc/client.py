@@ -52,7 +52,11 @@ class CalcsvcError(Exception):
         errors: dict[str, list[str]] | None = None,
         instance: str | None = None,
     ) -> None:
-        super().__init__(f"{status} {title}: {detail}" if status else f"{title}: {detail}")
+        reasons = "; ".join(f"{name}: {message}" for name, messages in (errors or {}).items() for message in messages)
+        message = f"{status} {title}: {detail}" if status else f"{title}: {detail}"
+        # The detail names the fields; the reasons say what is wrong with each.
+        super().__init__(f"{message} ({reasons})" if reasons else message)
+        self.headline = message
         self.status = status
         self.title = title
         self.detail = detail
@@ -87,7 +91,7 @@ class CalcsvcError(Exception):
 
     def describe(self) -> str:
         """The message with one line per field error, for people reading a terminal."""
-        lines = [str(self)]
+        lines = [self.headline]
         lines += [f"  {name}: {' '.join(messages)}" for name, messages in self.errors.items()]
         return "\n".join(lines)
 
@@ -259,6 +263,17 @@ class Client:
         """Approve the revision ``etag`` names, the one you reviewed (reviewer token, not its author); 412 when
         the part has changed since. Never retried."""
         return self._part("POST", f"{_part_path(part_id)}/approve", idempotent=False, headers={"If-Match": etag})
+
+    def send_back_part(self, part_id: str, etag: str, reason: str) -> tuple[Part, str]:
+        """Send the draft ``etag`` names back to its author with ``reason`` (reviewer token); it stays a draft and
+        the reason is kept with the revision. 412 when the part changed since, 409 when it is not a draft."""
+        path = f"{_part_path(part_id)}/send-back"
+        return self._part("POST", path, idempotent=False, json={"reason": reason}, headers={"If-Match": etag})
+
+    def comment_revision(self, part_id: str, revision: int, comment: str) -> list[dict[str, Any]]:
+        """Comment on one revision (any token); returns every revision with its events, the comment included."""
+        path = f"{_part_path(part_id)}/revisions/{int(revision)}/comments"
+        return self._json("POST", path, idempotent=False, json={"comment": comment})["revisions"]
 
     def retire_part(self, part_id: str, etag: str, reason: str | None = None) -> tuple[Part, str]:
         """Withdraw the part at the revision ``etag`` names from new designs (editor token), recording

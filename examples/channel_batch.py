@@ -5,17 +5,21 @@ sizes every LED string resistor in one ``led-string`` batch, feeds each channel'
 ``bjt-switch`` batch for the base resistor, and writes a results CSV with a verdict per design.
 
     python examples/channel_batch.py examples/greenhouse-candidates.csv results.csv [--url URL]
+
+``--url`` defaults to ``$CALCSVC_URL``, else http://127.0.0.1:8000, as the command line's does.
 """
 
 from __future__ import annotations
 
 import argparse
 import csv
+import os
 import sys
 from pathlib import Path
 from typing import Any
 
-from calcsvc.client import Client
+from calcsvc.client import CalcsvcError, Client
+from calcsvc.service.safety import SAFETY_LINE
 
 STRING_INPUTS = ("supply", "led", "leds_in_series", "strings", "current_a", "transistor")
 COLUMNS = (
@@ -63,18 +67,23 @@ def main(argv: list[str] | None = None) -> int:
     parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     parser.add_argument("designs", type=Path)
     parser.add_argument("results", type=Path)
-    parser.add_argument("--url", default="http://127.0.0.1:8000")
+    parser.add_argument("--url", default=os.environ.get("CALCSVC_URL") or "http://127.0.0.1:8000")
     args = parser.parse_args(argv)
     with args.designs.open(newline="") as handle:
         designs = list(csv.DictReader(handle))
-    with Client(args.url) as client:
-        results = size_channels(client, designs)
+    try:
+        with Client(args.url) as client:
+            results = size_channels(client, designs)
+    except CalcsvcError as error:
+        print(f"channel_batch: {error}", file=sys.stderr)
+        return 1
     with args.results.open("w", newline="") as handle:
         writer = csv.DictWriter(handle, fieldnames=COLUMNS)
         writer.writeheader()
         writer.writerows(results)
     passed = sum(1 for r in results if r["ok"] is True)
     print(f"{passed} of {len(results)} designs pass every check; results in {args.results}")
+    print(SAFETY_LINE)
     return 0
 
 

@@ -12,6 +12,8 @@ from flask import Flask
 from werkzeug.serving import make_server
 from werkzeug.wrappers import Response
 
+from calcsvc.service.safety import SAFETY_LINE
+
 PROBLEM = "application/problem+json"
 
 
@@ -27,6 +29,7 @@ def assert_problem(response: Any, status: int, field: str | None = None) -> dict
     assert {"type", "title", "status", "detail"} <= body.keys()
     assert body["status"] == status
     assert "Traceback" not in response.get_data(as_text=True)
+    assert body["safety"] == SAFETY_LINE  # every answer carries the standing safety line
     if field is not None:
         assert field in body.get("errors", {}), body
     return body

@@ -180,8 +180,10 @@ def validate(inputs: LedStringInputs) -> list[Violation]:
     return v
 
 
-def _rating_for(need_w: FloatArray) -> FloatArray:
-    """Smallest standard power rating ≥ need_w per row; NaN when none is large enough."""
+def minimum_rating_w(dissipation_w: FloatArray) -> FloatArray:
+    """The smallest standard power rating that fits a resistor dissipating ``dissipation_w`` at worst: at least
+    DERATING_FACTOR times it (common practice), per row; NaN when no rating up to the largest is enough."""
+    need_w = DERATING_FACTOR * dissipation_w
     fits = POWER_RATINGS_W[None, :] >= need_w[:, None]
     return np.where(fits.any(axis=1), POWER_RATINGS_W[np.argmax(fits, axis=1)], np.nan)
 
@@ -211,7 +213,7 @@ def compute(inputs: LedStringInputs, validated: bool = False) -> Outcome:
     power = current**2 * r
     power_max = v_r_high**2 / r_low
     need_w = DERATING_FACTOR * power_max
-    rating = _rating_for(need_w)
+    rating = minimum_rating_w(power_max)
     led_power = nl * i.vf_typ_v * current
 
     results: dict[str, np.ndarray] = {

@@ -70,7 +70,11 @@ def wilson_interval(successes: npt.ArrayLike, trials: npt.ArrayLike, z: float = 
 class Yield:
     """Monte Carlo result for one row. ``failures`` counts the failing samples per check (every check, in
     the review's order). The per-sample values and limits of the most-failing check (most failures; ties:
-    the first in order) are kept for plotting; all three are None when every sample passes."""
+    the first in order) are kept; all three are None when every sample passes. ``least_margins``: each check's
+    smallest margin over the builds (a fraction of its limit; checks that do not apply are left out), and
+    ``tightest_check`` the check whose least margin is smallest, the one that came closest to failing.
+    ``plotted_*``: the per-sample values and limits of the check asked for by ``plot``, else of the most
+    failing check, else of the tightest one, so a passing design has a distribution to show too."""
 
     samples: int
     seed: int
@@ -84,6 +88,11 @@ class Yield:
     most_failing_check: str | None
     most_failing_values: FloatArray | None
     most_failing_limits: FloatArray | None
+    least_margins: dict[str, float]
+    tightest_check: str | None
+    plotted_check: str | None
+    plotted_values: FloatArray | None
+    plotted_limits: FloatArray | None
 
 
 def _whole(x: object) -> bool:
@@ -216,8 +225,10 @@ def monte_carlo(
     nominal: ChannelReview | None = None,
     vf_model: str = DEFAULT_VF_MODEL,
     vf_bin_width_v: float = DEFAULT_VF_BIN_WIDTH_V,
+    plot: str | None = None,
 ) -> Yield:
-    """Yield of one row's design over ``samples`` random builds (model: module docstring).
+    """Yield of one row's design over ``samples`` random builds (model: module docstring); ``plot`` names the
+    check whose per-build values to keep (ValueError when the review has no such check).
 
     ``inputs`` must hold exactly one row (ValueError otherwise). Raises DomainError when
     ``validate_monte_carlo`` finds a violation; ``nominal``, the review of ``inputs`` when the caller has made
@@ -246,12 +257,26 @@ def monte_carlo(
     passed = int(np.count_nonzero(passing))
     low, high = wilson_interval(passed, samples)
 
+    if plot is not None and plot not in names:
+        raise ValueError(f"no check named {plot!r}")
+
+    def drawn(j: int) -> tuple[FloatArray, FloatArray]:
+        return np.concatenate([p[j].value[0] for p in parts]), np.concatenate([p[j].limit[0] for p in parts])
+
+    least: dict[str, float] = {}
+    for j, name in enumerate(names):
+        margins = np.concatenate([p[j].margin()[0] for p in parts])
+        if np.isfinite(margins).any():
+            least[name] = float(np.nanmin(margins))
+    tightest = min(least, key=lambda name: least[name]) if least else None
+
     worst = max(range(len(names)), key=lambda j: (failures[names[j]], -j))
     most = names[worst] if failures[names[worst]] else None
     values = limits = None
     if most is not None:
-        values = np.concatenate([p[worst].value[0] for p in parts])
-        limits = np.concatenate([p[worst].limit[0] for p in parts])
+        values, limits = drawn(worst)
+    shown = plot or most or tightest
+    shown_values, shown_limits = drawn(names.index(shown)) if shown is not None else (None, None)
     return Yield(
         samples=samples,
         seed=seed,
@@ -265,4 +290,9 @@ def monte_carlo(
         most_failing_check=most,
         most_failing_values=values,
         most_failing_limits=limits,
+        least_margins=least,
+        tightest_check=tightest,
+        plotted_check=shown,
+        plotted_values=shown_values,
+        plotted_limits=shown_limits,
     )

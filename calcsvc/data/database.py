@@ -9,6 +9,7 @@ from typing import Any
 
 from alembic import command
 from alembic.config import Config
+from alembic.runtime.migration import MigrationContext
 from sqlalchemy import Engine, create_engine, event, text
 from sqlalchemy.exc import OperationalError
 from sqlalchemy.orm import Session, sessionmaker
@@ -93,8 +94,21 @@ def alembic_config(url: str) -> Config:
     return config
 
 
-def upgrade(url: str, revision: str = "head") -> None:
-    """Create or upgrade the schema; existing rows are kept."""
+def schema_revision(url: str) -> str | None:
+    """The schema revision the database is at; None for a database with no schema yet."""
+    engine = create_engine(url)
+    try:
+        with engine.connect() as connection:
+            current: str | None = MigrationContext.configure(connection).get_current_revision()
+            return current
+    finally:
+        engine.dispose()
+
+
+def upgrade(url: str, revision: str = "head") -> tuple[str | None, str | None]:
+    """Create or upgrade the schema; existing rows are kept. Returns the schema revision before and after."""
     if url.startswith("sqlite:///"):
         Path(url.removeprefix("sqlite:///")).parent.mkdir(parents=True, exist_ok=True)
+    before = schema_revision(url)
     command.upgrade(alembic_config(url), revision)
+    return before, schema_revision(url)

@@ -115,6 +115,14 @@ KINDS: dict[str, tuple[Param, ...]] = {
         Param("supply_max_v", "V", "highest output voltage in service (a battery: fresh)", optional=True),
         Param("current_max_a", "A", "continuous current rating"),
         Param("capacity_ah", "A*h", "battery capacity", optional=True),
+        Param(
+            "source",
+            "",
+            "mains_adapter, battery or bench; absent: a battery when capacity_ah is given",
+            optional=True,
+            choices=("mains_adapter", "battery", "bench"),
+            informational="chooses the standing safety cautions of every design on this supply",
+        ),
     ),
     "driver": (
         Param("voh_v", "V", "output high voltage at the rated source current"),

@@ -6,12 +6,13 @@ from dataclasses import dataclass
 from datetime import datetime
 from typing import Any
 
-ACTIONS = ("created", "edited", "approved", "retired", "restored", "renamed")  # what an event records
+# What an event records; "returned": a draft sent back to its author with the reason, "commented": a remark.
+ACTIONS = ("created", "edited", "approved", "retired", "restored", "renamed", "returned", "commented")
 
 
 @dataclass(frozen=True)
 class EventView:
-    """One action on a revision: created, edited, approved, retired, restored or renamed."""
+    """One action on a revision (one of ACTIONS); ``reason`` holds why, or the comment's text."""
 
     action: str
     actor: str

@@ -36,6 +36,10 @@ class PartNotRetired(StoreError):
     pass
 
 
+class NotADraft(StoreError):
+    pass
+
+
 class InvalidPartId(StoreError):
     pass
 

@@ -44,6 +44,20 @@ def create_token(session: Session, name: str, role: str) -> str:
     return token
 
 
+@dataclass(frozen=True)
+class TokenInfo:
+    """What may be shown about a token: never the token, which only its holder has."""
+
+    name: str
+    role: str
+    created_at: datetime
+
+
+def list_tokens(session: Session) -> list[TokenInfo]:
+    rows = session.scalars(select(ApiToken).order_by(ApiToken.name))
+    return [TokenInfo(row.name, row.role, row.created_at) for row in rows]
+
+
 def revoke_token(session: Session, name: str) -> bool:
     return session.execute(delete(ApiToken).where(ApiToken.name == name)).rowcount == 1
 

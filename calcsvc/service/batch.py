@@ -71,6 +71,7 @@ class ParsedRows:
     present: dict[str, np.ndarray]  # which rows gave each input (explicitly or through a part)
     parts: dict[int, list[dict[str, Any]]]  # only rows that name parts
     warnings: dict[int, list[str]]
+    cautions: dict[int, list[str]]  # the standing cautions of the parts a row names (a supply's kind)
     errors: RowErrors
 
 
@@ -197,9 +198,10 @@ def parse_cells(
 
     parts: dict[int, list[dict[str, Any]]] = {}
     warnings: dict[int, list[str]] = {}
+    cautions: dict[int, list[str]] = {}
     for role in calc.roles:
         if role.name in seen or f"{role.name}_revision" in seen:
-            _resolve_role(role, cells, columns, parts, warnings, errors, resolver, blank_is_absent)
+            _resolve_role(role, cells, columns, parts, (warnings, cautions), errors, resolver, blank_is_absent)
 
     present = {
         name: (column != "") if column.dtype == object else ~np.isnan(column) for name, column in columns.items()
@@ -215,7 +217,7 @@ def parse_cells(
     for spec in calc.inputs:
         if spec.choices:
             columns[spec.name] = columns[spec.name].astype(str)
-    return ParsedRows(n, columns, present, parts, warnings, errors)
+    return ParsedRows(n, columns, present, parts, warnings, cautions, errors)
 
 
 def _resolve_role(
@@ -223,12 +225,14 @@ def _resolve_role(
     cells: Cells,
     columns: Columns,
     parts: dict[int, list[dict[str, Any]]],
-    warnings: dict[int, list[str]],
+    notes: tuple[dict[int, list[str]], dict[int, list[str]]],
     errors: RowErrors,
     resolver: PartResolver,
     blank_is_absent: bool,
 ) -> None:
-    """Fill the inputs a part provides on the rows that name it, looking each distinct part up once."""
+    """Fill the inputs a part provides on the rows that name it, looking each distinct part up once; ``notes``
+    collects each row's warnings and cautions about the parts it names."""
+    warnings, cautions = notes
     groups: dict[tuple[str, int | None], list[int]] = {}
     for row, (part_id, revision) in enumerate(
         zip(cells.column(role.name), cells.column(f"{role.name}_revision"), strict=True)
@@ -273,6 +277,8 @@ def _resolve_role(
             parts.setdefault(row, []).extend(resolved.parts)
             if resolved.warnings:
                 warnings.setdefault(row, []).extend(resolved.warnings)
+            if resolved.cautions:
+                cautions.setdefault(row, []).extend(resolved.cautions)
 
 
 # ---- a whole batch ------------------------------------------------------------------------------------------

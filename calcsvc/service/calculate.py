@@ -71,5 +71,13 @@ def run_calculation(database: Database, calc: CalculationSpec, body: Mapping[str
     except DomainError as exc:
         raise PhysicallyImpossible.of(exc.violations) from exc
     return envelope(
-        calc.name, calc.version, values, resolved.parts, results_of_row(calc, outcome, 0), outcome, 0, resolved.warnings
+        calc.name,
+        calc.version,
+        values,
+        resolved.parts,
+        results_of_row(calc, outcome, 0),
+        outcome,
+        0,
+        resolved.warnings,
+        resolved.cautions,
     )

@@ -86,4 +86,14 @@ def run_duty(database: Database, body: Mapping[str, Any]) -> dict[str, Any]:
     resolved_inputs["loads"] = [
         {k: load[k] for k in ("name", "count", "fixed", "peak_current_a", "duty_cycle")} for load in loads
     ]
-    return envelope(SPEC.name, SPEC.version, resolved_inputs, resolved.parts, results, outcome, 0, resolved.warnings)
+    return envelope(
+        SPEC.name,
+        SPEC.version,
+        resolved_inputs,
+        resolved.parts,
+        results,
+        outcome,
+        0,
+        resolved.warnings,
+        resolved.cautions,
+    )

@@ -10,7 +10,9 @@ from typing import Any
 
 import numpy as np
 
+from calcsvc.core.channel_spec import CHECK_UNITS
 from calcsvc.core.outcome import Outcome
+from calcsvc.service.safety import SAFETY_LINE
 
 
 def to_json_value(value: Any) -> Any:
@@ -75,6 +77,7 @@ def row_checks(outcome: Outcome, row: int) -> list[dict[str, Any]]:
         checks.append(
             {
                 "name": check.name,
+                "unit": CHECK_UNITS.get(check.name, ""),
                 "ok": bool(check.ok[row]),
                 "value": to_json_value(float(check.value[row])),
                 "limit": limit,
@@ -98,7 +101,9 @@ def envelope(
     outcome: Outcome,
     row: int,
     warnings: list[str],
+    cautions: list[str],
 ) -> dict[str, Any]:
+    """The answer to one calculation; ``cautions`` are the standing ones of the parts used, before the design's."""
     inputs = {k: to_json_value(v) for k, v in inputs.items()}
     return {
         "calculation": calculation,
@@ -107,6 +112,7 @@ def envelope(
         "results": results,
         "checks": row_checks(outcome, row),
         "warnings": warnings + row_notices(outcome.warnings, row),
-        "cautions": row_notices(outcome.cautions, row),
+        "cautions": row_notices(outcome.cautions, row) + cautions,
+        "safety": SAFETY_LINE,
         "fingerprint": fingerprint(calculation, version, inputs, parts),
     }

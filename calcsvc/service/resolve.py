@@ -14,6 +14,7 @@ from calcsvc.data.part_lookup import Referenced, look_up
 from calcsvc.data.store import PartStore
 from calcsvc.data.store_errors import PartNotFound
 from calcsvc.service.errors import InvalidInput, RetiredPartReference, UnknownPart, WrongPartKind
+from calcsvc.service.safety import supply_cautions
 
 
 @dataclass
@@ -51,6 +52,7 @@ class Resolved:
     values: dict[str, Any]
     parts: list[dict[str, Any]]
     warnings: list[str]
+    cautions: list[str] = field(default_factory=list)  # standing cautions of the parts used (a supply's kind)
 
 
 def _references(roles: tuple[Role, ...], body: Mapping[str, Any]) -> list[tuple[str, int | None]]:
@@ -69,6 +71,7 @@ def resolve(roles: tuple[Role, ...], body: Mapping[str, Any], resolver: PartReso
     parts: list[dict[str, Any]] = []
     warnings: list[str] = []
     resolver.prefetch(_references(roles, body))
+    cautions: list[str] = []
     for role in roles:
         part_id = body.get(role.name)
         revision = body.get(f"{role.name}_revision")
@@ -95,8 +98,12 @@ def resolve(roles: tuple[Role, ...], body: Mapping[str, Any], resolver: PartReso
         for parameter, input_name in role.provides:
             if input_name not in values and part.parameters.get(parameter) is not None:
                 values[input_name] = part.parameters[parameter]
+        if part.kind == "supply":
+            cautions += supply_cautions(part.parameters)
         parts.append({"role": role.name, "part_id": part.part_id, "revision": part.revision, "status": part.status})
-    return Resolved(values, parts, warnings)
+    if not cautions and any(role.kind == "supply" for role in roles):
+        cautions = supply_cautions(values)  # a supply given by its values: a capacity says battery
+    return Resolved(values, parts, warnings, cautions)
 
 
 def resolve_parts(database: Database, roles: tuple[Role, ...], body: Mapping[str, Any]) -> Resolved:

@@ -1,6 +1,6 @@
 """The whole-channel review for one request: parts resolved, the channel validated once, reviewed at nominal
-values, taken to its worst tolerance corner and, with samples, through Monte Carlo; and the distribution of the
-check that fails most often, for the histogram."""
+values, taken to its worst tolerance corner and, with samples, through Monte Carlo; and the distribution of one
+check over the Monte Carlo's builds, for the histogram."""
 
 from __future__ import annotations
 
@@ -11,15 +11,17 @@ from typing import Any
 
 import numpy as np
 
-from calcsvc.core import channel, monte_carlo, thermal_limit, tolerance, usable_runtime
+from calcsvc.core import channel, channel_stages, monte_carlo, thermal_limit, tolerance, usable_runtime
 from calcsvc.core.channel_spec import CHANNEL_INPUTS, CHECK_UNITS, STAGES
 from calcsvc.core.heat_curves import HeatCurves, heat_curves
 from calcsvc.core.outcome import Check, FloatArray, Outcome, raise_violations
 from calcsvc.data.database import Database
+from calcsvc.service.bill_of_materials import bill_of_materials
 from calcsvc.service.calculate import columns_of, complete
 from calcsvc.service.envelope import fingerprint, row_notices, to_json_value
 from calcsvc.service.errors import InvalidInput
 from calcsvc.service.resolve import Resolved, resolve_parts
+from calcsvc.service.safety import SAFETY_LINE
 
 _BAND = ("supply_min_v", "supply_max_v")
 
@@ -108,6 +110,7 @@ def _check_entry(nominal: Check, worst: tolerance.WorstCheck, stage: str) -> dic
     part = next((name for start, name in _HEATED.items() if nominal.name.startswith(start)), None)
     return {
         "name": nominal.name,
+        "unit": CHECK_UNITS[nominal.name],
         "stage": stage,
         **({"part": part} if stage == "thermal" and part else {}),
         "ok": bool(worst.check.ok[0]),
@@ -137,11 +140,16 @@ def yield_entry(found: monte_carlo.Yield) -> dict[str, Any]:
         "vf_bin_width_v": found.vf_bin_width_v,
         "most_failing_check": found.most_failing_check,
         "failures": found.failures,
+        "tightest_check": found.tightest_check,
+        "least_margin": None if found.tightest_check is None else found.least_margins[found.tightest_check],
     }
 
 
-def review_document(values: dict[str, Any], parts: list[dict[str, Any]], warnings: list[str]) -> dict[str, Any]:
-    """The review of one channel from completed values, as JSON-ready data."""
+def review_document(
+    values: dict[str, Any], parts: list[dict[str, Any]], warnings: list[str], cautions: list[str]
+) -> dict[str, Any]:
+    """The review of one channel from completed values, as JSON-ready data; ``cautions`` are the standing ones of
+    the parts used (a supply's kind), after the design's own."""
     done = review_channel(values, int(values["samples"]), int(values["seed"]))
     worst = done.worst
     nominal = worst.nominal
@@ -182,7 +190,11 @@ def review_document(values: dict[str, Any], parts: list[dict[str, Any]], warning
         "checks": checks,
         "yield": None if done.found is None else yield_entry(done.found),
         "warnings": warnings + notes + optimistic,
-        "cautions": row_notices(nominal.cautions, 0),
+        "cautions": row_notices(nominal.cautions, 0) + cautions,
+        "safety": SAFETY_LINE,
+        "bill_of_materials": bill_of_materials(
+            values, parts, stages, float(channel_stages.resistor_tolerance(done.inputs)[0])
+        ),
     }
     document["fingerprint"] = fingerprint(channel.NAME, channel.VERSION, document["inputs"], parts)
     return document
@@ -204,7 +216,8 @@ def _resolve(database: Database, body: Mapping[str, Any]) -> Resolved:
 def run_review(database: Database, body: Mapping[str, Any]) -> dict[str, Any]:
     """The review of one channel request (values in SI, part references by role name), as JSON-ready data."""
     resolved = _resolve(database, body)
-    return review_document(complete(CHANNEL_INPUTS, resolved.values), resolved.parts, resolved.warnings)
+    values = complete(CHANNEL_INPUTS, resolved.values)
+    return review_document(values, resolved.parts, resolved.warnings, resolved.cautions)
 
 
 @dataclass(frozen=True)
@@ -220,19 +233,23 @@ class Distribution:
     relative: bool
 
 
-def most_failing(database: Database, body: Mapping[str, Any]) -> Distribution:
-    """The distribution of the check that fails most often over the request's Monte Carlo run (samples 0: the
-    default count); refused when every build passes."""
+def distribution(database: Database, body: Mapping[str, Any], check: str | None = None) -> Distribution:
+    """The Monte Carlo distribution of ``check``, else of the check that fails most often, else (every build
+    passes) of the tightest check, the one whose least margin is smallest (samples 0: the default count)."""
     resolved = _resolve(database, body)
     values = complete(CHANNEL_INPUTS, resolved.values)
     samples = int(values["samples"]) or monte_carlo.DEFAULT_SAMPLES
     seed = int(values["seed"])
+    if check is not None and check not in CHECK_UNITS:
+        raise InvalidInput.on(
+            "check", f"{check!r} is not a check of the channel review; one of {', '.join(CHECK_UNITS)}"
+        )
     inputs, nominal = _nominal(values, samples, seed)
-    found = monte_carlo.monte_carlo(inputs, samples, seed, nominal, **vf_options(values))
-    name, drawn, limits = found.most_failing_check, found.most_failing_values, found.most_failing_limits
-    if name is None or drawn is None or limits is None:
-        message = f"every one of the {samples} simulated builds passes every check: there is no failing check to plot"
-        raise InvalidInput(message, {"samples": [message]}, "nothing-fails")
+    found = monte_carlo.monte_carlo(inputs, samples, seed, nominal, **vf_options(values), plot=check)
+    name, drawn, limits = found.plotted_check, found.plotted_values, found.plotted_limits
+    if name is None or drawn is None or limits is None or not np.isfinite(limits).all():
+        message = f"the check {check} does not apply to this design" if check else "no check applies to this design"
+        raise InvalidInput.on("check", message)
     if np.ptp(limits) > 1e-9 * np.abs(limits).max():
         return Distribution(name, drawn / limits, 1.0, "", relative=True)
     return Distribution(name, drawn, float(limits[0]), CHECK_UNITS[name], relative=False)

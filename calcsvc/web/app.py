@@ -24,6 +24,7 @@ from calcsvc.web import (
     calc_api,
     designs_api,
     health,
+    landing,
     parts_api,
     plots_api,
     review_api,
@@ -160,6 +161,7 @@ def create_app(config: Mapping[str, Any] | None = None) -> Flask:
     api.register_blueprint(designs_api.blp)
     api.register_blueprint(designs_api.impact_blp)
     app.register_blueprint(review_page.bp)
+    app.register_blueprint(landing.bp)
 
     app.register_error_handler(Problem, problem_response)
     app.register_error_handler(ServiceError, lambda error: problem_response(service_problem(error)))

@@ -14,6 +14,7 @@ from calcsvc.core.spec import CalculationSpec
 from calcsvc.service.batch import run_batch
 from calcsvc.service.errors import InvalidInput
 from calcsvc.service.gc_pause import return_free_memory
+from calcsvc.service.safety import SAFETY_LINE
 from calcsvc.web.auth import database, guard_reads
 from calcsvc.web.batch_csv import csv_chunks
 from calcsvc.web.batch_json import json_columns, streamed_rows
@@ -66,6 +67,7 @@ def answer(calc: CalculationSpec) -> Response:
         "count": parsed.n,
         "ok_count": int(ok_rows.size),
         "check_details": {check.name: check.detail for check in outcome.checks},
+        "safety": SAFETY_LINE,
     }
     if request.args.get("layout") == "columns":
         body.update(json_columns(calc, batch))

@@ -71,6 +71,9 @@ def _chunk(
         for k in np.flatnonzero(notice.rows[first:last]).tolist():
             line = at[k]
             cautions[line] = f"{cautions[line]} {notice.message}" if cautions[line] else notice.message
+    for line in at:  # the standing cautions of the parts each row names (a supply's kind) come after
+        for message in parsed.cautions.get(low + line, []):
+            cautions[line] = f"{cautions[line]} {message}" if cautions[line] else message
     problems = [""] * size
     for line in np.flatnonzero(~computed).tolist():
         problems[line] = parsed.errors.refusal(low + line).detail

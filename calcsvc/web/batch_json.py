@@ -93,7 +93,7 @@ def _row_chunk(
                     if limit[k] is not None  # a check whose limit is unknown on this row does not apply
                 ],
                 "warnings": parsed.warnings.get(row, []) + notices["warnings"][k],
-                "cautions": notices["cautions"][k],
+                "cautions": notices["cautions"][k] + parsed.cautions.get(row, []),
                 "parts": parsed.parts.get(row, []),
             }
         )
@@ -154,6 +154,7 @@ def json_columns(calc: CalculationSpec, batch: Batch) -> dict[str, Any]:
     }
     part_warnings = [{"message": m, "rows": [row]} for row, found in parsed.warnings.items() for m in found]
     notices["warnings"] = part_warnings + notices["warnings"]
+    notices["cautions"] += [{"message": m, "rows": [row]} for row, found in parsed.cautions.items() for m in found]
     return {
         "layout": "columns",
         **({"labels": batch.records.labels} if batch.records.labels else {}),

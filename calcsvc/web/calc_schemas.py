@@ -8,6 +8,7 @@ from marshmallow import Schema, ValidationError, fields, validate, validates_sch
 
 from calcsvc.core.spec import BudgetSpec, Input, InputSet, Items, Result, Role, Samples
 from calcsvc.service.parts import MAX_REVISION, part_id_field
+from calcsvc.service.safety import SAFETY_LINE
 from calcsvc.units import QUANTITY_PATTERN
 from calcsvc.web.quantity import Quantity
 
@@ -121,8 +122,18 @@ class PartUsedSchema(Schema):
     status = fields.String(required=True, validate=validate.OneOf(("draft", "approved", "retired")))
 
 
+def safety_field() -> fields.String:
+    """The standing safety line, a field of its own on every JSON answer."""
+    return fields.String(
+        required=True,
+        dump_default=SAFETY_LINE,
+        metadata={"description": "standing line deferring to local codes, the parts' datasheets and licensed practice"},
+    )
+
+
 class CheckSchema(Schema):
     name = fields.String(required=True)
+    unit = fields.String(required=True, metadata={"description": "unit of value and limit (empty: a ratio)"})
     ok = fields.Boolean(required=True)
     value = fields.Float(required=True, allow_none=True)
     limit = fields.Float(required=True)
@@ -159,6 +170,7 @@ def response_schema(calc_name: str, results: tuple[Result, ...]) -> type[Schema]
             "checks": fields.List(fields.Nested(CheckSchema), required=True),
             "warnings": fields.List(fields.String(), required=True),
             "cautions": fields.List(fields.String(), required=True),
+            "safety": safety_field(),
             "fingerprint": fields.String(
                 required=True, metadata={"description": "SHA-256 of the inputs, part revisions and version"}
             ),

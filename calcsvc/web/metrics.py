@@ -18,7 +18,7 @@ from prometheus_client.multiprocess import MultiProcessCollector
 UNMATCHED = "unmatched"
 _METHODS = frozenset({"GET", "HEAD", "POST", "PUT", "PATCH", "DELETE", "OPTIONS"})
 
-PartsWrite = Literal["create", "update", "approve", "retire", "restore"]
+PartsWrite = Literal["create", "update", "approve", "retire", "restore", "send_back", "comment"]
 
 REQUESTS = Counter("calcsvc_requests_total", "HTTP requests answered", ["method", "endpoint", "status"])
 REQUEST_DURATION = Histogram(

@@ -13,6 +13,7 @@ from marshmallow import RAISE, Schema, fields, validate
 from calcsvc.data import part_ids
 from calcsvc.data.kinds import KINDS, MAX_DESCRIPTION_LENGTH
 from calcsvc.data.part_history import ACTIONS
+from calcsvc.data.review_notes import MAX_NOTE_LENGTH, comment, send_back
 from calcsvc.data.store import STATUSES, PartStore, PartView
 from calcsvc.service.parts import (
     NO_NUL,
@@ -21,6 +22,7 @@ from calcsvc.service.parts import (
     convert_parameters,
 )
 from calcsvc.web.auth import database, reads, requires
+from calcsvc.web.calc_schemas import safety_field
 from calcsvc.web.metrics import record_parts_write
 from calcsvc.web.problems import Problem, error_response
 from calcsvc.web.revisioned import IfMatchSchema, UtcDateTime, expected_revision
@@ -53,8 +55,13 @@ class PartSchema(Schema):
     approved_by = fields.String(allow_none=True, required=True)
 
 
+class PartAnswerSchema(PartSchema):
+    safety = safety_field()
+
+
 class PartListSchema(Schema):
     items = fields.List(fields.Nested(PartSchema), required=True)
+    safety = safety_field()
     total = fields.Integer(required=True)
     offset = fields.Integer(required=True)
     limit = fields.Integer(required=True)
@@ -91,6 +98,7 @@ class RevisionSchema(Schema):
 class RevisionListSchema(Schema):
     part_id = fields.String(required=True)
     revisions = fields.List(fields.Nested(RevisionSchema), required=True)
+    safety = safety_field()
 
 
 def part_response(view: PartView, status: int = 200) -> tuple[dict[str, Any], int, dict[str, str]]:
@@ -126,7 +134,7 @@ class Parts(MethodView):
 
     @requires("editor")
     @blp.arguments(PartCreateSchema)
-    @blp.response(201, PartSchema, headers={"Location": {"schema": {"type": "string"}}})
+    @blp.response(201, PartAnswerSchema, headers={"Location": {"schema": {"type": "string"}}})
     @error_response(blp, 401, "no valid token")
     @error_response(blp, 403, "the token's role may not create parts")
     @error_response(blp, 409, "a part with this id exists")
@@ -146,7 +154,7 @@ class Parts(MethodView):
 @blp.route("/<string:part_id>")
 class Part(MethodView):
     @reads
-    @blp.response(200, PartSchema, headers={"ETag": {"schema": {"type": "string"}}})
+    @blp.response(200, PartAnswerSchema, headers={"ETag": {"schema": {"type": "string"}}})
     @error_response(blp, 404, "no such part")
     def get(self, part_id: str) -> tuple[dict[str, Any], int, dict[str, str]]:
         """One part at its current revision, with the revision's ETag."""
@@ -156,7 +164,7 @@ class Part(MethodView):
     @requires("editor")
     @blp.arguments(IfMatchSchema, location="headers")
     @blp.arguments(PartUpdateSchema)
-    @blp.response(200, PartSchema, headers={"ETag": {"schema": {"type": "string"}}})
+    @blp.response(200, PartAnswerSchema, headers={"ETag": {"schema": {"type": "string"}}})
     @error_response(blp, 401, "no valid token")
     @error_response(blp, 403, "the token's role may not edit parts")
     @error_response(blp, 404, "no such part")
@@ -180,7 +188,7 @@ class Part(MethodView):
     @requires("editor")
     @blp.arguments(IfMatchSchema, location="headers")
     @blp.arguments(ReasonSchema, required=False)
-    @blp.response(200, PartSchema, headers={"ETag": {"schema": {"type": "string"}}})
+    @blp.response(200, PartAnswerSchema, headers={"ETag": {"schema": {"type": "string"}}})
     @error_response(blp, 401, "no valid token")
     @error_response(blp, 403, "the token's role may not retire parts")
     @error_response(blp, 404, "no such part")
@@ -202,7 +210,7 @@ class Part(MethodView):
 class Approve(MethodView):
     @requires("reviewer")
     @blp.arguments(IfMatchSchema, location="headers")
-    @blp.response(200, PartSchema, headers={"ETag": {"schema": {"type": "string"}}})
+    @blp.response(200, PartAnswerSchema, headers={"ETag": {"schema": {"type": "string"}}})
     @error_response(blp, 401, "no valid token")
     @error_response(blp, 403, "not a reviewer, or the reviewer wrote this revision")
     @error_response(blp, 404, "no such part")
@@ -224,7 +232,7 @@ class Restore(MethodView):
     @requires("editor")
     @blp.arguments(IfMatchSchema, location="headers")
     @blp.arguments(ReasonSchema, required=False)
-    @blp.response(200, PartSchema, headers={"ETag": {"schema": {"type": "string"}}})
+    @blp.response(200, PartAnswerSchema, headers={"ETag": {"schema": {"type": "string"}}})
     @error_response(blp, 401, "no valid token")
     @error_response(blp, 403, "the token's role may not restore parts")
     @error_response(blp, 404, "no such part")
@@ -250,6 +258,67 @@ class Revisions(MethodView):
     @error_response(blp, 404, "no such part")
     def get(self, part_id: str) -> dict[str, Any]:
         """Every revision of a part, oldest first, with its parameters, author and approval."""
+        return _history(part_id)
+
+
+class SendBackSchema(Schema):
+    reason = fields.String(
+        required=True,
+        validate=[validate.Length(min=1, max=MAX_NOTE_LENGTH), NO_NUL],
+        metadata={"description": "why the draft goes back to its author, kept with the revision"},
+    )
+
+
+class CommentSchema(Schema):
+    comment = fields.String(
+        required=True,
+        validate=[validate.Length(min=1, max=MAX_NOTE_LENGTH), NO_NUL],
+        metadata={"description": "the remark, kept with the revision"},
+    )
+
+
+def _history(part_id: str) -> dict[str, Any]:
+    with database().transaction() as session:
+        revisions = PartStore(session).revisions(part_id)
+    return {"part_id": part_id, "revisions": [asdict(r) for r in revisions]}
+
+
+@blp.route("/<string:part_id>/send-back")
+class SendBack(MethodView):
+    @requires("reviewer")
+    @blp.arguments(IfMatchSchema, location="headers")
+    @blp.arguments(SendBackSchema)
+    @blp.response(200, PartAnswerSchema, headers={"ETag": {"schema": {"type": "string"}}})
+    @error_response(blp, 401, "no valid token")
+    @error_response(blp, 403, "not a reviewer")
+    @error_response(blp, 404, "no such part")
+    @error_response(blp, 409, "the revision is not a draft, or the part is retired")
+    @error_response(blp, 412, "the revision If-Match names is no longer current")
+    @error_response(blp, 428, "If-Match is missing")
+    def post(
+        self, _headers: dict[str, Any], body: dict[str, Any], part_id: str
+    ) -> tuple[dict[str, Any], int, dict[str, str]]:
+        """Send the draft If-Match names back to its author with a reason (reviewer): it stays a draft, and the
+        reason is a `returned` event of that revision, shown in its history and on the review page."""
+        revision = expected_revision(part_id)
         with database().transaction() as session:
-            revisions = PartStore(session).revisions(part_id)
-        return {"part_id": part_id, "revisions": [asdict(r) for r in revisions]}
+            send_back(session, part_id, revision, g.identity.name, body["reason"])
+            view = PartStore(session).get(part_id)
+        record_parts_write("send_back")
+        return part_response(view)
+
+
+@blp.route("/<string:part_id>/revisions/<int:revision>/comments")
+class Comments(MethodView):
+    @requires("editor")
+    @blp.arguments(CommentSchema)
+    @blp.response(200, RevisionListSchema)
+    @error_response(blp, 401, "no valid token")
+    @error_response(blp, 404, "no such part or revision")
+    def post(self, body: dict[str, Any], part_id: str, revision: int) -> dict[str, Any]:
+        """Comment on a revision (editor or reviewer): a `commented` event of that revision, part of its history.
+        Answers the part's revisions with their events."""
+        with database().transaction() as session:
+            comment(session, part_id, revision, g.identity.name, body["comment"])
+        record_parts_write("comment")
+        return _history(part_id)

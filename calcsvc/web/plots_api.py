@@ -21,7 +21,7 @@ from calcsvc.service import curves
 from calcsvc.web import plots
 from calcsvc.web.auth import database
 from calcsvc.web.calc_schemas import camel, request_schema
-from calcsvc.web.images import endpoint, image_response
+from calcsvc.web.images import PLOT_CALCULATIONS, endpoint, image_response
 from calcsvc.web.metrics import record_calculation
 from calcsvc.web.problems import error_response
 
@@ -49,20 +49,17 @@ def _drawn(
     return image
 
 
-# path name → (calculation, drawing, summary)
-PLOTS: dict[str, tuple[str, Draw, str]] = {
+# path name → (drawing, summary); the calculation each draws: PLOT_CALCULATIONS
+PLOTS: dict[str, tuple[Draw, str]] = {
     "closed-loop": (
-        closed_loop.NAME,
         _drawn(closed_loop.NAME, curves.closed_loop_curves, plots.closed_loop_plot),
         "Open-loop and closed-loop gain and phase against frequency, the -3 dB point marked",
     ),
     "slew-limit": (
-        slew.NAME,
         _drawn(slew.NAME, curves.slew_curves, plots.slew_limit_plot),
         "Largest undistorted peak amplitude against frequency: slew and swing limits, operating point marked",
     ),
     "led-string": (
-        led_string.NAME,
         _drawn(led_string.NAME, curves.led_curves, plots.led_string_plot),
         "String current against supply voltage for the chosen resistor, worst-case band and LED rating",
     ),
@@ -90,5 +87,5 @@ def _register(name: str, calc_name: str, draw: Draw, summary: str) -> None:
         blp.route(f"/{name}.{fmt}", endpoint=endpoint(name, fmt))(view)
 
 
-for _name, (_calc_name, _draw, _summary) in PLOTS.items():
-    _register(_name, _calc_name, _draw, _summary)
+for _name, (_draw, _summary) in PLOTS.items():
+    _register(_name, PLOT_CALCULATIONS[_name], _draw, _summary)

@@ -18,6 +18,7 @@ from calcsvc.data.store_errors import (
     DesignRetired,
     InvalidPart,
     InvalidPartId,
+    NotADraft,
     PartExists,
     PartNotFound,
     PartNotRetired,
@@ -27,6 +28,7 @@ from calcsvc.data.store_errors import (
     StoreError,
 )
 from calcsvc.service.errors import MalformedBody, PhysicallyImpossible, ServiceError, TooLarge, UnknownPart
+from calcsvc.service.safety import SAFETY_LINE
 
 PROBLEM_MIMETYPE = "application/problem+json"
 log = logging.getLogger("calcsvc")
@@ -45,6 +47,7 @@ class ProblemSchema(Schema):
         values=fields.List(fields.String()),
         metadata={"description": "messages keyed by the offending field (dotted path for nested fields)"},
     )
+    safety = fields.String(required=True, metadata={"description": "the standing safety line every answer carries"})
 
 
 RETRY_AFTER_HEADER = {
@@ -148,6 +151,7 @@ def problem_document(problem: Problem, instance: str | None = None) -> dict[str,
         body["instance"] = instance
     if problem.errors:
         body["errors"] = problem.errors
+    body["safety"] = SAFETY_LINE
     return body
 
 
@@ -244,6 +248,7 @@ _STORE_STATUS: dict[type[StoreError], tuple[int, str]] = {
     SelfApproval: (403, "self-approval"),
     PartRetired: (409, "part-retired"),
     PartNotRetired: (409, "part-not-retired"),
+    NotADraft: (409, "not-a-draft"),
     InvalidPartId: (422, "invalid-part-id"),
     DesignNotFound: (404, "design-not-found"),
     DesignExists: (409, "design-exists"),

@@ -10,12 +10,14 @@ from typing import Any
 from flask import Response, request
 from flask.views import MethodView
 from flask_smorest import Blueprint
+from marshmallow import Schema, fields, validate
 
 from calcsvc.core import channel
-from calcsvc.service.review import Distribution, heat_of, most_failing, run_review
+from calcsvc.core.channel_spec import CHECK_UNITS
+from calcsvc.service.review import distribution, heat_of, run_review
 from calcsvc.web import plots
 from calcsvc.web.auth import database, guard_reads
-from calcsvc.web.images import image_response
+from calcsvc.web.images import check_histogram, image_response
 from calcsvc.web.metrics import record_calculation
 from calcsvc.web.problems import error_response
 from calcsvc.web.review_report import render_html, render_markdown
@@ -31,12 +33,11 @@ blp = Blueprint(
 guard_reads(blp)  # a review reads the parts table, so it follows its read protection
 
 
-def histogram(found: Distribution, fmt: str) -> plots.Plot:
-    """The Monte Carlo distribution of the check that fails most often, with its limit marked."""
-    if found.relative:
-        # Only the value relative to its own limit shows which builds fail.
-        return plots.histogram(found.values, found.limit, f"{found.check} (value / its limit)", "", fmt)
-    return plots.histogram(found.values, found.limit, found.check, found.unit, fmt)
+class HistogramQuery(Schema):
+    check = fields.String(
+        validate=validate.OneOf(list(CHECK_UNITS)),
+        metadata={"description": "the check to plot; absent: the most failing one, else the tightest"},
+    )
 
 
 REPORTS = {"text/markdown": render_markdown, "text/html": render_html}
@@ -71,12 +72,15 @@ class ChannelReview(MethodView):
 
 def _register_histogram(fmt: str) -> None:
     class Histogram(MethodView):
+        @blp.arguments(HistogramQuery, location="query")
         @blp.arguments(REVIEW_REQUEST)
         @blp.response(200, {"type": "string"}, content_type=plots.FORMATS[fmt], description=f"the histogram ({fmt})")
         @error_response(blp, 404, "a referenced part does not exist")
-        def post(self, body: dict[str, Any]) -> Response:
-            """Monte Carlo histogram of the check that fails most often (limit marked); same body as the review."""
-            return image_response(histogram(most_failing(database(), body), fmt))
+        def post(self, query: dict[str, Any], body: dict[str, Any]) -> Response:
+            """Monte Carlo histogram of one check over the simulated builds, its limit marked: the check named by
+            ?check=, else the one that fails most often, else (every build passes) the tightest one, whose least
+            margin is smallest. Same body as the review."""
+            return image_response(check_histogram(distribution(database(), body, query.get("check")), fmt))
 
     Histogram.__name__ = f"Histogram{fmt.capitalize()}"
     blp.route(f"/channel/histogram.{fmt}", endpoint=f"histogram-{fmt}")(Histogram)

@@ -39,28 +39,80 @@ def _percent(margin: Any) -> str:
     return "—" if margin is None else f"{margin * 100:.3g} %"
 
 
+def quantity(value: Any, unit: str) -> str:
+    """A number with its unit, as a person reads it in a table."""
+    shown = number(value)
+    return f"{shown} {unit}" if unit and value is not None else shown
+
+
 def _corner(corner: dict[str, str]) -> str:
     return ", ".join(f"{k} {v}" for k, v in corner.items()) or "—"
 
 
 def _check_rows(review: dict[str, Any]) -> list[list[str]]:
+    rows = []
+    for check in review["checks"]:
+        unit = check["unit"]
+        worst = check["worst_case"]
+        rows.append(
+            [
+                check["name"],
+                check["stage"].replace("_", " "),
+                quantity(check["value"], unit),
+                quantity(check["limit"], unit),
+                _percent(check["margin"]),
+                quantity(worst["value"], unit),
+                quantity(worst["limit"], unit),
+                _percent(worst["margin"]),
+                _corner(worst["corner"]),
+                "pass" if check["ok"] else "FAIL",
+            ]
+        )
+    return rows
+
+
+CHECK_HEADER = [
+    "check",
+    "stage",
+    "nominal",
+    "limit",
+    "margin",
+    "worst case",
+    "worst-case limit",
+    "worst margin",
+    "worst corner",
+    "result",
+]
+BOM_HEADER = ["item", "count", "value", "series, tolerance", "minimum rating", "part, revision"]
+
+
+def _bom_rows(entries: list[dict[str, Any]]) -> list[list[str]]:
+    rows = []
+    for entry in entries:
+        if entry["kind"] == "resistor":
+            rating = entry["rating_min_w"]
+            rows.append(
+                [
+                    entry["description"],
+                    str(entry["count"]),
+                    quantity(entry["value_ohm"], "Ω"),
+                    f"{entry['series']}, ±{entry['tolerance'] * 100:.3g} %",
+                    "none up to 5 W fits" if rating is None else quantity(rating, "W"),
+                    "—",
+                ]
+            )
+        else:
+            part = "given by its values" if entry["part_id"] is None else f"{entry['part_id']} r{entry['revision']}"
+            rows.append([entry["description"], str(entry["count"]), "—", "—", "—", part])
+    return rows
+
+
+def _bom_sections(review: dict[str, Any]) -> list[tuple[str, list[list[str]]]]:
+    bom = review["bill_of_materials"]
     return [
-        [
-            check["name"],
-            check["stage"].replace("_", " "),
-            number(check["value"]),
-            number(check["limit"]),
-            _percent(check["margin"]),
-            number(check["worst_case"]["value"]),
-            _percent(check["worst_case"]["margin"]),
-            _corner(check["worst_case"]["corner"]),
-            "pass" if check["ok"] else "FAIL",
-        ]
-        for check in review["checks"]
+        ("Per channel", _bom_rows(bom["per_channel"])),
+        (f"Whole design ({bom['channels']} channel(s))", _bom_rows(bom["whole_design"])),
     ]
-
-
-CHECK_HEADER = ["check", "stage", "nominal", "limit", "margin", "worst case", "worst margin", "worst corner", "result"]
 
 
 def _yield_line(review: dict[str, Any]) -> str:
@@ -98,11 +150,16 @@ def heat_line(review: dict[str, Any]) -> str:
     )
 
 
+def _markdown_table(header: list[str], rows: list[list[str]]) -> list[str]:
+    return ["| " + " | ".join(header) + " |", "|" + "---|" * len(header)] + ["| " + " | ".join(r) + " |" for r in rows]
+
+
 def render_markdown(review: dict[str, Any]) -> str:
     verdict = review["verdict"].upper()
     lines = [f"# Channel review: {verdict}", ""]
     if review["failing"]:
         lines += [f"Failing checks: {', '.join(review['failing'])}.", ""]
+    lines += ["## Cautions", ""] + [f"- {note}" for note in review["cautions"]] + [f"- {review['safety']}", ""]
     lines += [
         f"Largest duty cycle the supply allows for {review['inputs'].get('channels', 1)} channel(s): "
         f"{number(review['max_duty_cycle'])}.",
@@ -111,37 +168,53 @@ def render_markdown(review: dict[str, Any]) -> str:
         "",
         _yield_line(review),
         "",
-        "## Checks",
-        "",
-        "| " + " | ".join(CHECK_HEADER) + " |",
-        "|" + "---|" * len(CHECK_HEADER),
+        "## Bill of materials",
     ]
-    lines += ["| " + " | ".join(row) + " |" for row in _check_rows(review)]
+    for title, rows in _bom_sections(review):
+        lines += ["", f"### {title}", "", *_markdown_table(BOM_HEADER, rows)]
+    lines += ["", "## Checks", "", *_markdown_table(CHECK_HEADER, _check_rows(review))]
+    if review["warnings"]:
+        lines += ["", "## Warnings", ""] + [f"- {note}" for note in review["warnings"]]
     lines += ["", "## Parts", ""]
     lines += [f"- {p['role']}: `{p['part_id']}` revision {p['revision']} ({p['status']})" for p in review["parts"]]
     if not review["parts"]:
         lines.append("- none: every value was given explicitly")
     lines += ["", "## Inputs", "", "| input | value |", "|---|---|"]
-    lines += [
-        f"| {name} | {number(value)} {unit_of(name)}".rstrip() + " |"
-        for name, value in sorted(review["inputs"].items())
-    ]
-    for title, notes in (("Cautions", review["cautions"]), ("Warnings", review["warnings"])):
-        if notes:
-            lines += ["", f"## {title}", ""] + [f"- {note}" for note in notes]
-    lines += ["", f"Fingerprint: `{review['fingerprint']}`", ""]
+    lines += [f"| {name} | {quantity(value, unit_of(name))} |" for name, value in sorted(review["inputs"].items())]
+    lines += ["", f"Fingerprint: `{review['fingerprint']}`", "", f"*{review['safety']}*", ""]
     return "\n".join(lines)
 
 
-def render_table_html(review: dict[str, Any]) -> str:
-    head = "".join(f"<th scope='col'>{escape(h)}</th>" for h in CHECK_HEADER)
+def _html_table(header: list[str], rows: list[list[str]], css: str, status_last: bool = False) -> str:
+    head = "".join(f"<th scope='col'>{escape(h)}</th>" for h in header)
     body = "".join(
-        f"<tr class='{'fail' if row[-1] == 'FAIL' else 'pass'}'>"
-        + "".join(f"<td>{escape(c)}</td>" for c in row)
+        (f"<tr class='{'fail' if row[-1] == 'FAIL' else 'pass'}'>" if status_last else "<tr>")
+        + "".join(f"<td data-label='{escape(h)}'>{escape(c)}</td>" for h, c in zip(header, row, strict=True))
         + "</tr>"
-        for row in _check_rows(review)
+        for row in rows
     )
-    return f"<table class='checks'><thead><tr>{head}</tr></thead><tbody>{body}</tbody></table>"
+    return f"<table class='{css}'><thead><tr>{head}</tr></thead><tbody>{body}</tbody></table>"
+
+
+def render_table_html(review: dict[str, Any]) -> str:
+    """The checks, with units, as an HTML table (each cell labelled, so a narrow screen can stack it)."""
+    return _html_table(CHECK_HEADER, _check_rows(review), "checks stack", status_last=True)
+
+
+def render_bom_html(review: dict[str, Any]) -> str:
+    """The bill of materials, per channel and for the whole design, as HTML."""
+    return "".join(
+        f"<h3>{escape(title)}</h3>{_html_table(BOM_HEADER, rows, 'bom stack')}" for title, rows in _bom_sections(review)
+    )
+
+
+def render_cautions_html(review: dict[str, Any]) -> str:
+    """The cautions with the standing safety line last, for the place right under the verdict."""
+    items = "".join(f"<li>{escape(n)}</li>" for n in review["cautions"])
+    return (
+        f"<div class='caution' role='note' id='cautions'><h2>Cautions</h2><ul>{items}"
+        f"<li class='safety'>{escape(review['safety'])}</li></ul></div>"
+    )
 
 
 def render_html(review: dict[str, Any]) -> str:
@@ -149,26 +222,24 @@ def render_html(review: dict[str, Any]) -> str:
     items = lambda notes: "".join(f"<li>{escape(n)}</li>" for n in notes)  # noqa: E731
     parts = items(f"{p['role']}: {p['part_id']} revision {p['revision']} ({p['status']})" for p in review["parts"])
     inputs = "".join(
-        f"<tr><th scope='row'>{escape(k)}</th><td>{escape(number(v))} {escape(unit_of(k))}</td></tr>"
+        f"<tr><th scope='row'>{escape(k)}</th><td>{escape(quantity(v, unit_of(k)))}</td></tr>"
         for k, v in sorted(review["inputs"].items())
     )
     failing = f"<p>Failing checks: {escape(', '.join(review['failing']))}.</p>" if review["failing"] else ""
-    notes = "".join(
-        f"<h2>{title}</h2><ul>{items(found)}</ul>"
-        for title, found in (("Cautions", review["cautions"]), ("Warnings", review["warnings"]))
-        if found
-    )
+    warnings = f"<h2>Warnings</h2><ul>{items(review['warnings'])}</ul>" if review["warnings"] else ""
     return (
         "<!doctype html><html lang='en'><head><meta charset='utf-8'>"
         "<meta name='viewport' content='width=device-width, initial-scale=1'>"
         f"<title>Channel review: {escape(review['verdict'])}</title></head><body>"
         f"<h1>Channel review: <span class='verdict {escape(review['verdict'])}'>{escape(review['verdict'].upper())}"
-        f"</span></h1>{failing}"
+        f"</span></h1>{failing}{render_cautions_html(review)}"
         f"<p>Largest duty cycle the supply allows: {escape(number(review['max_duty_cycle']))}.</p>"
         f"<p>{escape(heat_line(review))}</p>"
         f"<p>{escape(_yield_line(review))}</p>"
-        f"<h2>Checks</h2>{render_table_html(review)}"
+        f"<h2>Bill of materials</h2>{render_bom_html(review)}"
+        f"<h2>Checks</h2>{render_table_html(review)}{warnings}"
         f"<h2>Parts</h2><ul>{parts or '<li>none: every value was given explicitly</li>'}</ul>"
-        f"<h2>Inputs</h2><table class='inputs'>{inputs}</table>{notes}"
-        f"<p>Fingerprint: <code>{escape(review['fingerprint'])}</code></p></body></html>"
+        f"<h2>Inputs</h2><table class='inputs'>{inputs}</table>"
+        f"<p>Fingerprint: <code>{escape(review['fingerprint'])}</code></p>"
+        f"<footer><p>{escape(review['safety'])}</p></footer></body></html>"
     )

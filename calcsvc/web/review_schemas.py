@@ -5,7 +5,7 @@ from __future__ import annotations
 from marshmallow import Schema, fields
 
 from calcsvc.core.channel_spec import CHANNEL_INPUTS
-from calcsvc.web.calc_schemas import CheckSchema, PartUsedSchema, request_schema
+from calcsvc.web.calc_schemas import CheckSchema, PartUsedSchema, request_schema, safety_field
 
 # An instance, not a class: webargs would build a new schema object on every request.
 REVIEW_REQUEST = request_schema(CHANNEL_INPUTS)()
@@ -41,6 +41,41 @@ class YieldSchema(Schema):
     )
     most_failing_check = fields.String(allow_none=True, required=True)
     failures = fields.Dict(keys=fields.String(), values=fields.Integer(), required=True)
+    tightest_check = fields.String(
+        allow_none=True,
+        required=True,
+        metadata={"description": "the check whose least margin over the builds is smallest"},
+    )
+    least_margin = fields.Float(
+        allow_none=True, required=True, metadata={"description": "its least margin, a fraction of its limit"}
+    )
+
+
+class BomEntrySchema(Schema):
+    item = fields.String(required=True)
+    kind = fields.String(required=True, metadata={"description": "resistor, or the part role (transistor, led, ...)"})
+    description = fields.String(required=True)
+    count = fields.Integer(required=True)
+    value_ohm = fields.Float(metadata={"description": "a resistor's standard value"})
+    series = fields.String(metadata={"description": "a resistor's standard series"})
+    tolerance = fields.Float(metadata={"description": "a resistor's tolerance, a fraction"})
+    dissipation_max_w = fields.Float(allow_none=True, metadata={"description": "a resistor's worst-case dissipation"})
+    rating_min_w = fields.Float(
+        allow_none=True,
+        metadata={"description": "smallest standard power rating that fits (null: none up to 5 W)"},
+    )
+    part_id = fields.String(allow_none=True, metadata={"description": "a part's id (null: given by its values)"})
+    revision = fields.Integer(allow_none=True)
+
+
+class BillOfMaterialsSchema(Schema):
+    channels = fields.Integer(required=True)
+    per_channel = fields.List(fields.Nested(BomEntrySchema), required=True)
+    whole_design = fields.List(
+        fields.Nested(BomEntrySchema),
+        required=True,
+        metadata={"description": "every channel's parts, the shared supply and the front stage's op-amp"},
+    )
 
 
 class ReviewSchema(Schema):
@@ -64,4 +99,6 @@ class ReviewSchema(Schema):
     yield_ = fields.Nested(YieldSchema, allow_none=True, required=True, attribute="yield", data_key="yield")
     warnings = fields.List(fields.String(), required=True)
     cautions = fields.List(fields.String(), required=True)
+    safety = safety_field()
+    bill_of_materials = fields.Nested(BillOfMaterialsSchema, required=True)
     fingerprint = fields.String(required=True)

@@ -17,7 +17,7 @@ from calcsvc.data.store import STATUSES
 from calcsvc.service.search.channel import CHANNEL_RANKINGS, YIELD_SHORTLIST
 from calcsvc.service.search.common import DEFAULT_STATUSES, PartFilter
 from calcsvc.service.search.select import DEFAULT_LIMIT
-from calcsvc.web.calc_schemas import PartUsedSchema, camel, input_field, request_schema
+from calcsvc.web.calc_schemas import PartUsedSchema, camel, input_field, request_schema, safety_field
 from calcsvc.web.quantity import Quantity
 from calcsvc.web.review_schemas import YieldSchema
 
@@ -253,6 +253,7 @@ class SelectionSchema(Schema):
     check_details = fields.Dict(keys=fields.String(), values=fields.String(), required=True)
     candidates = fields.List(fields.Nested(CandidateSchema), required=True)
     warnings = fields.List(fields.String(), required=True)
+    safety = safety_field()
 
 
 class DesignSchema(Schema):
@@ -285,3 +286,4 @@ class ChannelSelectionSchema(Schema):
     check_details = fields.Dict(keys=fields.String(), values=fields.String(), required=True)
     designs = fields.List(fields.Nested(DesignSchema), required=True)
     warnings = fields.List(fields.String(), required=True)
+    safety = safety_field()

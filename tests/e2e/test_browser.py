@@ -157,7 +157,61 @@ def test_demo_channel_review(tab: Any, served: tuple[str, dict[str, str]], tmp_p
     expected = requests.get(f"{base}/review/channel.json?{urlencode(DEMO_CHANNEL)}", timeout=10).json()
     assert verdict == expected["verdict"]
     assert tab.locator("table.checks tbody tr").count() == len(expected["checks"])
+    # What to build: every resistor's value and minimum wattage, with units, as the JSON has them.
+    bom = tab.locator(".bom-tables").inner_text()
+    for entry in expected["bill_of_materials"]["per_channel"]:
+        if entry["kind"] == "resistor":
+            assert f"{entry['value_ohm']:.6g} Ω" in bom and f"{entry['rating_min_w']:.6g} W" in bom
+    assert "300 Ω" in bom and "360 Ω" in bom
+    # Checks carry their units: the LED current in A, the headroom in V.
+    rows = {
+        row.locator("td").first.inner_text(): row.inner_text() for row in tab.locator("table.checks tbody tr").all()
+    }
+    assert " A" in rows["led_current_rating"] and " V" in rows["headroom"] and "%" in rows["headroom"]
+    # Cautions sit right under the verdict, before the bill of materials and the checks, with the safety line.
+    cautions = tab.locator("#cautions")
+    assert "Mains adapter" in cautions.inner_text() and "licensed practice" in cautions.inner_text()
+    heights = [
+        tab.locator(sel).bounding_box()["y"] for sel in ("#verdict", "#cautions", "#bom-heading", "table.checks")
+    ]
+    assert heights == sorted(heights)
+    # Every build passes, and the page still plots the distribution of the tightest check.
+    assert expected["yield"]["most_failing_check"] is None and expected["yield"]["tightest_check"]
+    assert tab.locator("#histogram").is_visible()
+    assert all(images_loaded(tab))
+    assert "licensed practice" in tab.locator("#safety-line").inner_text()
     shot(tab, tmp_path, "5-channel")
+
+
+def test_send_a_draft_back_with_a_reason(tab: Any, served: tuple[str, dict[str, str]], tmp_path: Path) -> None:
+    base, tokens = served
+    part = "led-red-5mm"
+    etag = requests.get(f"{base}/v1/parts/{part}", timeout=5).headers["ETag"]
+    current = requests.get(f"{base}/v1/parts/{part}", timeout=5).json()["parameters"]
+    edited = requests.put(
+        f"{base}/v1/parts/{part}",
+        json={"parameters": {**current, "vf_max_v": 2.3}},
+        headers={**bearer(tokens["edna"]), "If-Match": etag},
+        timeout=5,
+    )
+    assert edited.status_code == 200, edited.text
+    revision = edited.json()["revision"]
+    tab.goto(f"{base}/review/parts/{part}")
+    tab.get_by_label("Reason").fill("vf_max_v is the 10 mA figure; give the 20 mA one")
+    tab.get_by_label("Token of the reviewer sending it back").fill(tokens["rita"])
+    tab.get_by_role("button", name=f"Send revision {revision} back").click()
+    tab.wait_for_url(f"**/review/parts/{part}?returned={revision}")
+    assert tab.get_by_role("status").inner_text() == f"Revision {revision} sent back to edna."
+    assert tab.locator("#part-status").inner_text() == "draft"
+    # What the author sees when she opens the part: who sent it back and why, above everything else.
+    assert "vf_max_v is the 10 mA figure" in tab.locator(".sent-back").inner_text()
+    assert "Sent back by rita" in tab.locator(f"#revision-{revision}").inner_text()
+    shot(tab, tmp_path, "7-sent-back")
+    history = requests.get(f"{base}/v1/parts/{part}/revisions", timeout=5).json()["revisions"]
+    returned = [e for e in history[revision - 1]["events"] if e["action"] == "returned"]
+    assert [(e["actor"], e["reason"]) for e in returned] == [
+        ("rita", "vf_max_v is the 10 mA figure; give the 20 mA one")
+    ]
 
 
 def test_narrow_screen(browser: Any, served: tuple[str, dict[str, str]], tmp_path: Path) -> None:
@@ -171,6 +225,15 @@ def test_narrow_screen(browser: Any, served: tuple[str, dict[str, str]], tmp_pat
         overflow = page.evaluate("document.documentElement.scrollWidth - document.documentElement.clientWidth")
         assert overflow <= 0
         shot(page, tmp_path, "6-narrow")
+        # The channel result: its checks and bill of materials stack instead of scrolling sideways.
+        page.goto(f"{base}/review/channel?{urlencode(DEMO_CHANNEL)}")
+        overflow = page.evaluate("document.documentElement.scrollWidth - document.documentElement.clientWidth")
+        assert overflow <= 0
+        widest = page.eval_on_selector_all(
+            "table", "tables => Math.max(...tables.map(t => t.scrollWidth - t.clientWidth))"
+        )
+        assert widest <= 0
+        shot(page, tmp_path, "6-narrow-channel")
     finally:
         context.close()
 

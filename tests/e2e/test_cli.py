@@ -17,6 +17,7 @@ from sqlalchemy import text
 from calcsvc.cli import main
 from calcsvc.cli_remote import calc_body, calc_inputs
 from calcsvc.client import Client
+from calcsvc.service.safety import SAFETY_LINE
 
 pytest_plugins = ("live_server",)
 
@@ -230,6 +231,14 @@ def test_parts_list_and_show(seeded: Flask, live_url: str, tokens: dict[str, str
     out = capsys.readouterr().out
     assert re.search(r"if_max_a +0.025 +A\n", out)
     assert "if_max_a 0.03 -> 0.025" in out  # the history says what each revision changed
+    assert out.rstrip().endswith(SAFETY_LINE)
+    # A reviewer sends the draft back and comments; the author reads both in the history.
+    with Client(live_url, tokens["rita"]) as rita:
+        rita.send_back_part("led-red-5mm", rita.get_part("led-red-5mm")[1], "25 mA is the pulsed rating")
+        rita.comment_revision("led-red-5mm", 2, "the continuous one is 20 mA")
+    assert main(["parts", "show", "led-red-5mm", "--url", live_url]) == 0
+    out = capsys.readouterr().out
+    assert "sent back by rita: 25 mA is the pulsed rating; comment by rita: the continuous one is 20 mA" in out
     with Client(live_url, tokens["edna"]) as edna:
         edna.retire_part("led-red-5mm", edna.get_part("led-red-5mm")[1], reason="dimmer than its replacement")
     assert main(["parts", "show", "led-red-5mm", "--url", live_url]) == 0
@@ -253,8 +262,13 @@ def test_calc_prints_a_table_and_exits_0_when_every_check_passes(seeded: Flask, 
     assert main(["calc", "led-string", *LED_RED, "--current_a", "20 mA", "--url", live_url]) == 0
     out = capsys.readouterr().out
     assert "resistor_ohm" in out and " 300" in out  # (12 V - 3 x 2.1 V) / 20 mA = 285 ohm, up to E24 300 ohm
+    # Worst case with units: (12.6 V - 3 x 1.9 V) / (300 ohm x 0.95) = 24.2105 mA against the 30 mA rating.
     assert re.search(r"supply +supply-adapter-12v-2a +1 +approved", out)
-    assert "FAIL" not in out and re.search(r"OK +led_current_rating", out)
+    assert "FAIL" not in out and re.search(r"OK +led_current_rating +0\.0242105 A +0\.03 A", out)
+    # The verdict first, then the cautions with the standing safety line, and the whole fingerprint (as the API).
+    lines = out.splitlines()
+    assert lines[0] == "led-string: passes every check" and re.fullmatch(r"fingerprint [0-9a-f]{64}", lines[1])
+    assert lines[2] == "CAUTIONS:" and "Mains adapter" in lines[3] and lines[4] == f"  ! {SAFETY_LINE}"
 
 
 def test_calc_exits_1_and_says_why_when_a_check_fails(seeded: Flask, live_url: str, capsys: Any) -> None:
@@ -320,6 +334,30 @@ def test_a_token_made_by_the_command_line_writes_through_it(
     assert main(["parts", "import", str(path), "--url", live_url, "--token", token]) == 0
     with Client(live_url) as client:
         assert client.get_part("led-amber-3mm")[0]["updated_by"] == "tess"
+
+
+def test_token_list_shows_names_and_roles_never_tokens(
+    app: Flask, database_url: str, capsys: Any, monkeypatch: pytest.MonkeyPatch
+) -> None:
+    monkeypatch.setenv("DATABASE_URL", database_url)
+    assert main(["token", "create", "--name", "tess", "--role", "editor"]) == 0
+    assert main(["token", "create", "--name", "rhea", "--role", "reviewer"]) == 0
+    made = capsys.readouterr().out.split()
+    assert main(["token", "list"]) == 0
+    listed = capsys.readouterr()
+    assert re.search(r"^rhea +reviewer +\d{4}-\d\d-\d\d", listed.out, re.MULTILINE)
+    assert re.search(r"^tess +editor ", listed.out, re.MULTILINE)
+    assert not any(token in listed.out for token in made) and "2 token(s)" in listed.err
+
+
+def test_db_upgrade_says_whether_it_created_the_database(
+    tmp_path: Path, capsys: Any, monkeypatch: pytest.MonkeyPatch
+) -> None:
+    monkeypatch.setenv("DATABASE_URL", f"sqlite:///{tmp_path / 'new.sqlite'}")
+    assert main(["db", "upgrade"]) == 0
+    assert re.match(r"database created at schema \d{4} ", capsys.readouterr().out)
+    assert main(["db", "upgrade"]) == 0
+    assert re.match(r"database schema is current at \d{4} ", capsys.readouterr().out)
 
 
 def test_calc_options_come_from_the_declared_calculations(capsys: Any) -> None:

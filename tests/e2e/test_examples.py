@@ -36,6 +36,20 @@ def test_candidate_channels_through_the_batch_endpoint(live_url: str, seeded: An
     assert "driver_current" in rows["deep-red-3x1-350mA"]["failing_checks"]
 
 
+def test_the_batch_example_reads_calcsvc_url_and_says_when_nothing_answers(
+    live_url: str, seeded: Any, tmp_path: Path, monkeypatch: Any, capsys: Any
+) -> None:
+    results = tmp_path / "results.csv"
+    monkeypatch.setenv("CALCSVC_URL", live_url)
+    assert _channel_batch().main([str(EXAMPLES / "greenhouse-candidates.csv"), str(results)]) == 0
+    assert len(list(csv.DictReader(results.open()))) == 6
+    assert "licensed practice" in capsys.readouterr().out
+    monkeypatch.setenv("CALCSVC_URL", "http://127.0.0.1:1")  # nothing listens on port 1
+    assert _channel_batch().main([str(EXAMPLES / "greenhouse-candidates.csv"), str(tmp_path / "none.csv")]) == 1
+    err = capsys.readouterr().err
+    assert err.startswith("channel_batch: ") and "Traceback" not in err and len(err.splitlines()) == 1
+
+
 def test_readme_settings_table_is_the_one_the_settings_define() -> None:
     from calcsvc.config import settings_table
 

@@ -9,7 +9,7 @@ import pytest
 from flask.testing import FlaskClient
 from helpers import assert_problem, bearer
 
-ENVELOPE = {"calculation", "inputs", "parts", "results", "checks", "warnings", "cautions", "fingerprint"}
+ENVELOPE = {"calculation", "inputs", "parts", "results", "checks", "warnings", "cautions", "safety", "fingerprint"}
 
 BJT = {"collector_current_a": 0.04, "drive_high_v": 3.3}
 EXPLICIT_LED = {

@@ -182,7 +182,7 @@ def _call(case: Any, fuzz_target: dict[str, Any]) -> Any:
     headers = {}
     if case.method != "GET":
         # The editor writes and the reviewer approves, so approving someone else's revision can succeed.
-        role = "reviewer" if case.path.endswith("/approve") else "editor"
+        role = "reviewer" if case.path.endswith(("/approve", "/send-back")) else "editor"
         headers["Authorization"] = f"Bearer {fuzz_target['tokens'][role]}"
     SUMMARY.requests[backend] += 1
     SUMMARY.per_operation.setdefault(backend, Counter())[label] += 1

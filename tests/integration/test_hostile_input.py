@@ -106,7 +106,7 @@ def is_batch(operation: str) -> bool:
 
 def role_for(operation: str) -> str | None:
     if operation.startswith(("POST /v1/parts", "PUT /v1/parts", "DELETE /v1/parts")):
-        return "reviewer" if operation.endswith("/approve") else "editor"
+        return "reviewer" if operation.endswith(("/approve", "/send-back")) else "editor"
     if operation.startswith(("POST /v1/designs", "PUT /v1/designs", "DELETE /v1/designs")):
         return "editor"
     return None
@@ -118,8 +118,10 @@ def body_template(operation: str) -> Any:
         return {"part_id": "hostile-part", "kind": "bjt", "parameters": {"hfe_min": "@"}}
     if operation == "PUT /v1/parts/{part_id}":
         return {"parameters": {"hfe_min": "@"}}
-    if operation.startswith("DELETE /v1/parts") or operation.endswith("/restore"):
+    if operation.startswith("DELETE /v1/parts") or operation.endswith(("/restore", "/send-back")):
         return {"reason": "@"}
+    if operation.endswith("/comments"):
+        return {"comment": "@"}
     name = numeric_property(OPERATIONS[operation]) or "zzz_unknown"
     return [{name: "@"}] if is_batch(operation) else {name: "@"}
 

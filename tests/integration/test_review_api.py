@@ -180,6 +180,13 @@ def _numbers(text: str) -> list[float]:
     return [float(x) for x in re.findall(r"-?\d+(?:\.\d+)?(?:e[+-]?\d+)?", text)]
 
 
+def _with_unit(cell: str, unit: str) -> float:
+    """A report cell's number, which must carry the check's unit."""
+    number, _, shown = cell.partition(" ")
+    assert shown == unit, cell
+    return float(number)
+
+
 def test_markdown_report_agrees_with_the_json(client: FlaskClient, seeded: Any) -> None:
     data = review(client, DEMO)
     response = client.post("/v1/review/channel", json=DEMO, headers={"Accept": "text/markdown"})
@@ -187,11 +194,15 @@ def test_markdown_report_agrees_with_the_json(client: FlaskClient, seeded: Any) 
     report = response.get_data(as_text=True)
     assert report.startswith("# Channel review: PASS") and data["fingerprint"] in report
     rows = {line.split("|")[1].strip(): line for line in report.splitlines() if line.startswith("| ")}
+    units = {"led_current_rating": "A", "headroom": "V", "resistor_rating": "W", "driver_current": "A",
+             "signal_in_band": "Hz", "slew_rate": "V/s", "saturation": ""}  # fmt: skip
     for check in data["checks"]:
         cells = [cell.strip() for cell in rows[check["name"]].split("|")[1:-1]]
-        assert float(cells[2]) == pytest.approx(check["value"], rel=1e-5)
-        assert float(cells[3]) == pytest.approx(check["limit"], rel=1e-5)
-        assert float(cells[5]) == pytest.approx(check["worst_case"]["value"], rel=1e-5)
+        unit = units.get(check["name"], cells[2].partition(" ")[2])
+        assert _with_unit(cells[2], unit) == pytest.approx(check["value"], rel=1e-5)
+        assert _with_unit(cells[3], unit) == pytest.approx(check["limit"], rel=1e-5)
+        assert cells[4] == f"{check['margin'] * 100:.3g} %"
+        assert _with_unit(cells[5], unit) == pytest.approx(check["worst_case"]["value"], rel=1e-5)
         assert cells[-1] == ("pass" if check["ok"] else "FAIL")
     for name, value in data["inputs"].items():
         if isinstance(value, int | float):
@@ -214,7 +225,22 @@ def test_yield_histogram_of_the_most_failing_check(client: FlaskClient) -> None:
     assert png.status_code == 200 and png.mimetype == "image/png" and png.data.startswith(b"\x89PNG")
     svg = client.post("/v1/review/channel/histogram.svg", json=weak)
     assert svg.mimetype == "image/svg+xml" and b"saturation" in svg.data
-    assert_problem(client.post("/v1/review/channel/histogram.svg", json=EXPLICIT), 422, "samples")
+
+
+def test_a_passing_design_plots_its_tightest_check_or_the_one_asked_for(client: FlaskClient) -> None:
+    data = review(client, EXPLICIT)
+    tightest = data["yield"]["tightest_check"]
+    assert data["yield"]["most_failing_check"] is None and tightest is not None
+    # Every build passes; the builds stay inside the corners' box, so no build comes closer than the worst corner.
+    worst = {c["name"]: c["worst_case"]["margin"] for c in data["checks"]}
+    assert worst[tightest] - 1e-12 <= data["yield"]["least_margin"] and data["yield"]["least_margin"] > 0
+    svg = client.post("/v1/review/channel/histogram.svg", json=EXPLICIT)
+    assert svg.status_code == 200 and f"{tightest}: 2000 of 2000 samples".encode() in svg.data
+    headroom = client.post("/v1/review/channel/histogram.svg?check=headroom", json=EXPLICIT)
+    assert headroom.status_code == 200 and b"headroom (value / its limit): 2000 of 2000" in headroom.data
+    assert_problem(client.post("/v1/review/channel/histogram.svg?check=nothing", json=EXPLICIT), 422, "check")
+    # No op-amp in this design: its checks do not apply, so there is nothing to plot for them.
+    assert_problem(client.post("/v1/review/channel/histogram.svg?check=slew_rate", json=EXPLICIT), 422, "check")
 
 
 def test_darlington_channel_asks_the_pin_for_a_fraction_of_a_milliamp(client: FlaskClient, seeded: Any) -> None:
@@ -240,3 +266,53 @@ def test_heat_plot_draws_each_parts_temperature_against_ambient(client: FlaskCli
     assert marked["led_limit_c"] == 100.0 - 20.0 and marked["transistor_limit_c"] == 150.0 - 20.0
     svg = client.post("/v1/review/channel/heat.svg", json=body)
     assert svg.mimetype == "image/svg+xml" and b"LED junction" in svg.data
+
+
+def _bom_rows(report: str, title: str) -> list[list[str]]:
+    """The rows of one bill-of-materials table of the Markdown report, as cells."""
+    section = report[report.index(f"### {title}") :].split("\n\n")[1]
+    return [[cell.strip() for cell in line.split("|")[1:-1]] for line in section.splitlines()[2:]]
+
+
+@pytest.mark.parametrize("accept", ["text/markdown", "text/html"])
+def test_every_bill_of_materials_value_in_the_reports_equals_the_json(
+    client: FlaskClient, seeded: Any, accept: str
+) -> None:
+    data = review(client, {**DEMO, "samples": 0})
+    bom = data["bill_of_materials"]
+    # (12.6 - 3 x 1.9 - 0.25) V across 300 ohm x 0.95 at worst: 0.155 W, doubled (common practice) 0.31 W -> 0.5 W.
+    led = bom["per_channel"][0]
+    assert (led["value_ohm"], led["count"], led["series"], led["tolerance"]) == (300.0, 2, "E24", 0.05)
+    assert led["dissipation_max_w"] == pytest.approx(6.65**2 / 285) and led["rating_min_w"] == 0.5
+    assert led["rating_min_w"] == data["stages"]["led_string"]["resistor_rating_w"]
+    # The base resistor at the pin's stress corner: P = I^2 R (Joule) with R at its low end, 0.0198 W -> 0.125 W.
+    base = bom["per_channel"][1]
+    switch = data["stages"]["switch"]
+    assert base["value_ohm"] == switch["rb_ohm"] == 360.0
+    assert base["dissipation_max_w"] == pytest.approx(switch["drive_current_max_a"] ** 2 * 360 * 0.95)
+    assert base["rating_min_w"] == 0.125
+    whole = {entry["item"]: entry["count"] for entry in bom["whole_design"]}
+    assert whole == {"led_resistor": 12, "base_resistor": 6, "switch_transistor": 6, "led": 36, "supply": 1,
+                     "front_stage_opamp": 1}  # fmt: skip
+
+    markdown = client.post("/v1/review/channel", json={**DEMO, "samples": 0}, headers={"Accept": "text/markdown"})
+    report = markdown.get_data(as_text=True)
+    if accept == "text/html":
+        html = client.post("/v1/review/channel", json={**DEMO, "samples": 0}, headers={"Accept": accept})
+        page = html.get_data(as_text=True)
+        cells = re.findall(r"<td data-label='[^']*'>([^<]*)</td>", page)
+    for title, entries in (("Per channel", bom["per_channel"]), ("Whole design", bom["whole_design"])):
+        rows = _bom_rows(report, title)
+        assert len(rows) == len(entries)
+        for row, entry in zip(rows, entries, strict=True):
+            assert int(row[1]) == entry["count"]
+            if entry["kind"] == "resistor":
+                assert row[2] == f"{entry['value_ohm']:.6g} Ω" and row[4] == f"{entry['rating_min_w']:.6g} W"
+                assert row[3] == f"{entry['series']}, ±{entry['tolerance'] * 100:.3g} %"
+            else:
+                assert row[5] == f"{entry['part_id']} r{entry['revision']}"
+            if accept == "text/html":
+                assert all(cell in cells for cell in row)
+    # Cautions first: right under the verdict, with the safety line, before the bill of materials.
+    assert report.index("## Cautions") < report.index("## Bill of materials") < report.index("## Checks")
+    assert report.index(data["cautions"][0]) < report.index(data["safety"]) < report.index("## Bill of materials")

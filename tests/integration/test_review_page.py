@@ -151,7 +151,8 @@ def test_opamp_page_shows_its_plots_pinned_to_the_revision(client: FlaskClient, 
     assert len(parsed.images) == 2
     closed_loop, slew = parsed.images
     assert closed_loop.startswith("/v1/plots/closed-loop.svg?") and "opamp_revision=1" in closed_loop
-    assert "gain=10" in closed_loop
+    # At the demo channel's operating point: its preamp's gain 20, 2 V peak at 1 kHz.
+    assert "gain=20" in closed_loop and "amplitude_v=2.0" in slew and "frequency_hz=1000.0" in slew
     assert slew.startswith("/v1/plots/slew-limit.svg?") and "supply_v=12.0" in slew
     for url in parsed.images:
         response = client.get(url.replace("&amp;", "&"))
@@ -227,6 +228,36 @@ def test_approval_refusals_show_on_the_page(
     assert status_of(client, OPAMP_ID) == "draft"
 
 
+def send_back(client: FlaskClient, part_id: str, token: str, reason: str) -> Any:
+    """Post the part page's send-back form as a browser would."""
+    _, parsed = page(client, f"/review/parts/{part_id}")
+    return client.post(f"/review/parts/{part_id}/send-back", data={**parsed.hidden, "token": token, "reason": reason})
+
+
+def test_a_reviewer_sends_a_draft_back_from_the_page_and_the_author_sees_why(
+    client: FlaskClient, seeded: Any, tokens: dict[str, str]
+) -> None:
+    edit(client, tokens["edna"], OPAMP_ID, OPAMP_PARAMETERS)
+    response = send_back(client, OPAMP_ID, tokens["rita"], "gbw_hz: the datasheet gives 1.2 MHz <typ>")
+    assert response.status_code == 303 and response.headers["Location"].endswith("?returned=2")
+    html, parsed = page(client, response.headers["Location"])
+    assert "Revision 2 sent back to edna." in html and parsed.text["part-status"] == "draft"
+    assert "Sent back</strong> by rita" in html and "gbw_hz: the datasheet gives 1.2 MHz &lt;typ&gt;" in html
+    revision_2 = html[html.index('id="revision-2"') : html.index('id="revision-1"')]
+    assert "Sent back by rita" in revision_2
+    listed, _ = page(client, "/review/")
+    assert "sent back by rita: gbw_hz: the datasheet gives 1.2 MHz &lt;typ&gt;" in listed  # in the drafts list too
+    events = client.get(f"/v1/parts/{OPAMP_ID}/revisions").get_json()["revisions"][1]["events"]
+    assert [(e["action"], e["reason"]) for e in events][-1] == ("returned", "gbw_hz: the datasheet gives 1.2 MHz <typ>")
+    for who, reason, status, message in (
+        ("edna", "why", 403, "sending a draft back needs a reviewer"),
+        ("rita", "  ", 422, "Say why the draft goes back"),
+    ):
+        refused = send_back(client, OPAMP_ID, tokens[who], reason)
+        assert refused.status_code == status and message in refused.get_data(as_text=True)
+    assert status_of(client, OPAMP_ID) == "draft"
+
+
 def test_author_cannot_approve_their_own_revision(client: FlaskClient, seeded: Any, tokens: dict[str, str]) -> None:
     edit(client, tokens["rita"], OPAMP_ID, OPAMP_PARAMETERS)  # a reviewer may edit, but not approve her edit
     response = approve(client, OPAMP_ID, tokens["rita"])
@@ -295,7 +326,7 @@ def test_demo_channel_review_shows_the_verdict_checks_and_report(app: Flask, cli
     html, parsed = page(client, "/review/channel?" + urlencode(DEMO_CHANNEL))
     expected = run_review(app.extensions["calcsvc.db"], channel_body(DEMO_CHANNEL))
     assert parsed.text["verdict"] == expected["verdict"]
-    assert "<table class='checks'>" in html and '<pre class="report"># Channel review:' in html
+    assert "<table class='checks stack'>" in html and '<pre class="report"># Channel review:' in html
     assert all(check["name"] in html for check in expected["checks"])
     json_url = re.search(r'<a href="([^"]+)">This review as JSON</a>', html)
     assert json_url is not None
@@ -480,3 +511,16 @@ def test_a_retirement_and_its_reason_are_in_the_page_history(
     assert "Retired by edna on " in html and ": no longer stocked" in html
     assert "may restore it as a new draft revision" in html
     assert client.get("/review/parts/opamp-general-1mhz%0A").status_code == 404
+
+
+def test_a_high_power_leds_plot_shows_the_heat_cautions_of_its_operating_point(
+    client: FlaskClient, seeded: Any
+) -> None:
+    html, parsed = page(client, "/review/parts/led-deep-red-grow-1w")
+    assert len(parsed.images) == 1 and "current_a=0.35" in parsed.images[0]
+    cautions = html[html.index('class="caution plot-cautions"') :]
+    # At 350 mA the string resistor dissipates watts: the calculation's heat cautions sit under its plot.
+    assert "runs hot" in cautions and "High-power LEDs" in cautions and "Mains adapter" in cautions
+    # A supply part's page states the standing cautions every design on it carries.
+    supply_page, _ = page(client, "/review/parts/supply-battery-9v-6aa")
+    assert "never recharge primary" in supply_page and 'id="standing-cautions"' in supply_page

@@ -19,6 +19,7 @@ from calcsvc.data.store import PartStore, PartView
 from calcsvc.service.envelope import to_json_value
 from calcsvc.service.errors import InvalidInput, ServiceError, TooLarge, UnknownPart, WrongPartKind
 from calcsvc.service.resolve import PartResolver, resolve
+from calcsvc.service.safety import supply_cautions
 from calcsvc.service.search.channel import YIELD_SHORTLIST, combinations, search_channel
 from calcsvc.service.search.common import IMPOSSIBLE, IMPOSSIBLE_DETAIL, PartFilter, choose
 from calcsvc.service.search.ranking import Ranking
@@ -170,10 +171,13 @@ def run_select(
     _bound(len(parts), "candidates", max_combinations)
     search = search_role(calc, fixed.values, role, parts, [r.requirement for r in required], ranking)
     pinned = {k: to_json_value(v) for k, v in {**given, **_pins(fixed.parts)}.items()}
+    by_id = {part.part_id: part for part in parts}
     candidates = []
     for row in search.rows:
         entry = search.entry(int(row))
         entry["request"] = {**pinned, role.name: entry["part_id"], f"{role.name}_revision": entry["revision"]}
+        searched = supply_cautions(by_id[entry["part_id"]].parameters) if role.kind == "supply" else []
+        entry["cautions"] = list(dict.fromkeys(entry["cautions"] + fixed.cautions + searched))
         candidates.append(entry)
     main = search.evaluations[0]
     document = {
@@ -244,6 +248,8 @@ def run_channel_select(database: Database, body: dict[str, Any], max_combination
         entry = search.entry(int(row))
         entry["parts"] = sorted(fixed.parts + entry["parts"], key=lambda p: ROLE_ORDER[p["role"]])
         entry["request"] = {**pinned, **_pins(entry["parts"])}
+        searched_supply = [p.parameters for p in search.parts_of(int(row)) if p.kind == "supply"]
+        entry["cautions"] += fixed.cautions + [c for supply in searched_supply for c in supply_cautions(supply)]
         designs.append(entry)
     details = {c.name: c.detail for c in search.worst.nominal.checks} if search.worst else {}
     document = {

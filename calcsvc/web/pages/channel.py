@@ -1,5 +1,6 @@
 """``/review/channel``: the whole-channel review as a form, starting with the greenhouse demo channel, and its
-answer as a page or JSON (rules: calcsvc.web.pages.common)."""
+answer as a page (verdict, cautions, bill of materials, the Monte Carlo histogram and the stages' plots, checks)
+or JSON (rules: calcsvc.web.pages.common)."""
 
 from __future__ import annotations
 
@@ -18,14 +19,22 @@ from calcsvc.data.store import PartStore, PartView
 from calcsvc.service.demo import demo_channel
 from calcsvc.service.errors import ServiceError
 from calcsvc.service.parts import part_id_field
-from calcsvc.service.review import run_review
+from calcsvc.service.review import distribution, run_review
 from calcsvc.units import VOLTAGE_RATIO
 from calcsvc.web.auth import database
+from calcsvc.web.images import check_histogram, image_response
 from calcsvc.web.metrics import record_calculation
 from calcsvc.web.pages.common import bp, shown
 from calcsvc.web.problems import Problem, service_problem
 from calcsvc.web.quantity import Quantity
-from calcsvc.web.review_report import heat_line, number, render_markdown, render_table_html
+from calcsvc.web.review_report import (
+    heat_line,
+    number,
+    render_bom_html,
+    render_cautions_html,
+    render_markdown,
+    render_table_html,
+)
 
 # What a value of the channel form may hold: printable ASCII and the unit symbols, 80 characters at most
 # (no control characters or NUL, which PostgreSQL refuses, and nothing worth parsing at length).
@@ -126,6 +135,42 @@ def _options(store: PartStore) -> dict[str, list[PartView]]:
     return options
 
 
+def stage_plots(review: dict[str, Any]) -> list[tuple[str, str]]:
+    """(title, SVG address) of each stage's plot at the reviewed design, drawn from its pinned parts."""
+    given = review["inputs"]
+    pins = {p["role"]: p for p in review["parts"]}
+
+    def pinned(*roles: str) -> dict[str, Any]:
+        found = {}
+        for role in roles:
+            if role in pins:
+                found.update({role: pins[role]["part_id"], f"{role}_revision": pins[role]["revision"]})
+        return found
+
+    on_supply = {"supply_v": given["supply_v"], "supply_tolerance": given.get("supply_tolerance", 0.0)}
+    led = {
+        **(pinned("supply") or on_supply),
+        **pinned("led", "transistor"),
+        **{k: given[k] for k in ("leds_in_series", "strings", "current_a", "e_series")},
+    }
+    if "led" not in pins:
+        led.update({k: given[k] for k in ("vf_typ_v", "vf_min_v", "vf_max_v", "if_max_a")})
+    plots = [("LED string current against supply voltage", url_for("plots.led-string-svg", **led))]
+    if review["stages"]["front_stage"] is not None and "opamp" in pins:
+        opamp = {**pinned("opamp"), "gain": given["gain"], "configuration": given["configuration"]}
+        plots.append(
+            ("Front stage: gain and phase", url_for("plots.closed-loop-svg", **opamp, signal_hz=given["signal_hz"]))
+        )
+        slew = {
+            **pinned("opamp"),
+            "supply_v": given["supply_v"],
+            "frequency_hz": given["signal_hz"],
+            "amplitude_v": given["amplitude_v"],
+        }
+        plots.append(("Front stage: slew and swing limits", url_for("plots.slew-limit-svg", **slew)))
+    return plots
+
+
 def _reviewed(body: dict[str, Any]) -> dict[str, Any]:
     review = run_review(database(), body)
     record_calculation(channel_review.NAME, 1)
@@ -157,7 +202,11 @@ def channel() -> Response:
         roles=CHANNEL_ROLES,
         fields=CHANNEL_FIELDS,
         review=review,
-        checks_table=Markup(render_table_html(review)) if review else None,  # the report's table, escaped there
+        checks_table=Markup(render_table_html(review)) if review else None,  # the report's tables, escaped there
+        bom=Markup(render_bom_html(review)) if review else None,
+        cautions=Markup(render_cautions_html(review)) if review else None,
+        histogram_url=url_for(".channel_histogram", **query) if review and review["yield"] else None,
+        plots=stage_plots(review) if review else [],
         report=render_markdown(review) if review else None,
         heat=heat_line(review) if review else None,
         number=number,
@@ -166,6 +215,14 @@ def channel() -> Response:
         json_url=url_for(".channel_json", **query) if review else None,
     )
     return Response(page, status=status)
+
+
+@bp.get("/channel/histogram.svg")
+def channel_histogram() -> Response:
+    """The form's channel's Monte Carlo histogram (its tightest or most failing check), for the result page."""
+    found = distribution(database(), channel_body(request.args))
+    record_calculation(channel_review.NAME, 1)
+    return image_response(check_histogram(found, "svg"))
 
 
 @bp.get("/channel.json")

@@ -21,6 +21,7 @@ from flask import Blueprint, Response, current_app, g, render_template, request
 
 from calcsvc.data.kinds import Param
 from calcsvc.data.part_ids import is_part_id
+from calcsvc.service.safety import SAFETY_LINE
 from calcsvc.units import VOLTAGE_RATIO
 from calcsvc.web.plots import eng
 
@@ -85,6 +86,12 @@ def value_text(param: Param | None, value: Any) -> str:
     if param.unit == "dimensionless":
         return f"{value:g}"
     return eng(float(value), param.unit)
+
+
+@bp.app_context_processor
+def safety_line() -> dict[str, str]:
+    """Every page's footer carries the standing safety line."""
+    return {"safety_line": SAFETY_LINE}
 
 
 @bp.app_template_filter("when")

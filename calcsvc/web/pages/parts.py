@@ -1,26 +1,34 @@
-"""``/review/`` and ``/review/parts/<part_id>``: the parts table for review, one part with its history and plots,
-and approving a revision with a reviewer's token (rules: calcsvc.web.pages.common)."""
+"""``/review/`` and ``/review/parts/<part_id>``: the parts table for review, one part with its history and plots
+(each with the cautions of its operating point), and approving a revision or sending a draft back to its author
+with a reason, with a reviewer's token (rules: calcsvc.web.pages.common)."""
 
 from __future__ import annotations
 
+from collections.abc import Callable
 from dataclasses import dataclass
 from typing import Any
 
 from flask import Response, redirect, render_template, request, url_for
+from sqlalchemy.orm import Session
 
 from calcsvc.core import led_string
 from calcsvc.core.outcome import DomainError
+from calcsvc.core.registry import CALCULATIONS
 from calcsvc.data.kinds import KINDS, params_of
 from calcsvc.data.part_history import RevisionView
 from calcsvc.data.part_ids import is_part_id
+from calcsvc.data.review_notes import MAX_NOTE_LENGTH, returns, send_back
 from calcsvc.data.store import STATUSES, PartStore, PartView
-from calcsvc.data.store_errors import PartNotFound, PartRetired, SelfApproval, StaleRevision
+from calcsvc.data.store_errors import NotADraft, PartNotFound, PartRetired, SelfApproval, StaleRevision
 from calcsvc.data.tokens import identify
+from calcsvc.service.calculate import run_calculation
 from calcsvc.service.curves import core_inputs
+from calcsvc.service.demo import demo_si
 from calcsvc.service.errors import ServiceError
 from calcsvc.service.parts import MAX_REVISION
+from calcsvc.service.safety import supply_cautions
 from calcsvc.web.auth import database
-from calcsvc.web.images import PANELS, endpoint
+from calcsvc.web.images import PANELS, PLOT_CALCULATIONS, endpoint
 from calcsvc.web.metrics import record_calculation, record_parts_write
 from calcsvc.web.pages.common import (
     CSRF_FIELD,
@@ -38,11 +46,12 @@ from calcsvc.web.pages.common import (
 )
 from calcsvc.web.plots import eng, size_px, unit_symbol
 
-# Plots on a part's page, at the demo's operating points: a sensor preamp of gain 10 giving 1 V peak at 1 kHz,
-# LED strings on the 12 V adapter.
-OPAMP_GAIN = 10
-PREAMP_SIGNAL_HZ = 1000.0
-PREAMP_AMPLITUDE_V = 1.0
+# Plots on a part's page, at the demo channel's operating points (calcsvc.service.demo): its sensor preamp's gain,
+# frequency and peak amplitude, LED strings on the 12 V adapter.
+_DEMO = demo_si()
+OPAMP_GAIN = _DEMO["gain"]
+PREAMP_SIGNAL_HZ = _DEMO["signal_hz"]
+PREAMP_AMPLITUDE_V = _DEMO["amplitude_v"]
 LED_SUPPLY_V = 12.0
 LED_SUPPLY_TOLERANCE = 0.05  # a regulated adapter, when the table has none of 12 V (common practice)
 LEDS_IN_SERIES = (3, 1)  # three in series when they fit on the supply, else one
@@ -64,6 +73,7 @@ class PlotLink:
     png: str
     width: int
     height: int
+    cautions: tuple[str, ...]  # what the calculation at the plotted point cautions about (heat, ratings, supply)
 
 
 # --- the parts list -------------------------------------------------------------------------------------------
@@ -89,6 +99,7 @@ def parts_list() -> Response:
         store = PartStore(session)
         parts, total = store.list(kind, status, start, PAGE_SIZE)
         drafts, draft_total = store.list(None, "draft", 0, DRAFTS_SHOWN)
+        sent_back = returns(session, [(d.part_id, d.revision) for d in drafts])
     page = render_template(
         "review/parts.html",
         parts=parts,
@@ -97,6 +108,7 @@ def parts_list() -> Response:
         page_size=PAGE_SIZE,
         drafts=drafts,
         draft_total=draft_total,
+        sent_back=sent_back,
         kinds=list(KINDS),
         statuses=STATUSES,
         kind=kind,
@@ -136,12 +148,23 @@ def _fits(body: dict[str, Any]) -> bool:
     return all(bool(check.ok[0]) for check in outcome.checks if check.name == "headroom")
 
 
+def _cautions_at(name: str, query: dict[str, Any]) -> tuple[str, ...]:
+    """The cautions of the calculation plot ``name`` draws, at its operating point (none when it refuses it)."""
+    try:
+        calculation = PLOT_CALCULATIONS[name]
+        answer = run_calculation(database(), CALCULATIONS[calculation], query)
+    except (DomainError, ServiceError):
+        return ()
+    record_calculation(calculation, 1)
+    return tuple(answer["cautions"])
+
+
 def part_plots(part: PartView, supply: PartView | None) -> list[PlotLink]:
     """The plots that apply to the part's kind, drawn from this revision of it."""
 
     def link(name: str, title: str, alt: str, query: dict[str, Any]) -> PlotLink:
         svg, png = (url_for(f"plots.{endpoint(name, fmt)}", **query) for fmt in ("svg", "png"))
-        return PlotLink(title, alt, svg, png, *size_px(PANELS.get(name, 1)))
+        return PlotLink(title, alt, svg, png, *size_px(PANELS.get(name, 1)), _cautions_at(name, query))
 
     p = part.parameters
     if part.kind == "opamp":
@@ -206,6 +229,12 @@ def _part_page(part_id: str, status: int = 200, error: str | None = None) -> Res
         (revision, differences(revisions[k - 1], revision) if k else None) for k, revision in enumerate(revisions)
     ]
     approved = whole_number(request.args.get("approved"), 1, MAX_REVISION)
+    returned = whole_number(request.args.get("returned"), 1, MAX_REVISION)
+    current = history[-1][0]
+    sent_back = [e for e in current.events if e.action == "returned"] if part.status == "draft" else []
+    notice = f"Revision {approved} approved." if approved and approved == part.revision and not error else None
+    if returned and returned == part.revision and sent_back and not error:
+        notice = f"Revision {returned} sent back to {current.author}."
     page = render_template(
         "review/part.html",
         part=part,
@@ -213,7 +242,11 @@ def _part_page(part_id: str, status: int = 200, error: str | None = None) -> Res
         history=list(reversed(history)),
         plots=part_plots(part, supply),
         error=error,
-        notice=f"Revision {approved} approved." if approved and approved == part.revision and not error else None,
+        notice=notice,
+        sent_back=sent_back,
+        standing=supply_cautions(part.parameters) if part.kind == "supply" else [],
+        max_note=MAX_NOTE_LENGTH,
+        event_words={"returned": "Sent back", "commented": "Comment"},
         csrf=csrf_token(),
         csrf_field=CSRF_FIELD,
         value_text=value_text,
@@ -227,31 +260,69 @@ def part_page(part_id: str) -> Response:
     return _part_page(part_id)
 
 
-def _approve(part_id: str) -> None:
-    """Approve the revision the form names, as the holder of the form's token; a PageError says why not."""
+def _as_reviewer(part_id: str, doing: tuple[str, str], act: Callable[[Session, str, int], object]) -> int:
+    """Run ``act(session, reviewer, revision)`` for the revision the form names, as the holder of the form's
+    token, who must be a reviewer; a PageError says why not. ``doing``: the action as a verb and as a gerund.
+    Returns the revision."""
+    verb, gerund = doing
     if not csrf_valid():
         raise PageError(400, "This form has expired or did not come from this page: reload the page and try again.")
     token = request.form.get("token", "").strip()
     if not token:
-        raise PageError(401, "Paste your reviewer token to approve.")
+        raise PageError(401, f"Paste your reviewer token to {verb}.")
     revision = whole_number(request.form.get("revision"), 1, MAX_REVISION)
     if revision is None:
-        raise PageError(400, "The form did not say which revision to approve: reload the page.")
+        raise PageError(400, f"The form did not say which revision to {verb}: reload the page.")
     try:
         with database().transaction() as session:
             identity = identify(session, token)
             if identity is None:
                 raise PageError(401, "That token is not valid (revoked or mistyped).")
             if not identity.may("reviewer"):
-                raise PageError(403, f"Token '{identity.name}' is an {identity.role}'s; approving needs a reviewer.")
-            PartStore(session).approve(part_id, revision, identity.name)
+                raise PageError(403, f"Token '{identity.name}' is an {identity.role}'s; {gerund} needs a reviewer.")
+            act(session, identity.name, revision)
     except SelfApproval as exc:
         raise PageError(403, f"{exc}: another reviewer must approve it.") from exc
     except StaleRevision as exc:
         raise PageError(412, f"{exc}: someone changed the part since you loaded the page; review it again.") from exc
-    except PartRetired as exc:
+    except (PartRetired, NotADraft) as exc:
         raise PageError(409, str(exc)) from exc
+    return revision
+
+
+def _approve(part_id: str) -> None:
+    """Approve the revision the form names; a PageError says why not."""
+    _as_reviewer(
+        part_id,
+        ("approve", "approving"),
+        lambda session, who, revision: PartStore(session).approve(part_id, revision, who),
+    )
     record_parts_write("approve")
+
+
+def _send_back(part_id: str) -> int:
+    """Send the draft the form names back to its author with the form's reason; a PageError says why not."""
+    reason = request.form.get("reason", "").strip()
+    if not reason or len(reason) > MAX_NOTE_LENGTH or "\x00" in reason:
+        raise PageError(422, f"Say why the draft goes back: 1 to {MAX_NOTE_LENGTH} characters.")
+    revision = _as_reviewer(
+        part_id,
+        ("send a draft back", "sending a draft back"),
+        lambda session, who, revision: send_back(session, part_id, revision, who, reason),
+    )
+    record_parts_write("send_back")
+    return revision
+
+
+@bp.post("/parts/<string:part_id>/send-back")
+def send_back_page(part_id: str) -> Response:
+    try:
+        revision = _send_back(part_id)
+    except PartNotFound:
+        return error_page(404, f"There is no part '{part_id}'.")
+    except PageError as refusal:
+        return _part_page(part_id, refusal.status, refusal.message)
+    return redirect(url_for(".part_page", part_id=part_id, returned=revision), 303)
 
 
 @bp.post("/parts/<string:part_id>/approve")

@@ -23,7 +23,7 @@ from calcsvc.core.eseries import (
 
 # Reference tables: IEC 60063:2015, "Preferred number series for resistors and capacitors", tables of the
 # E6 … E192 series — written out here FROM MEMORY (the standard's text was not at hand), as decimal
-# strings so that they are an independent transcription of the module's float tuples.
+# strings so that they are an independent copy of the module's float tuples.
 IEC_60063 = {
     "E6": "1.0 1.5 2.2 3.3 4.7 6.8",
     "E12": "1.0 1.2 1.5 1.8 2.2 2.7 3.3 3.9 4.7 5.6 6.8 8.2",

@@ -116,3 +116,21 @@ def test_one_reel_runs_repeat_with_the_seed() -> None:
 def test_forward_voltage_model_refusals_name_the_field(model: str, width: float) -> None:
     field = "vf_model" if model == "mixed" else "vf_bin_width_v"
     assert [v.field for v in validate_monte_carlo(marginal(), 100, 0, model, width)] == [field]
+
+
+def test_the_tightest_check_is_the_one_that_came_closest_to_failing() -> None:
+    # Only the LEDs vary (1.8-2.2 V each, so every build passes): the headroom, the voltage across the resistor
+    # against 10 % of 13 V, tightens as a string's forward voltage grows. Its least margin over the builds is
+    # recomputed here from the kept per-build values, (value - limit) / limit at the smallest.
+    inputs = marginal(vf_min_v=1.8, vf_max_v=2.2)
+    found = monte_carlo(inputs, 2_000, seed=3, vf_model="independent")
+    assert found.most_failing_check is None and found.most_failing_values is None
+    assert found.tightest_check == min(found.least_margins, key=lambda name: found.least_margins[name])
+    assert found.plotted_check == found.tightest_check and found.plotted_values is not None
+    asked = monte_carlo(inputs, 2_000, seed=3, vf_model="independent", plot="headroom")
+    assert asked.plotted_check == "headroom" and asked.plotted_values is not None and asked.plotted_limits is not None
+    independent = float(np.min((asked.plotted_values - asked.plotted_limits) / asked.plotted_limits))
+    assert asked.least_margins["headroom"] == pytest.approx(independent)
+    assert 0.0 < independent < (13 - 0.2 - 5 * 1.8 - 1.3) / 1.3  # within the range the LEDs allow
+    with pytest.raises(ValueError, match="no check named"):
+        monte_carlo(inputs, 100, seed=3, plot="not_a_check")
