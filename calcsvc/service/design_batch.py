@@ -55,12 +55,13 @@ def _identity(calculation: str) -> tuple[str, str]:
     return CALCULATIONS[calculation].name, CALCULATIONS[calculation].version
 
 
-def _resolved(request: Request, resolver: PartResolver) -> tuple[dict[str, Any], list[dict[str, Any]]]:
+def _resolved(request: Request, resolver: PartResolver) -> tuple[dict[str, Any], list[dict[str, Any]], list[str]]:
+    """Completed values, the parts used and their standing cautions (a supply's kind)."""
     form = form_of(request.calculation)
     found = resolve(form.roles, request.body, resolver)
     if request.calculation == CHANNEL:
         found = without_band(request.body, found)
-    return complete(form, found.values), found.parts
+    return complete(form, found.values), found.parts, found.cautions
 
 
 def _rows_of_checks(names: list[str], applies: list[Any], numbers: list[tuple[Any, Any, Any, Any]]) -> list[Any]:
@@ -135,21 +136,22 @@ def review_many(session: Session, requests: list[Request]) -> list[dict[str, Any
     }
     resolver = PartResolver(session, dict(revisions_of(session, keys)))
     results: list[dict[str, Any] | None] = [None] * len(requests)
-    groups: dict[str, list[tuple[int, dict[str, Any], list[dict[str, Any]]]]] = {}
+    groups: dict[str, list[tuple[int, dict[str, Any], list[dict[str, Any]], list[str]]]] = {}
     for index, request in enumerate(requests):
         try:
-            values, parts = _resolved(request, resolver)
+            values, parts, cautions = _resolved(request, resolver)
         except ServiceError as exc:
             results[index] = refused(exc.detail, exc.errors)
             continue
-        groups.setdefault(request.calculation, []).append((index, values, parts))
+        groups.setdefault(request.calculation, []).append((index, values, parts, cautions))
     for calculation, members in groups.items():
-        rows = [values for _, values, _ in members]
+        rows = [values for _, values, _, _ in members]
         found = _channel_summaries(rows) if calculation == CHANNEL else _calculation_summaries(calculation, rows)
         name, version = _identity(calculation)
-        for (index, values, parts), result in zip(members, found, strict=True):
+        for (index, values, parts, cautions), result in zip(members, found, strict=True):
             inputs = {k: to_json_value(v) for k, v in values.items()}
             if result["verdict"] != "error":
                 result["fingerprint"] = fingerprint(name, version, inputs, parts)
+                result["cautions"] = result["cautions"] + cautions  # the design's, then the parts' standing ones
             results[index] = {**result, "parts": parts}
     return [result for result in results if result is not None]
