@@ -6,6 +6,11 @@ through). The LED resistor dissipates most at high supply, low forward voltage a
 (``resistor_power_max_w``); the base resistor at the pin's stress corner, P = I²·R with I the pin's stress current
 ``drive_current_max_a`` through the resistor at its low end (Joule's law). Both are taken as dissipated
 continuously: PWM averages the heat only while the firmware keeps switching, and a pin held on is a normal state.
+The LED resistor's dissipation is the larger of its worst tolerance corner and the warm string's at the review's
+ambient (a warm LED's lower forward voltage leaves more across the resistor). A rating holds only up to the
+resistor's rated-to temperature: above it the need is divided by the derated fraction at the hottest ambient the
+review covers (``calcsvc.core.thermal.resistor_derating``, IEC 60115-1's curve, from memory), so the rating listed
+is the one that still fits on the hottest day.
 """
 
 from __future__ import annotations
@@ -15,14 +20,24 @@ from typing import Any
 
 import numpy as np
 
-from calcsvc.core import led_string
+from calcsvc.core import led_string, thermal
 from calcsvc.service.envelope import to_json_value
 
 
-def minimum_rating_w(dissipation_w: float) -> float | None:
-    """The smallest standard rating that fits a worst-case dissipation; None when none up to the largest does."""
-    rating: float | None = to_json_value(float(led_string.minimum_rating_w(np.array([dissipation_w]))[0]))
+def minimum_rating_w(dissipation_w: float, derated_fraction: float = 1.0) -> float | None:
+    """The smallest standard rating that fits a worst-case dissipation where only ``derated_fraction`` of a rating
+    may be used; None when none up to the largest does (or the ambient allows no power at all)."""
+    need_w = dissipation_w / derated_fraction if derated_fraction > 0 else np.inf
+    rating: float | None = to_json_value(float(led_string.minimum_rating_w(np.array([need_w]))[0]))
     return rating
+
+
+def derated_fraction(values: Mapping[str, Any]) -> float:
+    """The fraction of a resistor's rating usable at the hottest ambient the review covers."""
+    hottest = values.get("ambient_max_c")
+    if hottest is None or hottest != hottest:  # absent or NaN: the review's single ambient
+        hottest = values["ambient_c"]
+    return float(thermal.resistor_derating(hottest, values["resistor_rated_to_c"], values["resistor_zero_power_c"]))
 
 
 def _resistor(
@@ -33,6 +48,7 @@ def _resistor(
     dissipation_w: float,
     values: Mapping[str, Any],
     tolerance: float,
+    fraction: float,
 ) -> dict[str, Any]:
     return {
         "item": item,
@@ -43,7 +59,7 @@ def _resistor(
         "series": values["e_series"],
         "tolerance": tolerance,
         "dissipation_max_w": to_json_value(dissipation_w),
-        "rating_min_w": minimum_rating_w(dissipation_w),
+        "rating_min_w": minimum_rating_w(dissipation_w, fraction),
     }
 
 
@@ -67,15 +83,19 @@ def bill_of_materials(
     led, switch = stages["led_string"], stages["switch"]
     strings, in_series, channels = int(values["strings"]), int(values["leds_in_series"]), int(values["channels"])
     base_dissipation = switch["drive_current_max_a"] ** 2 * switch["rb_ohm"] * (1.0 - tolerance)
+    warm = (stages.get("thermal") or {}).get("resistor_power_hot_w")
+    led_dissipation = max(led["resistor_power_max_w"], warm if warm is not None else 0.0)
+    fraction = derated_fraction(values)
     per_channel = [
         _resistor(
             "led_resistor",
             "series resistor, one per LED string",
             strings,
             led["resistor_ohm"],
-            led["resistor_power_max_w"],
+            led_dissipation,
             values,
             tolerance,
+            fraction,
         ),
         _resistor(
             "base_resistor",
@@ -85,6 +105,7 @@ def bill_of_materials(
             base_dissipation,
             values,
             tolerance,
+            fraction,
         ),
         _part("switch_transistor", "low-side switch transistor", 1, "transistor", parts),
         _part("led", f"LEDs, {in_series} in series per string", in_series * strings, "led", parts),

@@ -316,3 +316,13 @@ def test_every_bill_of_materials_value_in_the_reports_equals_the_json(
     # Cautions first: right under the verdict, with the safety line, before the bill of materials.
     assert report.index("## Cautions") < report.index("## Bill of materials") < report.index("## Checks")
     assert report.index(data["cautions"][0]) < report.index(data["safety"]) < report.index("## Bill of materials")
+
+
+def test_the_bill_of_materials_rates_resistors_for_the_hottest_ambient(client: FlaskClient, seeded: Any) -> None:
+    cool = review(client, {**DEMO, "samples": 0})["bill_of_materials"]["per_channel"][0]
+    hot = review(client, {**DEMO, "samples": 0, "ambient_max_c": 120})["bill_of_materials"]["per_channel"][0]
+    # IEC 60115-1's curve (from memory): full rating to 70 °C, none at 155 °C, so (155 - 120)/(155 - 70) = 0.41 of
+    # a rating is usable at 120 °C. The same worst-case dissipation, doubled (common practice) and divided by it:
+    need = 2 * hot["dissipation_max_w"] / ((155 - 120) / (155 - 70))
+    assert cool["rating_min_w"] == 0.5 and cool["dissipation_max_w"] * 2 <= 0.5
+    assert hot["rating_min_w"] == min(r for r in (0.125, 0.25, 0.5, 1.0, 2.0, 3.0, 5.0) if r >= need) == 1.0
