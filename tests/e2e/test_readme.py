@@ -17,6 +17,10 @@ from pathlib import Path
 from typing import Any
 
 import pytest
+from flask import Flask
+
+from calcsvc.data.seed import SEED_AUTHOR
+from calcsvc.service.designs import seed_demo_design
 
 pytest_plugins = ("live_server",)
 
@@ -37,6 +41,13 @@ def expected_answers(block: str) -> list[str]:
         for before, line in itertools.pairwise(lines)
         if line.startswith("# ") and before.startswith("curl ")
     ]
+
+
+@pytest.fixture
+def served(seeded: Flask) -> Flask:
+    """The database as ``make serve`` leaves it: the seed parts and the demo channel saved as a design."""
+    seed_demo_design(seeded.extensions["calcsvc.db"], SEED_AUTHOR)
+    return seeded
 
 
 @pytest.fixture
@@ -61,7 +72,7 @@ def test_the_readme_has_the_examples_this_test_runs() -> None:
 
 @pytest.mark.parametrize("number", range(len(RUNNABLE)))
 def test_readme_shell_block_runs_as_written(
-    number: int, live_url: str, seeded: Any, database_url: str, clone: Path
+    number: int, live_url: str, served: Flask, database_url: str, clone: Path
 ) -> None:
     block = RUNNABLE[number]
     environment = {
