@@ -14,7 +14,6 @@ import re
 import subprocess
 import sys
 from pathlib import Path
-from typing import Any
 
 import pytest
 from flask import Flask
