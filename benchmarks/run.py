@@ -41,6 +41,7 @@ from traffic import Client, Tally, drive
 
 from calcsvc.core import closed_loop, eseries, led_string, monte_carlo, tolerance
 from calcsvc.core.channel import ChannelInputs
+from calcsvc.core.channel_front import OPAMP_STAGE_FIELDS
 from calcsvc.core.channel_spec import CHANNEL_INPUTS
 from calcsvc.core.led_string import SPEC as LED_STRING
 from calcsvc.core.outcome import DomainError
@@ -343,6 +344,7 @@ def channel() -> ChannelInputs:
         vceo_max_v=one(40.0), rbe_ohm=nan, drive_supply_v=one(3.3), resistor_tolerance=nan, inverting=np.array([False]),
         gain=nan, gbw_hz=nan, open_loop_gain=nan, slew_rate_v_per_s=nan, output_headroom_v=nan, signal_hz=nan,
         amplitude_v=nan, opamp_supply_min_v=nan, opamp_supply_max_v=nan, input_offset_v=nan, output_offset_max_v=nan,
+        **{name: nan for name in OPAMP_STAGE_FIELDS}, phase_margin_min_deg=one(45.0),
     )  # fmt: skip
 
 

@@ -30,7 +30,8 @@ Chain (each step is an existing core calculation; this module only wires them to
        ``slew`` for a sine at ``signal_hz`` and ``amplitude_v`` with the supply as the op-amp's rail span
        (``slew_rate``, ``output_swing``, and the supply against the op-amp's rated range: ``opamp_supply_min``,
        ``opamp_supply_max``); the output offset from ``input_offset_v`` against ``output_offset_max_v``
-       (``output_offset``).
+       (``output_offset``); the single-supply windows, the DC output error, the output noise and the
+       stability with a capacitive load (``channel_front``).
 
 Assumptions
     Those of the four calculations; a base-emitter pull-down only where ``rbe_ohm`` is given; the base current
@@ -45,16 +46,9 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from calcsvc.core import bjt_switch, closed_loop, duty_power, led_string, slew
-from calcsvc.core.channel_stages import (
-    closed_loop_inputs,
-    collector_currents,
-    has_front_stage,
-    led_inputs,
-    slew_inputs,
-    supply_inputs,
-    switch_inputs,
-)
+from calcsvc.core import bjt_switch, duty_power, led_string
+from calcsvc.core.channel_front import FRONT_STAGE_FIELDS, front_stage, front_violations
+from calcsvc.core.channel_stages import collector_currents, has_front_stage, led_inputs, supply_inputs, switch_inputs
 from calcsvc.core.outcome import (
     BoolArray,
     Check,
@@ -72,20 +66,6 @@ from calcsvc.core.outcome import (
 NAME = "channel-review"
 VERSION = "2"
 
-# Front-stage inputs besides gbw_hz, whose presence (non-NaN) marks a row as having a front stage.
-FRONT_STAGE_FIELDS = (
-    "gain",
-    "open_loop_gain",
-    "slew_rate_v_per_s",
-    "output_headroom_v",
-    "signal_hz",
-    "amplitude_v",
-    "opamp_supply_min_v",
-    "opamp_supply_max_v",
-    "input_offset_v",
-    "output_offset_max_v",
-)
-
 
 @dataclass(frozen=True)
 class ChannelInputs:
@@ -98,7 +78,8 @@ class ChannelInputs:
     be NaN too). With a front stage, ``gain`` (magnitude, V/V) and ``slew_rate_v_per_s`` are required and
     ``open_loop_gain``, ``output_headroom_v``, ``signal_hz``, ``amplitude_v`` (peak), the op-amp's supply
     range ``opamp_supply_min_v``/``opamp_supply_max_v``, ``input_offset_v`` and the allowed
-    ``output_offset_max_v`` stay optional.
+    ``output_offset_max_v`` stay optional, as do the windows, DC error, noise and stability inputs
+    (``channel_front.FRONT_STAGE_FIELDS``); ``phase_margin_min_deg`` always holds a value (its default).
     ``leds_in_series``, ``strings`` and ``channels`` hold whole numbers as floats; ``e_series`` is a numpy str
     array, ``inverting`` a bool array.
     """
@@ -147,6 +128,25 @@ class ChannelInputs:
     opamp_supply_max_v: FloatArray
     input_offset_v: FloatArray
     output_offset_max_v: FloatArray
+    input_low_headroom_v: FloatArray
+    input_high_headroom_v: FloatArray
+    output_low_headroom_v: FloatArray
+    output_high_headroom_v: FloatArray
+    reference_v: FloatArray
+    rf_ohm: FloatArray
+    plus_input_ohm: FloatArray
+    input_bias_current_a: FloatArray
+    input_offset_current_a: FloatArray
+    output_error_max_v: FloatArray
+    adc_full_scale_v: FloatArray
+    adc_bits: FloatArray
+    voltage_noise_v_per_rthz: FloatArray
+    current_noise_a_per_rthz: FloatArray
+    second_pole_hz: FloatArray
+    output_resistance_ohm: FloatArray
+    load_capacitance_f: FloatArray
+    isolation_ohm: FloatArray
+    phase_margin_min_deg: FloatArray
 
 
 @dataclass(frozen=True)
@@ -328,58 +328,12 @@ def validate(inputs: ChannelInputs) -> list[Violation]:
 
     front = has_front_stage(i)
     if front.any():
-        found.stage(closed_loop.validate(take(closed_loop_inputs(i), front)), subset=front)
-        found.stage(
-            slew.validate(take(slew_inputs(i, i.supply_v), front)),
-            {"frequency_hz": "signal_hz"},
-            {"frequency_hz": "signal_hz"},
-            subset=front,
-        )
+        for violations, names in front_violations(i):
+            found.stage(violations, names, names, subset=front)
     return found.found
 
 
 # ---- review ----------------------------------------------------------------------------------------------
-
-
-def _expand(outcome: Outcome, mask: BoolArray) -> Outcome:
-    """An outcome computed on the rows in ``mask``, spread over all rows: NaN (or False) results, and
-    checks that pass without a value or limit (do not apply), elsewhere."""
-    n = mask.shape[0]
-
-    def spread(x: np.ndarray, fill: float | bool) -> np.ndarray:
-        out = np.full((n, *x.shape[1:]), fill, dtype=x.dtype)
-        out[mask] = x
-        return out
-
-    def fill_for(x: np.ndarray) -> float | bool:
-        return False if x.dtype == np.bool_ else np.nan
-
-    def notices(items: list[Notice]) -> list[Notice]:
-        return [Notice(spread(note.rows, False), note.message) for note in items]
-
-    return Outcome(
-        results={k: spread(x, fill_for(x)) for k, x in outcome.results.items()},
-        checks=[
-            Check(c.name, spread(c.ok, True), spread(c.value, np.nan), spread(c.limit, np.nan), c.sense, c.detail)
-            for c in outcome.checks
-        ],
-        warnings=notices(outcome.warnings),
-        cautions=notices(outcome.cautions),
-    )
-
-
-def front_stage(inputs: ChannelInputs, validated: bool = False) -> Outcome:
-    """Closed-loop and slew outcomes of the rows with a front stage, merged and spread over all rows."""
-    front = has_front_stage(inputs)
-    bandwidth = closed_loop.compute(take(closed_loop_inputs(inputs), front), validated)
-    swing = slew.compute(take(slew_inputs(inputs, inputs.supply_v), front), validated)
-    merged = Outcome(
-        results={**bandwidth.results, **swing.results},
-        checks=bandwidth.checks + swing.checks,
-        warnings=bandwidth.warnings + swing.warnings,
-        cautions=bandwidth.cautions + swing.cautions,
-    )
-    return _expand(merged, front)
 
 
 def review(inputs: ChannelInputs, validated: bool = False) -> ChannelReview:
