@@ -137,7 +137,7 @@ def compute(inputs: DcErrorInputs, validated: bool = False) -> Outcome:
     )
     add_notice(
         warnings,
-        bias_term > 2.0 * offset_current_term,
+        (bias_term > offset_term) & (bias_term > offset_current_term),
         "the bias current's term dominates the DC output error: a resistance of balanced_plus_input_ohm at the "
         "non-inverting input cancels it, leaving the offset current's",
     )

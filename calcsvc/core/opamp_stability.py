@@ -25,7 +25,7 @@ Check ``phase_margin``: PM at least ``phase_margin_min_deg`` (45° is common pra
 second pole or a load (Ro with CL) is given, since a single-pole loop always has 90°. Where it fails and the
 load is given, ``isolation_suggested_ohm`` is the smallest E24 value whose PM meets the limit (bisection for
 the least Riso, then the E24 value at or above it, re-evaluated: ``isolation_phase_margin_deg``). The load then
-sees Riso·CL as a low-pass outside the loop (``load_pole_hz``).
+sees Riso·CL as a low-pass outside the loop (``isolated_load_pole_hz``).
 
 Assumptions: linear small signals; the feedback network does not load the output (Rf + Rg ≫ Ro); ideal at DC.
 Units: Hz, Ω, F, degrees.
@@ -232,7 +232,7 @@ def compute(inputs: StabilityInputs, validated: bool = False) -> Outcome:
         "step_overshoot_pct": overshoot_pct(zeta),
         "isolation_suggested_ohm": suggested,
         "isolation_phase_margin_deg": suggested_margin,
-        "load_pole_hz": load_pole,
+        "isolated_load_pole_hz": load_pole,
     }
     checks = [
         Check(
@@ -300,7 +300,7 @@ SPEC = CalculationSpec(
         Result("step_overshoot_pct", "%", "small-signal step overshoot"),
         Result("isolation_suggested_ohm", "ohm", "E24 isolation resistor that restores the phase margin"),
         Result("isolation_phase_margin_deg", "deg", "phase margin with that resistor"),
-        Result("load_pole_hz", "Hz", "the low-pass isolation_ohm and the load form outside the loop"),
+        Result("isolated_load_pole_hz", "Hz", "the low-pass isolation_ohm and the load form outside the loop"),
     ),
     make_inputs=lambda c: columns_as(StabilityInputs, {**c, "inverting": c["configuration"] == "inverting"}),
     validate=validate,

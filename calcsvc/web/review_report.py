@@ -7,6 +7,8 @@ from typing import Any
 
 from markupsafe import escape
 
+from calcsvc.web.review_front import front_stage_html, front_stage_markdown
+
 _SUFFIX_UNITS = (
     ("_v_per_s", "V/s"),
     ("_ohm", "Ω"),
@@ -95,6 +97,7 @@ def render_markdown(review: dict[str, Any]) -> str:
         "|" + "---|" * len(CHECK_HEADER),
     ]
     lines += ["| " + " | ".join(row) + " |" for row in _check_rows(review)]
+    lines += front_stage_markdown(review, number)
     lines += ["", "## Parts", ""]
     lines += [f"- {p['role']}: `{p['part_id']}` revision {p['revision']} ({p['status']})" for p in review["parts"]]
     if not review["parts"]:
@@ -144,7 +147,7 @@ def render_html(review: dict[str, Any]) -> str:
         f"</span></h1>{failing}"
         f"<p>Largest duty cycle the supply allows: {escape(number(review['max_duty_cycle']))}.</p>"
         f"<p>{escape(_yield_line(review))}</p>"
-        f"<h2>Checks</h2>{render_table_html(review)}"
+        f"<h2>Checks</h2>{render_table_html(review)}{front_stage_html(review, number)}"
         f"<h2>Parts</h2><ul>{parts or '<li>none: every value was given explicitly</li>'}</ul>"
         f"<h2>Inputs</h2><table class='inputs'>{inputs}</table>{notes}"
         f"<p>Fingerprint: <code>{escape(review['fingerprint'])}</code></p></body></html>"
