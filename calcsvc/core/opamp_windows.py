@@ -25,6 +25,7 @@ windows are the datasheet's over its load and temperature. Units: V.
 from __future__ import annotations
 
 from dataclasses import dataclass
+from typing import Literal
 
 import numpy as np
 
@@ -125,10 +126,10 @@ def compute(inputs: WindowInputs, validated: bool = False) -> Outcome:
         "max_amplitude_about_reference_v": np.fmin(i.reference_v - output_min, output_max - i.reference_v),
     }
 
-    def check(name: str, value: FloatArray, limit: FloatArray, sense: str, detail: str) -> Check:
+    def check(name: str, value: FloatArray, limit: FloatArray, sense: Literal["max", "min"], detail: str) -> Check:
         limit = np.where(np.isnan(value), np.nan, limit)
         ok = ~(value > limit) if sense == "max" else ~(value < limit)
-        return Check(name, ok, np.where(np.isnan(limit), np.nan, value), limit, sense, detail)  # type: ignore[arg-type]
+        return Check(name, ok, np.where(np.isnan(limit), np.nan, value), limit, sense, detail)
 
     unless = "; does not apply unless reference_v, amplitude_v and that headroom are given"
     checks = [

@@ -509,3 +509,15 @@ def test_property_yield_is_sound_and_bounded_by_the_worst_case(row: dict[str, An
         optional = worst.name in OPTIONAL_CHECKS and math.isnan(worst.check.limit[0])
         if (wc.nominal.has_front_stage[0] or worst.name not in FRONT_CHECKS) and not optional:
             assert np.isfinite(worst.check.value[0]), worst.name
+
+
+def test_a_reference_above_the_low_supply_corner_fails_the_windows_there() -> None:
+    # 8 V reference on 8.2 V ±5 % (7.79-8.61 V): valid at nominal, above the rail at the low corner, where the
+    # output's 9 V top (8 V + 1 V peak) and the input's top cannot fit below the rail.
+    x = make(supply_v=8.2, current_a=0.005, output_headroom_v=0.1, reference_v=8.0, input_high_headroom_v=-0.1,
+             output_high_headroom_v=0.05, amplitude_v=1.0, opamp_supply_min_v=5.0)  # fmt: skip
+    wc = worst_case(x)
+    for name in ("output_swing_high", "input_common_mode_high"):
+        check = wc.check(name)
+        assert not check.check.ok[0] and check.corner(0) == {"supply": "low"}, name
+    assert wc.check("input_common_mode_high").check.limit[0] == pytest.approx(8.2 * 0.95 + 0.1)
