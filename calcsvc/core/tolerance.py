@@ -228,9 +228,10 @@ def _rail_checks(
         rails = levels[front].ravel()
         within = take(inputs, front)
         stage = take(slew_inputs(within, inputs.supply_v[front]), each)
+        # Both validated at nominal. At a low corner the rails may leave no room for the headroom, or a fixed
+        # reference may sit above the rail: the design fails its checks there, it is not refused.
         at_levels += slew.compute(dataclasses.replace(stage, supply_v=rails), validated=True).checks
         windows = take(windows_inputs(within, inputs.supply_v[front]), each)
-        # Validated at nominal; at a low corner a fixed reference may sit above the rail, which fails its checks.
         at_levels += opamp_windows.compute(dataclasses.replace(windows, supply_v=rails), validated=True).checks
     found = {}
     for name in RAIL_CHECKS:

@@ -521,3 +521,13 @@ def test_a_reference_above_the_low_supply_corner_fails_the_windows_there() -> No
         check = wc.check(name)
         assert not check.check.ok[0] and check.corner(0) == {"supply": "low"}, name
     assert wc.check("input_common_mode_high").check.limit[0] == pytest.approx(8.2 * 0.95 + 0.1)
+
+
+def test_a_supply_corner_too_low_for_the_output_headroom_fails_the_swing() -> None:
+    # 8 V with a battery band down to 5 V and 3 V of headroom to each rail: 2 V of swing room at nominal, none
+    # at 5 V (2 × 3 V > 5 V): output_swing fails there instead of the review refusing the design.
+    x = make(supply_v=8.0, supply_min_v=5.0, supply_max_v=8.4, current_a=0.005, output_headroom_v=3.0,
+             amplitude_v=0.5, opamp_supply_min_v=4.0)  # fmt: skip
+    check = worst_case(x).check("output_swing")
+    assert not check.check.ok[0] and check.corner(0) == {"supply": "low"}
+    assert check.check.limit[0] == pytest.approx(5.0 / 2 - 3.0)

@@ -49,7 +49,8 @@ def test_review_validates_once(seeded: Flask, calls: dict[str, int]) -> None:
 def test_each_stage_validates_once_per_review(seeded: Flask, monkeypatch: pytest.MonkeyPatch) -> None:
     """channel.validate checks every stage at the very inputs the review then computes, so no stage's compute
     validates again (before: the LED stage 10 times, the op-amp stages 6 to 8 times per review). The output
-    swing alone is evaluated at other inputs: the supply's worst-case corners and its sampled values, once each."""
+    swing is evaluated at other supplies too (the worst-case corners, the sampled values) without validating
+    again: a supply too low for the output's headroom there fails the design's checks, it does not refuse it."""
     stages = (led_string, bjt_switch, duty_power, closed_loop, slew)
     counts = dict.fromkeys((stage.NAME for stage in stages), 0)
     for stage in stages:
@@ -60,7 +61,7 @@ def test_each_stage_validates_once_per_review(seeded: Flask, monkeypatch: pytest
 
         monkeypatch.setattr(stage, "validate", counted)
     review.run_review(seeded.extensions["calcsvc.db"], {**demo_si(), "samples": 500})
-    assert counts == {**dict.fromkeys(counts, 1), slew.NAME: 3}
+    assert counts == dict.fromkeys(counts, 1)
 
 
 def test_histogram_validates_once(seeded: Flask, calls: dict[str, int]) -> None:
