@@ -48,6 +48,7 @@ from wrk_load import WRK_INSTALL, Window, measured, run_wrk, wrk_path
 
 from calcsvc.core import closed_loop, eseries, led_string, monte_carlo, tolerance
 from calcsvc.core.channel import ChannelInputs
+from calcsvc.core.channel_front import OPAMP_STAGE_FIELDS
 from calcsvc.core.channel_spec import CHANNEL_INPUTS
 from calcsvc.core.led_string import SPEC as LED_STRING
 from calcsvc.core.outcome import DomainError, take
@@ -379,6 +380,7 @@ def channel(ambient_c: float = 25.0, ambient_min_c: float = math.nan, ambient_ma
         led_tj_max_c=one(100.0), led_rth_jb_k_per_w=one(200.0), led_rth_ba_k_per_w=one(150.0),
         vf_tempco_v_per_k=one(-0.002), if_derating_knee_c=one(60.0), resistor_rated_to_c=one(70.0),
         resistor_zero_power_c=one(155.0),
+        **{name: nan for name in OPAMP_STAGE_FIELDS}, phase_margin_min_deg=one(45.0),
     )  # fmt: skip
 
 

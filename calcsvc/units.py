@@ -36,8 +36,9 @@ QUANTITY = rf" *({_NUMBER})(?: *({_UNIT}))? *"
 QUANTITY_PATTERN = "^" + QUANTITY + "$"
 QUERY_QUANTITY_PATTERN = "^" + QUANTITY.replace(r"\.", "[.,]") + "$"
 _QUANTITY = re.compile(QUANTITY)
-# Unit text: names, products and quotients of names with optional integer powers; nothing that evaluates.
-_NAME = "[A-Za-zµμΩ]+(?: *(?:\\*\\*|\\^) *-?[0-9])?"
+# Unit text: names, products and quotients of names with optional integer or half powers (noise densities are
+# per √Hz: "nV/Hz^0.5"); nothing that evaluates.
+_NAME = "[A-Za-zµμΩ]+(?: *(?:\\*\\*|\\^) *-?[0-9](?:\\.5)?)?"
 _UNIT_TEXT = re.compile(rf"{_NAME}(?: *[*/·] *{_NAME})*")
 _ALIASES = {"Ω": "ohm", "µ": "u", "μ": "u", "·": "*", "^": "**"}
 _WORD = re.compile("[A-Za-zµμΩ]+")

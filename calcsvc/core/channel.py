@@ -31,7 +31,8 @@ Chain (each step is an existing core calculation; this module only wires them to
        ``slew`` for a sine at ``signal_hz`` and ``amplitude_v`` with the supply as the op-amp's rail span
        (``slew_rate``, ``output_swing``, and the supply against the op-amp's rated range: ``opamp_supply_min``,
        ``opamp_supply_max``); the output offset from ``input_offset_v`` against ``output_offset_max_v``
-       (``output_offset``).
+       (``output_offset``); the single-supply windows, the DC output error, the output noise and the
+       stability with a capacitive load (``channel_front``).
     5. Heat at ``ambient_c`` (``channel_thermal``): the strings' coupled electro-thermal point, each part's
        temperature and derated limit, and the thermal checks.
 
@@ -48,17 +49,10 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from calcsvc.core import bjt_switch, channel_thermal, closed_loop, duty_power, led_string, slew
-from calcsvc.core.channel_inputs import FRONT_STAGE_FIELDS, ChannelInputs
-from calcsvc.core.channel_stages import (
-    closed_loop_inputs,
-    collector_currents,
-    has_front_stage,
-    led_inputs,
-    slew_inputs,
-    supply_inputs,
-    switch_inputs,
-)
+from calcsvc.core import bjt_switch, channel_thermal, duty_power, led_string
+from calcsvc.core.channel_front import FRONT_STAGE_FIELDS, front_stage, front_violations
+from calcsvc.core.channel_inputs import ChannelInputs
+from calcsvc.core.channel_stages import collector_currents, has_front_stage, led_inputs, supply_inputs, switch_inputs
 from calcsvc.core.outcome import (
     BoolArray,
     Check,
@@ -262,58 +256,12 @@ def validate(inputs: ChannelInputs) -> list[Violation]:
 
     front = has_front_stage(i)
     if front.any():
-        found.stage(closed_loop.validate(take(closed_loop_inputs(i), front)), subset=front)
-        found.stage(
-            slew.validate(take(slew_inputs(i, i.supply_v), front)),
-            {"frequency_hz": "signal_hz"},
-            {"frequency_hz": "signal_hz"},
-            subset=front,
-        )
+        for violations, names in front_violations(i):
+            found.stage(violations, names, names, subset=front)
     return found.found
 
 
 # ---- review ----------------------------------------------------------------------------------------------
-
-
-def _expand(outcome: Outcome, mask: BoolArray) -> Outcome:
-    """An outcome computed on the rows in ``mask``, spread over all rows: NaN (or False) results, and
-    checks that pass without a value or limit (do not apply), elsewhere."""
-    n = mask.shape[0]
-
-    def spread(x: np.ndarray, fill: float | bool) -> np.ndarray:
-        out = np.full((n, *x.shape[1:]), fill, dtype=x.dtype)
-        out[mask] = x
-        return out
-
-    def fill_for(x: np.ndarray) -> float | bool:
-        return False if x.dtype == np.bool_ else np.nan
-
-    def notices(items: list[Notice]) -> list[Notice]:
-        return [Notice(spread(note.rows, False), note.message) for note in items]
-
-    return Outcome(
-        results={k: spread(x, fill_for(x)) for k, x in outcome.results.items()},
-        checks=[
-            Check(c.name, spread(c.ok, True), spread(c.value, np.nan), spread(c.limit, np.nan), c.sense, c.detail)
-            for c in outcome.checks
-        ],
-        warnings=notices(outcome.warnings),
-        cautions=notices(outcome.cautions),
-    )
-
-
-def front_stage(inputs: ChannelInputs, validated: bool = False) -> Outcome:
-    """Closed-loop and slew outcomes of the rows with a front stage, merged and spread over all rows."""
-    front = has_front_stage(inputs)
-    bandwidth = closed_loop.compute(take(closed_loop_inputs(inputs), front), validated)
-    swing = slew.compute(take(slew_inputs(inputs, inputs.supply_v), front), validated)
-    merged = Outcome(
-        results={**bandwidth.results, **swing.results},
-        checks=bandwidth.checks + swing.checks,
-        warnings=bandwidth.warnings + swing.warnings,
-        cautions=bandwidth.cautions + swing.cautions,
-    )
-    return _expand(merged, front)
 
 
 def review(inputs: ChannelInputs, validated: bool = False) -> ChannelReview:

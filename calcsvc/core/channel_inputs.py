@@ -8,20 +8,6 @@ import numpy as np
 
 from calcsvc.core.outcome import BoolArray, FloatArray
 
-# Front-stage inputs besides gbw_hz, whose presence (non-NaN) marks a row as having a front stage.
-FRONT_STAGE_FIELDS = (
-    "gain",
-    "open_loop_gain",
-    "slew_rate_v_per_s",
-    "output_headroom_v",
-    "signal_hz",
-    "amplitude_v",
-    "opamp_supply_min_v",
-    "opamp_supply_max_v",
-    "input_offset_v",
-    "output_offset_max_v",
-)
-
 
 @dataclass(frozen=True)
 class ChannelInputs:
@@ -34,7 +20,8 @@ class ChannelInputs:
     be NaN too). With a front stage, ``gain`` (magnitude, V/V) and ``slew_rate_v_per_s`` are required and
     ``open_loop_gain``, ``output_headroom_v``, ``signal_hz``, ``amplitude_v`` (peak), the op-amp's supply
     range ``opamp_supply_min_v``/``opamp_supply_max_v``, ``input_offset_v`` and the allowed
-    ``output_offset_max_v`` stay optional.
+    ``output_offset_max_v`` stay optional, as do the windows, DC error, noise and stability inputs
+    (``channel_front.FRONT_STAGE_FIELDS``); ``phase_margin_min_deg`` always holds a value (its default).
     ``leds_in_series``, ``strings`` and ``channels`` hold whole numbers as floats; ``e_series`` is a numpy str
     array, ``inverting`` a bool array.
     """
@@ -83,6 +70,25 @@ class ChannelInputs:
     opamp_supply_max_v: FloatArray
     input_offset_v: FloatArray
     output_offset_max_v: FloatArray
+    input_low_headroom_v: FloatArray
+    input_high_headroom_v: FloatArray
+    output_low_headroom_v: FloatArray
+    output_high_headroom_v: FloatArray
+    reference_v: FloatArray
+    rf_ohm: FloatArray
+    plus_input_ohm: FloatArray
+    input_bias_current_a: FloatArray
+    input_offset_current_a: FloatArray
+    output_error_max_v: FloatArray
+    adc_full_scale_v: FloatArray
+    adc_bits: FloatArray
+    voltage_noise_v_per_rthz: FloatArray
+    current_noise_a_per_rthz: FloatArray
+    second_pole_hz: FloatArray
+    output_resistance_ohm: FloatArray
+    load_capacitance_f: FloatArray
+    isolation_ohm: FloatArray
+    phase_margin_min_deg: FloatArray
     # Heat (``channel_thermal``); NaN marks an optional value as not given.
     ambient_c: FloatArray
     ambient_min_c: FloatArray  # NaN: ambient_c

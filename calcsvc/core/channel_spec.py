@@ -4,7 +4,17 @@ page are derived from it, as the calculations' are from their ``SPEC``."""
 
 from __future__ import annotations
 
-from calcsvc.core import bjt_drive, channel, monte_carlo, thermal
+from calcsvc.core import (
+    bjt_drive,
+    channel,
+    monte_carlo,
+    opamp_dc_error,
+    opamp_noise,
+    opamp_stability,
+    opamp_windows,
+    thermal,
+)
+from calcsvc.core.adc import ADC_INPUTS
 from calcsvc.core.spec import E_SERIES, Input, InputSet, Role, fraction, positive
 
 
@@ -85,6 +95,16 @@ CHANNEL_INPUTS = InputSet(
         positive("opamp_supply_max_v", "V", "front stage op-amp's highest rated total supply span", optional=True),
         Input("input_offset_v", "V", "front stage op-amp input offset voltage (magnitude)", optional=True, minimum=0),
         positive("output_offset_max_v", "V", "largest front stage output offset the design allows", optional=True),
+        *opamp_windows.HEADROOM_INPUTS,
+        opamp_windows.REFERENCE_V,
+        opamp_dc_error.RF_OHM,
+        opamp_dc_error.PLUS_INPUT_OHM,
+        *opamp_dc_error.BIAS_INPUTS,
+        opamp_dc_error.OUTPUT_ERROR_MAX_V,
+        *ADC_INPUTS,
+        *opamp_noise.NOISE_INPUTS,
+        *opamp_stability.PART_INPUTS,
+        *opamp_stability.LOAD_INPUTS,
         Input(
             "ambient_c",
             "degC",
@@ -258,6 +278,10 @@ CHANNEL_INPUTS = InputSet(
                 ("supply_min_v", "opamp_supply_min_v"),
                 ("supply_max_v", "opamp_supply_max_v"),
                 ("input_offset_v", "input_offset_v"),
+                *opamp_windows.ROLE.provides,
+                *opamp_dc_error.PARAMETERS[1:],
+                *opamp_noise.PARAMETERS,
+                *opamp_stability.PARAMETERS,
             ),
         ),
     ),
@@ -274,4 +298,6 @@ CHECK_UNITS = {
     "opamp_supply_min": "V", "opamp_supply_max": "V", "output_offset": "V",
     "led_junction_temperature": "°C", "led_thermal_runaway": "°C",
     "resistor_derated_power": "W", "transistor_junction_temperature": "°C", "transistor_derated_power": "W",
+    "input_common_mode_low": "V", "input_common_mode_high": "V", "output_swing_low": "V", "output_swing_high": "V",
+    "output_error": "V", "noise_bits": "", "phase_margin": "deg",
 }  # fmt: skip

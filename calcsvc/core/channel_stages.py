@@ -126,12 +126,14 @@ def supply_band(i: ChannelInputs) -> tuple[FloatArray, FloatArray]:
 def collector_currents(i: ChannelInputs, led: Outcome) -> tuple[FloatArray, FloatArray]:
     """The switch carries every string: nominal Ic from the nominal string current, Ic_max from the highest
     (the base is sized for it: ``channel``'s docstring): top of the supply band, lowest Vf, low resistor, and
-    the hottest ambient, where each string's forward voltage has fallen at its coupled electro-thermal point."""
+    the hottest ambient, where each string's forward voltage has fallen at its coupled electro-thermal point.
+    Never below the same corner at the 25 °C the forward voltages are stated at: an enclosure kept colder than
+    that still gets a base sized for the datasheet's worst case (and Ic_max ≥ the nominal Ic)."""
     _, high = supply_band(i)
     low_resistor = led.results["resistor_ohm"] * (1.0 - resistor_tolerance(i))
     _, hottest = channel_thermal.ambient_range(i)
     point = channel_thermal.led_point(i, lambda x: x, high, i.leds_in_series * i.vf_min_v, low_resistor, hottest)
-    return led.results["total_current_a"], i.strings * point.current_a
+    return led.results["total_current_a"], i.strings * np.maximum(point.current_a, led.results["current_max_a"])
 
 
 def has_front_stage(inputs: ChannelInputs) -> BoolArray:

@@ -12,10 +12,11 @@ values within the tolerances, and every check is re-evaluated with the chosen re
 
 and the LED-stage rules per string: I ≤ if_max, derated at the ambient (``led_current_rating``),
 Vs − ΣVf − Vce_sat ≥ 10 % of Vs (``headroom``), 2·I²·R_led within the largest standard rating
-(``resistor_rating``); the front stage's ``output_swing`` with Vs as its rail span, and Vs against the op-amp's
-supply range (``opamp_supply_min`` at the low supply, ``opamp_supply_max`` at the high one); the thermal checks
-of ``channel_thermal``. Checks that depend on no toleranced value keep their nominal result. ``DEPENDS_ON``
-lists what each check depends on.
+(``resistor_rating``); the front stage's ``output_swing`` with Vs as its rail span, Vs against the op-amp's
+supply range (``opamp_supply_min`` at the low supply, ``opamp_supply_max`` at the high one), and the
+single-supply windows' upper ends (``input_common_mode_high``, ``output_swing_high``) below the rail Vs; the
+thermal checks of ``channel_thermal``. Checks that depend on no toleranced value keep their nominal result.
+``DEPENDS_ON`` lists what each check depends on.
 
 Toleranced quantities
     supply within its band (``channel_stages.supply_band``: a battery from end of discharge to fresh, else
@@ -50,8 +51,9 @@ from dataclasses import dataclass
 import numpy as np
 import numpy.typing as npt
 
-from calcsvc.core import bjt_drive, channel_thermal, led_string, load_current, slew
+from calcsvc.core import bjt_drive, channel_thermal, led_string, load_current, opamp_windows, slew
 from calcsvc.core.channel import ChannelInputs, ChannelReview, failing_names, review
+from calcsvc.core.channel_front import windows_inputs
 from calcsvc.core.channel_stages import has_front_stage, resistor_tolerance, slew_inputs, supply_band
 from calcsvc.core.outcome import (
     BoolArray,
@@ -103,6 +105,13 @@ DEPENDS_ON: dict[str, tuple[str, ...]] = {
     "resistor_derated_power": _LED,
     "transistor_junction_temperature": (*_LED, "base_resistor"),
     "transistor_derated_power": (*_LED, "base_resistor"),
+    "input_common_mode_low": (),  # the 0 V rail and a fixed reference
+    "input_common_mode_high": ("supply",),
+    "output_swing_low": (),
+    "output_swing_high": ("supply",),
+    "output_error": (),
+    "noise_bits": (),
+    "phase_margin": (),
 }
 """The toleranced quantities each check depends on; checks depending on none keep their nominal result."""
 
@@ -231,29 +240,36 @@ def evaluate_at(inputs: ChannelInputs, nominal: ChannelReview, at: Point) -> lis
     return checks
 
 
-RAIL_CHECKS = ("output_swing", "opamp_supply_min", "opamp_supply_max")
+RAIL_CHECKS = ("output_swing", "opamp_supply_min", "opamp_supply_max", "input_common_mode_high", "output_swing_high")
 """The front stage's checks that depend on its rails, the channel's supply."""
 
 
 def _rail_checks(
     inputs: ChannelInputs, nominal: ChannelReview, supply_v: FloatArray
 ) -> dict[str, tuple[np.ndarray, np.ndarray, np.ndarray]]:
-    """The front stage's ``RAIL_CHECKS`` with ``supply_v`` (n, …) as its rail span (slew calculation), each as
-    (value, limit, ok) in the shape of ``supply_v``."""
+    """The front stage's ``RAIL_CHECKS`` with ``supply_v`` (n, …) as its rail span (slew and windows
+    calculations), each as (value, limit, ok) in the shape of ``supply_v``."""
     levels = _by_row(supply_v)
     front = has_front_stage(inputs)
     k = levels.shape[1]
-    swing = None
+    at_levels: list[Check] = []
     if front.any():
-        stage = take(slew_inputs(take(inputs, front), inputs.supply_v[front]), np.repeat(np.arange(front.sum()), k))
-        swing = slew.compute(dataclasses.replace(stage, supply_v=levels[front].ravel()))
+        each = np.repeat(np.arange(front.sum()), k)
+        rails = levels[front].ravel()
+        within = take(inputs, front)
+        stage = take(slew_inputs(within, inputs.supply_v[front]), each)
+        # Both validated at nominal. At a low corner the rails may leave no room for the headroom, or a fixed
+        # reference may sit above the rail: the design fails its checks there, it is not refused.
+        at_levels += slew.compute(dataclasses.replace(stage, supply_v=rails), validated=True).checks
+        windows = take(windows_inputs(within, inputs.supply_v[front]), each)
+        at_levels += opamp_windows.compute(dataclasses.replace(windows, supply_v=rails), validated=True).checks
     found = {}
     for name in RAIL_CHECKS:
         value = np.broadcast_to(nominal.check(name).value[:, None], levels.shape).copy()
         limit = np.full(levels.shape, np.nan)
         ok = np.ones(levels.shape, dtype=bool)
-        if swing is not None:
-            check = next(c for c in swing.checks if c.name == name)
+        if at_levels:
+            check = next(c for c in at_levels if c.name == name)
             value[front] = check.value.reshape(-1, k)
             limit[front] = check.limit.reshape(-1, k)
             ok[front] = check.ok.reshape(-1, k)

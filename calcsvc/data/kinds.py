@@ -18,6 +18,7 @@ class Param:
     description: str
     optional: bool = False
     positive: bool = True  # strictly greater than zero
+    signed: bool = False  # any sign (with positive=False): a limit that may lie beyond a rail
     fraction: bool = False  # 0 <= value < 1
     choices: tuple[str, ...] = ()
     text: bool = False
@@ -30,6 +31,25 @@ class Param:
     def numeric(self) -> bool:
         return not (self.choices or self.text)
 
+
+# What the op-amp stage's windows, DC error, noise and stability read (calcsvc.core.opamp_*); optional, so a
+# part stored before them stays valid (migration 0006 writes stated conservative values into stored parts).
+OPAMP_STAGE_PARAMS = (
+    Param("input_low_headroom_v", "V", "input common-mode range's end above the negative rail (negative: beyond "
+          "it)", optional=True, positive=False, signed=True),
+    Param("input_high_headroom_v", "V", "input common-mode range's end below the positive rail (negative: beyond "
+          "it)", optional=True, positive=False, signed=True),
+    Param("output_low_headroom_v", "V", "output swing's end above the negative rail", optional=True, positive=False),
+    Param("output_high_headroom_v", "V", "output swing's end below the positive rail", optional=True, positive=False),
+    Param("input_bias_current_a", "A", "input bias current (magnitude)", optional=True, positive=False),
+    Param("input_offset_current_a", "A", "input offset current (magnitude)", optional=True, positive=False),
+    Param("voltage_noise_v_per_rthz", "V/Hz**0.5", "input voltage noise density (white)", optional=True,
+          positive=False),
+    Param("current_noise_a_per_rthz", "A/Hz**0.5", "input current noise density (white)", optional=True,
+          positive=False),
+    Param("second_pole_hz", "Hz", "second open-loop pole", optional=True),
+    Param("output_resistance_ohm", "ohm", "open-loop output resistance", optional=True, positive=False),
+)  # fmt: skip
 
 KINDS: dict[str, tuple[Param, ...]] = {
     "opamp": (
@@ -46,6 +66,7 @@ KINDS: dict[str, tuple[Param, ...]] = {
             optional=True,
             positive=False,
         ),
+        *OPAMP_STAGE_PARAMS,
     ),
     "bjt": (
         Param("polarity", "", "npn or pnp", choices=("npn", "pnp")),
@@ -188,7 +209,7 @@ def validate_parameters(kind: str, parameters: dict[str, Any]) -> dict[str, str]
             errors[name] = "must be greater than zero"
         elif param.integer and value != int(value):
             errors[name] = "must be a whole number"
-        elif value < 0:
+        elif value < 0 and not param.signed:
             errors[name] = "must not be negative"
     for low, high, strict in ORDERED[kind]:
         a, b = parameters.get(low), parameters.get(high)

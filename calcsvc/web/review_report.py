@@ -7,6 +7,8 @@ from typing import Any
 
 from markupsafe import escape
 
+from calcsvc.web.review_front import front_stage_html, front_stage_markdown
+
 _SUFFIX_UNITS = (
     ("_v_per_s", "V/s"),
     ("_ohm", "Ω"),
@@ -173,6 +175,7 @@ def render_markdown(review: dict[str, Any]) -> str:
     for title, rows in _bom_sections(review):
         lines += ["", f"### {title}", "", *_markdown_table(BOM_HEADER, rows)]
     lines += ["", "## Checks", "", *_markdown_table(CHECK_HEADER, _check_rows(review))]
+    lines += front_stage_markdown(review, number)
     if review["warnings"]:
         lines += ["", "## Warnings", ""] + [f"- {note}" for note in review["warnings"]]
     lines += ["", "## Parts", ""]
@@ -237,7 +240,7 @@ def render_html(review: dict[str, Any]) -> str:
         f"<p>{escape(heat_line(review))}</p>"
         f"<p>{escape(_yield_line(review))}</p>"
         f"<h2>Bill of materials</h2>{render_bom_html(review)}"
-        f"<h2>Checks</h2>{render_table_html(review)}{warnings}"
+        f"<h2>Checks</h2>{render_table_html(review)}{front_stage_html(review, number)}{warnings}"
         f"<h2>Parts</h2><ul>{parts or '<li>none: every value was given explicitly</li>'}</ul>"
         f"<h2>Inputs</h2><table class='inputs'>{inputs}</table>"
         f"<p>Fingerprint: <code>{escape(review['fingerprint'])}</code></p>"

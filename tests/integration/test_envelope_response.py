@@ -16,6 +16,16 @@ BODIES = {
     "bjt-switch": {"transistor": "npn-small-signal", "driver": "driver-mcu-3v3", "collector_current_a": 0.04},
     "closed-loop-bandwidth": {"gain": 10, "gbw_hz": 1e6, "sweep_start_hz": 10, "sweep_stop_hz": 1e6, "sweep_points": 4},
     "slew-limit": {"slew_rate_v_per_s": "0.5 V/us", "frequency_hz": "20 kHz", "amplitude_v": 5},
+    "opamp-windows": {"opamp": "opamp-general-1mhz", "gain": 20, "supply_v": 12, "reference_v": 6, "amplitude_v": 2},
+    "opamp-dc-error": {
+        "opamp": "opamp-general-1mhz",
+        "gain": 20,
+        "rf_ohm": "100 kohm",
+        "adc_bits": 12,
+        "adc_full_scale_v": 10,
+    },  # fmt: skip
+    "opamp-noise": {"opamp": "opamp-general-1mhz", "gain": 20, "rf_ohm": "100 kohm", "ambient_c": 45},
+    "opamp-stability": {"opamp": "opamp-general-1mhz", "gain": 1, "load_capacitance_f": "100 nF"},
 }
 
 

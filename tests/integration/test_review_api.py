@@ -14,6 +14,8 @@ from flask.testing import FlaskClient
 from helpers import assert_problem
 from PIL import Image
 
+from calcsvc.core.channel_front import FRONT_STAGE_FIELDS
+
 DEMO = json.loads((Path(__file__).resolve().parents[2] / "examples" / "greenhouse-channel.json").read_text())
 EXPLICIT = {
     "supply_v": 12, "supply_tolerance": 0.05, "supply_min_v": 11.4, "supply_max_v": 12.6, "current_max_a": 2,
@@ -133,10 +135,56 @@ def test_op_amp_outside_its_supply_range_fails(
         assert any("destroy" in caution for caution in data["cautions"])
 
 
+def test_greenhouse_preamp_shows_its_windows_output_error_noise_and_phase_margin(
+    client: FlaskClient, seeded: Any
+) -> None:
+    data = review(client, {**DEMO, "samples": 0})
+    front = data["stages"]["front_stage"]
+    # Gain 20 about 6 V on the 12 V adapter, 2 V peak out: inputs 5.9-6.1 V inside the general-purpose part's
+    # 2-10 V common-mode range, output 4-8 V inside its 1.2-10.6 V swing (seeded class-typical values).
+    assert (front["signal_input_min_v"], front["signal_input_max_v"]) == pytest.approx((5.9, 6.1))
+    assert (front["input_common_mode_min_v"], front["input_common_mode_max_v"]) == (2.0, 10.0)
+    assert (front["output_swing_min_v"], front["output_swing_max_v"]) == pytest.approx((1.2, 10.6))
+    # DC error: 2.5 mV × 20 + 80 nA × |100 kΩ − 20 × 1 kΩ| + 10 nA × (100 kΩ + 20 × 1 kΩ) = 57.6 mV, 23.6 LSB of
+    # a 12-bit converter over 10 V.
+    assert front["output_error_v"] == pytest.approx(0.0576, rel=1e-9)
+    assert front["output_error_lsb"] == pytest.approx(0.0576 / (10 / 4096), rel=1e-9)
+    assert front["output_noise_rms_v"] > 0 and front["noise_bits"] > 12
+    assert front["phase_margin_deg"] > 45
+    checks = {c["name"]: c for c in data["checks"]}
+    for name in ("input_common_mode_low", "input_common_mode_high", "output_swing_low", "output_swing_high"):
+        assert checks[name]["ok"], name
+    assert checks["output_swing_high"]["worst_case"]["corner"] == {"supply": "low"}
+    assert checks["noise_bits"]["ok"] and checks["phase_margin"]["ok"]
+    assert "output_error" not in checks  # no allowed error given: shown, not judged
+    for accept, words in (("text/markdown", "## Front stage: "), ("text/html", "<h2>Front stage: ")):
+        report = client.post("/v1/review/channel", json={**DEMO, "samples": 0}, headers={"Accept": accept})
+        text = report.get_data(as_text=True)
+        for title in ("single-supply windows", "dc output error", "noise", "stability"):
+            assert words + title in text, (accept, title)
+        assert (
+            "0.0576 V" in text and f"{front['phase_margin_deg']:.6g}" in text and f"{front['noise_bits']:.6g}" in text
+        )
+
+
+def test_a_follower_on_a_long_cable_fails_stability_until_the_suggested_isolation_resistor_is_added(
+    client: FlaskClient, seeded: Any
+) -> None:
+    # The preamp as a follower (gain 1, no feedback resistor) driving 100 nF of cable: the general-purpose part's
+    # 75 Ω output resistance puts a 21 kHz pole inside its loop.
+    follower = {**DEMO, "gain": 1, "rf_ohm": 0, "amplitude_v": "0.1 V", "load_capacitance_f": "100 nF", "samples": 0}
+    before = review(client, follower)
+    assert before["verdict"] == "fail" and before["failing"] == ["phase_margin"]
+    suggested = before["stages"]["front_stage"]["isolation_suggested_ohm"]
+    assert suggested is not None and any("isolation_suggested_ohm" in w for w in before["warnings"])
+    after = review(client, {**follower, "isolation_ohm": suggested})
+    assert after["verdict"] == "pass"
+    phase = next(c for c in after["checks"] if c["name"] == "phase_margin")
+    assert phase["ok"] and phase["value"] == before["stages"]["front_stage"]["isolation_phase_margin_deg"]
+
+
 def test_explicit_values_give_the_same_review_as_parts(client: FlaskClient, seeded: Any) -> None:
-    from_parts = {
-        k: v for k, v in DEMO.items() if k not in {"opamp", "configuration", "gain", "signal_hz", "amplitude_v"}
-    }
+    from_parts = {k: v for k, v in DEMO.items() if k not in {"opamp", "configuration", *FRONT_STAGE_FIELDS}}
     a = review(client, {**from_parts, "samples": 2000, "drive_low_v": 0.2})
     b = review(client, {**EXPLICIT, "seed": DEMO["seed"]})
     assert a["stages"] == b["stages"] and a["checks"] == b["checks"] and a["yield"] == b["yield"]

@@ -332,6 +332,12 @@ def test_demo_channel_review_shows_the_verdict_checks_and_report(app: Flask, cli
     assert json_url is not None
     answer = client.get(json_url.group(1).replace("&amp;", "&"))
     assert answer.status_code == 200 and answer.get_json()["fingerprint"] == expected["fingerprint"]
+    # The preamp's windows, output error, noise and phase margin, each in a section of its own.
+    front = expected["stages"]["front_stage"]
+    for title in ("single-supply windows", "dc output error", "noise", "stability"):
+        assert f"<h3>Front stage: {title}</h3>" in html, title
+    for name in ("input_common_mode_max_v", "output_error_v", "output_noise_rms_v", "phase_margin_deg"):
+        assert f"{front[name]:.6g}" in html, name
 
 
 def test_channel_form_errors_name_the_field(client: FlaskClient, seeded: Any) -> None:
@@ -342,6 +348,7 @@ def test_channel_form_errors_name_the_field(client: FlaskClient, seeded: Any) ->
     without_opamp = channel_body({**DEMO_CHANNEL, "opamp": ""})
     assert "opamp" not in without_opamp and "gain" not in without_opamp
     assert without_opamp["leds_in_series"] == 3 and without_opamp["current_a"] == 0.02
+    assert not {"reference_v", "rf_ohm", "adc_bits", "load_capacitance_f"} & set(without_opamp)
 
 
 # --- hostile addresses, query strings and forms: always a page, never a 500 or a JSON problem ------------------

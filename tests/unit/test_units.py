@@ -19,6 +19,8 @@ def short(text: str) -> str:
     ("text", "unit", "expected"),
     [
         ("4.7 kohm", "ohm", 4700.0),
+        ("20 nV/Hz^0.5", "V/Hz**0.5", 2e-8),  # a noise density, per √Hz
+        ("0.5 pA/Hz**0.5", "A/Hz**0.5", 5e-13),
         ("4.7kΩ", "ohm", 4700.0),
         ("0.5 V/us", "V/s", 500_000.0),
         ("0.5 V/µs", "V/s", 500_000.0),

@@ -27,6 +27,7 @@ from calcsvc.web.metrics import record_calculation
 from calcsvc.web.pages.common import bp, shown
 from calcsvc.web.problems import Problem, service_problem
 from calcsvc.web.quantity import Quantity
+from calcsvc.web.review_front import front_stage_html
 from calcsvc.web.review_report import (
     heat_line,
     number,
@@ -40,7 +41,28 @@ from calcsvc.web.review_report import (
 # (no control characters or NUL, which PostgreSQL refuses, and nothing worth parsing at length).
 _FORM_VALUE = re.compile(r"[\x20-\x7eµμΩ·]{1,80}")
 
-FRONT_STAGE = ("gain", "signal_hz", "amplitude_v")
+# The front stage's circuit around the op-amp: its windows, DC error, noise and stability (calcsvc.core.channel_front).
+FRONT_CIRCUIT: dict[str, Quantity] = {
+    "reference_v": Quantity("V", minimum=0),
+    "rf_ohm": Quantity("ohm", minimum=0),
+    "plus_input_ohm": Quantity("ohm", minimum=0),
+    "adc_full_scale_v": Quantity("V", minimum=0, exclusive_minimum=True),
+    "adc_bits": Quantity("dimensionless", minimum=1, maximum=32, integer=True),
+    "output_error_max_v": Quantity("V", minimum=0, exclusive_minimum=True),
+    "load_capacitance_f": Quantity("F", minimum=0, exclusive_minimum=True),
+    "isolation_ohm": Quantity("ohm", minimum=0),
+}
+FRONT_CIRCUIT_FIELDS = (
+    ("reference_v", "Reference the signal is centred on", "in V, single supply: 6 V"),
+    ("rf_ohm", "Feedback resistor", "in Ω, or with a unit: 100 kohm"),
+    ("plus_input_ohm", "Source resistance at the + input", "in Ω, or with a unit: 1 kohm"),
+    ("adc_full_scale_v", "Converter full scale", "in V: the input span"),
+    ("adc_bits", "Converter bits", "a whole number"),
+    ("output_error_max_v", "Largest DC output error allowed", "in V, e.g. half an LSB: 1.2 mV"),
+    ("load_capacitance_f", "Capacitive load on the output", "in F, or with a unit: 1 nF"),
+    ("isolation_ohm", "Isolation resistor to that load", "in Ω; empty: none"),
+)
+FRONT_STAGE = ("gain", "signal_hz", "amplitude_v", *FRONT_CIRCUIT)
 # Selects of the channel form: role → (label, part kind, required parameter value).
 CHANNEL_ROLES: dict[str, tuple[str, str, tuple[str, str] | None]] = {
     "supply": ("Supply", "supply", None),
@@ -64,6 +86,7 @@ ChannelForm = Schema.from_dict(
         "ambient_c": Quantity("degC", minimum=-60, maximum=200),
         "ambient_min_c": Quantity("degC", minimum=-60, maximum=200),
         "ambient_max_c": Quantity("degC", minimum=-60, maximum=200),
+        **FRONT_CIRCUIT,
         "samples": Quantity("dimensionless", minimum=0, maximum=monte_carlo.MAX_SAMPLES, integer=True),
         "seed": Quantity("dimensionless", minimum=0, maximum=2**32 - 1, integer=True),
     },
@@ -95,6 +118,7 @@ CHANNEL_FIELDS: dict[str, tuple[tuple[str, str, str], ...]] = {
         ("ambient_min_c", "Coldest ambient", "in °C: a cold start (the ambient if empty)"),
         ("ambient_max_c", "Hottest ambient", "in °C: the hottest expected day (the ambient if empty)"),
     ),
+    "Front-stage circuit (used with an op-amp)": FRONT_CIRCUIT_FIELDS,
     "Production yield": (
         ("samples", "Simulated builds", "a whole number; 0: no yield"),
         ("seed", "Random seed", "a whole number; the same seed gives the same builds"),
@@ -119,7 +143,7 @@ def channel_body(form: Mapping[str, str]) -> dict[str, Any]:
     except ValidationError as exc:
         errors = {k: list(v) for k, v in exc.normalized_messages().items()}
         raise Problem(422, "invalid input: " + ", ".join(sorted(errors)), "validation", errors) from exc
-    for name in ("leds_in_series", "strings", "channels", "samples", "seed"):
+    for name in ("leds_in_series", "strings", "channels", "samples", "seed", "adc_bits"):
         if name in body:
             body[name] = int(body[name])
     return body
@@ -207,6 +231,7 @@ def channel() -> Response:
         cautions=Markup(render_cautions_html(review)) if review else None,
         histogram_url=url_for(".channel_histogram", **query) if review and review["yield"] else None,
         plots=stage_plots(review) if review else [],
+        front_stage=Markup(front_stage_html(review, number, level=3)) if review else None,  # escaped there too
         report=render_markdown(review) if review else None,
         heat=heat_line(review) if review else None,
         number=number,

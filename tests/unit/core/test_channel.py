@@ -12,6 +12,7 @@ from hypothesis import strategies as st
 
 from calcsvc.core import channel_thermal, eseries
 from calcsvc.core.channel import FRONT_STAGE_FIELDS, ChannelInputs, review, validate
+from calcsvc.core.channel_front import OPAMP_STAGE_FIELDS
 from calcsvc.core.outcome import DomainError
 
 # The greenhouse grow-light demo channel. Part values are the project's demo parts (typical-class values from
@@ -79,6 +80,8 @@ DEMO: dict[str, Any] = {
     "if_derating_knee_c": 60.0,
     "resistor_rated_to_c": 70.0,
     "resistor_zero_power_c": 155.0,
+    **{name: math.nan for name in OPAMP_STAGE_FIELDS},
+    "phase_margin_min_deg": 45.0,
 }
 NO_FRONT_STAGE = {name: math.nan for name in ("gbw_hz", *FRONT_STAGE_FIELDS)}
 
@@ -157,6 +160,13 @@ def test_greenhouse_demo_channel_by_hand() -> None:
         "output_swing",
         "opamp_supply_min",
         "opamp_supply_max",
+        "input_common_mode_low",
+        "input_common_mode_high",
+        "output_swing_low",
+        "output_swing_high",
+        "output_error",
+        "noise_bits",
+        "phase_margin",
         *channel_thermal.CHECKS,
     ]
     # The pin at its stress corner: at its 3.3 V supply, Vbe hot (0.85 − 0.2 V), Rb at E24's −5 %.
@@ -344,6 +354,7 @@ def channel_rows(draw: st.DrawFn, front_stage: bool | None = None) -> dict[str, 
         "drive_supply_v": draw(st.one_of(st.just(math.nan), st.floats(5.0, 6.0))),
         "resistor_tolerance": draw(st.one_of(st.just(math.nan), st.floats(0.0, 0.2))),
         "inverting": draw(st.booleans()),
+        "phase_margin_min_deg": draw(st.floats(30.0, 70.0)),
     }
     ambient = draw(st.floats(-20.0, 60.0))
     led_tj_max = draw(st.floats(80.0, 150.0))
@@ -380,10 +391,40 @@ def channel_rows(draw: st.DrawFn, front_stage: bool | None = None) -> dict[str, 
             "opamp_supply_max_v": row["supply_v"] * draw(st.floats(1.25, 3.0)),
             "input_offset_v": draw(st.floats(0.0, 0.01)),
             "output_offset_max_v": draw(st.one_of(st.just(math.nan), st.floats(1e-3, 1.0))),
+            **opamp_stage(draw, row["supply_v"]),
         }
     else:
         row |= NO_FRONT_STAGE
     return row
+
+
+def opamp_stage(draw: st.DrawFn, supply_v: float) -> dict[str, float]:
+    """The windows, DC error, noise and stability inputs of a front stage, each possibly absent."""
+
+    def maybe(low: float, high: float) -> float:
+        return draw(st.one_of(st.just(math.nan), st.floats(low, high)))
+
+    adc = draw(st.one_of(st.just((math.nan, math.nan)), st.tuples(st.floats(1.0, 10.0), st.integers(8, 24))))
+    return {
+        "input_low_headroom_v": maybe(-0.2, 0.3 * supply_v),
+        "input_high_headroom_v": maybe(-0.2, 0.3 * supply_v),
+        "output_low_headroom_v": maybe(0.0, 0.3 * supply_v),
+        "output_high_headroom_v": maybe(0.0, 0.3 * supply_v),
+        "reference_v": maybe(0.0, supply_v),
+        "rf_ohm": maybe(1e3, 1e6),
+        "plus_input_ohm": maybe(0.0, 1e5),
+        "input_bias_current_a": maybe(0.0, 1e-6),
+        "input_offset_current_a": maybe(0.0, 1e-6),
+        "output_error_max_v": maybe(1e-4, 1.0),
+        "adc_full_scale_v": adc[0],
+        "adc_bits": float(adc[1]),
+        "voltage_noise_v_per_rthz": maybe(1e-9, 1e-7),
+        "current_noise_a_per_rthz": maybe(0.0, 1e-11),
+        "second_pole_hz": maybe(1e4, 1e8),
+        "output_resistance_ohm": maybe(0.0, 1e3),
+        "load_capacitance_f": maybe(1e-12, 1e-6),
+        "isolation_ohm": maybe(0.0, 1e3),
+    }
 
 
 def rows_to_inputs(rows: list[dict[str, Any]]) -> ChannelInputs:
@@ -398,7 +439,19 @@ FRONT_CHECKS = {
     "opamp_supply_min",
     "opamp_supply_max",
     "output_offset",
+    "input_common_mode_low",
+    "input_common_mode_high",
+    "output_swing_low",
+    "output_swing_high",
+    "output_error",
+    "noise_bits",
+    "phase_margin",
 }
+
+
+# Front-stage checks that apply only when an optional input is given (their limit is NaN otherwise).
+OPTIONAL_CHECKS = FRONT_CHECKS - {"gain_achievable", "signal_in_band", "slew_rate", "output_swing"}
+OPTIONAL_CHECKS -= {"opamp_supply_min", "opamp_supply_max"}
 
 
 @settings(max_examples=60, deadline=None, derandomize=True)
@@ -410,8 +463,8 @@ def test_property_review_is_sound(rows: list[dict[str, Any]]) -> None:
     front = out.has_front_stage
     for check in out.checks:
         applies = front if check.name in FRONT_CHECKS else np.ones_like(front)
-        if check.name == "output_offset":  # an allowed output offset is optional
-            applies = applies & ~np.isnan(inputs.output_offset_max_v)
+        if check.name in OPTIONAL_CHECKS:  # applies where its optional inputs are given: where it has a limit
+            applies = applies & ~np.isnan(check.limit)
         assert np.all(np.isfinite(check.value[applies])), check.name
         known = ~np.isnan(check.limit)
         assert np.all(check.ok[~known]), check.name

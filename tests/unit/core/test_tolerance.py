@@ -12,7 +12,7 @@ from hypothesis import given, settings
 from hypothesis import strategies as st
 from scipy.optimize import brentq
 from scipy.stats import binomtest
-from test_channel import DEMO, FRONT_CHECKS, NO_FRONT_STAGE, channel_rows, make, rows_to_inputs
+from test_channel import DEMO, FRONT_CHECKS, NO_FRONT_STAGE, OPTIONAL_CHECKS, channel_rows, make, rows_to_inputs
 
 from calcsvc.core.channel import review
 from calcsvc.core.monte_carlo import MAX_SAMPLES, Z_95, monte_carlo, validate_monte_carlo, wilson_interval
@@ -133,8 +133,7 @@ def corner_values(
         **thermal_checks(row, ta, heat, i_string, resistor_rating_w, r, power),
     }
     if math.isnan(row["gbw_hz"]):
-        front = ("gain_achievable", "signal_in_band", "slew_rate", "output_swing", "output_offset")
-        out |= {name: (math.nan, math.nan, True) for name in (*front, "opamp_supply_min", "opamp_supply_max")}
+        out |= {name: (math.nan, math.nan, True) for name in FRONT_CHECKS}
     else:
         # Single-pole op-amp: noise gain G (non-inverting) or 1 + G (inverting); bandwidth GBW/NG + GBW/A0.
         noise_gain = row["gain"] + (1.0 if row["inverting"] else 0.0)
@@ -157,7 +156,33 @@ def corner_values(
         }
         if math.isnan(row["output_offset_max_v"]):
             out["output_offset"] = (math.nan, math.nan, True)
+        out |= window_values(row, vs, noise_gain)
     return out
+
+
+def window_values(row: dict[str, Any], vs: float, noise_gain: float) -> dict[str, tuple]:
+    """The single-supply windows on rails 0 V and ``vs`` about the reference (non-inverting: the input swings
+    amplitude/G about it; inverting: the inputs stay on it). DC error, noise and stability depend on no corner
+    and are not given in these rows."""
+    assert all(math.isnan(row[name]) for name in ("output_error_max_v", "adc_bits", "second_pole_hz"))
+    assert math.isnan(row["load_capacitance_f"])
+    ref, amp = row["reference_v"], row["amplitude_v"]
+    swing_in = 0.0 if row["inverting"] else amp / noise_gain
+
+    def window(value: float, limit: float, sense: str) -> tuple:
+        if math.isnan(ref) or math.isnan(limit):
+            return math.nan, math.nan, True
+        return value, limit, value <= limit if sense == "max" else value >= limit
+
+    return {
+        "input_common_mode_low": window(ref - swing_in, row["input_low_headroom_v"], "min"),
+        "input_common_mode_high": window(ref + swing_in, vs - row["input_high_headroom_v"], "max"),
+        "output_swing_low": window(ref - amp, row["output_low_headroom_v"], "min"),
+        "output_swing_high": window(ref + amp, vs - row["output_high_headroom_v"], "max"),
+        "output_error": (math.nan, math.nan, True),
+        "noise_bits": (math.nan, math.nan, True),
+        "phase_margin": (math.nan, math.nan, True),
+    }
 
 
 def scalar_margin(value: float, limit: float, sense: str) -> float:
@@ -206,6 +231,26 @@ BRUTE_ROWS: list[dict[str, Any]] = [
         "ambient_min_c": 20.0,
         "current_a": 0.025,
         "led_rth_ba_k_per_w": 600.0,
+    },
+    # Single-supply windows about 6 V on 12 V ±5 %: the output's 7 V top meets 12 − 5 V at nominal only,
+    # the input (6 ± 0.1 V) clears a range from 5.95 V (fails low) to 1 V below the rail.
+    DEMO
+    | {
+        "reference_v": 6.0,
+        "input_low_headroom_v": 5.95,
+        "input_high_headroom_v": 1.0,
+        "output_low_headroom_v": 0.5,
+        "output_high_headroom_v": 5.0,
+    },
+    # The same inverting (the inputs stay on the reference), with a rail-to-rail input.
+    DEMO
+    | {
+        "inverting": True,
+        "reference_v": 6.0,
+        "input_low_headroom_v": -0.1,
+        "input_high_headroom_v": 5.9,
+        "output_low_headroom_v": 5.5,
+        "output_high_headroom_v": 0.1,
     },
 ]
 
@@ -332,10 +377,18 @@ def test_worst_case_agrees_with_the_led_stage_and_with_nominal_when_nothing_vari
     np.testing.assert_allclose(wc.check("led_current_rating").check.value, led["current_max_a"], rtol=1e-12)
     np.testing.assert_allclose(wc.check("resistor_rating").check.value, 2 * led["resistor_power_max_w"], rtol=1e-12)
     # Without any tolerance every corner is the nominal design: each check equals the stages' own result.
+    # Every front-stage check applies: its windows, DC error, noise and stability inputs are all given.
     exact = make(
-        supply_tolerance=0.0, resistor_tolerance=0.0, vf_min_v=2.0, vf_max_v=2.0, hfe_typ=100.0, output_offset_max_v=0.1
-    )
+        supply_tolerance=0.0, resistor_tolerance=0.0, vf_min_v=2.0, vf_max_v=2.0, hfe_typ=100.0,
+        output_offset_max_v=0.1,
+        reference_v=6.0, input_low_headroom_v=2.0, input_high_headroom_v=2.0, output_low_headroom_v=1.2,
+        output_high_headroom_v=1.4, rf_ohm=9e4, plus_input_ohm=1e3, input_bias_current_a=8e-8,
+        input_offset_current_a=2e-8, output_error_max_v=0.05, adc_full_scale_v=10.0, adc_bits=12.0,
+        voltage_noise_v_per_rthz=2e-8, current_noise_a_per_rthz=5e-13, second_pole_hz=2e6, output_resistance_ohm=75.0,
+        load_capacitance_f=1e-9,
+    )  # fmt: skip
     wc = worst_case(exact)
+    assert all(np.isfinite(c.limit[0]) for c in wc.nominal.checks)
     for c in wc.nominal.checks:
         assert wc.check(c.name).check.value[0] == pytest.approx(c.value[0], rel=1e-12), c.name
         assert wc.check(c.name).check.limit[0] == pytest.approx(c.limit[0], rel=1e-12), c.name
@@ -546,6 +599,29 @@ def test_property_yield_is_sound_and_bounded_by_the_worst_case(row: dict[str, An
         margin = worst.margin()[0]
         if worst.check.ok[0] and not margin < 1e-9:
             assert y.failures[worst.name] == 0, worst.name
-        optional = worst.name == "output_offset" and math.isnan(row["output_offset_max_v"])
+        # Checks that apply only when an optional input is given: those without a limit do not apply.
+        optional = worst.name in OPTIONAL_CHECKS and math.isnan(worst.check.limit[0])
         if (wc.nominal.has_front_stage[0] or worst.name not in FRONT_CHECKS) and not optional:
             assert np.isfinite(worst.check.value[0]), worst.name
+
+
+def test_a_reference_above_the_low_supply_corner_fails_the_windows_there() -> None:
+    # 8 V reference on 8.2 V ±5 % (7.79-8.61 V): valid at nominal, above the rail at the low corner, where the
+    # output's 9 V top (8 V + 1 V peak) and the input's top cannot fit below the rail.
+    x = make(supply_v=8.2, current_a=0.005, output_headroom_v=0.1, reference_v=8.0, input_high_headroom_v=-0.1,
+             output_high_headroom_v=0.05, amplitude_v=1.0, opamp_supply_min_v=5.0)  # fmt: skip
+    wc = worst_case(x)
+    for name in ("output_swing_high", "input_common_mode_high"):
+        check = wc.check(name)
+        assert not check.check.ok[0] and check.corner(0) == {"supply": "low"}, name
+    assert wc.check("input_common_mode_high").check.limit[0] == pytest.approx(8.2 * 0.95 + 0.1)
+
+
+def test_a_supply_corner_too_low_for_the_output_headroom_fails_the_swing() -> None:
+    # 8 V with a battery band down to 5 V and 3 V of headroom to each rail: 2 V of swing room at nominal, none
+    # at 5 V (2 × 3 V > 5 V): output_swing fails there instead of the review refusing the design.
+    x = make(supply_v=8.0, supply_min_v=5.0, supply_max_v=8.4, current_a=0.005, output_headroom_v=3.0,
+             amplitude_v=0.5, opamp_supply_min_v=4.0)  # fmt: skip
+    check = worst_case(x).check("output_swing")
+    assert not check.check.ok[0] and check.corner(0) == {"supply": "low"}
+    assert check.check.limit[0] == pytest.approx(5.0 / 2 - 3.0)

@@ -192,3 +192,75 @@ def _dump(url: str) -> list[list[Any]]:
         ]
     engine.dispose()
     return found
+
+
+# What 0006 writes into stored op-amps (the conservative defaults its docstring states): a part stored with only
+# the parameters of its time gets every one; a value already there is kept, and defaults that copy one of the
+# part's own values (output per rail, offset current, second pole) take the part's.
+OLD_OPAMP = {
+    "gbw_hz": 1e6,
+    "slew_rate_v_per_s": 5e5,
+    "open_loop_gain": 1e5,
+    "supply_min_v": 5.0,
+    "supply_max_v": 30.0,
+    "output_headroom_v": 1.5,
+}
+OPAMP_0006 = {
+    "input_low_headroom_v": 2.0,
+    "input_high_headroom_v": 2.0,
+    "output_low_headroom_v": 1.5,
+    "output_high_headroom_v": 1.5,
+    "input_bias_current_a": 1e-6,
+    "input_offset_current_a": 1e-6,
+    "voltage_noise_v_per_rthz": 100e-9,
+    "current_noise_a_per_rthz": 2e-12,
+    "second_pole_hz": 1e6,
+    "output_resistance_ohm": 1000.0,
+}
+
+
+def test_0006_writes_opamp_stage_defaults_and_takes_back_only_its_own(empty_url: str) -> None:
+    config = alembic_config(empty_url)
+    command.upgrade(config, "0003")
+    stated = {**OLD_OPAMP, "input_bias_current_a": 2e-9, "output_resistance_ohm": 50.0}  # from a datasheet
+    revisions = {("opamp-old", 1): OLD_OPAMP, ("opamp-old", 2): stated}
+    now = datetime(2026, 1, 1, tzinfo=UTC)
+    engine = create_engine(empty_url)
+    with engine.begin() as connection:
+        connection.execute(
+            text(
+                "INSERT INTO parts (part_id, kind, description, parameters, status, revision, updated_at,"
+                " updated_by, approved_by) VALUES ('opamp-old', 'opamp', '', :params, 'draft', 2, :t, 'edna', NULL)"
+            ),
+            {"params": json.dumps(stated), "t": now},
+        )
+        for (part_id, number), parameters in revisions.items():
+            connection.execute(
+                text(
+                    "INSERT INTO part_revisions (part_id, revision, kind, description, parameters, author,"
+                    " created_at) VALUES (:p, :n, 'opamp', '', :params, 'edna', :t)"
+                ),
+                {"p": part_id, "n": number, "params": json.dumps(parameters), "t": now},
+            )
+    engine.dispose()
+
+    command.upgrade(config, "0006")
+    database = Database(empty_url)
+    with database.transaction() as session:
+        store = PartStore(session)
+        history = [r.parameters for r in store.revisions("opamp-old")]
+        kept = {**OPAMP_0006, "input_offset_current_a": 2e-9, **stated}  # the offset current copies the stated Ib
+        assert history == [{**OLD_OPAMP, **OPAMP_0006}, kept]
+        assert store.get("opamp-old").parameters == kept
+        assert store.get("opamp-old").revision == 2  # no revision added
+    database.dispose()
+
+    command.downgrade(config, "0003")
+    engine = create_engine(empty_url)
+    with engine.connect() as connection:
+        stored = connection.execute(text("SELECT revision, parameters FROM part_revisions ORDER BY revision")).all()
+        current = connection.execute(text("SELECT parameters FROM parts")).scalar_one()
+    engine.dispose()
+    load = lambda value: json.loads(value) if isinstance(value, str) else value  # noqa: E731
+    assert [load(p) for _, p in stored] == [OLD_OPAMP, stated]
+    assert load(current) == stated
