@@ -15,7 +15,9 @@ from calcsvc.data.kinds import KINDS, MAX_DESCRIPTION_LENGTH
 from calcsvc.data.part_history import ACTIONS
 from calcsvc.data.review_notes import MAX_NOTE_LENGTH, comment, send_back
 from calcsvc.data.store import STATUSES, PartStore, PartView
+from calcsvc.data.store_errors import PartNotFound
 from calcsvc.service.parts import (
+    MAX_REVISION,
     NO_NUL,
     ParametersField,
     PartCreateSchema,
@@ -318,6 +320,8 @@ class Comments(MethodView):
     def post(self, body: dict[str, Any], part_id: str, revision: int) -> dict[str, Any]:
         """Comment on a revision (editor or reviewer): a `commented` event of that revision, part of its history.
         Answers the part's revisions with their events."""
+        if revision > MAX_REVISION:  # no store holds it; a database would refuse the number itself
+            raise PartNotFound(f"part '{part_id}' has no revision {revision}", "revision")
         with database().transaction() as session:
             comment(session, part_id, revision, g.identity.name, body["comment"])
         record_parts_write("comment")

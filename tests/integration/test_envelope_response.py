@@ -23,7 +23,7 @@ BODIES = {
         "rf_ohm": "100 kohm",
         "adc_bits": 12,
         "adc_full_scale_v": 10,
-    },  # fmt: skip
+    },
     "opamp-noise": {"opamp": "opamp-general-1mhz", "gain": 20, "rf_ohm": "100 kohm", "ambient_c": 45},
     "opamp-stability": {"opamp": "opamp-general-1mhz", "gain": 1, "load_capacitance_f": "100 nF"},
 }

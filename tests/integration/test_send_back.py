@@ -77,3 +77,8 @@ def test_comments_are_part_of_a_revisions_history(client: FlaskClient, tokens: d
         "/v1/parts/led-amber-3mm/revisions/9/comments", json={"comment": "x"}, headers=bearer(tokens["rita"])
     )
     assert_problem(unknown, 404, "revision")
+    # A revision number beyond what a store can hold (past a 32-bit integer) is no revision, not a server error.
+    beyond = client.post(
+        "/v1/parts/led-amber-3mm/revisions/3956203962/comments", json={"comment": "x"}, headers=bearer(tokens["rita"])
+    )
+    assert_problem(beyond, 404, "revision")
