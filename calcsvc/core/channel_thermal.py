@@ -32,8 +32,6 @@ Row = Callable[[np.ndarray], np.ndarray]
 CheckArrays = tuple[np.ndarray, np.ndarray, np.ndarray]  # value, limit, ok
 
 ABSOLUTE_ZERO_C = -273.15
-TOUCH_SAFE_C = 60.0  # surfaces above this burn on lasting contact (common practice)
-WARM_ENCLOSURE_C = 40.0  # an enclosure this warm needs its ventilation designed (common practice)
 
 DETAILS = {
     "led_junction_temperature": "Each LED's junction at the coupled electro-thermal point must stay 20 K below its "
@@ -60,11 +58,7 @@ def ambient_range(i: ChannelInputs) -> tuple[FloatArray, FloatArray]:
 
 def transistor_rth(i: ChannelInputs) -> tuple[FloatArray, FloatArray]:
     """The transistor's junction-to-ambient Rθ and the cap on its derated limit (no cap with a heat sink)."""
-    sink = ~np.isnan(i.heatsink_k_per_w)
-    free_air = np.where(
-        np.isnan(i.rth_ja_k_per_w), thermal.rth_from_rating(i.tj_max_c, i.power_max_w), i.rth_ja_k_per_w
-    )
-    return np.where(sink, i.rth_jc_k_per_w + i.heatsink_k_per_w, free_air), np.where(sink, np.inf, i.power_max_w)
+    return thermal.transistor_rth(i.tj_max_c, i.power_max_w, i.rth_ja_k_per_w, i.rth_jc_k_per_w, i.heatsink_k_per_w)
 
 
 def led_point(
@@ -232,31 +226,16 @@ def stage(i: ChannelInputs, led: Outcome, switch: Outcome) -> Outcome:
 
 def cautions(i: ChannelInputs, results: dict[str, np.ndarray], runaway: np.ndarray) -> list[Notice]:
     found: list[Notice] = []
-    hot = (results["resistor_hot_spot_c"] > TOUCH_SAFE_C) | (results["transistor_junction_c"] > TOUCH_SAFE_C)
-    hot |= runaway | (results["led_junction_c"] > TOUCH_SAFE_C)
+    touch = thermal.TOUCH_SAFE_C
+    hot = (results["resistor_hot_spot_c"] > touch) | (results["transistor_junction_c"] > touch)
+    hot |= runaway | (results["led_junction_c"] > touch)
     add_notice(
         found,
         hot,
         "Hot surfaces: a resistor, transistor or LED runs above 60 °C at this ambient; keep it clear of fingers, "
         "plastics, wiring and plant material.",
     )
-    add_notice(
-        found,
-        ambient_range(i)[1] >= WARM_ENCLOSURE_C,
-        "A warm enclosure (40 °C or more): design its ventilation, keep it out of direct sun, and measure the "
-        "parts' temperatures in the closed enclosure at the hottest expected day before relying on these figures.",
-    )
-    add_notice(
-        found,
-        runaway,
-        "Thermal runaway: the LED string has no stable temperature below its maximum; it will overheat and fail. "
-        "Give the resistor more headroom or heat-sink the LEDs.",
-    )
-    add_notice(
-        found,
-        np.ones(i.ambient_c.shape, dtype=bool),
-        "Temperatures assume still air, each part's stated thermal resistance and derating from memory-level "
-        "typical curves (resistors: IEC 60115-1); the part's datasheet, local electrical codes and a licensed "
-        "practitioner's judgement take precedence.",
-    )
+    add_notice(found, ambient_range(i)[1] >= thermal.WARM_ENCLOSURE_C, thermal.WARM_CAUTION)
+    add_notice(found, runaway, thermal.RUNAWAY_CAUTION)
+    add_notice(found, np.ones(i.ambient_c.shape, dtype=bool), thermal.ASSUMPTIONS_CAUTION)
     return found
