@@ -32,7 +32,8 @@ import numpy as np
 from calcsvc.core import thermal
 from calcsvc.core.outcome import Check, FloatArray, Notice, Outcome, Violation, add_notice, first_bad, require
 
-if TYPE_CHECKING:  # ``led_string`` builds on this module; its inputs type is needed for annotations only
+if TYPE_CHECKING:  # ``led_string`` builds on this module: its inputs type is for the annotations only
+    from calcsvc.core.channel_inputs import ChannelInputs
     from calcsvc.core.led_string import LedStringInputs
 
 ABSOLUTE_ZERO_C = -273.15
@@ -49,8 +50,9 @@ DETAILS = {
 }
 
 
-def validate(i: LedStringInputs) -> list[Violation]:
-    """The thermal inputs' preconditions; never raises."""
+def validate(i: LedStringInputs | ChannelInputs) -> list[Violation]:
+    """The thermal inputs' preconditions (the channel review's too: its inputs carry the same names); never
+    raises."""
     v: list[Violation] = []
     with np.errstate(invalid="ignore"):
         for name in ("ambient_c", "led_tj_max_c", "led_rth_jb_k_per_w", "led_rth_ba_k_per_w", "vf_tempco_v_per_k",

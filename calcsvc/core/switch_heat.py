@@ -19,8 +19,9 @@ import numpy as np
 from calcsvc.core import thermal
 from calcsvc.core.outcome import Check, FloatArray, Notice, Outcome, Violation, add_notice, first_bad, require
 
-if TYPE_CHECKING:  # ``bjt_switch`` builds on this module; its inputs type is needed for annotations only
+if TYPE_CHECKING:  # ``bjt_switch`` builds on this module: its inputs type is for the annotations only
     from calcsvc.core.bjt_switch import BjtSwitchInputs
+    from calcsvc.core.channel_inputs import ChannelInputs
 
 ABSOLUTE_ZERO_C = -273.15
 OPTIONAL = ("rth_ja_k_per_w", "rth_jc_k_per_w", "heatsink_k_per_w")
@@ -32,8 +33,9 @@ DETAILS = {
 }
 
 
-def validate(i: BjtSwitchInputs) -> list[Violation]:
-    """The thermal inputs' preconditions; never raises."""
+def validate(i: BjtSwitchInputs | ChannelInputs) -> list[Violation]:
+    """The thermal inputs' preconditions (the channel review's too: its inputs carry the same names); never
+    raises."""
     v: list[Violation] = []
     with np.errstate(invalid="ignore"):
         for name in ("ambient_c", "tj_max_c"):
