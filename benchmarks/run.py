@@ -46,7 +46,7 @@ from server import REPO, Server, gunicorn, peak_rss_bytes, reset_peak_rss
 from traffic import Client, drive
 from wrk_load import WRK_INSTALL, Window, measured, run_wrk, wrk_path
 
-from calcsvc.core import closed_loop, eseries, led_string, monte_carlo, tolerance
+from calcsvc.core import closed_loop, eseries, led_string, monte_carlo, thermal_inputs, tolerance
 from calcsvc.core.channel import ChannelInputs
 from calcsvc.core.channel_front import OPAMP_STAGE_FIELDS
 from calcsvc.core.channel_spec import CHANNEL_INPUTS
@@ -203,9 +203,13 @@ def designs(n: int, seed: int) -> dict[str, np.ndarray]:
     }
 
 
-def led_inputs(columns: dict[str, np.ndarray]) -> led_string.LedStringInputs:
+def led_inputs(columns: dict[str, np.ndarray], ambient_c: float = 25.0) -> led_string.LedStringInputs:
+    """The designs as the core's inputs, with the LED's declared thermal defaults at ``ambient_c``."""
     n = columns["supply_v"].shape[0]
-    return led_string.LedStringInputs(**columns, resistor_tolerance=np.full(n, np.nan))
+    heat = {spec.name: np.full(n, math.nan if spec.default is None else spec.default) for spec in thermal_inputs.LED}
+    return led_string.LedStringInputs(
+        **columns, resistor_tolerance=np.full(n, np.nan), ambient_c=np.full(n, ambient_c), **heat
+    )
 
 
 def records(columns: dict[str, np.ndarray]) -> list[dict[str, Any]]:
@@ -514,6 +518,25 @@ def temperature_rows(repeats: int, notes: list[str]) -> list[Row]:
             f"{times['range'] / times['fixed']:.2f}× the time",
         )
     )
+    # The single calculation: led-string over a 100,000-row batch's designs, whose coupled point is solved at
+    # any ambient; the constant-drop design alone is the cost without heat.
+    count = 100_000  # the server's batch limit
+    columns = designs(count, seed=3)
+    warm, cool = led_inputs(columns, 45.0), led_inputs(columns, 25.0)
+    times["warm"], _ = best_of(repeats, lambda: led_string.compute(warm))
+    times["cool"], _ = best_of(repeats, lambda: led_string.compute(cool))
+    times["design"], _ = best_of(repeats, lambda: led_string.design(cool))
+    for label, other in (("same rows at a fixed 25 °C", "cool"), ("same rows, constant-drop design only", "design")):
+        rows.append(
+            Row(
+                "core",
+                f"led-string, {count:,} rows, ambient 45 °C",
+                duration(times["warm"]),
+                label,
+                duration(times[other]),
+                f"{times['warm'] / times[other]:.2f}× the time",
+            )
+        )
     return rows
 
 

@@ -34,14 +34,12 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from calcsvc.core import bjt_drive, eseries
+from calcsvc.core import bjt_drive, eseries, switch_heat, switch_notices, thermal_inputs
 from calcsvc.core.outcome import (
     Check,
     FloatArray,
-    Notice,
     Outcome,
     Violation,
-    add_notice,
     first_bad,
     raise_violations,
     require,
@@ -51,9 +49,8 @@ from calcsvc.core.outcome import (
 from calcsvc.core.spec import E_SERIES, CalculationSpec, Input, Result, Role, columns_as, fraction, positive
 
 NAME = "bjt-switch"
-VERSION = "2"
+VERSION = "3"
 
-SATURATION_MARGIN_WARN = 2.0  # hfe_min at least twice the actual forced beta (common practice)
 OPTIONAL = (
     "forced_beta",
     "resistor_tolerance",
@@ -87,6 +84,12 @@ class BjtSwitchInputs:
     driver_current_max_a: FloatArray  # NaN: unknown
     drive_supply_v: FloatArray  # the pin's own supply; NaN: not given (drive_high_v stands for it)
     duty_cycle: FloatArray  # fraction of time on, 0..1
+    # Heat (``switch_heat``); NaN: not given.
+    ambient_c: FloatArray
+    tj_max_c: FloatArray
+    rth_ja_k_per_w: FloatArray  # NaN: from power_max_w at 25 °C
+    rth_jc_k_per_w: FloatArray
+    heatsink_k_per_w: FloatArray  # NaN: none
 
 
 def _rbe_current(inputs: BjtSwitchInputs) -> FloatArray:
@@ -144,6 +147,7 @@ def validate(inputs: BjtSwitchInputs) -> list[Violation]:
         require(v, bad, "drive_low_v", f"drive_low_v ({low} V) must be below drive_high_v ({high} V)")
         eseries.require_known_series(v, i.e_series)
         require_practical(v, required | given, ("rbe_ohm",))
+        v += switch_heat.validate(i)
         if not v:
             # Only when everything else holds: the exact base resistor must lie where standard values exist.
             rb_exact = _rb_exact(i)
@@ -180,12 +184,25 @@ def _rb_exact(inputs: BjtSwitchInputs) -> FloatArray:
 
 
 def compute(inputs: BjtSwitchInputs, validated: bool = False) -> Outcome:
-    """Choose the base resistor and check saturation, the driver pin and the transistor's ratings.
+    """The design (``design``) and its heat at ``ambient_c`` (``switch_heat``).
 
     Raises DomainError when any row violates ``validate``.
     """
     if not validated:  # the caller has just validated these very inputs
         raise_violations(validate(inputs))
+    cold = design(inputs)
+    heat = switch_heat.outcome(inputs, cold.results["transistor_power_w"])
+    return Outcome(
+        results={**cold.results, **heat.results},
+        checks=cold.checks + heat.checks,
+        warnings=cold.warnings,
+        cautions=cold.cautions + heat.cautions,
+    )
+
+
+def design(inputs: BjtSwitchInputs) -> Outcome:
+    """Choose the base resistor and check saturation, the driver pin and the transistor's ratings at 25 °C;
+    the channel review judges heat in its own stage. ``inputs`` must have passed ``validate``."""
     i = inputs
     n = i.hfe_min.shape[0]
     ic = i.collector_current_a
@@ -287,63 +304,7 @@ def compute(inputs: BjtSwitchInputs, validated: bool = False) -> Outcome:
         ),
     ]
 
-    warnings: list[Notice] = []
-    cautions: list[Notice] = []
-
-    add_notice(
-        warnings,
-        margin < 1.0,
-        "The actual forced beta is at or above hfe_min: at worst-case gain the transistor does not saturate "
-        "and will dissipate far more than computed.",
-    )
-    add_notice(
-        warnings,
-        (margin >= 1.0) & (margin < SATURATION_MARGIN_WARN),
-        "hfe_min is less than twice the actual forced beta: little margin over worst-case gain "
-        "(gain also falls at low temperature and high current).",
-    )
-    add_notice(
-        warnings,
-        beta_actual > i.vce_sat_forced_beta,
-        "Ic/Ib exceeds the ratio at which the part's Vce(sat) is specified: the saturation voltage, and the "
-        "current and dissipation computed from it, are not guaranteed; design at the test ratio.",
-    )
-    add_notice(
-        warnings,
-        np.isnan(i.rbe_ohm),
-        "No base pull-down: while the pin floats (reset, programming) leakage or pickup can turn the "
-        "transistor on; add one of about rbe_recommended_ohm.",
-    )
-    unknown_supply = np.isnan(i.drive_supply_v) & ~np.isnan(driver_limit)
-    message = "The pin's supply is not given: its stress current is taken at drive_high_v, an understatement."
-    add_notice(warnings, unknown_supply, message)
-    add_notice(
-        warnings,
-        i.duty_cycle < 1.0,
-        "transistor_power_w is averaged over the switching period; the power while on is higher "
-        "(divide by duty_cycle).",
-    )
-    add_notice(
-        cautions,
-        ic > i.ic_max_a,
-        "The collector current exceeds the transistor's rating: the transistor can fail.",
-    )
-    add_notice(
-        cautions,
-        over_voltage,
-        "The supply is too close to the transistor's collector-emitter rating: it can break down and fail.",
-    )
-    add_notice(
-        cautions,
-        power > i.power_max_w,
-        "The transistor dissipates more than its rating: it will overheat and can fail.",
-    )
-    add_notice(
-        cautions,
-        driver_over,
-        "The drive pin would source more than its rating: this can damage the microcontroller or logic "
-        "output; use a larger base resistor with a higher-gain transistor, or a buffer.",
-    )
+    warnings, cautions = switch_notices.notices(i, margin, beta_actual, power, driver_over, over_voltage)
     return Outcome(results=results, checks=checks, warnings=warnings, cautions=cautions)
 
 
@@ -374,6 +335,8 @@ SPEC = CalculationSpec(
         positive("driver_current_max_a", "A", "largest current the driver may source", optional=True),
         bjt_drive.DRIVE_SUPPLY_V,
         fraction("duty_cycle", "fraction of time on", default=1.0),
+        thermal_inputs.AMBIENT_C,
+        *thermal_inputs.TRANSISTOR,
     ),
     roles=(
         Role(
@@ -386,6 +349,7 @@ SPEC = CalculationSpec(
                 ("ic_max_a", "ic_max_a"),
                 ("power_max_w", "power_max_w"),
                 *bjt_drive.TRANSISTOR_EXTRAS,
+                *thermal_inputs.TRANSISTOR_PARAMETERS,
             ),
             must_have=(("polarity", "npn"),),
         ),
@@ -413,6 +377,9 @@ SPEC = CalculationSpec(
         Result("transistor_power_w", "W", "(Vce_sat Ic + Vbe_sat Ib) x duty cycle"),
         Result("off_state_base_v", "V", "base voltage when off, hot (pin low; floating with a pull-down)"),
         Result("rbe_recommended_ohm", "ohm", "base pull-down that holds a floating pin's transistor off"),
+        Result("transistor_rth_k_per_w", "K/W", "junction to ambient thermal resistance used"),
+        Result("junction_c", "°C", "junction temperature at ambient_c and transistor_power_w"),
+        Result("derated_power_limit_w", "W", "dissipation limit derated to ambient_c"),
     ),
     make_inputs=lambda c: columns_as(BjtSwitchInputs, c),
     validate=validate,

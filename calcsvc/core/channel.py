@@ -68,7 +68,7 @@ from calcsvc.core.outcome import (
 )
 
 NAME = "channel-review"
-VERSION = "3"
+VERSION = "4"
 
 __all__ = ["FRONT_STAGE_FIELDS", "ChannelInputs", "ChannelReview", "review", "validate"]
 
@@ -237,7 +237,7 @@ def validate(inputs: ChannelInputs) -> list[Violation]:
     ic_nominal, ic_max = np.ones(n), np.ones(n)
     if led_ok.any():
         ic_nominal[led_ok], ic_max[led_ok] = collector_currents(
-            take(i, led_ok), led_string.compute(take(led_in, led_ok), validated=True)
+            take(i, led_ok), led_string.design(take(led_in, led_ok))
         )
     switch_found = bjt_switch.validate(switch_inputs(i, ic_max))
     for v in switch_found:
@@ -274,9 +274,10 @@ def review(inputs: ChannelInputs, validated: bool = False) -> ChannelReview:
         raise_violations(validate(inputs))
     i = inputs
     # ``validate`` checked every stage at exactly these inputs (the currents too), so none validates again.
-    led = led_string.compute(led_inputs(i), validated=True)
+    # The LED and switch stages without heat: the thermal stage and the corners judge it over the ambient range.
+    led = led_string.design(led_inputs(i))
     ic_nominal, ic_max = collector_currents(i, led)
-    switch = bjt_switch.compute(switch_inputs(i, ic_max), validated=True)
+    switch = bjt_switch.design(switch_inputs(i, ic_max))
     supply = duty_power.compute(supply_inputs(i, ic_nominal), validated=True)
     front = front_stage(i, validated=True)
     heat = channel_thermal.stage(i, led, switch)

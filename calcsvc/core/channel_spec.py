@@ -12,7 +12,7 @@ from calcsvc.core import (
     opamp_noise,
     opamp_stability,
     opamp_windows,
-    thermal,
+    thermal_inputs,
 )
 from calcsvc.core.adc import ADC_INPUTS
 from calcsvc.core.spec import E_SERIES, Input, InputSet, Role, fraction, positive
@@ -105,14 +105,7 @@ CHANNEL_INPUTS = InputSet(
         *opamp_noise.NOISE_INPUTS,
         *opamp_stability.PART_INPUTS,
         *opamp_stability.LOAD_INPUTS,
-        Input(
-            "ambient_c",
-            "degC",
-            "ambient temperature the channel runs in (25 °C: where ratings are stated)",
-            25.0,
-            minimum=-60,
-            maximum=200,
-        ),
+        thermal_inputs.AMBIENT_C,
         Input(
             "ambient_min_c",
             "degC",
@@ -129,71 +122,8 @@ CHANNEL_INPUTS = InputSet(
             minimum=-60,
             maximum=200,
         ),
-        Input(
-            "tj_max_c",
-            "degC",
-            "transistor's maximum junction temperature (class-typical, from memory)",
-            150.0,
-            minimum=26,
-            maximum=250,
-        ),
-        positive(
-            "rth_ja_k_per_w", "K/W", "transistor junction to ambient; absent: from its rating at 25 °C", optional=True
-        ),
-        positive("rth_jc_k_per_w", "K/W", "transistor junction to case, for a heat sink", optional=True),
-        positive(
-            "heatsink_k_per_w", "K/W", "heat sink, case to ambient with its interface; absent: none", optional=True
-        ),
-        Input(
-            "led_tj_max_c",
-            "degC",
-            "LED's maximum junction temperature (class-typical, from memory)",
-            125.0,
-            minimum=26,
-            maximum=250,
-        ),
-        Input(
-            "led_rth_jb_k_per_w",
-            "K/W",
-            "LED junction to board (a 5 mm indicator's leads, from memory)",
-            200.0,
-            minimum=0,
-        ),
-        Input(
-            "led_rth_ba_k_per_w", "K/W", "board to ambient, per LED (an unsinked board, from memory)", 150.0, minimum=0
-        ),
-        Input(
-            "vf_tempco_v_per_k",
-            "V/K",
-            "LED forward-voltage temperature coefficient (about -2 mV/K, from memory)",
-            -0.002,
-            minimum=-0.1,
-            maximum=0,
-        ),
-        Input(
-            "if_derating_knee_c",
-            "degC",
-            "ambient above which the LED's maximum current falls linearly to zero at led_tj_max_c; absent: no curve",
-            optional=True,
-            minimum=-60,
-            maximum=250,
-        ),
-        Input(
-            "resistor_rated_to_c",
-            "degC",
-            "ambient up to which the string resistor takes its full rating (IEC 60115-1, from memory)",
-            thermal.RESISTOR_RATED_TO_C,
-            minimum=-60,
-            maximum=250,
-        ),
-        Input(
-            "resistor_zero_power_c",
-            "degC",
-            "ambient at which the string resistor's rating falls to zero (IEC 60115-1, from memory)",
-            thermal.RESISTOR_ZERO_POWER_C,
-            minimum=-60,
-            maximum=300,
-        ),
+        *thermal_inputs.TRANSISTOR,
+        *thermal_inputs.LED,
         Input(
             "samples",
             "dimensionless",
@@ -250,9 +180,7 @@ CHANNEL_INPUTS = InputSet(
             (
                 *((p, p) for p in ("hfe_min", "hfe_typ", "vbe_sat_v", "vce_sat_v", "ic_max_a", "power_max_w")),
                 *bjt_drive.TRANSISTOR_EXTRAS,
-                ("tj_max_c", "tj_max_c"),
-                ("rth_ja_k_per_w", "rth_ja_k_per_w"),
-                ("rth_jc_k_per_w", "rth_jc_k_per_w"),
+                *thermal_inputs.TRANSISTOR_PARAMETERS,
             ),
             must_have=(("polarity", "npn"),),
         ),
@@ -260,11 +188,8 @@ CHANNEL_INPUTS = InputSet(
             "led",
             "led",
             (
-                *((p, p) for p in ("vf_typ_v", "vf_min_v", "vf_max_v", "if_max_a", "vf_tempco_v_per_k")),
-                ("tj_max_c", "led_tj_max_c"),
-                ("rth_jb_k_per_w", "led_rth_jb_k_per_w"),
-                ("rth_ba_k_per_w", "led_rth_ba_k_per_w"),
-                ("if_derating_knee_c", "if_derating_knee_c"),
+                *((p, p) for p in ("vf_typ_v", "vf_min_v", "vf_max_v", "if_max_a")),
+                *thermal_inputs.LED_PARAMETERS,
             ),
         ),
         Role(

@@ -8,11 +8,25 @@ from typing import TYPE_CHECKING
 
 import numpy as np
 
-from calcsvc.core import bjt_switch, channel_thermal, closed_loop, duty_power, eseries, led_string, slew
+from calcsvc.core import (
+    bjt_switch,
+    channel_thermal,
+    closed_loop,
+    duty_power,
+    eseries,
+    led_string,
+    slew,
+    thermal_inputs,
+)
 from calcsvc.core.outcome import BoolArray, FloatArray, Outcome
 
 if TYPE_CHECKING:  # ``channel`` builds on this module; the inputs type is needed for annotations only
     from calcsvc.core.channel_inputs import ChannelInputs
+
+
+# The LED stage's heat inputs, named as the channel's (its thermal stage judges them at every corner).
+LED_HEAT_FIELDS = tuple(spec.name for spec in (thermal_inputs.AMBIENT_C, *thermal_inputs.LED))
+SWITCH_HEAT_FIELDS = tuple(spec.name for spec in (thermal_inputs.AMBIENT_C, *thermal_inputs.TRANSISTOR))
 
 
 def resistor_tolerance(inputs: ChannelInputs) -> FloatArray:
@@ -34,6 +48,7 @@ def led_inputs(i: ChannelInputs) -> led_string.LedStringInputs:
         switch_drop_v=i.vce_sat_v,
         e_series=i.e_series,
         resistor_tolerance=i.resistor_tolerance,
+        **{name: getattr(i, name) for name in LED_HEAT_FIELDS},
     )
 
 
@@ -58,6 +73,7 @@ def switch_inputs(i: ChannelInputs, collector_current_a: FloatArray) -> bjt_swit
         driver_current_max_a=i.source_current_max_a,
         drive_supply_v=i.drive_supply_v,
         duty_cycle=i.duty_cycle,
+        **{name: getattr(i, name) for name in SWITCH_HEAT_FIELDS},
     )
 
 

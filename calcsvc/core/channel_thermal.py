@@ -24,7 +24,7 @@ from collections.abc import Callable
 
 import numpy as np
 
-from calcsvc.core import led_string, thermal
+from calcsvc.core import led_heat, led_string, switch_heat, thermal
 from calcsvc.core.channel_inputs import ChannelInputs
 from calcsvc.core.outcome import Check, FloatArray, Notice, Outcome, Violation, add_notice, first_bad, require
 
@@ -32,8 +32,6 @@ Row = Callable[[np.ndarray], np.ndarray]
 CheckArrays = tuple[np.ndarray, np.ndarray, np.ndarray]  # value, limit, ok
 
 ABSOLUTE_ZERO_C = -273.15
-TOUCH_SAFE_C = 60.0  # surfaces above this burn on lasting contact (common practice)
-WARM_ENCLOSURE_C = 40.0  # an enclosure this warm needs its ventilation designed (common practice)
 
 DETAILS = {
     "led_junction_temperature": "Each LED's junction at the coupled electro-thermal point must stay 20 K below its "
@@ -60,11 +58,7 @@ def ambient_range(i: ChannelInputs) -> tuple[FloatArray, FloatArray]:
 
 def transistor_rth(i: ChannelInputs) -> tuple[FloatArray, FloatArray]:
     """The transistor's junction-to-ambient Rθ and the cap on its derated limit (no cap with a heat sink)."""
-    sink = ~np.isnan(i.heatsink_k_per_w)
-    free_air = np.where(
-        np.isnan(i.rth_ja_k_per_w), thermal.rth_from_rating(i.tj_max_c, i.power_max_w), i.rth_ja_k_per_w
-    )
-    return np.where(sink, i.rth_jc_k_per_w + i.heatsink_k_per_w, free_air), np.where(sink, np.inf, i.power_max_w)
+    return thermal.transistor_rth(i.tj_max_c, i.power_max_w, i.rth_ja_k_per_w, i.rth_jc_k_per_w, i.heatsink_k_per_w)
 
 
 def led_point(
@@ -134,16 +128,11 @@ def checks(
 
 
 def validate(i: ChannelInputs) -> list[Violation]:
-    """The thermal inputs' preconditions; never raises."""
-    v: list[Violation] = []
+    """The thermal inputs' preconditions (the single calculations' rules, ``led_heat`` and ``switch_heat``, over
+    the same names, and the ambient range); never raises."""
+    v = led_heat.validate(i) + switch_heat.validate(i)
     with np.errstate(invalid="ignore"):
-        for name in (
-            "ambient_c", "tj_max_c", "led_tj_max_c", "led_rth_jb_k_per_w", "led_rth_ba_k_per_w", "vf_tempco_v_per_k",
-            "resistor_rated_to_c", "resistor_zero_power_c",
-        ):  # fmt: skip
-            x = getattr(i, name)
-            require(v, ~np.isfinite(x), name, f"{name} must be a finite number (got {first_bad(x, ~np.isfinite(x))})")
-        for name in ("ambient_c", "ambient_min_c", "ambient_max_c"):
+        for name in ("ambient_min_c", "ambient_max_c"):
             x = getattr(i, name)
             bad = np.isinf(x) | (x <= ABSOLUTE_ZERO_C)
             require(v, bad, name, f"{name} ({first_bad(x, bad)} °C) must be a temperature above absolute zero")
@@ -154,41 +143,6 @@ def validate(i: ChannelInputs) -> list[Violation]:
         bad = i.ambient_max_c < i.ambient_c
         require(
             v, bad, "ambient_max_c", f"ambient_max_c ({first_bad(i.ambient_max_c, bad)} °C) cannot be below ambient_c"
-        )
-        for name in ("tj_max_c", "led_tj_max_c"):
-            x = getattr(i, name)
-            bad = x <= thermal.REFERENCE_C
-            require(v, bad, name, f"{name} ({first_bad(x, bad)} °C) must exceed 25 °C, where ratings are stated")
-        for name in (
-            "rth_ja_k_per_w",
-            "rth_jc_k_per_w",
-            "heatsink_k_per_w",
-            "led_rth_jb_k_per_w",
-            "led_rth_ba_k_per_w",
-        ):
-            x = getattr(i, name)
-            bad = np.isinf(x) | (x < 0)
-            require(v, bad, name, f"{name} ({first_bad(x, bad)} K/W) must be a finite thermal resistance of at least 0")
-        bad = ~np.isnan(i.heatsink_k_per_w) & np.isnan(i.rth_jc_k_per_w)
-        require(v, bad, "rth_jc_k_per_w", "rth_jc_k_per_w (junction to case) is required with heatsink_k_per_w")
-        bad = i.vf_tempco_v_per_k > 0
-        message = "must not be positive: an LED's forward voltage falls as it warms"
-        require(v, bad, "vf_tempco_v_per_k", f"vf_tempco_v_per_k ({first_bad(i.vf_tempco_v_per_k, bad)} V/K) {message}")
-        bad = (i.vf_min_v > 0) & (i.vf_min_v + i.vf_tempco_v_per_k * (i.led_tj_max_c - thermal.REFERENCE_C) <= 0)
-        message = "takes the lowest forward voltage to 0 V or below before led_tj_max_c"
-        require(v, bad, "vf_tempco_v_per_k", f"vf_tempco_v_per_k ({first_bad(i.vf_tempco_v_per_k, bad)} V/K) {message}")
-        bad = i.resistor_zero_power_c <= i.resistor_rated_to_c
-        message = "must exceed resistor_rated_to_c"
-        require(
-            v,
-            bad,
-            "resistor_zero_power_c",
-            f"resistor_zero_power_c ({first_bad(i.resistor_zero_power_c, bad)} °C) {message}",
-        )
-        bad = i.if_derating_knee_c >= i.led_tj_max_c
-        message = "must lie below led_tj_max_c"
-        require(
-            v, bad, "if_derating_knee_c", f"if_derating_knee_c ({first_bad(i.if_derating_knee_c, bad)} °C) {message}"
         )
     return v
 
@@ -232,31 +186,16 @@ def stage(i: ChannelInputs, led: Outcome, switch: Outcome) -> Outcome:
 
 def cautions(i: ChannelInputs, results: dict[str, np.ndarray], runaway: np.ndarray) -> list[Notice]:
     found: list[Notice] = []
-    hot = (results["resistor_hot_spot_c"] > TOUCH_SAFE_C) | (results["transistor_junction_c"] > TOUCH_SAFE_C)
-    hot |= runaway | (results["led_junction_c"] > TOUCH_SAFE_C)
+    touch = thermal.TOUCH_SAFE_C
+    hot = (results["resistor_hot_spot_c"] > touch) | (results["transistor_junction_c"] > touch)
+    hot |= runaway | (results["led_junction_c"] > touch)
     add_notice(
         found,
         hot,
         "Hot surfaces: a resistor, transistor or LED runs above 60 °C at this ambient; keep it clear of fingers, "
         "plastics, wiring and plant material.",
     )
-    add_notice(
-        found,
-        ambient_range(i)[1] >= WARM_ENCLOSURE_C,
-        "A warm enclosure (40 °C or more): design its ventilation, keep it out of direct sun, and measure the "
-        "parts' temperatures in the closed enclosure at the hottest expected day before relying on these figures.",
-    )
-    add_notice(
-        found,
-        runaway,
-        "Thermal runaway: the LED string has no stable temperature below its maximum; it will overheat and fail. "
-        "Give the resistor more headroom or heat-sink the LEDs.",
-    )
-    add_notice(
-        found,
-        np.ones(i.ambient_c.shape, dtype=bool),
-        "Temperatures assume still air, each part's stated thermal resistance and derating from memory-level "
-        "typical curves (resistors: IEC 60115-1); the part's datasheet, local electrical codes and a licensed "
-        "practitioner's judgement take precedence.",
-    )
+    add_notice(found, ambient_range(i)[1] >= thermal.WARM_ENCLOSURE_C, thermal.WARM_CAUTION)
+    add_notice(found, runaway, thermal.RUNAWAY_CAUTION)
+    add_notice(found, np.ones(i.ambient_c.shape, dtype=bool), thermal.ASSUMPTIONS_CAUTION)
     return found

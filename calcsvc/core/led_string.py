@@ -20,6 +20,13 @@ Worst case
 
     and the resistor's highest dissipation is (Vs(1+ts) − N·Vf_min − Vsw)² / (R(1−tr)).
 
+Heat (``led_heat``)
+    At ``ambient_c`` the strings settle at their coupled electro-thermal point (``thermal.led_operating_point``,
+    the channel review's solve): the LED junctions, the hot currents, the resistor's hot spot and derated
+    rating, and the checks ``led_junction_temperature``, ``led_thermal_runaway``, ``resistor_derated_power``
+    and a hot ``led_current_rating`` against the LED's derated maximum. The resistor is still chosen for the
+    target current at the typical forward voltage (``design``).
+
 Assumptions
     Constant-voltage LED model (adequate once the LED conducts; the tests compare it with the Shockley
     diode equation); the switch is a constant drop; strings are identical and independent; resistor
@@ -32,7 +39,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from calcsvc.core import eseries
+from calcsvc.core import eseries, led_heat, thermal_inputs
 from calcsvc.core.outcome import (
     Check,
     FloatArray,
@@ -49,7 +56,7 @@ from calcsvc.core.outcome import (
 from calcsvc.core.spec import E_SERIES, CalculationSpec, Input, Result, Role, columns_as, positive
 
 NAME = "led-string"
-VERSION = "1"
+VERSION = "2"
 
 # Common resistor power ratings, watts (common practice).
 POWER_RATINGS_W = np.array([0.125, 0.25, 0.5, 1.0, 2.0, 3.0, 5.0])
@@ -73,6 +80,15 @@ class LedStringInputs:
     switch_drop_v: FloatArray
     e_series: np.ndarray  # numpy str array, e.g. "E24"
     resistor_tolerance: FloatArray  # fraction; NaN → the series' default
+    # Heat (``led_heat``); NaN knee: no current derating curve.
+    ambient_c: FloatArray
+    led_tj_max_c: FloatArray
+    led_rth_jb_k_per_w: FloatArray
+    led_rth_ba_k_per_w: FloatArray
+    vf_tempco_v_per_k: FloatArray
+    if_derating_knee_c: FloatArray
+    resistor_rated_to_c: FloatArray
+    resistor_zero_power_c: FloatArray
 
 
 def string_current(headroom_v: np.ndarray, resistor_ohm: np.ndarray | float) -> np.ndarray:
@@ -166,6 +182,7 @@ def validate(inputs: LedStringInputs) -> list[Violation]:
                 f"({drop[k]:g} V = {i.leds_in_series[k]:g} × {i.vf_typ_v[k]:g} V + {i.switch_drop_v[k]:g} V)",
             )
         require_practical(v, required | {"resistor_tolerance": rt})
+        v += led_heat.validate(i)
         if not v:
             # Only when everything else holds: the exact resistor must lie where standard values are defined.
             r_exact = (i.supply_v - drop) / i.current_a
@@ -189,12 +206,31 @@ def minimum_rating_w(dissipation_w: FloatArray) -> FloatArray:
 
 
 def compute(inputs: LedStringInputs, validated: bool = False) -> Outcome:
-    """Choose each string's resistor and give nominal and worst-case current and dissipation.
+    """The constant-drop design (``design``) and its heat at ``ambient_c`` (``led_heat``), whose hot worst-case
+    ``led_current_rating`` replaces the constant-drop one.
 
     Raises DomainError when any row violates ``validate``.
     """
     if not validated:  # the caller has just validated these very inputs
         raise_violations(validate(inputs))
+    cold = design(inputs)
+    r = cold.results["resistor_ohm"]
+    tolerance = eseries.tolerance_rows(inputs.resistor_tolerance, inputs.e_series)
+    rating = cold.results["resistor_rating_w"]
+    heat = led_heat.outcome(inputs, r, r * (1.0 - tolerance), np.where(np.isnan(rating), POWER_RATINGS_W[-1], rating))
+    hot = {c.name: c for c in heat.checks}
+    return Outcome(
+        results={**cold.results, **heat.results},
+        checks=[hot.pop(c.name, c) for c in cold.checks] + list(hot.values()),
+        warnings=cold.warnings + heat.warnings,
+        cautions=cold.cautions + heat.cautions,
+    )
+
+
+def design(inputs: LedStringInputs) -> Outcome:
+    """Choose each string's resistor and give nominal and worst-case current and dissipation with constant
+    forward voltages (the module's model); the channel review judges heat in its own stage. ``inputs`` must
+    have passed ``validate``."""
     i = inputs
     n = i.supply_v.shape[0]
     vs, ts, nl = i.supply_v, i.supply_tolerance, i.leds_in_series
@@ -336,13 +372,18 @@ SPEC = CalculationSpec(
             minimum=0,
             maximum=1,
         ),
+        thermal_inputs.AMBIENT_C,
+        *thermal_inputs.LED,
     ),
     roles=(
         Role("supply", "supply", (("supply_v", "supply_v"), ("supply_tolerance", "supply_tolerance"))),
         Role(
             "led",
             "led",
-            (("vf_typ_v", "vf_typ_v"), ("vf_min_v", "vf_min_v"), ("vf_max_v", "vf_max_v"), ("if_max_a", "if_max_a")),
+            (
+                *((p, p) for p in ("vf_typ_v", "vf_min_v", "vf_max_v", "if_max_a")),
+                *thermal_inputs.LED_PARAMETERS,
+            ),
         ),
         Role("transistor", "bjt", (("vce_sat_v", "switch_drop_v"),)),
     ),
@@ -359,6 +400,16 @@ SPEC = CalculationSpec(
         Result("total_current_a", "A", "current of all strings"),
         Result("efficiency", "", "LED power / supply power"),
         Result("headroom_v", "V", "nominal voltage across the resistor"),
+        Result("current_hot_a", "A", "nominal string current at its coupled electro-thermal point at ambient_c"),
+        Result("led_junction_c", "°C", "nominal LED junction temperature at that point"),
+        Result("string_vf_hot_v", "V", "nominal string forward voltage at that junction temperature"),
+        Result("thermal_iterations", "", "iterations the nominal coupled point needed"),
+        Result("current_max_hot_a", "A", "worst-case highest string current at its coupled point"),
+        Result("led_junction_max_c", "°C", "worst-case hottest LED junction (absent: thermal runaway)"),
+        Result("led_current_limit_a", "A", "LED's maximum current derated to ambient_c"),
+        Result("resistor_power_max_hot_w", "W", "worst-case resistor dissipation at the hot current"),
+        Result("resistor_hot_spot_c", "°C", "resistor hot spot at that dissipation (IEC 60115-1 curve)"),
+        Result("resistor_derated_limit_w", "W", "resistor_rating_w derated to ambient_c"),
     ),
     make_inputs=lambda c: columns_as(LedStringInputs, c),
     validate=validate,

@@ -43,6 +43,21 @@ RESISTOR_RATED_TO_C = 70.0  # IEC 60115-1 derating curve (from memory)
 RESISTOR_ZERO_POWER_C = 155.0  # IEC 60115-1 derating curve (from memory)
 SOLVE_TOLERANCE_K = 1e-9
 MAX_ITERATIONS = 100  # Newton with bisection needs well under 60 (bisection alone halves 100 K to 1e-9 K in 37)
+TOUCH_SAFE_C = 60.0  # surfaces above this burn on lasting contact (common practice)
+WARM_ENCLOSURE_C = 40.0  # an enclosure this warm needs its ventilation designed (common practice)
+ASSUMPTIONS_CAUTION = (
+    "Temperatures assume still air, each part's stated thermal resistance and derating from memory-level "
+    "typical curves (resistors: IEC 60115-1); the part's datasheet, local electrical codes and a licensed "
+    "practitioner's judgement take precedence."
+)
+WARM_CAUTION = (
+    "A warm enclosure (40 °C or more): design its ventilation, keep it out of direct sun, and measure the "
+    "parts' temperatures in the closed enclosure at the hottest expected day before relying on these figures."
+)
+RUNAWAY_CAUTION = (
+    "Thermal runaway: the LED string has no stable temperature below its maximum; it will overheat and fail. "
+    "Give the resistor more headroom or heat-sink the LEDs."
+)
 
 
 def junction_temperature(ambient_c: npt.ArrayLike, power_w: npt.ArrayLike, rth_k_per_w: npt.ArrayLike) -> FloatArray:
@@ -62,6 +77,21 @@ def derated_power(
     with np.errstate(divide="ignore", invalid="ignore"):
         limit = (np.asarray(tj_max_c, dtype=np.float64) - np.asarray(ambient_c)) / np.asarray(rth_k_per_w)
     return np.clip(limit, 0.0, cap_w)
+
+
+def transistor_rth(
+    tj_max_c: FloatArray,
+    power_max_w: FloatArray,
+    rth_ja_k_per_w: FloatArray,
+    rth_jc_k_per_w: FloatArray,
+    heatsink_k_per_w: FloatArray,
+) -> tuple[FloatArray, FloatArray]:
+    """A transistor's junction-to-ambient Rθ and the cap on its derated limit: Rθjc + the sink's figure and no
+    cap with a heat sink (``heatsink_k_per_w`` given), else Rθja as given or from the rating at 25 °C, capped
+    at the rating."""
+    sink = ~np.isnan(heatsink_k_per_w)
+    free_air = np.where(np.isnan(rth_ja_k_per_w), rth_from_rating(tj_max_c, power_max_w), rth_ja_k_per_w)
+    return np.where(sink, rth_jc_k_per_w + heatsink_k_per_w, free_air), np.where(sink, np.inf, power_max_w)
 
 
 def resistor_derating(

@@ -35,10 +35,14 @@ def test_labels_rows_passes_failing_checks_and_cautions(client: FlaskClient, see
         "",
     )
     assert (failing["computed"], failing["passes"]) == ("true", "false")
-    # 200 mA: (12 - 3 × 2.1) V / 0.2 A = 28.5 Ω → E24 30 Ω; worst current (12.6 - 3 × 1.9) V / (30 Ω × 0.95) = 0.242 A.
+    # 200 mA: (12 - 3 × 2.1) V / 0.2 A = 28.5 Ω → E24 30 Ω; the worst string (12.6 V, 3 × 1.9 V, 28.5 Ω) runs away
+    # thermally, so its current is taken at the LED's Tj,max of 100 °C, where each forward voltage has fallen by
+    # 2 mV/K × 75 K: (12.6 - 3 × 1.75) V / 28.5 Ω = 0.258 A.
     assert (
-        failing["failing_checks"].startswith("led_current_rating 0.242") and "> limit 0.03" in failing["failing_checks"]
+        failing["failing_checks"].startswith("led_current_rating 0.2578")
+        and "> limit 0.03" in failing["failing_checks"]
     )
+    assert "led_thermal_runaway" in failing["failing_checks"]
     assert "W" in failing["cautions"]  # the resistor's dissipation
     assert (refused["computed"], refused["passes"]) == ("false", "")
     assert "did you mean 'mA'?" in refused["problem"]

@@ -15,6 +15,7 @@ from scipy.optimize import brentq
 from calcsvc.core import eseries
 from calcsvc.core.bjt_switch import BjtSwitchInputs, compute, validate
 from calcsvc.core.outcome import DomainError, Outcome
+from calcsvc.core.thermal_inputs import AMBIENT_C, TRANSISTOR
 
 # Thermal voltage kT/q at 300 K from the exact SI 2019 values of k and q.
 VT_300K = 1.380649e-23 * 300.0 / 1.602176634e-19  # ≈ 25.85 mV
@@ -41,6 +42,7 @@ DEFAULTS: dict[str, Any] = {
     "driver_current_max_a": math.nan,
     "drive_supply_v": math.nan,
     "duty_cycle": 1.0,
+    **{spec.name: math.nan if spec.default is None else spec.default for spec in (AMBIENT_C, *TRANSISTOR)},
 }
 
 
@@ -443,6 +445,12 @@ def valid_inputs(draw: st.DrawFn) -> BjtSwitchInputs:
         cols["rbe_ohm"].append(draw(st.one_of(st.just(math.nan), st.floats(rbe_min, rbe_min * 1e4))))
         cols["driver_current_max_a"].append(draw(st.one_of(st.just(math.nan), st.floats(1e-4, 1.0))))
         cols["duty_cycle"].append(draw(st.floats(min_value=0.0, max_value=1.0)))
+        cols["ambient_c"].append(draw(st.floats(min_value=-40.0, max_value=125.0)))
+        cols["tj_max_c"].append(draw(st.floats(min_value=126.0, max_value=200.0)))
+        sink = draw(st.booleans())
+        cols["rth_ja_k_per_w"].append(draw(st.one_of(st.just(math.nan), st.floats(1.0, 500.0))))
+        cols["rth_jc_k_per_w"].append(draw(st.floats(0.5, 50.0)) if sink else math.nan)
+        cols["heatsink_k_per_w"].append(draw(st.floats(0.5, 50.0)) if sink else math.nan)
     return make(**cols)
 
 

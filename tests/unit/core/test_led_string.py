@@ -13,9 +13,10 @@ from hypothesis import given, settings
 from hypothesis import strategies as st
 from scipy.optimize import brentq
 
-from calcsvc.core import eseries, led_string
+from calcsvc.core import eseries, led_string, thermal_inputs
 from calcsvc.core.led_string import LedStringInputs, compute, validate
 from calcsvc.core.outcome import DomainError, Outcome
+from calcsvc.core.thermal_inputs import AMBIENT_C
 
 # Thermal voltage kT/q at 300 K from the exact SI 2019 values of k and q.
 BOLTZMANN = 1.380649e-23
@@ -35,6 +36,10 @@ DEFAULTS: dict[str, Any] = {
     "switch_drop_v": 0.0,
     "e_series": "E24",
     "resistor_tolerance": math.nan,
+    # Heat at the declared defaults, but with a constant forward voltage, so the hand calculations of the
+    # constant-drop model hold exactly; the drift is tested in test_led_heat.py.
+    **{spec.name: math.nan if spec.default is None else spec.default for spec in (AMBIENT_C, *thermal_inputs.LED)},
+    "vf_tempco_v_per_k": 0.0,
 }
 
 
@@ -400,6 +405,12 @@ def valid_inputs(draw: st.DrawFn) -> LedStringInputs:
         cols["strings"].append(float(draw(st.integers(min_value=1, max_value=50))))
         cols["e_series"].append(draw(st.sampled_from(list(eseries.SERIES))))
         cols["resistor_tolerance"].append(draw(st.one_of(st.just(math.nan), st.floats(0.0, 0.2))))
+        cols["ambient_c"].append(draw(st.floats(min_value=-40.0, max_value=85.0)))
+        cols["vf_tempco_v_per_k"].append(draw(st.floats(min_value=-0.004, max_value=0.0)))
+        cols["if_derating_knee_c"].append(draw(st.one_of(st.just(math.nan), st.floats(-40.0, 100.0))))
+        for name in ("led_tj_max_c", "led_rth_jb_k_per_w", "led_rth_ba_k_per_w", "resistor_rated_to_c",
+                     "resistor_zero_power_c"):  # fmt: skip
+            cols[name].append(DEFAULTS[name])
     return make(**cols)
 
 
@@ -409,9 +420,13 @@ def test_property_results_are_sound(inputs: LedStringInputs) -> None:
     assert validate(inputs) == []
     out = compute(inputs)
     r = out.results
-    # No NaN for valid finite inputs, except the rating, which is NaN exactly when nothing up to 5 W fits.
+    # No NaN for valid finite inputs, except the rating, which is NaN exactly when nothing up to 5 W fits, and
+    # the junctions, NaN where a string runs away (the worst case's surely where the nominal one does).
+    runaway = ~checks(out)["led_thermal_runaway"].ok
+    np.testing.assert_array_equal(np.isnan(r["led_junction_max_c"]), runaway)
+    assert not np.any(np.isnan(r["led_junction_c"]) & ~runaway)
     for name, value in r.items():
-        if name != "resistor_rating_w":
+        if name not in ("resistor_rating_w", "led_junction_c", "led_junction_max_c"):
             assert np.all(np.isfinite(value)), name
     np.testing.assert_array_equal(np.isnan(r["resistor_rating_w"]), 2 * r["resistor_power_max_w"] > 5.0)
     # The chosen resistor is a standard value at or above the exact one (1e-9 noise allowance).

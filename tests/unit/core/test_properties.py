@@ -90,6 +90,21 @@ def assert_not_negative(outcome: Outcome, names: list[str]) -> None:
 # ---- led-string ----------------------------------------------------------------------------------------------
 
 
+def led_heat_row(draw: st.DrawFn) -> dict[str, float]:
+    """The LED string's heat inputs over their declared ranges (``thermal_inputs``)."""
+    rated_to = draw(st.floats(-60.0, 250.0))
+    return {
+        "ambient_c": draw(st.floats(-60.0, 200.0)),
+        "led_tj_max_c": draw(st.floats(26.0, 250.0)),
+        "led_rth_jb_k_per_w": draw(st.one_of(st.just(0.0), magnitudes())),
+        "led_rth_ba_k_per_w": draw(st.one_of(st.just(0.0), magnitudes())),
+        "vf_tempco_v_per_k": draw(st.one_of(st.just(0.0), st.floats(-0.1, 0.0))),
+        "if_derating_knee_c": draw(optional(st.floats(-60.0, 250.0))),
+        "resistor_rated_to_c": rated_to,
+        "resistor_zero_power_c": draw(st.floats(rated_to, 300.0)),
+    }
+
+
 @st.composite
 def led_inputs(draw: st.DrawFn) -> led_string.LedStringInputs:
     def row(draw: st.DrawFn) -> dict[str, Any]:
@@ -111,6 +126,7 @@ def led_inputs(draw: st.DrawFn) -> led_string.LedStringInputs:
             "switch_drop_v": drop,
             "e_series": draw(st.sampled_from(SERIES_NAMES)),
             "resistor_tolerance": draw(optional(st.floats(0.0, 0.99))),
+            **led_heat_row(draw),
         }
 
     return led_string.LedStringInputs(**columns(draw, row))
@@ -124,7 +140,12 @@ def test_led_string_results_are_sound_everywhere(inputs: led_string.LedStringInp
     r = out.results
     # The rating is NaN when twice the worst-case dissipation exceeds every standard rating (a failing check).
     over = ~next(c for c in out.checks if c.name == "resistor_rating").ok
-    assert_finite_except(out, {"resistor_rating_w": over})
+    # The junctions are NaN where a string runs away (the nominal string only where the worst case does too).
+    runaway = ~next(c for c in out.checks if c.name == "led_thermal_runaway").ok
+    nominal_runaway = np.isnan(r["led_junction_c"]) & runaway
+    assert_finite_except(
+        out, {"resistor_rating_w": over, "led_junction_max_c": runaway, "led_junction_c": nominal_runaway}
+    )
     assert_not_negative(out, [n for n in r if n.endswith(("_a", "_w"))])
     for k, series in enumerate(inputs.e_series):
         assert eseries.is_standard(r["resistor_ohm"][k], str(series)).all()
@@ -170,8 +191,13 @@ def bjt_inputs(draw: st.DrawFn) -> bjt_switch.BjtSwitchInputs:
             "driver_current_max_a": draw(optional(magnitudes())),
             "drive_supply_v": draw(optional(st.just(high) | magnitudes().map(lambda x: high * (1.0 + x)))),
             "duty_cycle": draw(FRACTIONS),
+            "ambient_c": draw(st.floats(-60.0, 200.0)),
+            "tj_max_c": draw(st.floats(26.0, 250.0)),
+            "rth_ja_k_per_w": draw(optional(magnitudes())),
+            **dict(zip(("rth_jc_k_per_w", "heatsink_k_per_w"), draw(sink), strict=True)),
         }
 
+    sink = st.one_of(st.just((math.nan, math.nan)), st.tuples(optional(magnitudes()), magnitudes()))
     return bjt_switch.BjtSwitchInputs(**columns(draw, row))
 
 
