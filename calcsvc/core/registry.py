@@ -8,11 +8,11 @@ or plot.
 
 from __future__ import annotations
 
-from calcsvc.core import bjt_switch, closed_loop, duty_power, led_string, slew
+from calcsvc.core import bjt_switch, closed_loop, duty_power, led_string, mosfet_switch, slew
 from calcsvc.core.spec import BudgetSpec, CalculationSpec, InputSet
 
 CALCULATIONS: dict[str, CalculationSpec] = {
-    spec.name: spec for spec in (closed_loop.SPEC, slew.SPEC, bjt_switch.SPEC, led_string.SPEC)
+    spec.name: spec for spec in (closed_loop.SPEC, slew.SPEC, bjt_switch.SPEC, mosfet_switch.SPEC, led_string.SPEC)
 }
 BUDGETS: dict[str, BudgetSpec] = {duty_power.SPEC.name: duty_power.SPEC}
 EVERY: dict[str, InputSet] = {**CALCULATIONS, **BUDGETS}  # what /v1/calc and the command line offer
