@@ -4,7 +4,7 @@ page are derived from it, as the calculations' are from their ``SPEC``."""
 
 from __future__ import annotations
 
-from calcsvc.core import bjt_drive, channel, monte_carlo, thermal
+from calcsvc.core import bjt_drive, channel, monte_carlo, pwm_timing, thermal
 from calcsvc.core.spec import E_SERIES, Input, InputSet, Role, fraction, positive
 
 
@@ -174,6 +174,8 @@ CHANNEL_INPUTS = InputSet(
             minimum=-60,
             maximum=300,
         ),
+        *pwm_timing.BIPOLAR_TIMES,
+        *pwm_timing.PWM_INPUTS,
         Input(
             "samples",
             "dimensionless",
@@ -233,6 +235,7 @@ CHANNEL_INPUTS = InputSet(
                 ("tj_max_c", "tj_max_c"),
                 ("rth_ja_k_per_w", "rth_ja_k_per_w"),
                 ("rth_jc_k_per_w", "rth_jc_k_per_w"),
+                *((p, p) for p in ("td_s", "tr_s", "ts_s", "tf_s")),
             ),
             must_have=(("polarity", "npn"),),
         ),
@@ -274,4 +277,5 @@ CHECK_UNITS = {
     "opamp_supply_min": "V", "opamp_supply_max": "V", "output_offset": "V",
     "led_junction_temperature": "°C", "led_thermal_runaway": "°C",
     "resistor_derated_power": "W", "transistor_junction_temperature": "°C", "transistor_derated_power": "W",
+    "shortest_pulse_covers_edges": "s", "flicker_low_risk": "",
 }  # fmt: skip

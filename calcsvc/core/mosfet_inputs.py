@@ -78,29 +78,21 @@ def validate(inputs: MosfetSwitchInputs) -> list[Violation]:
         for name, x in optional.items():
             require(v, np.isinf(x), name, f"{name} must be finite when given")
         for name, x in {**required, **optional}.items():
-            if name in ("drive_low_v", "ambient_c", "tj_max_c", "duty_cycle", "resistor_tolerance"):
+            if name in ("drive_low_v", "ambient_c", "tj_max_c", "duty_cycle", "resistor_tolerance", "modulation_depth"):
                 continue
             bad = x <= 0
             require(v, bad, name, f"{name} ({first_bad(x, bad)}) must be positive")
         require_practical(v, {**required, **optional}, divisors=("qg_total_c",))
         eseries.require_known_series(v, i.e_series)
-        for name, x in (("duty_cycle", i.duty_cycle), ("modulation_depth", i.modulation_depth)):
-            bad = (x < 0) | (x > 1)
-            require(v, bad, name, f"{name} ({first_bad(x, bad)}) must lie in [0, 1]")
+        bad = (i.duty_cycle < 0) | (i.duty_cycle > 1)
+        require(v, bad, "duty_cycle", f"duty_cycle ({first_bad(i.duty_cycle, bad)}) must lie in [0, 1]")
+        pwm_timing.require_pwm(v, i.pwm_frequency_hz, i.pwm_resolution_bits, i.modulation_depth, i.camera_frame_rate_hz)
         bad = (i.resistor_tolerance < 0) | (i.resistor_tolerance >= 1)
         require(
             v,
             bad,
             "resistor_tolerance",
             f"resistor_tolerance ({first_bad(i.resistor_tolerance, bad)}) must lie in [0, 1)",
-        )
-        bits = i.pwm_resolution_bits
-        bad = (bits < 1) | (bits > pwm_timing.MAX_BITS) | (bits != np.round(bits))
-        require(
-            v,
-            bad,
-            "pwm_resolution_bits",
-            f"pwm_resolution_bits ({first_bad(bits, bad)}) must be a whole number from 1 to {pwm_timing.MAX_BITS}",
         )
         _require_points(v, i)
         bad = i.drive_high_v <= i.vgs_th_max_v

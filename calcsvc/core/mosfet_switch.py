@@ -31,7 +31,7 @@ from __future__ import annotations
 
 import numpy as np
 
-from calcsvc.core import bjt_drive, eseries, flicker, on_resistance, pwm_timing, thermal
+from calcsvc.core import bjt_drive, eseries, on_resistance, pwm_timing, switch_pwm, thermal
 from calcsvc.core.mosfet_inputs import POINTS, MosfetSwitchInputs, gate_drive_v, validate, wanted_time
 from calcsvc.core.outcome import Check, FloatArray, Notice, Outcome, add_notice, raise_violations
 from calcsvc.core.spec import E_SERIES, CalculationSpec, Input, Result, Role, columns_as, fraction, positive
@@ -74,8 +74,19 @@ def compute(inputs: MosfetSwitchInputs, validated: bool = False) -> Outcome:
     points_ohm = np.stack([getattr(i, b) for _, b in POINTS], axis=1)
     rds_25 = on_resistance.at_gate_voltage(gate_v, points_v, points_ohm)
     turn_on, turn_off = pwm_timing.gate_times(i.qg_total_c, rg, gate_v, i.drive_low_v, i.vgs_th_max_v)
-    shortest = pwm_timing.shortest_on_time(i.pwm_frequency_hz, i.pwm_resolution_bits)
-    switching = pwm_timing.switching_loss(i.supply_max_v, current, turn_on, turn_off, i.pwm_frequency_hz)
+    pwm = switch_pwm.pwm_stage(
+        turn_on,
+        turn_off,
+        turn_on,  # the whole gate charge: on the safe side for the loss (pwm_timing)
+        turn_off,
+        i.supply_max_v,
+        current,
+        i.pwm_frequency_hz,
+        i.pwm_resolution_bits,
+        i.modulation_depth,
+        i.camera_frame_rate_hz,
+    )
+    switching = pwm.results["switching_loss_w"]
     rth = np.where(np.isnan(i.rth_ja_k_per_w), thermal.rth_from_rating(i.tj_max_c, i.power_max_w), i.rth_ja_k_per_w)
     junction = on_resistance.junction(i.ambient_c, rth, current, i.duty_cycle, rds_25, switching)
     rds_hot = on_resistance.hot(rds_25, junction)
@@ -84,12 +95,9 @@ def compute(inputs: MosfetSwitchInputs, validated: bool = False) -> Outcome:
     power_limit = thermal.derated_power(i.tj_max_c, i.ambient_c, rth, i.power_max_w)
     junction_limit = i.tj_max_c - thermal.JUNCTION_MARGIN_K
     supply_limit = bjt_drive.voltage_limit(i.vds_max_v)
-    edges = pwm_timing.edges_limit(turn_on, turn_off)
-    flicker_limit = flicker.low_risk_limit(i.pwm_frequency_hz)
     pulldown_target = np.minimum(
         PULLDOWN_MAX_OHM, pwm_timing.gate_threshold_low(i.vgs_th_max_v) / (2.0 * bjt_drive.LEAKAGE_HOT_A)
     )
-    no_pwm = np.isnan(i.pwm_frequency_hz)
     results: dict[str, np.ndarray] = {
         "switching_time_wanted_s": wanted,
         "rg_exact_ohm": rg_exact,
@@ -99,19 +107,12 @@ def compute(inputs: MosfetSwitchInputs, validated: bool = False) -> Outcome:
         "gate_v": gate_v,
         "rds_on_ohm": rds_25,
         "rds_on_hot_ohm": rds_hot,
-        "turn_on_s": turn_on,
-        "turn_off_s": turn_off,
-        "shortest_on_time_s": shortest,
-        "duty_step": np.where(no_pwm, np.nan, pwm_timing.duty_step(i.pwm_resolution_bits)),
         "conduction_loss_w": conduction,
-        "switching_loss_w": switching,
         "mosfet_power_w": power,
         "power_limit_w": power_limit,
         "junction_c": junction,
         "gate_pulldown_recommended_ohm": eseries.pick_at_or_below_rows(pulldown_target, i.e_series),
-        "flicker_low_risk_limit": flicker_limit,
-        "flicker_no_effect_limit": flicker.no_effect_limit(i.pwm_frequency_hz),
-        "camera_alias_hz": flicker.camera_alias(i.pwm_frequency_hz, i.camera_frame_rate_hz),
+        **pwm.results,
     }
     pin_over = pin_peak > i.driver_current_max_a  # NaN rating: not checked
     with np.errstate(invalid="ignore"):
@@ -178,26 +179,10 @@ def compute(inputs: MosfetSwitchInputs, validated: bool = False) -> Outcome:
                 "The junction (its on-resistance rising with its heat) must stay 20 K below tj_max_c (common "
                 "practice); it fails when the heat runs away.",
             ),
-            Check(
-                "shortest_pulse_covers_edges",
-                no_pwm | (shortest >= edges),
-                shortest,
-                edges,
-                "min",
-                "The shortest PWM pulse must last at least ten times turn-on plus turn-off (common practice); "
-                "not checked without a PWM frequency.",
-            ),
-            Check(
-                "flicker_low_risk",
-                no_pwm | (i.modulation_depth <= flicker_limit),
-                i.modulation_depth,
-                flicker_limit,
-                "max",
-                "The light's modulation must lie within IEEE Std 1789-2015's low-risk region at the PWM "
-                "frequency (thresholds from memory); not checked without a PWM frequency.",
-            ),
+            *pwm.checks,
         ]
-    return Outcome(results=results, checks=checks, **_notices(i, rds_25, junction, power, power_limit, pin_over))
+    warnings, cautions = _notices(i, rds_25, junction, power, power_limit, pin_over)
+    return Outcome(results, checks, [*warnings, *pwm.warnings], [*cautions, *pwm.cautions])
 
 
 def _notices(
@@ -207,7 +192,7 @@ def _notices(
     power: FloatArray,
     power_limit: FloatArray,
     pin_over: np.ndarray,
-) -> dict[str, list[Notice]]:
+) -> tuple[list[Notice], list[Notice]]:
     warnings: list[Notice] = []
     cautions: list[Notice] = []
     add_notice(
@@ -216,10 +201,6 @@ def _notices(
         "No gate pull-down: while the pin floats (reset, programming) the gate can charge and turn the "
         "MOSFET partly on, where it dissipates heavily; add one of about gate_pulldown_recommended_ohm.",
     )
-    add_notice(warnings, flicker.bands_crawl(i.pwm_frequency_hz, i.camera_frame_rate_hz), flicker.CAMERA_NOTE)
-    with np.errstate(invalid="ignore"):
-        flickers = ~np.isnan(i.pwm_frequency_hz) & (i.modulation_depth > flicker.low_risk_limit(i.pwm_frequency_hz))
-    add_notice(cautions, flickers, flicker.WORKER_NOTE)
     add_notice(
         cautions,
         np.isnan(rds_25),
@@ -247,7 +228,7 @@ def _notices(
         pin_over,
         "The pin would source more than its rating into the gate: use a larger gate resistor or a gate driver.",
     )
-    return {"warnings": warnings, "cautions": cautions}
+    return warnings, cautions
 
 
 # ---- declaration --------------------------------------------------------------------------------------------
@@ -329,19 +310,12 @@ SPEC = CalculationSpec(
         Result("gate_v", "V", "gate voltage when on"),
         Result("rds_on_ohm", "ohm", "on-resistance at gate_v, 25 °C (interpolated between stated points)"),
         Result("rds_on_hot_ohm", "ohm", "on-resistance at the junction temperature"),
-        Result("turn_on_s", "s", "turn-on time: Qg over the gate current at the highest threshold"),
-        Result("turn_off_s", "s", "turn-off time: Qg over the gate current at the lowest threshold"),
-        Result("shortest_on_time_s", "s", "shortest PWM pulse, 1/(f 2^bits)"),
-        Result("duty_step", "", "smallest duty step, 1/2^bits"),
         Result("conduction_loss_w", "W", "I^2 R(Tj) x duty cycle"),
-        Result("switching_loss_w", "W", "V I (t_r + t_f) f / 6"),
         Result("mosfet_power_w", "W", "conduction plus switching loss"),
         Result("power_limit_w", "W", "dissipation rating derated to the ambient"),
         Result("junction_c", "degC", "junction temperature (NaN: thermal runaway)"),
+        *switch_pwm.PWM_RESULTS,
         Result("gate_pulldown_recommended_ohm", "ohm", "gate pull-down that holds a floating pin's MOSFET off"),
-        Result("flicker_low_risk_limit", "", "largest low-risk modulation at the PWM frequency (IEEE Std 1789-2015)"),
-        Result("flicker_no_effect_limit", "", "largest modulation with no observable effect (IEEE Std 1789-2015)"),
-        Result("camera_alias_hz", "Hz", "rate at which rolling-shutter bands move between frames"),
     ),
     make_inputs=lambda c: columns_as(MosfetSwitchInputs, c),
     validate=validate,

@@ -31,7 +31,7 @@ from __future__ import annotations
 import numpy as np
 import numpy.typing as npt
 
-from calcsvc.core.outcome import FloatArray
+from calcsvc.core.outcome import FloatArray, Violation, first_bad, require
 from calcsvc.core.spec import Input, fraction, positive
 
 ON_TIME_MULTIPLE = 10.0  # shortest pulse / (turn-on + turn-off time) (common practice)
@@ -94,6 +94,25 @@ def edges_limit(turn_on_s: npt.ArrayLike, turn_off_s: npt.ArrayLike) -> FloatArr
     return ON_TIME_MULTIPLE * (np.asarray(turn_on_s, dtype=np.float64) + np.asarray(turn_off_s))
 
 
+def require_pwm(
+    v: list[Violation], frequency_hz: FloatArray, bits: FloatArray, depth: FloatArray, frame_rate_hz: FloatArray
+) -> None:
+    """The preconditions on the PWM inputs (NaN frequency or frame rate: not given)."""
+    with np.errstate(invalid="ignore"):
+        for name, x in (("pwm_frequency_hz", frequency_hz), ("camera_frame_rate_hz", frame_rate_hz)):
+            bad = np.isinf(x) | (x <= 0)
+            require(v, bad, name, f"{name} ({first_bad(x, bad)} Hz) must be positive and finite when given")
+        bad = ~np.isfinite(bits) | (bits < 1) | (bits > MAX_BITS) | (bits != np.round(bits))
+        require(
+            v,
+            bad,
+            "pwm_resolution_bits",
+            f"pwm_resolution_bits ({first_bad(bits, bad)}) must be a whole number from 1 to {MAX_BITS}",
+        )
+        bad = ~np.isfinite(depth) | (depth < 0) | (depth > 1)
+        require(v, bad, "modulation_depth", f"modulation_depth ({first_bad(depth, bad)}) must lie in [0, 1]")
+
+
 # ---- the PWM inputs of the switch calculations and the channel review -------------------------------------
 
 PWM_FREQUENCY_HZ = positive("pwm_frequency_hz", "Hz", "PWM frequency; absent: the switch is static", optional=True)
@@ -113,3 +132,11 @@ CAMERA_FRAME_RATE_HZ = positive(
     "camera_frame_rate_hz", "Hz", "frame rate of a camera watching the plants", optional=True
 )
 PWM_INPUTS = (PWM_FREQUENCY_HZ, PWM_RESOLUTION_BITS, MODULATION_DEPTH, CAMERA_FRAME_RATE_HZ)
+# A bipolar part that states no switching times is taken as slow as a 1 A Darlington (our conservative defaults,
+# class-typical from memory): the on-time check then errs towards failing.
+BIPOLAR_TIMES = (
+    Input("td_s", "s", "transistor's turn-on delay time", 2e-7, minimum=0),
+    Input("tr_s", "s", "transistor's rise time", 5e-7, minimum=0),
+    Input("ts_s", "s", "transistor's storage time", 3e-6, minimum=0),
+    Input("tf_s", "s", "transistor's fall time", 1.5e-6, minimum=0),
+)

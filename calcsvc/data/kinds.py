@@ -68,6 +68,11 @@ KINDS: dict[str, tuple[Param, ...]] = {
             optional=True,
         ),
         Param("rth_jc_k_per_w", "K/W", "junction-to-case thermal resistance, for a heat sink", optional=True),
+        # Resistive-load switching times as a datasheet states them at its test ratio Ic/Ib.
+        Param("td_s", "s", "turn-on delay time", optional=True),
+        Param("tr_s", "s", "collector current rise time", optional=True),
+        Param("ts_s", "s", "storage time out of saturation", optional=True),
+        Param("tf_s", "s", "collector current fall time", optional=True),
     ),
     "led": (
         Param("color", "", "emitted colour, free text", text=True, informational="names the part for people"),

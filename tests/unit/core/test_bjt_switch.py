@@ -41,6 +41,15 @@ DEFAULTS: dict[str, Any] = {
     "driver_current_max_a": math.nan,
     "drive_supply_v": math.nan,
     "duty_cycle": 1.0,
+    # Switching times of a small-signal part (invented, class-typical); no PWM unless a test gives one.
+    "td_s": 4e-8,
+    "tr_s": 4e-8,
+    "ts_s": 2.5e-7,
+    "tf_s": 8e-8,
+    "pwm_frequency_hz": math.nan,
+    "pwm_resolution_bits": 8.0,
+    "modulation_depth": 1.0,
+    "camera_frame_rate_hz": math.nan,
 }
 
 
@@ -443,7 +452,8 @@ def valid_inputs(draw: st.DrawFn) -> BjtSwitchInputs:
         cols["rbe_ohm"].append(draw(st.one_of(st.just(math.nan), st.floats(rbe_min, rbe_min * 1e4))))
         cols["driver_current_max_a"].append(draw(st.one_of(st.just(math.nan), st.floats(1e-4, 1.0))))
         cols["duty_cycle"].append(draw(st.floats(min_value=0.0, max_value=1.0)))
-    return make(**cols)
+        cols["pwm_frequency_hz"].append(draw(st.one_of(st.just(math.nan), st.floats(10.0, 1e5))))
+    return make(**{name: values for name, values in cols.items() if values})
 
 
 @settings(max_examples=200, deadline=None, derandomize=True)
@@ -452,8 +462,21 @@ def test_property_results_are_sound(inputs: BjtSwitchInputs) -> None:
     assert validate(inputs) == []
     out = compute(inputs)
     r = out.results
+    # No NaN for valid input, except where a result does not apply: PWM results without a PWM (and the
+    # switching loss without the supply), the camera's alias without a camera.
+    no_pwm = np.isnan(inputs.pwm_frequency_hz)
+    not_applying = {
+        "shortest_on_time_s": no_pwm,
+        "duty_step": no_pwm,
+        "flicker_low_risk_limit": no_pwm,
+        "flicker_no_effect_limit": no_pwm,
+        "switching_loss_w": ~no_pwm & np.isnan(inputs.supply_max_v),
+        "camera_alias_hz": np.isnan(inputs.pwm_frequency_hz) | np.isnan(inputs.camera_frame_rate_hz),
+    }
     for name, value in r.items():
-        assert np.all(np.isfinite(value)), name  # no NaN for valid input
+        applies = ~not_applying.get(name, np.zeros(value.shape, dtype=bool))
+        assert np.all(np.isfinite(value[applies])), name
+        assert np.all(np.isnan(value[~applies])), name
     # Rb is a standard value at or below the exact one (1e-9 noise allowance).
     assert np.all(r["rb_ohm"] <= r["rb_exact_ohm"] * (1 + 1e-9))
     for k, name in enumerate(inputs.e_series):

@@ -140,8 +140,8 @@ def test_a_fine_pwm_fails_the_on_time_check_with_its_numbers() -> None:
     out = compute(make(pwm_resolution_bits=10.0))
     c = next(c for c in out.checks if c.name == "shortest_pulse_covers_edges")
     assert not bool(c.ok[0])
-    assert float(c.value[0]) == pytest.approx(1 / (1250.0 * 1024))
-    assert float(c.limit[0]) == pytest.approx(10 * (result(out, "turn_on_s") + result(out, "turn_off_s")))
+    assert float(c.limit[0]) == pytest.approx(1 / (1250.0 * 1024))
+    assert float(c.value[0]) == pytest.approx(10 * (result(out, "turn_on_s") + result(out, "turn_off_s")))
 
 
 def test_flicker_below_1250_hz_at_full_depth_is_cautioned() -> None:

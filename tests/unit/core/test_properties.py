@@ -170,6 +170,11 @@ def bjt_inputs(draw: st.DrawFn) -> bjt_switch.BjtSwitchInputs:
             "driver_current_max_a": draw(optional(magnitudes())),
             "drive_supply_v": draw(optional(st.just(high) | magnitudes().map(lambda x: high * (1.0 + x)))),
             "duty_cycle": draw(FRACTIONS),
+            **{name: draw(st.one_of(st.just(0.0), magnitudes())) for name in ("td_s", "tr_s", "ts_s", "tf_s")},
+            "pwm_frequency_hz": draw(optional(magnitudes())),
+            "pwm_resolution_bits": float(draw(st.integers(1, 24))),
+            "modulation_depth": draw(FRACTIONS),
+            "camera_frame_rate_hz": draw(optional(magnitudes())),
         }
 
     return bjt_switch.BjtSwitchInputs(**columns(draw, row))
@@ -181,7 +186,12 @@ def test_bjt_switch_results_are_sound_everywhere(inputs: bjt_switch.BjtSwitchInp
     inputs = valid_rows(inputs, bjt_switch.validate)
     out = bjt_switch.compute(inputs)
     r = out.results
-    assert_finite_except(out, {})
+    no_pwm = np.isnan(inputs.pwm_frequency_hz)
+    pwm_only = ("shortest_on_time_s", "duty_step", "flicker_low_risk_limit", "flicker_no_effect_limit")
+    does_not_apply = {name: no_pwm for name in pwm_only}
+    does_not_apply["switching_loss_w"] = ~no_pwm & np.isnan(inputs.supply_max_v)
+    does_not_apply["camera_alias_hz"] = no_pwm | np.isnan(inputs.camera_frame_rate_hz)
+    assert_finite_except(out, does_not_apply)
     assert_not_negative(out, ["base_current_required_a", "drive_current_a", "base_current_a", "transistor_power_w"])
     for k, series in enumerate(inputs.e_series):
         assert eseries.is_standard(r["rb_ohm"][k], str(series)).all()
