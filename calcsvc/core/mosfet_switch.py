@@ -73,7 +73,8 @@ def compute(inputs: MosfetSwitchInputs, validated: bool = False) -> Outcome:
     points_v = np.stack([getattr(i, a) for a, _ in POINTS], axis=1)
     points_ohm = np.stack([getattr(i, b) for _, b in POINTS], axis=1)
     rds_25 = on_resistance.at_gate_voltage(gate_v, points_v, points_ohm)
-    turn_on, turn_off = pwm_timing.gate_times(i.qg_total_c, rg, gate_v, i.drive_low_v, i.vgs_th_max_v)
+    sink_rating = np.where(np.isnan(i.driver_current_max_a), bjt_drive.VOL_RATED_UNKNOWN_A, i.driver_current_max_a)
+    turn_on, turn_off = pwm_timing.gate_times(i.qg_total_c, rg, gate_v, i.drive_low_v / sink_rating, i.vgs_th_max_v)
     pwm = switch_pwm.pwm_stage(
         turn_on,
         turn_off,

@@ -9,9 +9,10 @@ Switching times
     Bipolar, from the part's stated times: on = delay + rise, off = storage + fall; the rise and fall are the
     transitions that dissipate. MOSFET, from gate charge and gate current (Q = I·t): the gate takes its whole
     charge Qg through the gate resistor Rg while the gate sits near its threshold, so
-        t_on  = Qg·Rg/(V_high − Vth,max)    (least charging current: the highest threshold)
-        t_off = Qg·Rg/(Vth,low − V_low)     (least discharging current: the lowest threshold)
-    with Vth,low = Vth,max/2 (from memory: a threshold's stated range spans about 2:1). Taking the whole gate
+        t_on  = Qg·Rg/(V_high − Vth,max)       (least charging current: the highest threshold)
+        t_off = Qg·(Rg + R_pin)/Vth,low        (least discharging current: the lowest threshold)
+    with Vth,low = Vth,max/2 (from memory: a threshold's stated range spans about 2:1) and the pin sinking
+    through its own resistance R_pin = V_OL/I_rated (a resistive pin, as ``bjt_drive`` models it). Taking the whole gate
     charge, not only its Miller share, overstates the transition: on the safe side for the on-time check and
     the switching loss.
 
@@ -65,14 +66,14 @@ def gate_times(
     qg_c: npt.ArrayLike,
     rg_ohm: npt.ArrayLike,
     high_v: npt.ArrayLike,
-    low_v: npt.ArrayLike,
+    pin_low_ohm: npt.ArrayLike,
     vgs_th_max_v: npt.ArrayLike,
 ) -> tuple[FloatArray, FloatArray]:
     """(turn-on, turn-off) of a MOSFET's gate through ``rg_ohm`` by Q = I·t (module docstring); the caller
-    ensures high_v > vgs_th_max_v and low_v < the low threshold."""
+    ensures high_v > vgs_th_max_v."""
     q = np.asarray(qg_c, dtype=np.float64)
     on_current = (np.asarray(high_v) - np.asarray(vgs_th_max_v)) / np.asarray(rg_ohm)
-    off_current = (gate_threshold_low(vgs_th_max_v) - np.asarray(low_v)) / np.asarray(rg_ohm)
+    off_current = gate_threshold_low(vgs_th_max_v) / (np.asarray(rg_ohm) + np.asarray(pin_low_ohm))
     return q / on_current, q / off_current
 
 

@@ -133,7 +133,7 @@ KINDS: dict[str, tuple[Param, ...]] = {
         Param("vgs_3_v", "V", "the highest stated gate-source voltage", optional=True),
         Param("rds_on_3_ohm", "ohm", "largest on-resistance at vgs_3_v, 25 °C", optional=True),
         Param("vgs_th_max_v", "V", "largest gate threshold voltage"),
-        Param("qg_total_c", "C", "total gate charge at the highest stated gate voltage"),
+        Param("qg_total_c", "C", "total gate charge at the datasheet's gate drive (at 4.5 V for a logic-level part)"),
         Param("power_max_w", "W", "total dissipation rating at 25 °C ambient"),
         Param("tj_max_c", "degC", "maximum junction temperature", optional=True),
         Param(

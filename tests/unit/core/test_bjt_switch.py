@@ -559,3 +559,33 @@ def test_darlington_default_ratio_saturates_the_ebers_moll_pair() -> None:
     hard = solve_darlington(q1, q2, 2.8, (2.8 - 1.7) / 0.015, V_CC, rc)
     assert hard["vbc2"] < 0 and sol["vbc2"] < 0
     assert sol["vce"] - hard["vce"] < 0.1 and hard["vce"] > 0.7
+
+
+# ---- PWM timing ---------------------------------------------------------------------------------------------
+
+DARLINGTON_TIMES = {"td_s": 2e-7, "tr_s": 5e-7, "ts_s": 3e-6, "tf_s": 1.5e-6}  # invented, class-typical
+
+
+def test_a_fast_pwm_fails_a_slow_darlington_on_the_on_time_check_with_its_numbers() -> None:
+    # 2 kHz with 8 bits: the shortest pulse is 1/(2000·256) = 1.95 µs; ten times the Darlington's
+    # (0.2 + 0.5) µs on plus (3 + 1.5) µs off is 52 µs (common practice: a tenth of the pulse for the edges).
+    out = compute(make(pwm_frequency_hz=2000.0, pwm_resolution_bits=8.0, **DARLINGTON_TIMES))
+    c = checks(out)["shortest_pulse_covers_edges"]
+    assert not c.ok[0]
+    assert c.value[0] == pytest.approx(10 * (0.7e-6 + 4.5e-6))
+    assert c.limit[0] == pytest.approx(1 / (2000 * 256))
+    # The small-signal part's (0.04 + 0.04) µs on and (0.25 + 0.08) µs off fit 64 steps at 2 kHz (7.8 µs).
+    assert checks(compute(make(pwm_frequency_hz=2000.0, pwm_resolution_bits=6.0)))["shortest_pulse_covers_edges"].ok[0]
+
+
+def test_switching_loss_enters_the_transistor_power() -> None:
+    # V·I·(tr + tf)·f/6 (Mohan, Undeland & Robbins, Power Electronics): 12 V, 0.15 A, (40 + 80) ns, 2 kHz.
+    static = compute(make(supply_max_v=12.0))
+    pwm = compute(make(supply_max_v=12.0, pwm_frequency_hz=2000.0))
+    loss = 12.0 * 0.15 * 120e-9 * 2000.0 / 6
+    assert pwm.results["switching_loss_w"][0] == pytest.approx(loss)
+    assert pwm.results["transistor_power_w"][0] == pytest.approx(static.results["transistor_power_w"][0] + loss)
+    # Without the supply the loss is unknown: left out, with a warning.
+    unknown = compute(make(pwm_frequency_hz=2000.0))
+    assert math.isnan(unknown.results["switching_loss_w"][0])
+    assert any("switching loss is unknown" in w.message for w in unknown.warnings)

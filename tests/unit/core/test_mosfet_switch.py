@@ -81,11 +81,14 @@ def test_design_passes_with_its_numbers_by_hand() -> None:
     assert result(out, "conduction_loss_w") == pytest.approx(0.7**2 * result(out, "rds_on_hot_ohm") * 0.5)
     # Q = I·t on each edge.
     assert result(out, "turn_on_s") == pytest.approx(2.5e-9 * 360.0 / (gate - 1.5))
-    assert result(out, "turn_off_s") == pytest.approx(2.5e-9 * 360.0 / 0.75)
+    assert result(out, "turn_off_s") == pytest.approx(2.5e-9 * 360.0 / 0.75)  # a pin low at 0 V: no resistance
     # Thermal Ohm's law with the total loss.
     assert result(out, "junction_c") == pytest.approx(45.0 + 150.0 * result(out, "mosfet_power_w"))
     assert all(bool(c.ok[0]) for c in out.checks)
     assert out.cautions == []
+    # A pin low at 0.5 V at its rated 10 mA sinks through 50 Ω besides Rg (a resistive pin).
+    slower = compute(make(drive_low_v=0.5))
+    assert result(slower, "turn_off_s") == pytest.approx(2.5e-9 * (360.0 + 50.0) / 0.75)
 
 
 def test_a_switching_time_the_pin_cannot_give_fails() -> None:
@@ -103,10 +106,10 @@ def test_a_part_stated_only_at_10_v_is_refused_for_a_3v3_pin() -> None:
     (violation,) = refused.value.violations
     assert violation.field == "drive_high_v"
     assert "not a logic-level part" in violation.message
-    assert "10 V" in violation.message
+    assert "vgs_1_v 10 V" in violation.message and "threshold up to 2 V" in violation.message
 
 
-def test_a_threshold_above_the_pin_is_refused() -> None:
+def test_a_threshold_above_the_pin_is_refused_as_unstated_drive() -> None:
     assert [
         v.field
         for v in validate(

@@ -38,10 +38,11 @@ def test_switching_loss_matches_the_numerical_triangle_integral() -> None:
 
 def test_gate_times_from_charge_and_current() -> None:
     # Q = I·t: 2.5 nC through 360 Ω from 2.8 V against a 1.5 V threshold is (2.8 − 1.5)/360 A for
-    # 2.5e-9/that seconds; off, the lowest threshold (half the maximum, from memory) drives 0.75/360 A.
-    on, off = pwm_timing.gate_times(2.5e-9, 360.0, 2.8, 0.0, 1.5)
+    # 2.5e-9/that seconds; off, the lowest threshold (half the maximum, from memory) drives 0.75 V through
+    # 360 Ω and the pin's own 50 Ω (0.5 V at its rated 10 mA).
+    on, off = pwm_timing.gate_times(2.5e-9, 360.0, 2.8, 50.0, 1.5)
     assert float(on) == pytest.approx(2.5e-9 / ((2.8 - 1.5) / 360.0))
-    assert float(off) == pytest.approx(2.5e-9 / (0.75 / 360.0))
+    assert float(off) == pytest.approx(2.5e-9 / (0.75 / 410.0))
 
 
 def test_bipolar_times_add_delay_to_rise_and_storage_to_fall() -> None:
