@@ -74,7 +74,7 @@ from calcsvc.core.outcome import (
 )
 
 NAME = "channel-review"
-VERSION = "3"
+VERSION = "4"
 
 __all__ = ["FRONT_STAGE_FIELDS", "ChannelInputs", "ChannelReview", "review", "validate"]
 

@@ -480,3 +480,11 @@ def test_a_retirement_and_its_reason_are_in_the_page_history(
     assert "Retired by edna on " in html and ": no longer stocked" in html
     assert "may restore it as a new draft revision" in html
     assert client.get("/review/parts/opamp-general-1mhz%0A").status_code == 404
+
+
+def test_channel_page_takes_the_pwm_and_shows_its_checks(client: FlaskClient, seeded: Any) -> None:
+    query = {**DEMO_CHANNEL, "pwm_frequency_hz": "2 kHz", "pwm_resolution_bits": "6", "samples": "0"}
+    assert channel_body(query)["pwm_resolution_bits"] == 6
+    html, _ = page(client, "/review/channel?" + urlencode(query))
+    assert 'name="pwm_frequency_hz"' in html and "2 kHz" in html
+    assert "shortest_pulse_covers_edges" in html and "flicker_low_risk" in html

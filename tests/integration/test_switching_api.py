@@ -7,6 +7,7 @@ import json
 from pathlib import Path
 from typing import Any
 
+import pytest
 from flask.testing import FlaskClient
 from helpers import assert_problem
 
@@ -34,7 +35,7 @@ def test_logic_level_mosfet_from_a_3v3_pin_passes_with_its_gate_resistor_losses_
     r = data["results"]
     # Each edge a twentieth of the shortest pulse, 1/(2 kHz · 16) = 31.25 µs: 1.5625 µs · 0.75 V / 3 nC = 390.6 Ω,
     # so 390 Ω (E24, at or below), above the 10 mA pin's smallest 3.3 V / 9.5 mA = 347 Ω.
-    assert r["rg_exact_ohm"] == 1.5625e-6 * 0.75 / 3e-9 or abs(r["rg_exact_ohm"] - 390.625) < 1e-9
+    assert r["rg_exact_ohm"] == pytest.approx(390.625)
     assert r["rg_ohm"] == 390.0
     assert 0 < r["conduction_loss_w"] and 0 < r["switching_loss_w"] < r["conduction_loss_w"]
     assert r["junction_c"] < 150 - 20
@@ -76,8 +77,8 @@ def test_a_pwm_too_fast_for_a_darlington_fails_the_on_time_check_with_its_number
     check = next(c for c in data["checks"] if c["name"] == "shortest_pulse_covers_edges")
     # Ten times the seed Darlington's (0.2 + 0.5) µs on and (3 + 1.5) µs off against 1/(2 kHz · 2^8).
     assert not check["ok"]
-    assert check["value"] == 10 * 5.2e-6 or abs(check["value"] - 52e-6) < 1e-12
-    assert abs(check["limit"] - 1 / (2000 * 256)) < 1e-15
+    assert check["value"] == pytest.approx(52e-6)
+    assert check["limit"] == pytest.approx(1 / (2000 * 256))
 
 
 def test_period_and_pwm_frequency_must_agree(client: FlaskClient, seeded: Any) -> None:
