@@ -115,7 +115,7 @@ def validate(inputs: BjtSwitchInputs) -> list[Violation]:
         low, high = first_bad(i.drive_low_v, bad), first_bad(i.drive_high_v, bad)
         require(v, bad, "drive_low_v", f"drive_low_v ({low} V) must be below drive_high_v ({high} V)")
         eseries.require_known_series(v, i.e_series)
-        require_practical(v, required | given, ("rbe_ohm",))
+        require_practical(v, required | given, ("rbe_ohm", "pwm_frequency_hz", "camera_frame_rate_hz"))
         if not v:
             # Only when everything else holds: the exact base resistor must lie where standard values exist.
             rb_exact = exact_base_resistor(i)

@@ -14,6 +14,15 @@ from calcsvc.core.outcome import FloatArray, Violation, first_bad, require, requ
 STATIC_SWITCHING_S = 1e-6  # wanted edge time without a PWM (our default; speed does not matter then)
 EDGE_SHARE_OF_PULSE = 0.5 / pwm_timing.ON_TIME_MULTIPLE  # each edge a twentieth of the shortest pulse
 POINTS = (("vgs_1_v", "rds_on_1_ohm"), ("vgs_2_v", "rds_on_2_ohm"), ("vgs_3_v", "rds_on_3_ohm"))
+DIVISORS = (
+    "qg_total_c",
+    "power_max_w",
+    "rth_ja_k_per_w",
+    "driver_current_max_a",
+    "gate_pulldown_ohm",
+    "pwm_frequency_hz",
+    "camera_frame_rate_hz",
+)
 OPTIONAL = (
     "vgs_2_v",
     "rds_on_2_ohm",
@@ -82,7 +91,7 @@ def validate(inputs: MosfetSwitchInputs) -> list[Violation]:
                 continue
             bad = x <= 0
             require(v, bad, name, f"{name} ({first_bad(x, bad)}) must be positive")
-        require_practical(v, {**required, **optional}, divisors=("qg_total_c",))
+        require_practical(v, {**required, **optional}, divisors=DIVISORS)
         eseries.require_known_series(v, i.e_series)
         bad = (i.duty_cycle < 0) | (i.duty_cycle > 1)
         require(v, bad, "duty_cycle", f"duty_cycle ({first_bad(i.duty_cycle, bad)}) must lie in [0, 1]")

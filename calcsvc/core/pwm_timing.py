@@ -69,12 +69,13 @@ def gate_times(
     pin_low_ohm: npt.ArrayLike,
     vgs_th_max_v: npt.ArrayLike,
 ) -> tuple[FloatArray, FloatArray]:
-    """(turn-on, turn-off) of a MOSFET's gate through ``rg_ohm`` by Q = I·t (module docstring); the caller
-    ensures high_v > vgs_th_max_v."""
+    """(turn-on, turn-off) of a MOSFET's gate through ``rg_ohm`` by Q = I·t (module docstring); NaN turn-on
+    where ``high_v`` does not exceed the threshold (the part may never turn fully on)."""
     q = np.asarray(qg_c, dtype=np.float64)
     on_current = (np.asarray(high_v) - np.asarray(vgs_th_max_v)) / np.asarray(rg_ohm)
     off_current = gate_threshold_low(vgs_th_max_v) / (np.asarray(rg_ohm) + np.asarray(pin_low_ohm))
-    return q / on_current, q / off_current
+    with np.errstate(divide="ignore", invalid="ignore"):
+        return np.where(on_current > 0, q / on_current, np.nan), q / off_current
 
 
 def switching_loss(

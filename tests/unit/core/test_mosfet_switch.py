@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import dataclasses
 import math
 from typing import Any
 
@@ -189,3 +190,61 @@ def test_more_current_never_cools(current: float, duty: float, ambient: float) -
     high = compute(make(drain_current_a=current * 1.1, duty_cycle=duty, ambient_c=ambient))
     a, b = result(low, "junction_c"), result(high, "junction_c")
     assert math.isnan(b) or b >= a - 1e-9
+
+
+@st.composite
+def wide_inputs(draw: st.DrawFn) -> MosfetSwitchInputs:
+    vth = draw(st.floats(0.5, 4.0))
+    v1 = vth * draw(st.floats(1.01, 3.0))
+    r1 = draw(st.floats(1e-3, 10.0))
+    return make(
+        vgs_th_max_v=vth,
+        vgs_1_v=v1,
+        rds_on_1_ohm=r1,
+        vgs_2_v=draw(st.one_of(st.just(NAN), st.floats(1.01, 3.0).map(lambda k: v1 * k))),
+        rds_on_2_ohm=r1 * draw(st.floats(0.3, 1.0)),
+        vgs_3_v=NAN,
+        rds_on_3_ohm=NAN,
+        qg_total_c=draw(st.floats(1e-10, 1e-7)),
+        drive_high_v=v1 * draw(st.floats(1.0, 3.0)),
+        drive_low_v=draw(st.floats(0.0, 0.5)),
+        drive_supply_v=NAN,
+        driver_current_max_a=draw(st.one_of(st.just(NAN), st.floats(1e-3, 0.1))),
+        drain_current_a=draw(st.floats(1e-3, 20.0)),
+        gate_pulldown_ohm=draw(st.one_of(st.just(NAN), st.floats(1e3, 1e6))),
+        duty_cycle=draw(st.floats(0.0, 1.0)),
+        ambient_c=draw(st.floats(-40.0, 100.0)),
+        pwm_frequency_hz=draw(st.one_of(st.just(NAN), st.floats(10.0, 1e5))),
+        pwm_resolution_bits=float(draw(st.integers(1, 16))),
+        modulation_depth=draw(st.floats(0.0, 1.0)),
+    )
+
+
+@settings(derandomize=True, max_examples=150, deadline=None)
+@given(inputs=wide_inputs())
+def test_property_valid_inputs_give_sound_results(inputs: MosfetSwitchInputs) -> None:
+    # Rows that fit (vgs_2 given with its resistance, the pin above vgs_1 after the pull-down) compute; the
+    # results are finite except where they do not apply, and every check agrees with its value and limit.
+    if np.isnan(inputs.vgs_2_v[0]):
+        inputs = dataclasses.replace(inputs, rds_on_2_ohm=np.array([NAN]))
+    assert validate(inputs) == []
+    out = compute(inputs)
+    r = out.results
+    if r["gate_v"][0] < inputs.vgs_1_v[0]:  # the pull-down divides the pin under the stated drive
+        assert not bool(next(c for c in out.checks if c.name == "gate_reaches_stated_drive").ok[0])
+        assert any("does not reach" in c.message for c in out.cautions)
+        return
+    no_pwm = bool(np.isnan(inputs.pwm_frequency_hz[0]))
+    pwm_only = ("shortest_on_time_s", "duty_step", "flicker_low_risk_limit", "flicker_no_effect_limit")
+    runaway = bool(np.isnan(r["junction_c"][0]))
+    for name, value in r.items():
+        if runaway and name in ("junction_c", "rds_on_hot_ohm", "conduction_loss_w", "mosfet_power_w"):
+            continue  # cautioned, failing checks
+        if (no_pwm and name in pwm_only) or name in ("camera_alias_hz", "rg_pin_min_ohm"):
+            continue  # does not apply: no PWM, no camera, no pin rating
+        assert np.isfinite(value[0]), name
+    assert r["rg_ohm"][0] > 0 and r["turn_off_s"][0] > 0 and r["turn_on_s"][0] > 0
+    for c in out.checks:
+        if np.isfinite(c.limit[0]) and np.isfinite(c.value[0]):
+            held = c.value[0] <= c.limit[0] * (1 + 1e-9) if c.sense == "max" else c.value[0] >= c.limit[0]
+            assert bool(c.ok[0]) == bool(held), c.name
