@@ -85,3 +85,19 @@ def test_period_and_pwm_frequency_must_agree(client: FlaskClient, seeded: Any) -
     body = {**DEMO, "duty_cycle": None, "on_time_s": "250 us", "period_s": "1 ms", "pwm_frequency_hz": "2 kHz"}
     body = {k: v for k, v in body.items() if v is not None}
     assert_problem(client.post("/v1/review/channel", json=body), 422, "pwm_frequency_hz")
+
+
+def test_mosfet_search_ranks_by_dissipation_and_gives_the_refusal_reason(client: FlaskClient, seeded: Any) -> None:
+    body = {k: v for k, v in MOSFET_CHANNEL.items() if k != "transistor"}
+    response = client.post(
+        "/v1/select/mosfet-switch", json={**body, "search": "transistor", "rank_by": "mosfet_power_w"}
+    )
+    assert response.status_code == 200, response.get_json()
+    data = response.get_json()
+    assert data["passing"] == 1
+    best, *refused = data["candidates"]
+    assert best["part_id"] == "nmos-logic-small" and best["ok"]
+    assert best["results"]["junction_c"] < 130 and best["results"]["mosfet_power_w"] > 0
+    # The parts stated only from 4.5 V or 10 V gate drive are not logic-level parts for the 3.3 V pin.
+    assert {c["part_id"] for c in refused} == {"nmos-logic-power", "nmos-standard-10v"}
+    assert all("not a logic-level part" in c["problem"]["drive_high_v"][0] for c in refused)
