@@ -101,3 +101,36 @@ def test_mosfet_search_ranks_by_dissipation_and_gives_the_refusal_reason(client:
     # The parts stated only from 4.5 V or 10 V gate drive are not logic-level parts for the 3.3 V pin.
     assert {c["part_id"] for c in refused} == {"nmos-logic-power", "nmos-standard-10v"}
     assert all("not a logic-level part" in c["problem"]["drive_high_v"][0] for c in refused)
+
+
+GREENHOUSE_SWITCH = {
+    "driver": "driver-mcu-3v3",
+    "load_current_a": "700 mA",
+    "supply_max_v": "12.6 V",
+    "duty_cycle": 0.5,
+    "ambient_c": 45,
+    "pwm_frequency_hz": "2 kHz",
+    "pwm_resolution_bits": 4,
+}
+
+
+def test_switch_search_ranks_bipolar_darlington_and_mosfet_together(client: FlaskClient, seeded: Any) -> None:
+    response = client.post("/v1/select/switch", json={**GREENHOUSE_SWITCH, "rank_by": "dissipation"})
+    assert response.status_code == 200, response.get_json()
+    data = response.get_json()
+    kinds = {c["part_id"]: c["kind"] for c in data["candidates"]}
+    assert kinds["nmos-logic-small"] == "mosfet" and kinds["npn-darlington-1a"] == "bjt"
+    assert kinds["npn-small-signal"] == "bjt"
+    best = data["candidates"][0]
+    # The only passing switch: the logic-level MOSFET, with its losses and junction temperature.
+    assert best["part_id"] == "nmos-logic-small" and best["ok"] and data["passing"] == 1
+    assert best["dissipation_w"] == pytest.approx(best["results"]["mosfet_power_w"])
+    assert best["results"]["junction_c"] < 130
+    # The Darlington is too slow for 16 steps at 2 kHz; the single transistors ask too much of the pin.
+    darlington = next(c for c in data["candidates"] if c["part_id"] == "npn-darlington-1a")
+    assert darlington["failing"] == ["shortest_pulse_covers_edges"] and darlington["dissipation_w"] > 0
+    single = next(c for c in data["candidates"] if c["part_id"] == "npn-medium-power")
+    assert "driver_current" in single["failing"]
+    # The candidates' requests re-run them through their own calculation.
+    again = client.post(f"/v1/calc/{best['calculation']}", json=best["request"]).get_json()
+    assert again["results"]["mosfet_power_w"] == pytest.approx(best["results"]["mosfet_power_w"])
