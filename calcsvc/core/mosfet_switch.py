@@ -9,9 +9,9 @@ Gate resistor
     switching time (``pwm_timing.gate_times``: Q = I·t through Rg), but never below the smallest that keeps
     the pin's peak current within its rating: at turn-on the gate sits at 0 V, so the pin sources
     V_dd/Rg (its high level at its own supply, Rg at −tolerance; worst case two-sided). Where the pin forbids
-    the wanted speed the edge-time check fails. Unless given, the wanted switching time is a twentieth of the
-    shortest PWM pulse (so the on-time check can pass), or 1 µs without a PWM (our default for a static
-    switch, where speed does not matter).
+    a switching time asked for, the edge-time check fails. Unless asked for, the wanted switching time is a
+    twentieth of the shortest PWM pulse (the on-time check then judges the edges), or 1 µs without a PWM (our
+    default for a static switch, where speed does not matter).
 
 On-resistance, loss and heat (``on_resistance``, ``pwm_timing``, ``thermal``)
     The gate reaches the pin's worst-case high level (``drive_high_v``, its rated output high level), less
