@@ -104,3 +104,12 @@ class ChannelInputs:
     if_derating_knee_c: FloatArray  # NaN: no current derating curve
     resistor_rated_to_c: FloatArray
     resistor_zero_power_c: FloatArray
+    # The switch's stated times and the PWM (``switch_pwm``); NaN pwm_frequency_hz: no PWM stage.
+    td_s: FloatArray
+    tr_s: FloatArray
+    ts_s: FloatArray
+    tf_s: FloatArray
+    pwm_frequency_hz: FloatArray
+    pwm_resolution_bits: FloatArray
+    modulation_depth: FloatArray
+    camera_frame_rate_hz: FloatArray  # NaN: no camera

@@ -12,6 +12,7 @@ from calcsvc.core import (
     opamp_noise,
     opamp_stability,
     opamp_windows,
+    pwm_timing,
     thermal_inputs,
 )
 from calcsvc.core.adc import ADC_INPUTS
@@ -124,6 +125,8 @@ CHANNEL_INPUTS = InputSet(
         ),
         *thermal_inputs.TRANSISTOR,
         *thermal_inputs.LED,
+        *pwm_timing.BIPOLAR_TIMES,
+        *pwm_timing.PWM_INPUTS,
         Input(
             "samples",
             "dimensionless",
@@ -181,6 +184,7 @@ CHANNEL_INPUTS = InputSet(
                 *((p, p) for p in ("hfe_min", "hfe_typ", "vbe_sat_v", "vce_sat_v", "ic_max_a", "power_max_w")),
                 *bjt_drive.TRANSISTOR_EXTRAS,
                 *thermal_inputs.TRANSISTOR_PARAMETERS,
+                *((p, p) for p in ("td_s", "tr_s", "ts_s", "tf_s")),
             ),
             must_have=(("polarity", "npn"),),
         ),
@@ -225,4 +229,5 @@ CHECK_UNITS = {
     "resistor_derated_power": "W", "transistor_junction_temperature": "°C", "transistor_derated_power": "W",
     "input_common_mode_low": "V", "input_common_mode_high": "V", "output_swing_low": "V", "output_swing_high": "V",
     "output_error": "V", "noise_bits": "", "phase_margin": "deg",
+    "shortest_pulse_covers_edges": "s", "flicker_low_risk": "",
 }  # fmt: skip

@@ -74,6 +74,14 @@ def switch_inputs(i: ChannelInputs, collector_current_a: FloatArray) -> bjt_swit
         drive_supply_v=i.drive_supply_v,
         duty_cycle=i.duty_cycle,
         **{name: getattr(i, name) for name in SWITCH_HEAT_FIELDS},
+        td_s=i.td_s,
+        tr_s=i.tr_s,
+        ts_s=i.ts_s,
+        tf_s=i.tf_s,
+        pwm_frequency_hz=i.pwm_frequency_hz,
+        pwm_resolution_bits=i.pwm_resolution_bits,
+        modulation_depth=i.modulation_depth,
+        camera_frame_rate_hz=i.camera_frame_rate_hz,
     )
 
 

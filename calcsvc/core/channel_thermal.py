@@ -24,7 +24,7 @@ from collections.abc import Callable
 
 import numpy as np
 
-from calcsvc.core import led_heat, led_string, switch_heat, thermal
+from calcsvc.core import led_heat, led_string, pwm_timing, switch_heat, thermal
 from calcsvc.core.channel_inputs import ChannelInputs
 from calcsvc.core.outcome import Check, FloatArray, Notice, Outcome, Violation, add_notice, first_bad, require
 
@@ -147,6 +147,14 @@ def validate(i: ChannelInputs) -> list[Violation]:
     return v
 
 
+def switching_loss(
+    i: ChannelInputs, supply_v: FloatArray, collector_a: FloatArray, row: Callable[[FloatArray], FloatArray]
+) -> FloatArray:
+    """The switch's PWM switching loss (``pwm_timing``) at these supplies and currents; ``row`` shapes a per-row
+    input like them."""
+    return pwm_timing.switching_loss(supply_v, collector_a, row(i.tr_s), row(i.tf_s), row(i.pwm_frequency_hz))
+
+
 def stage(i: ChannelInputs, led: Outcome, switch: Outcome) -> Outcome:
     """Every part's temperature and derated limit at ``ambient_c`` with nominal values, and the thermal checks."""
     ta = i.ambient_c
@@ -154,6 +162,7 @@ def stage(i: ChannelInputs, led: Outcome, switch: Outcome) -> Outcome:
     point = led_point(i, lambda x: x, i.supply_v, i.leds_in_series * i.vf_typ_v, resistor, ta)
     collector = i.strings * point.current_a
     transistor_power = (i.vce_sat_v * collector + i.vbe_sat_v * switch.results["base_current_a"]) * i.duty_cycle
+    transistor_power = transistor_power + switching_loss(i, i.supply_v, collector, lambda x: x)
     resistor_power = point.current_a**2 * resistor
     rating = resistor_rating(led)
     hottest = hottest_led(point)

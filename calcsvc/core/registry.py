@@ -13,6 +13,7 @@ from calcsvc.core import (
     closed_loop,
     duty_power,
     led_string,
+    mosfet_switch,
     opamp_dc_error,
     opamp_noise,
     opamp_stability,
@@ -31,6 +32,7 @@ CALCULATIONS: dict[str, CalculationSpec] = {
         opamp_noise.SPEC,
         opamp_stability.SPEC,
         bjt_switch.SPEC,
+        mosfet_switch.SPEC,
         led_string.SPEC,
     )
 }

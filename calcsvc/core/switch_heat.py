@@ -20,7 +20,7 @@ from calcsvc.core import thermal
 from calcsvc.core.outcome import Check, FloatArray, Notice, Outcome, Violation, add_notice, first_bad, require
 
 if TYPE_CHECKING:  # ``bjt_switch`` builds on this module: its inputs type is for the annotations only
-    from calcsvc.core.bjt_switch import BjtSwitchInputs
+    from calcsvc.core.bjt_switch_inputs import BjtSwitchInputs
     from calcsvc.core.channel_inputs import ChannelInputs
 
 ABSOLUTE_ZERO_C = -273.15

@@ -11,7 +11,7 @@ import numpy as np
 from calcsvc.core.outcome import BoolArray, FloatArray, Notice, add_notice
 
 if TYPE_CHECKING:  # ``bjt_switch`` builds on this module; its inputs type is needed for annotations only
-    from calcsvc.core.bjt_switch import BjtSwitchInputs
+    from calcsvc.core.bjt_switch_inputs import BjtSwitchInputs
 
 SATURATION_MARGIN_WARN = 2.0  # hfe_min at least twice the actual forced beta (common practice)
 

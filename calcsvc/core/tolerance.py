@@ -112,6 +112,8 @@ DEPENDS_ON: dict[str, tuple[str, ...]] = {
     "output_error": (),
     "noise_bits": (),
     "phase_margin": (),
+    "shortest_pulse_covers_edges": (),  # the part's stated times: no toleranced quantity
+    "flicker_low_risk": (),
 }
 """The toleranced quantities each check depends on; checks depending on none keep their nominal result."""
 
@@ -186,7 +188,9 @@ def evaluate_at(inputs: ChannelInputs, nominal: ChannelReview, at: Point) -> lis
     )
     beta = ic / ib
     duty = row(i.duty_cycle)
-    power = (row(i.vce_sat_v) * ic + row(i.vbe_sat_v) * ib) * duty
+    power = (row(i.vce_sat_v) * ic + row(i.vbe_sat_v) * ib) * duty + channel_thermal.switching_loss(
+        i, at.supply_v, ic, row
+    )
     channel_average, _ = load_current.rectangular_load(ic, duty)
     supply_average = row(i.channels) * channel_average
     supply_peak = row(i.channels) * ic

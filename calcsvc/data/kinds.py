@@ -89,6 +89,11 @@ KINDS: dict[str, tuple[Param, ...]] = {
             optional=True,
         ),
         Param("rth_jc_k_per_w", "K/W", "junction-to-case thermal resistance, for a heat sink", optional=True),
+        # Resistive-load switching times as a datasheet states them at its test ratio Ic/Ib.
+        Param("td_s", "s", "turn-on delay time", optional=True),
+        Param("tr_s", "s", "collector current rise time", optional=True),
+        Param("ts_s", "s", "storage time out of saturation", optional=True),
+        Param("tf_s", "s", "collector current fall time", optional=True),
     ),
     "led": (
         Param("color", "", "emitted colour, free text", text=True, informational="names the part for people"),
@@ -145,6 +150,35 @@ KINDS: dict[str, tuple[Param, ...]] = {
             informational="chooses the standing safety cautions of every design on this supply",
         ),
     ),
+    "mosfet": (
+        Param("channel", "", "n or p", choices=("n", "p")),
+        Param("vds_max_v", "V", "drain-source voltage rating"),
+        Param("id_max_a", "A", "continuous drain current rating"),
+        # On-resistance at up to three stated gate-source voltages, ordered by gate voltage.
+        Param("vgs_1_v", "V", "lowest gate-source voltage at which an on-resistance is stated"),
+        Param("rds_on_1_ohm", "ohm", "largest on-resistance at vgs_1_v, 25 °C"),
+        Param("vgs_2_v", "V", "a higher stated gate-source voltage", optional=True),
+        Param("rds_on_2_ohm", "ohm", "largest on-resistance at vgs_2_v, 25 °C", optional=True),
+        Param("vgs_3_v", "V", "the highest stated gate-source voltage", optional=True),
+        Param("rds_on_3_ohm", "ohm", "largest on-resistance at vgs_3_v, 25 °C", optional=True),
+        Param("vgs_th_max_v", "V", "largest gate threshold voltage"),
+        Param("qg_total_c", "C", "total gate charge at the datasheet's gate drive (at 4.5 V for a logic-level part)"),
+        Param("power_max_w", "W", "total dissipation rating at 25 °C ambient"),
+        Param("tj_max_c", "degC", "maximum junction temperature", optional=True),
+        Param(
+            "rth_ja_k_per_w",
+            "K/W",
+            "junction-to-ambient thermal resistance without a heat sink; absent: from power_max_w at 25 °C",
+            optional=True,
+        ),
+        Param(
+            "rth_jc_k_per_w",
+            "K/W",
+            "junction-to-case thermal resistance, for a heat sink",
+            optional=True,
+            informational="no calculation mounts a MOSFET on a heat sink yet; kept for the designer",
+        ),
+    ),
     "driver": (
         Param("voh_v", "V", "output high voltage at the rated source current"),
         Param("vol_v", "V", "output low voltage", positive=False),
@@ -164,7 +198,23 @@ ORDERED: dict[str, tuple[tuple[str, str, bool], ...]] = {
         ("if_derating_knee_c", "tj_max_c", True),
     ),
     "driver": (("vol_v", "voh_v", True),),
+    "mosfet": (
+        ("vgs_th_max_v", "vgs_1_v", True),
+        ("vgs_1_v", "vgs_2_v", True),
+        ("vgs_2_v", "vgs_3_v", True),
+        ("vgs_1_v", "vgs_3_v", True),
+        # A higher gate voltage never raises the on-resistance.
+        ("rds_on_2_ohm", "rds_on_1_ohm", False),
+        ("rds_on_3_ohm", "rds_on_2_ohm", False),
+        ("rds_on_3_ohm", "rds_on_1_ohm", False),
+    ),
     "supply": (("supply_min_v", "supply_v", False), ("supply_v", "supply_max_v", False)),
+}
+
+
+# Parameters a part gives together or not at all: (first, second).
+TOGETHER: dict[str, tuple[tuple[str, str], ...]] = {
+    "mosfet": (("vgs_2_v", "rds_on_2_ohm"), ("vgs_3_v", "rds_on_3_ohm")),
 }
 
 
@@ -211,6 +261,10 @@ def validate_parameters(kind: str, parameters: dict[str, Any]) -> dict[str, str]
             errors[name] = "must be a whole number"
         elif value < 0 and not param.signed:
             errors[name] = "must not be negative"
+    for first, second in TOGETHER.get(kind, ()):
+        if (parameters.get(first) is None) != (parameters.get(second) is None) and not ({first, second} & set(errors)):
+            missing = second if parameters.get(second) is None else first
+            errors[missing] = f"{first} and {second} are given together or not at all"
     for low, high, strict in ORDERED[kind]:
         a, b = parameters.get(low), parameters.get(high)
         if low in errors or high in errors or not isinstance(a, int | float) or not isinstance(b, int | float):

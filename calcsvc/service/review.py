@@ -41,6 +41,18 @@ def duty_of(values: Mapping[str, Any]) -> float:
     return float(values.get("duty_cycle", 1.0))
 
 
+def pwm_frequency_of(values: Mapping[str, Any]) -> float:
+    """The PWM frequency as given, or 1/period_s; NaN: neither (no PWM stage). Both must agree."""
+    given = values.get("pwm_frequency_hz")
+    if "period_s" not in values:
+        return math.nan if given is None else float(given)
+    implied = 1.0 / float(values["period_s"])
+    if given is not None and not math.isclose(float(given), implied, rel_tol=1e-9):
+        message = f"pwm_frequency_hz ({float(given):g} Hz) disagrees with 1/period_s ({implied:g} Hz): give one"
+        raise InvalidInput.on("pwm_frequency_hz", message)
+    return implied
+
+
 def channel_inputs(values: Mapping[str, Any]) -> channel.ChannelInputs:
     """The core's one-row inputs from completed values (``complete(CHANNEL_INPUTS, ...)``)."""
     return channel_rows([values])
@@ -50,6 +62,7 @@ def channel_rows(rows: list[Mapping[str, Any]]) -> channel.ChannelInputs:
     """The core's inputs with one row per channel of completed values, built column by column."""
     columns = columns_of(CHANNEL_INPUTS, [dict(values) for values in rows])
     columns["duty_cycle"] = np.array([duty_of(values) for values in rows], dtype=np.float64)
+    columns["pwm_frequency_hz"] = np.array([pwm_frequency_of(values) for values in rows], dtype=np.float64)
     columns["inverting"] = columns["configuration"] == "inverting"
     return channel.ChannelInputs(**{name: columns[name] for name in channel.ChannelInputs.__dataclass_fields__})
 

@@ -20,6 +20,7 @@ from calcsvc.core.spec import CalculationSpec
 from calcsvc.service.errors import InvalidInput
 from calcsvc.service.search.channel import YIELD_SHORTLIST
 from calcsvc.service.search.select import Selection, run_channel_select, run_select
+from calcsvc.service.search.switch import run_switch_select
 from calcsvc.web.auth import database, guard_reads
 from calcsvc.web.calc_schemas import camel
 from calcsvc.web.metrics import record_calculation
@@ -29,8 +30,10 @@ from calcsvc.web.select_schemas import (
     INPUTS,
     ChannelSelectionSchema,
     SelectionSchema,
+    SwitchSelectionSchema,
     channel_schema,
     select_schema,
+    switch_schema,
 )
 
 FILTER_FORM = (
@@ -127,6 +130,42 @@ class ChannelSelect(MethodView):
         """Channel designs from the parts table, best worst-case margin first."""
         limit = current_app.config["SELECT_MAX_COMBINATIONS"]
         return _answered(run_channel_select(database(), body, limit))
+
+
+def load_select(calc: CalculationSpec, raw: Mapping[str, Any]) -> dict[str, Any]:
+    """A search body of one calculation, loaded as POST /v1/select/<calculation> loads it."""
+    try:
+        loaded: dict[str, Any] = select_schema(calc)().load(raw)
+    except ValidationError as exc:
+        messages = exc.normalized_messages()
+        errors = {k: v if isinstance(v, list) else [str(v)] for k, v in messages.items()}
+        raise InvalidInput("invalid input", errors) from exc
+    return loaded
+
+
+SWITCH_DOC = (
+    "Every stocked low-side switch for one load: npn transistors (Darlingtons among them) through bjt-switch "
+    "and N-channel MOSFETs through mosfet-switch, with the same driver, supply, duty cycle and PWM. Each "
+    "candidate carries its calculation, kind, results (with its losses; a MOSFET also its junction "
+    "temperature at ambient_c) and dissipation_w; all are ranked together: passing ones by their least "
+    "margin over their own checks (descending) or by dissipation (ascending), then failing ones, then those "
+    "the core refuses (with the reason in problem, e.g. a MOSFET whose on-resistance is not stated at the "
+    "pin's level). Each candidate's request re-runs it through POST /v1/calc/<calculation>."
+)
+SWITCH_SCHEMA = switch_schema()
+
+
+@blp.route("/switch", endpoint="switch")
+class SwitchSelect(MethodView):
+    @blp.arguments(SWITCH_SCHEMA)
+    @blp.response(200, SwitchSelectionSchema)
+    @error_response(blp, 404, "a referenced part does not exist")
+    @error_response(blp, 413, "more candidates than SELECT_MAX_COMBINATIONS")
+    @blp.doc(description=SWITCH_DOC)
+    def post(self, body: dict[str, Any]) -> dict[str, Any]:
+        """Switches of every kind for one load, best first."""
+        limit = current_app.config["SELECT_MAX_COMBINATIONS"]
+        return _answered(run_switch_select(database(), body, load_select, load_inputs, limit))
 
 
 @blp.record_once

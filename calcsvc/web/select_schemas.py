@@ -8,6 +8,7 @@ from typing import Any
 
 from marshmallow import Schema, ValidationError, fields, validate
 
+from calcsvc.core import bjt_switch, mosfet_switch
 from calcsvc.core.channel_spec import CHANNEL_INPUTS
 from calcsvc.core.registry import CALCULATIONS
 from calcsvc.core.spec import CalculationSpec, Role
@@ -17,7 +18,8 @@ from calcsvc.data.store import STATUSES
 from calcsvc.service.search.channel import CHANNEL_RANKINGS, YIELD_SHORTLIST
 from calcsvc.service.search.common import DEFAULT_STATUSES, PartFilter
 from calcsvc.service.search.select import DEFAULT_LIMIT
-from calcsvc.web.calc_schemas import PartUsedSchema, camel, input_field, request_schema, safety_field
+from calcsvc.service.search.switch import RANKINGS, SWITCHES
+from calcsvc.web.calc_schemas import PartUsedSchema, camel, input_field, request_schema, role_fields, safety_field
 from calcsvc.web.quantity import Quantity
 from calcsvc.web.review_schemas import YieldSchema
 
@@ -286,4 +288,57 @@ class ChannelSelectionSchema(Schema):
     check_details = fields.Dict(keys=fields.String(), values=fields.String(), required=True)
     designs = fields.List(fields.Nested(DesignSchema), required=True)
     warnings = fields.List(fields.String(), required=True)
+    safety = safety_field()
+
+
+def switch_schema() -> type[Schema]:
+    """The switch search's body: the load, the pin (a driver part or its values), the PWM and the ranking."""
+    bjt = {spec.name: spec for spec in bjt_switch.SPEC.inputs}
+    mos = {spec.name: spec for spec in mosfet_switch.SPEC.inputs}
+    shared = ("supply_max_v", "drive_high_v", "drive_low_v", "driver_current_max_a", "drive_supply_v",
+              "duty_cycle", "e_series", "resistor_tolerance", "pwm_frequency_hz", "pwm_resolution_bits",
+              "modulation_depth", "camera_frame_rate_hz")  # fmt: skip
+    attributes: dict[str, fields.Field] = {name: input_field(mos.get(name) or bjt[name]) for name in shared}
+    attributes["supply_max_v"].required = True
+    attributes["ambient_c"] = input_field(mos["ambient_c"])
+    attributes["load_current_a"] = Quantity(
+        "A", minimum=0, exclusive_minimum=True, description="the current the switch carries when on", required=True
+    )
+    driver = next(role for role in bjt_switch.SPEC.roles if role.name == "driver")
+    attributes.update(role_fields(driver))
+    attributes["kinds"] = fields.List(
+        fields.String(validate=validate.OneOf(list(SWITCHES))),
+        validate=validate.Length(min=1, max=len(SWITCHES)),
+        metadata={"description": "switch part kinds to search (default: all)"},
+    )
+    attributes["rank_by"] = fields.String(
+        validate=validate.OneOf(RANKINGS),
+        metadata={"description": "margin (least margin over the checks, descending) or dissipation (ascending)"},
+    )
+    return Schema.from_dict(attributes, name="SelectSwitchRequest")
+
+
+class SwitchCandidateSchema(CandidateSchema):
+    calculation = fields.String(required=True)
+    kind = fields.String(required=True)
+    dissipation_w = fields.Float(required=True, allow_none=True, metadata={"description": "null if refused"})
+
+
+class SwitchSearchSchema(Schema):
+    calculation = fields.String(required=True)
+    version = fields.String(required=True)
+    inputs = fields.Dict(required=True)
+    parts = fields.List(fields.Nested(PartUsedSchema), required=True)
+    evaluated = fields.Integer(required=True)
+    passing = fields.Integer(required=True)
+    excluded = fields.List(fields.Nested(ExcludedSchema), required=True)
+    warnings = fields.List(fields.String(), required=True)
+
+
+class SwitchSelectionSchema(Schema):
+    rank_by = fields.String(required=True)
+    evaluated = fields.Integer(required=True)
+    passing = fields.Integer(required=True)
+    searches = fields.List(fields.Nested(SwitchSearchSchema), required=True)
+    candidates = fields.List(fields.Nested(SwitchCandidateSchema), required=True)
     safety = safety_field()

@@ -26,6 +26,14 @@ BODIES = {
     },
     "opamp-noise": {"opamp": "opamp-general-1mhz", "gain": 20, "rf_ohm": "100 kohm", "ambient_c": 45},
     "opamp-stability": {"opamp": "opamp-general-1mhz", "gain": 1, "load_capacitance_f": "100 nF"},
+    "mosfet-switch": {
+        "transistor": "nmos-logic-small",
+        "driver": "driver-mcu-3v3",
+        "drain_current_a": "700 mA",
+        "supply_max_v": "12.6 V",
+        "pwm_frequency_hz": "2 kHz",
+        "pwm_resolution_bits": 4,
+    },
 }
 
 

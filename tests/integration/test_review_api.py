@@ -22,6 +22,7 @@ EXPLICIT = {
     "drive_high_v": 2.8, "drive_low_v": 0.2, "source_current_max_a": 0.01, "drive_supply_v": 3.3,
     "hfe_min": 80, "hfe_typ": 180, "vbe_sat_v": 0.9, "vce_sat_v": 0.25, "ic_max_a": 0.3, "power_max_w": 0.5,
     "vce_sat_forced_beta": 10, "base_junctions": 1, "vceo_max_v": 45,
+    "td_s": 4e-8, "tr_s": 4e-8, "ts_s": 2.5e-7, "tf_s": 8e-8,
     "vf_typ_v": 2.1, "vf_min_v": 1.9, "vf_max_v": 2.5, "if_max_a": 0.03,
     "tj_max_c": 150, "rth_ja_k_per_w": 250, "led_tj_max_c": 100, "led_rth_jb_k_per_w": 200, "led_rth_ba_k_per_w": 150,
     "vf_tempco_v_per_k": -0.002, "if_derating_knee_c": 60,

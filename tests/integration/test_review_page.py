@@ -531,3 +531,11 @@ def test_a_high_power_leds_plot_shows_the_heat_cautions_of_its_operating_point(
     # A supply part's page states the standing cautions every design on it carries.
     supply_page, _ = page(client, "/review/parts/supply-battery-9v-6aa")
     assert "never recharge primary" in supply_page and 'id="standing-cautions"' in supply_page
+
+
+def test_channel_page_takes_the_pwm_and_shows_its_checks(client: FlaskClient, seeded: Any) -> None:
+    query = {**DEMO_CHANNEL, "pwm_frequency_hz": "2 kHz", "pwm_resolution_bits": "6", "samples": "0"}
+    assert channel_body(query)["pwm_resolution_bits"] == 6
+    html, _ = page(client, "/review/channel?" + urlencode(query))
+    assert 'name="pwm_frequency_hz"' in html and "2 kHz" in html
+    assert "shortest_pulse_covers_edges" in html and "flicker_low_risk" in html

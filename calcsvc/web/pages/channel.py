@@ -13,7 +13,7 @@ from markupsafe import Markup
 from marshmallow import Schema, ValidationError
 
 from calcsvc.core import channel as channel_review
-from calcsvc.core import monte_carlo
+from calcsvc.core import monte_carlo, pwm_timing
 from calcsvc.core.outcome import DomainError
 from calcsvc.data.store import PartStore, PartView
 from calcsvc.service.demo import demo_channel
@@ -80,6 +80,8 @@ ChannelForm = Schema.from_dict(
         "channels": Quantity("dimensionless", minimum=1, maximum=10000, integer=True),
         "current_a": Quantity("A", minimum=0, exclusive_minimum=True),
         "duty_cycle": Quantity("dimensionless", minimum=0, maximum=1),
+        "pwm_frequency_hz": Quantity("Hz", minimum=0, exclusive_minimum=True),
+        "pwm_resolution_bits": Quantity("dimensionless", minimum=1, maximum=pwm_timing.MAX_BITS, integer=True),
         "gain": Quantity(VOLTAGE_RATIO, minimum=0, exclusive_minimum=True),
         "signal_hz": Quantity("Hz", minimum=0, exclusive_minimum=True),
         "amplitude_v": Quantity("V", minimum=0, exclusive_minimum=True),
@@ -106,6 +108,8 @@ CHANNEL_FIELDS: dict[str, tuple[tuple[str, str, str], ...]] = {
         ("strings", "Strings per channel", "a whole number; each string has its own resistor"),
         ("current_a", "Current per string", "in A, or with a unit: 20 mA"),
         ("duty_cycle", "PWM duty cycle", "a fraction from 0 to 1"),
+        ("pwm_frequency_hz", "PWM frequency", "in Hz, or with a unit: 2 kHz (no PWM timing if empty)"),
+        ("pwm_resolution_bits", "PWM resolution", "in bits, a whole number (8 if empty)"),
         ("channels", "Channels on the supply", "a whole number"),
     ),
     "Front stage (used with an op-amp)": (
@@ -143,7 +147,7 @@ def channel_body(form: Mapping[str, str]) -> dict[str, Any]:
     except ValidationError as exc:
         errors = {k: list(v) for k, v in exc.normalized_messages().items()}
         raise Problem(422, "invalid input: " + ", ".join(sorted(errors)), "validation", errors) from exc
-    for name in ("leds_in_series", "strings", "channels", "samples", "seed", "adc_bits"):
+    for name in ("leds_in_series", "strings", "channels", "samples", "seed", "adc_bits", "pwm_resolution_bits"):
         if name in body:
             body[name] = int(body[name])
     return body

@@ -43,6 +43,15 @@ DEFAULTS: dict[str, Any] = {
     "drive_supply_v": math.nan,
     "duty_cycle": 1.0,
     **{spec.name: math.nan if spec.default is None else spec.default for spec in (AMBIENT_C, *TRANSISTOR)},
+    # Switching times of a small-signal part (invented, class-typical); no PWM unless a test gives one.
+    "td_s": 4e-8,
+    "tr_s": 4e-8,
+    "ts_s": 2.5e-7,
+    "tf_s": 8e-8,
+    "pwm_frequency_hz": math.nan,
+    "pwm_resolution_bits": 8.0,
+    "modulation_depth": 1.0,
+    "camera_frame_rate_hz": math.nan,
 }
 
 
@@ -451,7 +460,8 @@ def valid_inputs(draw: st.DrawFn) -> BjtSwitchInputs:
         cols["rth_ja_k_per_w"].append(draw(st.one_of(st.just(math.nan), st.floats(1.0, 500.0))))
         cols["rth_jc_k_per_w"].append(draw(st.floats(0.5, 50.0)) if sink else math.nan)
         cols["heatsink_k_per_w"].append(draw(st.floats(0.5, 50.0)) if sink else math.nan)
-    return make(**cols)
+        cols["pwm_frequency_hz"].append(draw(st.one_of(st.just(math.nan), st.floats(10.0, 1e5))))
+    return make(**{name: values for name, values in cols.items() if values})
 
 
 @settings(max_examples=200, deadline=None, derandomize=True)
@@ -460,8 +470,21 @@ def test_property_results_are_sound(inputs: BjtSwitchInputs) -> None:
     assert validate(inputs) == []
     out = compute(inputs)
     r = out.results
+    # No NaN for valid input, except where a result does not apply: PWM results without a PWM (and the
+    # switching loss without the supply), the camera's alias without a camera.
+    no_pwm = np.isnan(inputs.pwm_frequency_hz)
+    not_applying = {
+        "shortest_on_time_s": no_pwm,
+        "duty_step": no_pwm,
+        "flicker_low_risk_limit": no_pwm,
+        "flicker_no_effect_limit": no_pwm,
+        "switching_loss_w": ~no_pwm & np.isnan(inputs.supply_max_v),
+        "camera_alias_hz": np.isnan(inputs.pwm_frequency_hz) | np.isnan(inputs.camera_frame_rate_hz),
+    }
     for name, value in r.items():
-        assert np.all(np.isfinite(value)), name  # no NaN for valid input
+        applies = ~not_applying.get(name, np.zeros(value.shape, dtype=bool))
+        assert np.all(np.isfinite(value[applies])), name
+        assert np.all(np.isnan(value[~applies])), name
     # Rb is a standard value at or below the exact one (1e-9 noise allowance).
     assert np.all(r["rb_ohm"] <= r["rb_exact_ohm"] * (1 + 1e-9))
     for k, name in enumerate(inputs.e_series):
@@ -544,3 +567,33 @@ def test_darlington_default_ratio_saturates_the_ebers_moll_pair() -> None:
     hard = solve_darlington(q1, q2, 2.8, (2.8 - 1.7) / 0.015, V_CC, rc)
     assert hard["vbc2"] < 0 and sol["vbc2"] < 0
     assert sol["vce"] - hard["vce"] < 0.1 and hard["vce"] > 0.7
+
+
+# ---- PWM timing ---------------------------------------------------------------------------------------------
+
+DARLINGTON_TIMES = {"td_s": 2e-7, "tr_s": 5e-7, "ts_s": 3e-6, "tf_s": 1.5e-6}  # invented, class-typical
+
+
+def test_a_fast_pwm_fails_a_slow_darlington_on_the_on_time_check_with_its_numbers() -> None:
+    # 2 kHz with 8 bits: the shortest pulse is 1/(2000·256) = 1.95 µs; ten times the Darlington's
+    # (0.2 + 0.5) µs on plus (3 + 1.5) µs off is 52 µs (common practice: a tenth of the pulse for the edges).
+    out = compute(make(pwm_frequency_hz=2000.0, pwm_resolution_bits=8.0, **DARLINGTON_TIMES))
+    c = checks(out)["shortest_pulse_covers_edges"]
+    assert not c.ok[0]
+    assert c.value[0] == pytest.approx(10 * (0.7e-6 + 4.5e-6))
+    assert c.limit[0] == pytest.approx(1 / (2000 * 256))
+    # The small-signal part's (0.04 + 0.04) µs on and (0.25 + 0.08) µs off fit 64 steps at 2 kHz (7.8 µs).
+    assert checks(compute(make(pwm_frequency_hz=2000.0, pwm_resolution_bits=6.0)))["shortest_pulse_covers_edges"].ok[0]
+
+
+def test_switching_loss_enters_the_transistor_power() -> None:
+    # V·I·(tr + tf)·f/6 (Mohan, Undeland & Robbins, Power Electronics): 12 V, 0.15 A, (40 + 80) ns, 2 kHz.
+    static = compute(make(supply_max_v=12.0))
+    pwm = compute(make(supply_max_v=12.0, pwm_frequency_hz=2000.0))
+    loss = 12.0 * 0.15 * 120e-9 * 2000.0 / 6
+    assert pwm.results["switching_loss_w"][0] == pytest.approx(loss)
+    assert pwm.results["transistor_power_w"][0] == pytest.approx(static.results["transistor_power_w"][0] + loss)
+    # Without the supply the loss is unknown: left out, with a warning.
+    unknown = compute(make(pwm_frequency_hz=2000.0))
+    assert math.isnan(unknown.results["switching_loss_w"][0])
+    assert any("switching loss is unknown" in w.message for w in unknown.warnings)

@@ -82,6 +82,15 @@ DEMO: dict[str, Any] = {
     "resistor_zero_power_c": 155.0,
     **{name: math.nan for name in OPAMP_STAGE_FIELDS},
     "phase_margin_min_deg": 45.0,
+    # The small NPN's invented class-typical switching times; no PWM stage unless a test gives a frequency.
+    "td_s": 4e-8,
+    "tr_s": 4e-8,
+    "ts_s": 2.5e-7,
+    "tf_s": 8e-8,
+    "pwm_frequency_hz": math.nan,
+    "pwm_resolution_bits": 8.0,
+    "modulation_depth": 1.0,
+    "camera_frame_rate_hz": math.nan,
 }
 NO_FRONT_STAGE = {name: math.nan for name in ("gbw_hz", *FRONT_STAGE_FIELDS)}
 
@@ -151,6 +160,8 @@ def test_greenhouse_demo_channel_by_hand() -> None:
         "voltage_rating",
         "power_rating",
         "off_state",
+        "shortest_pulse_covers_edges",
+        "flicker_low_risk",
         "supply_average_current",
         "supply_peak_current",
         "gain_achievable",
@@ -373,6 +384,11 @@ def channel_rows(draw: st.DrawFn, front_stage: bool | None = None) -> dict[str, 
         "if_derating_knee_c": draw(st.one_of(st.just(math.nan), st.floats(20.0, led_tj_max - 10.0))),
         "resistor_rated_to_c": 70.0,
         "resistor_zero_power_c": 155.0,
+        **{name: draw(st.floats(0.0, 2e-6)) for name in ("td_s", "tr_s", "ts_s", "tf_s")},
+        "pwm_frequency_hz": draw(st.one_of(st.just(math.nan), st.floats(50.0, 20e3))),
+        "pwm_resolution_bits": float(draw(st.integers(1, 12))),
+        "modulation_depth": draw(st.floats(0.0, 1.0)),
+        "camera_frame_rate_hz": draw(st.one_of(st.just(math.nan), st.floats(10.0, 120.0))),
     }
     if draw(st.booleans()):  # a band of its own, such as a battery's (end of discharge to fresh)
         row["supply_min_v"] = row["supply_v"] * draw(st.floats(0.6, 1.0))
@@ -479,7 +495,12 @@ def test_property_review_is_sound(rows: list[dict[str, Any]]) -> None:
     overloaded = (inputs.duty_cycle == 1.0) & (inputs.channels * out.collector_current_a > inputs.current_max_a)
     assert np.all((out.max_duty_cycle > 0) & (out.max_duty_cycle <= 1) | overloaded & (out.max_duty_cycle == 0))
     assert np.all(out.collector_current_max_a >= out.collector_current_a)
+    # NaN only where a result does not apply: no standard rating large enough, no PWM, no camera.
+    no_pwm = np.isnan(inputs.pwm_frequency_hz)
+    pwm_only = ("shortest_on_time_s", "duty_step", "flicker_low_risk_limit", "flicker_no_effect_limit")
+    exempt = {name: no_pwm for name in pwm_only} | {"camera_alias_hz": no_pwm | np.isnan(inputs.camera_frame_rate_hz)}
     for section in (out.led_string, out.switch):
         for name, value in section.results.items():
-            if name != "resistor_rating_w":  # NaN when no standard rating is large enough
-                assert np.all(np.isfinite(value)), name
+            if name != "resistor_rating_w":
+                applies = ~exempt.get(name, np.zeros(value.shape, dtype=bool))
+                assert np.all(np.isfinite(value[applies])), name

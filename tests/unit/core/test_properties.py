@@ -195,6 +195,11 @@ def bjt_inputs(draw: st.DrawFn) -> bjt_switch.BjtSwitchInputs:
             "tj_max_c": draw(st.floats(26.0, 250.0)),
             "rth_ja_k_per_w": draw(optional(magnitudes())),
             **dict(zip(("rth_jc_k_per_w", "heatsink_k_per_w"), draw(sink), strict=True)),
+            **{name: draw(st.one_of(st.just(0.0), magnitudes())) for name in ("td_s", "tr_s", "ts_s", "tf_s")},
+            "pwm_frequency_hz": draw(optional(magnitudes())),
+            "pwm_resolution_bits": float(draw(st.integers(1, 24))),
+            "modulation_depth": draw(FRACTIONS),
+            "camera_frame_rate_hz": draw(optional(magnitudes())),
         }
 
     sink = st.one_of(st.just((math.nan, math.nan)), st.tuples(optional(magnitudes()), magnitudes()))
@@ -207,7 +212,12 @@ def test_bjt_switch_results_are_sound_everywhere(inputs: bjt_switch.BjtSwitchInp
     inputs = valid_rows(inputs, bjt_switch.validate)
     out = bjt_switch.compute(inputs)
     r = out.results
-    assert_finite_except(out, {})
+    no_pwm = np.isnan(inputs.pwm_frequency_hz)
+    pwm_only = ("shortest_on_time_s", "duty_step", "flicker_low_risk_limit", "flicker_no_effect_limit")
+    does_not_apply = {name: no_pwm for name in pwm_only}
+    does_not_apply["switching_loss_w"] = ~no_pwm & np.isnan(inputs.supply_max_v)
+    does_not_apply["camera_alias_hz"] = no_pwm | np.isnan(inputs.camera_frame_rate_hz)
+    assert_finite_except(out, does_not_apply)
     assert_not_negative(out, ["base_current_required_a", "drive_current_a", "base_current_a", "transistor_power_w"])
     for k, series in enumerate(inputs.e_series):
         assert eseries.is_standard(r["rb_ohm"][k], str(series)).all()

@@ -107,7 +107,14 @@ def corner_values(
     # No rating given: VOL taken as stated at 1 mA (common practice, from memory).
     rating = 1e-3 if math.isnan(row["source_current_max_a"]) else row["source_current_max_a"]
     v_low = row["drive_low_v"] * min(1.0, 1e-6 / rating)
-    power = (row["vce_sat_v"] * ic + row["vbe_sat_v"] * ib) * row["duty_cycle"]
+    f = row["pwm_frequency_hz"]
+    # Switching loss of a resistive load, V·I·(tr + tf)·f/6 (Mohan, Undeland & Robbins, Power Electronics).
+    switching = 0.0 if math.isnan(f) else vs * ic * (row["tr_s"] + row["tf_s"]) * f / 6
+    power = (row["vce_sat_v"] * ic + row["vbe_sat_v"] * ib) * row["duty_cycle"] + switching
+    shortest = 1 / (f * 2 ** row["pwm_resolution_bits"])  # NaN without a PWM
+    edges = 10 * (row["td_s"] + row["tr_s"] + row["ts_s"] + row["tf_s"])  # ten times the edges (common practice)
+    # IEEE Std 1789-2015 low-risk region (from memory): Mod% ≤ 0.025·f below 90 Hz, 0.08·f up to 1250 Hz.
+    low_risk = min(1.0, (0.025 if f < 90 else 0.08) * f / 100) if f <= 1250 else 1.0 if f > 1250 else math.nan
     supply_avg = row["channels"] * ic * row["duty_cycle"]
     supply_peak = row["channels"] * ic
 
@@ -128,6 +135,8 @@ def corner_values(
         "power_rating": at_most(power, row["power_max_w"]),
         # Hot turn-on: 0.6 V per junction at 25 °C (common practice) less 2 mV/K over 100 K (from memory).
         "off_state": at_most(v_low + 1e-6 * r_b, 0.4 * row["base_junctions"]),
+        "shortest_pulse_covers_edges": (edges, shortest, math.isnan(f) or edges <= shortest),
+        "flicker_low_risk": (row["modulation_depth"], low_risk, math.isnan(f) or row["modulation_depth"] <= low_risk),
         "supply_average_current": at_most(supply_avg, row["current_max_a"]),
         "supply_peak_current": at_most(supply_peak, row["current_max_a"]),
         **thermal_checks(row, ta, heat, i_string, resistor_rating_w, r, power),
@@ -377,7 +386,8 @@ def test_worst_case_agrees_with_the_led_stage_and_with_nominal_when_nothing_vari
     np.testing.assert_allclose(wc.check("led_current_rating").check.value, led["current_max_a"], rtol=1e-12)
     np.testing.assert_allclose(wc.check("resistor_rating").check.value, 2 * led["resistor_power_max_w"], rtol=1e-12)
     # Without any tolerance every corner is the nominal design: each check equals the stages' own result.
-    # Every front-stage check applies: its windows, DC error, noise and stability inputs are all given.
+    # Every front-stage check applies: its windows, DC error, noise and stability inputs are all given; so does
+    # every PWM check, with a PWM frequency.
     exact = make(
         supply_tolerance=0.0, resistor_tolerance=0.0, vf_min_v=2.0, vf_max_v=2.0, hfe_typ=100.0,
         output_offset_max_v=0.1,
@@ -385,13 +395,13 @@ def test_worst_case_agrees_with_the_led_stage_and_with_nominal_when_nothing_vari
         output_high_headroom_v=1.4, rf_ohm=9e4, plus_input_ohm=1e3, input_bias_current_a=8e-8,
         input_offset_current_a=2e-8, output_error_max_v=0.05, adc_full_scale_v=10.0, adc_bits=12.0,
         voltage_noise_v_per_rthz=2e-8, current_noise_a_per_rthz=5e-13, second_pole_hz=2e6, output_resistance_ohm=75.0,
-        load_capacitance_f=1e-9,
+        load_capacitance_f=1e-9, pwm_frequency_hz=1e3,
     )  # fmt: skip
     wc = worst_case(exact)
     assert all(np.isfinite(c.limit[0]) for c in wc.nominal.checks)
     for c in wc.nominal.checks:
         assert wc.check(c.name).check.value[0] == pytest.approx(c.value[0], rel=1e-12), c.name
-        assert wc.check(c.name).check.limit[0] == pytest.approx(c.limit[0], rel=1e-12), c.name
+        assert wc.check(c.name).check.limit[0] == pytest.approx(c.limit[0], rel=1e-12, nan_ok=True), c.name
 
 
 def test_nominal_pass_can_hide_a_worst_case_saturation_failure() -> None:
