@@ -262,9 +262,10 @@ def test_calc_prints_a_table_and_exits_0_when_every_check_passes(seeded: Flask, 
     assert main(["calc", "led-string", *LED_RED, "--current_a", "20 mA", "--url", live_url]) == 0
     out = capsys.readouterr().out
     assert "resistor_ohm" in out and " 300" in out  # (12 V - 3 x 2.1 V) / 20 mA = 285 ohm, up to E24 300 ohm
-    # Worst case with units: (12.6 V - 3 x 1.9 V) / (300 ohm x 0.95) = 24.2105 mA against the 30 mA rating.
+    # Worst case with units: (12.6 V - 3 x 1.9 V) / (300 ohm x 0.95) = 24.2105 mA against the 30 mA rating with
+    # the LEDs at the air's temperature; their own warming lowers Vf, so a little more (under 25 mA).
     assert re.search(r"supply +supply-adapter-12v-2a +1 +approved", out)
-    assert "FAIL" not in out and re.search(r"OK +led_current_rating +0\.0242105 A +0\.03 A", out)
+    assert "FAIL" not in out and re.search(r"OK +led_current_rating +0\.024[2-9]\d* A +0\.03 A", out)
     # The verdict first, then the cautions with the standing safety line, and the whole fingerprint (as the API).
     lines = out.splitlines()
     assert lines[0] == "led-string: passes every check" and re.fullmatch(r"fingerprint [0-9a-f]{64}", lines[1])

@@ -66,7 +66,8 @@ def clone(tmp_path: Path) -> Path:
 def test_the_readme_has_the_examples_this_test_runs() -> None:
     assert len(RUNNABLE) >= 6
     assert any("/send-back" in block for block in RUNNABLE) and any("select/channel" in b for b in RUNNABLE)
-    assert ["300.0", "fails: led_current_rating: 0,242105263158 > limit 0,03"] in map(expected_answers, RUNNABLE)
+    assert any(answers[0] == "300.0" and answers[1].startswith("fails: led_current_rating: 0,2578") for answers in
+               map(expected_answers, RUNNABLE) if len(answers) == 2)  # fmt: skip
 
 
 @pytest.mark.parametrize("number", range(len(RUNNABLE)))
