@@ -144,7 +144,8 @@ class Loop:
 
 def loop_of(unity_hz: FloatArray, second_pole_hz: FloatArray, ro: FloatArray, cl: FloatArray, riso: FloatArray) -> Loop:
     """The loop with NaN (absent) corners as infinite; the load pole needs both Ro and CL."""
-    with np.errstate(divide="ignore"):
+    # A vanishing R·C puts its corner at infinity: division by zero or overflow both mean "no corner".
+    with np.errstate(divide="ignore", over="ignore"):
         pole = 1.0 / (2.0 * np.pi * (ro + riso) * cl)
         zero = 1.0 / (2.0 * np.pi * riso * cl)
     return Loop(
@@ -221,7 +222,7 @@ def compute(inputs: StabilityInputs, validated: bool = False) -> Outcome:
         suggested_margin[rows] = loop_of(
             unity[rows], i.second_pole_hz[rows], i.output_resistance_ohm[rows], i.load_capacitance_f[rows], pick
         ).phase_margin_deg()
-    with np.errstate(divide="ignore"):
+    with np.errstate(divide="ignore", over="ignore"):  # as in loop_of: a vanishing R·C has no corner
         load_pole = np.where(riso > 0.0, 1.0 / (2.0 * np.pi * riso * i.load_capacitance_f), np.nan)
 
     results = {
