@@ -385,6 +385,8 @@ def channel(ambient_c: float = 25.0, ambient_min_c: float = math.nan, ambient_ma
         vf_tempco_v_per_k=one(-0.002), if_derating_knee_c=one(60.0), resistor_rated_to_c=one(70.0),
         resistor_zero_power_c=one(155.0),
         **{name: nan for name in OPAMP_STAGE_FIELDS}, phase_margin_min_deg=one(45.0),
+        td_s=one(4e-8), tr_s=one(4e-8), ts_s=one(2.5e-7), tf_s=one(8e-8), pwm_frequency_hz=nan,
+        pwm_resolution_bits=one(8.0), modulation_depth=one(1.0), camera_frame_rate_hz=nan,
     )  # fmt: skip
 
 
