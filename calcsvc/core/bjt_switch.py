@@ -36,6 +36,7 @@ import numpy as np
 
 from calcsvc.core import bjt_drive, eseries, pwm_timing, switch_heat, switch_notices, switch_pwm, thermal_inputs
 from calcsvc.core.bjt_switch_inputs import BjtSwitchInputs, design_beta, exact_base_resistor, rbe_current, validate
+from calcsvc.core.driver_pin import SWITCH_DRIVER
 from calcsvc.core.outcome import (
     Check,
     Outcome,
@@ -244,16 +245,7 @@ SPEC = CalculationSpec(
             ),
             must_have=(("polarity", "npn"),),
         ),
-        Role(
-            "driver",
-            "driver",
-            (
-                ("voh_v", "drive_high_v"),
-                ("vol_v", "drive_low_v"),
-                ("source_current_max_a", "driver_current_max_a"),
-                ("vdd_v", "drive_supply_v"),
-            ),
-        ),
+        SWITCH_DRIVER,
     ),
     results=(
         Result("forced_beta_design", "A/A", "Ic/Ib designed for: as given, or from the part"),

@@ -32,6 +32,7 @@ from __future__ import annotations
 import numpy as np
 
 from calcsvc.core import bjt_drive, eseries, on_resistance, pwm_timing, switch_pwm, thermal
+from calcsvc.core.driver_pin import SWITCH_DRIVER
 from calcsvc.core.mosfet_inputs import POINTS, MosfetSwitchInputs, gate_drive_v, validate, wanted_time
 from calcsvc.core.outcome import Check, FloatArray, Notice, Outcome, add_notice, raise_violations
 from calcsvc.core.spec import E_SERIES, CalculationSpec, Input, Result, Role, columns_as, fraction, positive
@@ -291,16 +292,7 @@ SPEC = CalculationSpec(
     ),
     roles=(
         Role("transistor", "mosfet", tuple((p, p) for p in PART_PARAMETERS), must_have=(("channel", "n"),)),
-        Role(
-            "driver",
-            "driver",
-            (
-                ("voh_v", "drive_high_v"),
-                ("vol_v", "drive_low_v"),
-                ("source_current_max_a", "driver_current_max_a"),
-                ("vdd_v", "drive_supply_v"),
-            ),
-        ),
+        SWITCH_DRIVER,
     ),
     results=(
         Result("switching_time_wanted_s", "s", "wanted gate edge time: as given, or from the PWM"),
