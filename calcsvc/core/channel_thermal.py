@@ -87,6 +87,23 @@ def hottest_led(point: thermal.LedPoint) -> np.ndarray:
     return np.where(point.runaway, point.heating_at_max_c, point.junction_c)
 
 
+def hottest_inside_c(
+    i: ChannelInputs, row: Row, supply_v: np.ndarray, resistor_ohm: np.ndarray, ambient_c: np.ndarray
+) -> np.ndarray:
+    """The LED junction where the string dissipates most, when a forward voltage inside [vf_min, vf_max] puts it
+    there (else -inf: the ends, which the corners solve, are the hottest). A string of voltage V behind R on a
+    headroom H dissipates V·(H − V)/R, at most H²/(4R) at V = H/2 whatever its temperature (maximum power
+    transfer), so each LED is then at Ta + Rθ·H²/(4·N·R); the 25 °C forward voltage that reaches V = H/2 there is
+    H/(2N) − k·(T − 25 °C)."""
+    head = supply_v - row(i.vce_sat_v)
+    n = row(i.leds_in_series)
+    rth = row(i.led_rth_jb_k_per_w + i.led_rth_ba_k_per_w)
+    junction = ambient_c + rth * head**2 / (4.0 * n * resistor_ohm)
+    vf_needed = head / (2.0 * n) - row(i.vf_tempco_v_per_k) * (junction - thermal.REFERENCE_C)
+    inside = (vf_needed >= row(i.vf_min_v)) & (vf_needed <= row(i.vf_max_v))
+    return np.where(inside, junction, -np.inf)
+
+
 def led_current_limit(i: ChannelInputs, row: Row, ambient_c: np.ndarray) -> np.ndarray:
     """The LED's maximum current at this ambient: derated from its knee where it gives one (the worst case's
     ``led_current_rating`` limit)."""

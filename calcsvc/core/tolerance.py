@@ -229,7 +229,19 @@ def evaluate_at(inputs: ChannelInputs, nominal: ChannelReview, at: Point) -> lis
             i,
             row,
             at.ambient_c,
-            _per_string(channel_thermal.hottest_led(point), np.max),
+            np.maximum(
+                _per_string(channel_thermal.hottest_led(point), np.max),
+                _per_string(
+                    channel_thermal.hottest_inside_c(
+                        i,
+                        lambda x: row(x)[..., None],
+                        at.supply_v[..., None],
+                        at.led_resistor_ohm,
+                        at.ambient_c[..., None],
+                    ),
+                    np.max,
+                ),
+            ),
             _per_string(point.heating_at_max_c, np.max),
             resistor_power,
             row(channel_thermal.resistor_rating(nominal.led_string)),

@@ -29,7 +29,7 @@ from calcsvc.web.designs_schemas import (
     read_request,
 )
 from calcsvc.web.problems import Problem, error_response
-from calcsvc.web.revisioned import IfMatchSchema, expected_revision
+from calcsvc.web.revisioned import IfMatchSchema, expected_revision, storable_revision
 
 blp = Blueprint("designs", __name__, url_prefix="/v1/designs", description="Saved designs and their re-review")
 impact_blp = Blueprint("impact", __name__, url_prefix="/v1/parts", description="What a part edit does to designs")
@@ -192,4 +192,4 @@ class RevisionImpact(MethodView):
     @error_response(impact_blp, 404, "no such part or revision")
     def get(self, part_id: str, revision: int) -> dict[str, Any]:
         """What putting this revision of the part in place would do to every saved design that uses it."""
-        return part_impact(database(), part_id, revision)
+        return part_impact(database(), part_id, storable_revision(part_id, revision))

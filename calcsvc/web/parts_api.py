@@ -15,9 +15,7 @@ from calcsvc.data.kinds import KINDS, MAX_DESCRIPTION_LENGTH
 from calcsvc.data.part_history import ACTIONS
 from calcsvc.data.review_notes import MAX_NOTE_LENGTH, comment, send_back
 from calcsvc.data.store import STATUSES, PartStore, PartView
-from calcsvc.data.store_errors import PartNotFound
 from calcsvc.service.parts import (
-    MAX_REVISION,
     NO_NUL,
     ParametersField,
     PartCreateSchema,
@@ -27,7 +25,7 @@ from calcsvc.web.auth import database, reads, requires
 from calcsvc.web.calc_schemas import safety_field
 from calcsvc.web.metrics import record_parts_write
 from calcsvc.web.problems import Problem, error_response
-from calcsvc.web.revisioned import IfMatchSchema, UtcDateTime, expected_revision
+from calcsvc.web.revisioned import IfMatchSchema, UtcDateTime, expected_revision, storable_revision
 
 blp = Blueprint("parts", __name__, url_prefix="/v1/parts", description="The shared parts table")
 
@@ -320,9 +318,7 @@ class Comments(MethodView):
     def post(self, body: dict[str, Any], part_id: str, revision: int) -> dict[str, Any]:
         """Comment on a revision (editor or reviewer): a `commented` event of that revision, part of its history.
         Answers the part's revisions with their events."""
-        if revision > MAX_REVISION:  # no store holds it; a database would refuse the number itself
-            raise PartNotFound(f"part '{part_id}' has no revision {revision}", "revision")
         with database().transaction() as session:
-            comment(session, part_id, revision, g.identity.name, body["comment"])
+            comment(session, part_id, storable_revision(part_id, revision), g.identity.name, body["comment"])
         record_parts_write("comment")
         return _history(part_id)

@@ -10,6 +10,7 @@ from typing import Any
 from flask import request
 from marshmallow import Schema, fields
 
+from calcsvc.data.store_errors import PartNotFound
 from calcsvc.service.parts import MAX_REVISION
 from calcsvc.web.problems import Problem
 
@@ -43,3 +44,11 @@ def expected_revision(resource_id: str) -> int:
     if match is None or match["id"] != resource_id or int(match["revision"]) > MAX_REVISION:
         raise Problem(412, f"If-Match {header!r} does not name a revision of '{resource_id}'", "stale-revision")
     return int(match["revision"])
+
+
+def storable_revision(part_id: str, revision: int) -> int:
+    """A revision number from a URL path; one beyond any a store holds is no revision (a 404 naming it), never a
+    number handed to a database that cannot take it."""
+    if revision > MAX_REVISION:
+        raise PartNotFound(f"part '{part_id}' has no revision {revision}", "revision")
+    return revision

@@ -128,6 +128,8 @@ def test_writes_need_an_editor_and_a_valid_request(client: FlaskClient, seeded: 
                                headers=bearer(tokens["edna"])), 409)  # fmt: skip
     assert_problem(client.get("/v1/designs/none-such"), 404)
     assert_problem(client.get("/v1/parts/none-such/impact"), 404)
+    # A revision number beyond what a store can hold is no revision, not a server error.
+    assert_problem(client.get("/v1/parts/led-red-5mm/revisions/6229233006003852673024/impact"), 404, "revision")
 
 
 def test_a_single_calculation_is_a_design_too(client: FlaskClient, seeded: Any, tokens: dict[str, str]) -> None:

@@ -10,7 +10,7 @@ import numpy as np
 import pytest
 from hypothesis import given, settings
 from hypothesis import strategies as st
-from scipy.optimize import brentq
+from scipy.optimize import brentq, minimize_scalar
 from scipy.stats import binomtest
 from test_channel import DEMO, FRONT_CHECKS, NO_FRONT_STAGE, OPTIONAL_CHECKS, channel_rows, make, rows_to_inputs
 
@@ -96,6 +96,15 @@ def corner_values(
     ambient = row[f"ambient_{'min' if corner['ambient'] == 'cold' else 'max'}_c"]
     ta = row["ambient_c"] if math.isnan(ambient) else ambient
     heat = led_heat(row, vs, vf, r, ta)
+    # The junction check judges the hottest string anywhere in the forward-voltage range, not only at its ends:
+    # a bounded scalar search over Vf25 of the same brentq solve finds it.
+    inside = minimize_scalar(
+        lambda v: -led_heat(row, vs, v, r, ta)["junction"],
+        bounds=(row["vf_min_v"], row["vf_max_v"]),
+        method="bounded",
+        options={"xatol": 1e-10},
+    )
+    heat = {**heat, "junction": max(heat["junction"], -inside.fun)}
     vf = heat["vf"]
     v_r = vs - row["leds_in_series"] * vf - row["vce_sat_v"]
     i_string = max(v_r, 0.0) / r
