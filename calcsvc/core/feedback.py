@@ -10,10 +10,13 @@ has no Rg at all (Rf may be a wire).
 
 from __future__ import annotations
 
+from collections.abc import Callable
+from typing import Any
+
 import numpy as np
 
 from calcsvc.core.outcome import BoolArray, FloatArray, Violation, first_bad, require
-from calcsvc.core.spec import Input, positive
+from calcsvc.core.spec import Columns, Input, columns_as, positive
 
 CONFIGURATION = Input(
     "configuration", "", "non_inverting or inverting", "non_inverting", choices=("non_inverting", "inverting")
@@ -52,3 +55,17 @@ def validate_feedback_resistor(v: list[Violation], inverting: BoolArray, gain: F
     validate_resistance(v, "rf_ohm", rf)
     bad = (rf == 0.0) & (inverting | (gain != 1.0))
     require(v, bad, "rf_ohm", "rf_ohm of 0 Ω sets no gain: only a follower (non-inverting, gain 1) has no Rf")
+
+
+def validate_network(
+    v: list[Violation], inverting: BoolArray, gain: FloatArray, rf: FloatArray, plus_input: FloatArray
+) -> None:
+    """The whole network the DC error and the noise see: the gain, Rf and the resistance at the + input."""
+    validate_gain(v, inverting, gain)
+    validate_feedback_resistor(v, inverting, gain, rf)
+    validate_resistance(v, "plus_input_ohm", plus_input)
+
+
+def stage_inputs(cls: type) -> Callable[[Columns], Any]:
+    """A stage calculation's ``make_inputs``: its dataclass from the columns, ``configuration`` as ``inverting``."""
+    return lambda c: columns_as(cls, {**c, "inverting": c["configuration"] == "inverting"})

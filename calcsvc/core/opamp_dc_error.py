@@ -31,9 +31,8 @@ from calcsvc.core.feedback import (
     CONFIGURATION,
     GAIN,
     noise_gain,
-    validate_feedback_resistor,
-    validate_gain,
-    validate_resistance,
+    stage_inputs,
+    validate_network,
 )
 from calcsvc.core.outcome import (
     BoolArray,
@@ -48,7 +47,7 @@ from calcsvc.core.outcome import (
     require,
     require_practical,
 )
-from calcsvc.core.spec import CalculationSpec, Input, Result, Role, columns_as, positive
+from calcsvc.core.spec import CalculationSpec, Input, Result, Role, positive
 
 NAME = "opamp-dc-error"
 VERSION = "1"
@@ -78,9 +77,7 @@ def validate(inputs: DcErrorInputs) -> list[Violation]:
     i = inputs
     v: list[Violation] = []
     inverting = np.asarray(i.inverting, dtype=bool)
-    validate_gain(v, inverting, i.gain)
-    validate_feedback_resistor(v, inverting, i.gain, i.rf_ohm)
-    validate_resistance(v, "plus_input_ohm", i.plus_input_ohm)
+    validate_network(v, inverting, i.gain, i.rf_ohm, i.plus_input_ohm)
     for name in (*_MAGNITUDES, "output_error_max_v"):
         values = getattr(i, name)
         require(v, np.isinf(values), name, f"{name} must be a finite number when given")
@@ -187,7 +184,7 @@ SPEC = CalculationSpec(
         Result("output_error_lsb", "", "output_error_v in converter LSBs"),
         Result("balanced_plus_input_ohm", "ohm", "non-inverting input resistance that cancels the bias term (Rf‖Rg)"),
     ),
-    make_inputs=lambda c: columns_as(DcErrorInputs, {**c, "inverting": c["configuration"] == "inverting"}),
+    make_inputs=stage_inputs(DcErrorInputs),
     validate=validate,
     compute=compute,
 )

@@ -34,9 +34,8 @@ from calcsvc.core.feedback import (
     CONFIGURATION,
     GAIN,
     noise_gain,
-    validate_feedback_resistor,
-    validate_gain,
-    validate_resistance,
+    stage_inputs,
+    validate_network,
 )
 from calcsvc.core.opamp_dc_error import PLUS_INPUT_OHM, RF_OHM
 from calcsvc.core.outcome import (
@@ -52,7 +51,7 @@ from calcsvc.core.outcome import (
     require,
     require_practical,
 )
-from calcsvc.core.spec import CalculationSpec, Input, Result, Role, columns_as, positive
+from calcsvc.core.spec import CalculationSpec, Input, Result, Role, positive
 
 NAME = "opamp-noise"
 VERSION = "1"
@@ -85,9 +84,7 @@ def validate(inputs: NoiseInputs) -> list[Violation]:
     i = inputs
     v: list[Violation] = []
     inverting = np.asarray(i.inverting, dtype=bool)
-    validate_gain(v, inverting, i.gain)
-    validate_feedback_resistor(v, inverting, i.gain, i.rf_ohm)
-    validate_resistance(v, "plus_input_ohm", i.plus_input_ohm)
+    validate_network(v, inverting, i.gain, i.rf_ohm, i.plus_input_ohm)
     bad = ~np.isfinite(i.gbw_hz) | (i.gbw_hz <= 0.0)
     require(v, bad, "gbw_hz", f"gbw_hz ({first_bad(i.gbw_hz, bad)} Hz) is required and must be above 0 Hz")
     for name in ("voltage_noise_v_per_rthz", "current_noise_a_per_rthz"):
@@ -196,7 +193,7 @@ SPEC = CalculationSpec(
         Result("output_noise_lsb_rms", "", "output noise in converter LSBs"),
         Result("noise_bits", "", "ideal converter bits the output noise is worth"),
     ),
-    make_inputs=lambda c: columns_as(NoiseInputs, {**c, "inverting": c["configuration"] == "inverting"}),
+    make_inputs=stage_inputs(NoiseInputs),
     validate=validate,
     compute=compute,
 )

@@ -39,7 +39,7 @@ from dataclasses import dataclass
 import numpy as np
 
 from calcsvc.core import eseries
-from calcsvc.core.feedback import CONFIGURATION, GAIN, noise_gain, validate_gain, validate_resistance
+from calcsvc.core.feedback import CONFIGURATION, GAIN, noise_gain, stage_inputs, validate_gain, validate_resistance
 from calcsvc.core.outcome import (
     BoolArray,
     Check,
@@ -53,7 +53,7 @@ from calcsvc.core.outcome import (
     require,
     require_practical,
 )
-from calcsvc.core.spec import CalculationSpec, Input, Result, Role, columns_as, positive
+from calcsvc.core.spec import CalculationSpec, Input, Result, Role, positive
 
 NAME = "opamp-stability"
 VERSION = "1"
@@ -303,7 +303,7 @@ SPEC = CalculationSpec(
         Result("isolation_phase_margin_deg", "deg", "phase margin with that resistor"),
         Result("isolated_load_pole_hz", "Hz", "the low-pass isolation_ohm and the load form outside the loop"),
     ),
-    make_inputs=lambda c: columns_as(StabilityInputs, {**c, "inverting": c["configuration"] == "inverting"}),
+    make_inputs=stage_inputs(StabilityInputs),
     validate=validate,
     compute=compute,
 )

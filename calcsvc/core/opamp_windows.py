@@ -29,7 +29,7 @@ from typing import Literal
 
 import numpy as np
 
-from calcsvc.core.feedback import CONFIGURATION, GAIN, validate_gain
+from calcsvc.core.feedback import CONFIGURATION, GAIN, stage_inputs, validate_gain
 from calcsvc.core.outcome import (
     BoolArray,
     Check,
@@ -43,7 +43,7 @@ from calcsvc.core.outcome import (
     require,
     require_practical,
 )
-from calcsvc.core.spec import CalculationSpec, Input, Result, Role, columns_as, positive
+from calcsvc.core.spec import CalculationSpec, Input, Result, Role, positive
 
 NAME = "opamp-windows"
 VERSION = "1"
@@ -215,7 +215,7 @@ SPEC = CalculationSpec(
         Result("signal_output_max_v", "V", "highest output voltage the signal needs"),
         Result("max_amplitude_about_reference_v", "V", "largest output peak about reference_v within the swing"),
     ),
-    make_inputs=lambda c: columns_as(WindowInputs, {**c, "inverting": c["configuration"] == "inverting"}),
+    make_inputs=stage_inputs(WindowInputs),
     validate=validate,
     compute=compute,
 )
