@@ -49,6 +49,7 @@ from wrk_load import WRK_INSTALL, Window, measured, run_wrk, wrk_path
 from calcsvc.core import closed_loop, eseries, led_string, monte_carlo, thermal_inputs, tolerance
 from calcsvc.core.channel import ChannelInputs
 from calcsvc.core.channel_front import OPAMP_STAGE_FIELDS
+from calcsvc.core.channel_mosfet import MOSFET_ONLY
 from calcsvc.core.channel_spec import CHANNEL_INPUTS
 from calcsvc.core.led_string import SPEC as LED_STRING
 from calcsvc.core.outcome import DomainError, take
@@ -387,6 +388,7 @@ def channel(ambient_c: float = 25.0, ambient_min_c: float = math.nan, ambient_ma
         **{name: nan for name in OPAMP_STAGE_FIELDS}, phase_margin_min_deg=one(45.0),
         td_s=one(4e-8), tr_s=one(4e-8), ts_s=one(2.5e-7), tf_s=one(8e-8), pwm_frequency_hz=nan,
         pwm_resolution_bits=one(8.0), modulation_depth=one(1.0), camera_frame_rate_hz=nan,
+        **{name: nan for name in MOSFET_ONLY},
     )  # fmt: skip
 
 
