@@ -22,7 +22,6 @@ from calcsvc.core import (
 from calcsvc.core.adc import ADC_INPUTS
 from calcsvc.core.spec import E_SERIES, Input, InputSet, Role, fraction, positive
 
-
 _NPN = " (an NPN switch: required for one)"
 
 
