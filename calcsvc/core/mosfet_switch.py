@@ -66,10 +66,10 @@ def rds_at(i: MosfetSwitchInputs, gate_v: FloatArray) -> FloatArray:
     return on_resistance.at_gate_voltage(gate_v, points_v, points_ohm)
 
 
-def pin_low_ohm(i: MosfetSwitchInputs) -> FloatArray:
+def pin_low_ohm(drive_low_v: FloatArray, driver_current_max_a: FloatArray) -> FloatArray:
     """The pin's own resistance when low (its low level at the current it is rated for), in the turn-off path."""
-    sink_rating = np.where(np.isnan(i.driver_current_max_a), bjt_drive.VOL_RATED_UNKNOWN_A, i.driver_current_max_a)
-    return i.drive_low_v / sink_rating
+    sink_rating = np.where(np.isnan(driver_current_max_a), bjt_drive.VOL_RATED_UNKNOWN_A, driver_current_max_a)
+    return drive_low_v / sink_rating
 
 
 def compute(inputs: MosfetSwitchInputs, validated: bool = False) -> Outcome:
@@ -90,7 +90,9 @@ def compute(inputs: MosfetSwitchInputs, validated: bool = False) -> Outcome:
     pin_peak = pin_high / (rg * (1.0 - tolerance))
     gate_v = gate_voltage(i, rg, i.drive_high_v)
     rds_25 = rds_at(i, gate_v)
-    turn_on, turn_off = pwm_timing.gate_times(i.qg_total_c, rg, gate_v, pin_low_ohm(i), i.vgs_th_max_v)
+    turn_on, turn_off = pwm_timing.gate_times(
+        i.qg_total_c, rg, gate_v, pin_low_ohm(i.drive_low_v, i.driver_current_max_a), i.vgs_th_max_v
+    )
     pwm = switch_pwm.pwm_stage(
         turn_on,
         turn_off,

@@ -16,7 +16,7 @@ from typing import Any
 import numpy as np
 from sqlalchemy.orm import Session
 
-from calcsvc.core import channel, tolerance
+from calcsvc.core import channel, worst_case
 from calcsvc.core.channel_spec import CHANNEL_INPUTS
 from calcsvc.core.registry import CALCULATIONS
 from calcsvc.core.spec import InputSet
@@ -83,7 +83,7 @@ def _rows_of_checks(names: list[str], applies: list[Any], numbers: list[tuple[An
 
 def _channel_summaries(rows: list[dict[str, Any]]) -> list[dict[str, Any]]:
     inputs = channel_rows(rows)
-    accepted, worst = on_accepted(inputs, tolerance.worst_case)
+    accepted, worst = on_accepted(inputs, worst_case.worst_case)
     checked: list[list[dict[str, Any]]] = []
     if worst is not None:
         # A check applies where its nominal limit is known; its numbers are those at its worst corner.

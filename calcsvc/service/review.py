@@ -11,7 +11,7 @@ from typing import Any
 
 import numpy as np
 
-from calcsvc.core import channel, channel_stages, monte_carlo, thermal_limit, tolerance, usable_runtime
+from calcsvc.core import channel, channel_stages, monte_carlo, thermal_limit, usable_runtime, worst_case
 from calcsvc.core.channel_spec import CHANNEL_INPUTS, CHECK_UNITS, STAGES
 from calcsvc.core.heat_curves import HeatCurves, heat_curves
 from calcsvc.core.outcome import Check, FloatArray, Outcome, raise_violations
@@ -84,7 +84,7 @@ class Reviewed:
     checks once per corner; ``found`` is the Monte Carlo run (None without samples)."""
 
     inputs: channel.ChannelInputs
-    worst: tolerance.WorstCase
+    worst: worst_case.WorstCase
     found: monte_carlo.Yield | None
 
 
@@ -99,7 +99,7 @@ def _nominal(values: Mapping[str, Any], samples: int, seed: int) -> tuple[channe
 def review_channel(values: Mapping[str, Any], samples: int, seed: int) -> Reviewed:
     """Raises DomainError naming the fields when the channel (or the run) is physically impossible."""
     inputs, nominal = _nominal(values, samples, seed)
-    worst = tolerance.worst_case(inputs, nominal)
+    worst = worst_case.worst_case(inputs, nominal)
     found = monte_carlo.monte_carlo(inputs, samples, seed, nominal, **vf_options(values)) if samples else None
     return Reviewed(inputs, worst, found)
 
@@ -116,7 +116,7 @@ def _stage_results(outcome: Outcome) -> dict[str, Any]:
 _HEATED = {"led_": "led", "transistor_": "transistor", "resistor_": "string resistor"}
 
 
-def _check_entry(nominal: Check, worst: tolerance.WorstCheck, stage: str) -> dict[str, Any] | None:
+def _check_entry(nominal: Check, worst: worst_case.WorstCheck, stage: str) -> dict[str, Any] | None:
     limit = float(nominal.limit[0])
     if math.isnan(limit):
         return None  # does not apply to this design (e.g. no front stage, pin rating unknown)

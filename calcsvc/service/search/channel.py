@@ -11,7 +11,7 @@ from typing import Any
 
 import numpy as np
 
-from calcsvc.core import channel, monte_carlo, tolerance
+from calcsvc.core import channel, monte_carlo, worst_case
 from calcsvc.core.channel_spec import CHANNEL_INPUTS
 from calcsvc.core.outcome import BoolArray, take
 from calcsvc.core.spec import Role
@@ -54,7 +54,7 @@ class ChannelSearch:
     index: tuple[IntArray, ...]  # per searched role, each combination's part
     inputs: channel.ChannelInputs
     accepted: BoolArray
-    worst: tolerance.WorstCase | None  # over the accepted rows
+    worst: worst_case.WorstCase | None  # over the accepted rows
     scores: Scores
     rows: IntArray
     yields: dict[int, monte_carlo.Yield]
@@ -137,7 +137,7 @@ def search_channel(
         inputs,
         **{name: column[index[j]] for j, role in enumerate(roles) for name, column in provided[role.name].items()},
     )
-    accepted, worst = on_accepted(inputs, tolerance.worst_case)
+    accepted, worst = on_accepted(inputs, worst_case.worst_case)
     checks = []
     if worst is not None:
         checks = [
