@@ -6,10 +6,10 @@ held fixed, exactly as the worst-case corners are (calcsvc.core.tolerance, whose
 ``np.random.default_rng(seed)`` draws, per sample: the supply uniform within its band (a battery: anywhere
 between end of discharge and fresh, as over its life); the LEDs' forward voltages by ``vf_model`` (below; each
 string's drop is the sum of its own LEDs' draws); each
-string's resistor and the base (or gate) resistor independently uniform within their tolerance; an NPN's gain
-log-uniform between hfe_min and hfe_max (gain spreads are multiplicative); a MOSFET's on-resistance uniform from
-none to Rds_max (``channel_mosfet``: a part states only its largest, so each build may lie anywhere in that box). The other channels on the
-supply are taken as copies of the sampled one, which overstates the spread of the total supply current
+string's resistor and the base (or gate) resistor independently uniform within their tolerance; an NPN's
+gain log-uniform between hfe_min and hfe_max (gain spreads are multiplicative); a MOSFET's on-resistance uniform
+from none to Rds_max (``channel_mosfet``: a part states only its largest, so a build may lie anywhere below).
+The other channels on the supply are taken as copies of the sampled one, which overstates the spread of the total supply current
 (conservative). Every build is evaluated at both ends of the ambient range (``channel_thermal``) and passes
 only if it passes at both. Each sample stays inside the corners' box, so a design that passes the worst case
 yields exactly 1. The passing fraction carries a Wilson score interval (Wilson 1927).
