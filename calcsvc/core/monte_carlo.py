@@ -9,10 +9,10 @@ string's drop is the sum of its own LEDs' draws); each
 string's resistor and the base (or gate) resistor independently uniform within their tolerance; an NPN's
 gain log-uniform between hfe_min and hfe_max (gain spreads are multiplicative); a MOSFET's on-resistance uniform
 from none to Rds_max (``channel_mosfet``: a part states only its largest, so a build may lie anywhere below).
-The other channels on the supply are taken as copies of the sampled one, which overstates the spread of the total supply current
-(conservative). Every build is evaluated at both ends of the ambient range (``channel_thermal``) and passes
-only if it passes at both. Each sample stays inside the corners' box, so a design that passes the worst case
-yields exactly 1. The passing fraction carries a Wilson score interval (Wilson 1927).
+The other channels on the supply are taken as copies of the sampled one, which overstates the spread of the
+total supply current (conservative). Every build is evaluated at both ends of the ambient range
+(``channel_thermal``) and passes only if it passes at both. Each sample stays inside the corners' box, so a
+design that passes the worst case yields exactly 1. The passing fraction carries a Wilson score interval (Wilson 1927).
 
 Forward voltage (``vf_model``)
     ``one_reel`` (the default): the channel is built from one reel, and the LEDs of a reel are sorted into
