@@ -17,16 +17,21 @@ from helpers import assert_problem, bearer
 from calcsvc.web.pages.channel import ChannelForm
 
 DEMO = json.loads((Path(__file__).resolve().parents[2] / "examples" / "greenhouse-channel.json").read_text())
-# The greenhouse grow-light channel: three strings of three white 1 W grow LEDs at 350 mA from the 12 V adapter,
+# The greenhouse grow-light channel: three strings of three royal-blue 1 W grow LEDs at 350 mA from the 12 V adapter,
 # switched by a small logic-level MOSFET straight from the 3.3 V pin, dimmed at 2 kHz in 16 steps (a 10 mA pin
 # charges 3 nC through its 360 Ω gate resistor in about a microsecond, so finer steps would be shorter than ten
-# edges), with a 100 kΩ gate pull-down. The LED boards sit on the fixture's aluminium bar (15 K/W board to air per
-# LED instead of a bare star's 40) and the string resistors are 1 % parts: with 5 % ones, or bare stars, the
-# hottest corner's string resistor needs more than the largest 5 W rating at the usual 2× derating.
+# edges), with a 100 kΩ gate pull-down. The LEDs come from one reel binned 2.9–3.3 V (typical 3.1 V; the part's
+# whole 2.7–3.6 V range leaves no headroom for three in series on 11.4 V), their boards sit on the fixture's
+# aluminium bar (15 K/W board to air per LED instead of a bare star's 40) and the string resistors are 1 % parts:
+# with 5 % ones, or bare stars, the hottest corner's string resistor needs more than the largest 5 W rating at the
+# usual 2× derating.
 MOSFET_CHANNEL = {
     **DEMO,
     "transistor": "nmos-logic-small",
-    "led": "led-white-grow-1w",
+    "led": "led-royal-blue-grow-1w",
+    "vf_min_v": 2.9,
+    "vf_typ_v": 3.1,
+    "vf_max_v": 3.3,
     "leds_in_series": 3,
     "strings": 3,
     "current_a": "350 mA",

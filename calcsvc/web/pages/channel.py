@@ -86,6 +86,7 @@ ChannelForm = Schema.from_dict(
         "resistor_tolerance": Quantity("dimensionless", minimum=0, maximum=1),
         "gate_pulldown_ohm": Quantity("ohm", minimum=0, exclusive_minimum=True),
         "led_rth_ba_k_per_w": Quantity("K/W", minimum=0),
+        **{name: Quantity("V", minimum=0, exclusive_minimum=True) for name in ("vf_min_v", "vf_typ_v", "vf_max_v")},
         "current_a": Quantity("A", minimum=0, exclusive_minimum=True),
         "duty_cycle": Quantity("dimensionless", minimum=0, maximum=1),
         "pwm_frequency_hz": Quantity("Hz", minimum=0, exclusive_minimum=True),
@@ -121,6 +122,11 @@ CHANNEL_FIELDS: dict[str, tuple[tuple[str, str, str], ...]] = {
         ("channels", "Channels on the supply", "a whole number"),
         ("resistor_tolerance", "Resistor tolerance", "a fraction, 0.01 for 1 % parts (the series' own if empty)"),
         ("gate_pulldown_ohm", "Gate pull-down (MOSFET switch)", "in Ω, or with a unit: 100 kohm (none if empty)"),
+    ),
+    "LED reel's forward-voltage bin (optional)": (
+        ("vf_min_v", "Lowest forward voltage", "in V, from the reel's label (the LED part's if empty)"),
+        ("vf_typ_v", "Typical forward voltage", "in V (the LED part's if empty)"),
+        ("vf_max_v", "Highest forward voltage", "in V (the LED part's if empty)"),
     ),
     "Front stage (used with an op-amp)": (
         ("gain", "Preamp gain", "V/V, non-inverting"),
