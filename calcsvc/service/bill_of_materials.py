@@ -8,8 +8,8 @@ through). The LED resistor dissipates most at high supply, low forward voltage a
 continuously: PWM averages the heat only while the firmware keeps switching, and a pin held on is a normal state.
 The LED resistor's dissipation is the larger of its worst tolerance corner and the warm string's at the review's
 ambient (a warm LED's lower forward voltage leaves more across the resistor). A MOSFET channel lists its gate
-resistor (half of each edge's gate-charge energy, Qg·V·f, plus the pull-down's steady current) and its gate pull-
-down (as given, else the recommended value; V²/R with the pin held high) instead of a base resistor. A rating holds
+resistor (half of each edge's gate-charge energy, Qg·V·f, plus the pull-down's steady current) and its gate
+pull-down (as given, else the recommended value; V²/R with the pin held high) instead of a base resistor. A rating holds
 only up to the resistor's rated-to temperature: above it the need is divided by the derated fraction at the hottest
 ambient the review covers (``calcsvc.core.thermal.resistor_derating``, IEC 60115-1's curve, from memory), so the
 rating listed is the one that still fits on the hottest day.
