@@ -16,7 +16,7 @@ The drop
 
 Dissipation (thermal Ohm's law with the on-resistance rising with its heat, ``on_resistance.junction``)
     P = Id²·Rds(Tj)·D + switching loss, with Rds at the gate voltage the pin gives and Tj the junction that
-    this very dissipation makes; NaN where the heat runs away (the thermal checks then fail).
+    this very dissipation makes; infinite where the heat runs away (the thermal checks then fail).
 """
 
 from __future__ import annotations
@@ -141,6 +141,9 @@ def dissipation(
     rth_k_per_w: np.ndarray,
     switching_w: np.ndarray,
 ) -> np.ndarray:
-    """Average dissipation I²·Rds(Tj)·D + switching at the self-heated junction (module docstring); broadcasts."""
+    """Average dissipation I²·Rds(Tj)·D + switching at the self-heated junction (module docstring); broadcasts.
+    Infinite where the heat runs away: no temperature balances it, so every corner near it is worse than any
+    finite one."""
     junction = on_resistance.junction(ambient_c, rth_k_per_w, current_a, duty, rds_25_ohm, switching_w)
-    return current_a**2 * on_resistance.hot(rds_25_ohm, junction) * duty + switching_w
+    power = current_a**2 * on_resistance.hot(rds_25_ohm, junction) * duty + switching_w
+    return np.where(np.isnan(junction) & ~np.isnan(rds_25_ohm), np.inf, power)
