@@ -1,4 +1,10 @@
-"""Whole-channel design review: drive pin → NPN low-side switch → LED strings → shared supply ("channel-review").
+"""Whole-channel design review: drive pin → NPN or N-MOSFET low-side switch → LED strings → shared supply
+("channel-review").
+
+A MOSFET switch (its own inputs given instead of the NPN's, ``channel_mosfet``) takes the NPN's place in steps 1,
+2 and 5: the strings see its on-resistance in their return instead of a fixed Vce(sat), the switch section is
+``mosfet_switch`` at Ic_max (its heat checks left to the thermal stage), and the thermal stage uses its
+self-heated dissipation. A review takes rows of one switch kind.
 
 Circuit
     A logic pin (``drive_high_v``/``drive_low_v``, sourcing at most ``source_current_max_a``) drives an NPN

@@ -4,7 +4,8 @@ The LED strings are solved at their coupled electro-thermal point (``thermal.led
 string's forward voltage falls, so it draws more current than the cold design says, which heats it further.
 That point's current then sets the resistor's and the transistor's dissipation. Models (``thermal``):
 
-- transistor: Tj = Ta + P·Rθ with Rθ = Rθja as given, else (Tj,max − 25 °C)/P_rated (the rating at 25 °C
+- transistor (an NPN, or a MOSFET with P = I²·Rds(Tj)·D + switching at its self-heated junction,
+  ``channel_mosfet``): Tj = Ta + P·Rθ with Rθ = Rθja as given, else (Tj,max − 25 °C)/P_rated (the rating at 25 °C
   without a heat sink); with a heat sink Rθ = Rθjc + the sink's figure. Its derated limit (Tj,max − Ta)/Rθ,
   capped at the rating without a heat sink. P is averaged over the PWM period (the period is far shorter than
   the package's thermal time constant, common practice);

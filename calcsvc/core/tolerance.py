@@ -16,7 +16,7 @@ Vs − ΣVf − Vce_sat ≥ 10 % of Vs (``headroom``), 2·I²·R_led within the 
 supply range (``opamp_supply_min`` at the low supply, ``opamp_supply_max`` at the high one), and the
 single-supply windows' upper ends (``input_common_mode_high``, ``output_swing_high``) below the rail Vs; the
 thermal checks of ``channel_thermal``. Checks that depend on no toleranced value keep their nominal result.
-``DEPENDS_ON`` lists what each check depends on.
+``corners.CornerSet.depends_on`` lists what each check depends on, per switch kind.
 
 Toleranced quantities
     supply within its band (``channel_stages.supply_band``: a battery from end of discharge to fresh, else
@@ -26,6 +26,10 @@ Toleranced quantities
     a maximum); the ambient between ``ambient_min_c`` and ``ambient_max_c`` (``channel_thermal``), where each
     string's current is its coupled electro-thermal point, its forward voltage falling as it warms. Drive and
     saturation voltages are taken as the worst-case constants given.
+    A MOSFET switch (``channel_mosfet``, ``mosfet_corners``) has no gain: its on-resistance varies instead, from
+    none to Rds_max, and the strings see strings × Rds in their return (with the strings alike, exactly the common
+    drop Id·Rds; a Monte Carlo build's strings differ a little, and each then sees strings × Rds times its own
+    current, a second-order approximation of the shared drop); its gate resistor stands for the base resistor.
 
 Worst case
     Every check's margin is monotonic in each toleranced quantity, so its extreme over the tolerance box
@@ -34,8 +38,8 @@ Worst case
     with every string at the same corner. All rows are evaluated in one pass with each quantity's two
     settings on an axis of its own, so broadcasting computes each check only at the corners of the
     quantities it depends on (``saturation`` at all 64, ``driver_current`` at 2). Per check the corner of
-    least margin is reported (ties: the first corner in ``CORNERS`` order, low/min before high/max), with
-    the settings of the quantities that check depends on.
+    least margin is reported by ``worst_case`` (ties: the first corner in order, low/min before high/max),
+    with the settings of the quantities that check depends on.
 
 The Monte Carlo yield over the same evaluation is in calcsvc.core.monte_carlo.
 """
