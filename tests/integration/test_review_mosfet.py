@@ -174,3 +174,16 @@ def test_saved_mosfet_design_rereviews_and_sees_a_part_edit(
     assert first["design_id"] == "grow-light-mosfet" and first["after"]["failing"] == ["drain_current_rating"]
     # Both designs, one per switch kind, judged together on the watch list: neither fails at today's parts.
     assert client.get("/v1/designs?fails_at_current=true").get_json()["items"] == []
+
+
+def test_channel_search_with_the_mosfet_held_fixed(client: FlaskClient, seeded: Any) -> None:
+    # The LEDs searched around the fixed MOSFET: every candidate reviewed as the single review would.
+    body = {**MOSFET_CHANNEL, "led": ["led-royal-blue-grow-1w", "led-deep-red-grow-1w"], "samples": 0}
+    response = client.post("/v1/select/channel", json=body)
+    assert response.status_code == 200, response.get_json()
+    designs = response.get_json()["designs"]
+    assert [d["verdict"] for d in designs] == ["pass", "fail"]
+    best = designs[0]
+    direct = review(client, best["request"])
+    assert direct["verdict"] == "pass" and direct["stages"]["switch"]["rg_ohm"] == 390
+    assert {p["part_id"] for p in best["parts"]} >= {"nmos-logic-small", "led-royal-blue-grow-1w"}

@@ -43,6 +43,13 @@ NUMBERS = {
     "transistor_junction_c": ("thermal", "transistor_junction_c"),
     "resistor_hot_spot_c": ("thermal", "resistor_hot_spot_c"),
 }
+# A MOSFET switch's own key numbers in place of the base resistor's, the pin's and the transistor's.
+MOSFET_NUMBERS = {
+    **{key: where for key, where in NUMBERS.items() if key not in ("rb_ohm", "drive_current_a")},
+    "rg_ohm": ("switch", "rg_ohm"),
+    "gate_peak_current_a": ("switch", "gate_peak_current_a"),
+    "transistor_power_w": ("switch", "mosfet_power_w"),
+}
 CHANNEL_RANKINGS = ("margin", "supply_power_w", "yield")
 
 
@@ -88,9 +95,8 @@ class ChannelSearch:
         k = self.position(row)
         nominal = self.worst.nominal
         entry["failing"] = [c.name for c in self.worst.checks if not bool(c.check.ok[k])]
-        numbers = {
-            key: to_json_value(getattr(nominal, stage).results[name][k]) for key, (stage, name) in NUMBERS.items()
-        }
+        keys = MOSFET_NUMBERS if nominal.switch_kind == "mosfet" else NUMBERS
+        numbers = {key: to_json_value(getattr(nominal, stage).results[name][k]) for key, (stage, name) in keys.items()}
         entry["numbers"] = {**numbers, "max_duty_cycle": to_json_value(float(nominal.max_duty_cycle[k]))}
         entry["warnings"] += row_notices(nominal.warnings, k)
         entry["cautions"] = row_notices(nominal.cautions, k)
