@@ -96,6 +96,7 @@ class CornerSet:
 
 BIPOLAR = CornerSet(QUANTITIES, SETTINGS, DEPENDS_ON, HELD)
 CORNERS = BIPOLAR.corners
+# Checks only an NPN has, or whose quantities differ for a MOSFET (its gate resistor and on-resistance).
 _OWN_TO_NPN = ("saturation", "vce_sat_guarantee", "driver_current", "collector_current_rating", "voltage_rating",
              "power_rating", "off_state", "transistor_junction_temperature", "transistor_derated_power")  # fmt: skip
 
