@@ -172,6 +172,9 @@ def test_saved_mosfet_design_rereviews_and_sees_a_part_edit(
     assert impact["summary"]["using"] == 1 and impact["summary"]["pass_to_fail"] == 1
     first = impact["designs"][0]
     assert first["design_id"] == "grow-light-mosfet" and first["after"]["failing"] == ["drain_current_rating"]
+    # The part's review page shows the same impact above its approve button.
+    page = unescape(client.get("/review/parts/nmos-logic-small").get_data(as_text=True))
+    assert "grow-light-mosfet" in page and "drain_current_rating" in page
     # Both designs, one per switch kind, judged together on the watch list: neither fails at today's parts.
     assert client.get("/v1/designs?fails_at_current=true").get_json()["items"] == []
 
