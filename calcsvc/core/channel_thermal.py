@@ -192,6 +192,7 @@ def stage(i: ChannelInputs, led: Outcome, switch: Outcome) -> Outcome:
     ta = i.ambient_c
     resistor = led.results["resistor_ohm"]
     mosfet = channel_mosfet.all_mosfet(i)
+    # A MOSFET's drop at its on-resistance bound, as the string resistor was sized (``channel_mosfet``).
     switch_ohm = i.strings * channel_mosfet.rds_max_of(i, switch) if mosfet else 0.0
     point = led_point(i, lambda x: x, i.supply_v, i.leds_in_series * i.vf_typ_v, resistor, ta, switch_ohm)
     collector = i.strings * point.current_a
