@@ -46,9 +46,10 @@ from server import REPO, Server, gunicorn, peak_rss_bytes, reset_peak_rss
 from traffic import Client, drive
 from wrk_load import WRK_INSTALL, Window, measured, run_wrk, wrk_path
 
-from calcsvc.core import closed_loop, eseries, led_string, monte_carlo, thermal_inputs, tolerance
+from calcsvc.core import closed_loop, eseries, led_string, monte_carlo, thermal_inputs, worst_case
 from calcsvc.core.channel import ChannelInputs
 from calcsvc.core.channel_front import OPAMP_STAGE_FIELDS
+from calcsvc.core.channel_mosfet import MOSFET_ONLY
 from calcsvc.core.channel_spec import CHANNEL_INPUTS
 from calcsvc.core.led_string import SPEC as LED_STRING
 from calcsvc.core.outcome import DomainError, take
@@ -387,6 +388,7 @@ def channel(ambient_c: float = 25.0, ambient_min_c: float = math.nan, ambient_ma
         **{name: nan for name in OPAMP_STAGE_FIELDS}, phase_margin_min_deg=one(45.0),
         td_s=one(4e-8), tr_s=one(4e-8), ts_s=one(2.5e-7), tf_s=one(8e-8), pwm_frequency_hz=nan,
         pwm_resolution_bits=one(8.0), modulation_depth=one(1.0), camera_frame_rate_hz=nan,
+        **{name: nan for name in MOSFET_ONLY},
     )  # fmt: skip
 
 
@@ -509,7 +511,7 @@ def temperature_rows(repeats: int, notes: list[str]) -> list[Row]:
     count = 10_000
     many = {name: take(one, np.zeros(count, dtype=np.intp)) for name, one in (("fixed", fixed), ("range", ranged))}
     for name, inputs in many.items():
-        times[name], _ = best_of(repeats, lambda inputs=inputs: tolerance.worst_case(inputs))
+        times[name], _ = best_of(repeats, lambda inputs=inputs: worst_case.worst_case(inputs))
     rows.append(
         Row(
             "core",
@@ -777,7 +779,7 @@ def led_singles(search: RoleSearch) -> Callable[[], list[Any]]:
     return run
 
 
-def review_singles(search: ChannelSearch, sample: np.ndarray) -> Callable[[], list[tolerance.WorstCase | None]]:
+def review_singles(search: ChannelSearch, sample: np.ndarray) -> Callable[[], list[worst_case.WorstCase | None]]:
     """The single review of ``POST /v1/review/channel`` (inputs, then the worst case, which runs the nominal
     review first) for the combinations ``sample``; None where the core refuses one (a single review's 422)."""
 
@@ -789,9 +791,9 @@ def review_singles(search: ChannelSearch, sample: np.ndarray) -> Callable[[], li
 
     rows = [values(row) for row in sample.tolist()]
 
-    def one(values: dict[str, Any]) -> tolerance.WorstCase | None:
+    def one(values: dict[str, Any]) -> worst_case.WorstCase | None:
         try:
-            return tolerance.worst_case(channel_inputs(values))
+            return worst_case.worst_case(channel_inputs(values))
         except DomainError:
             return None
 
@@ -925,7 +927,7 @@ def select_section(args: argparse.Namespace) -> tuple[list[Row], list[str]]:
         f"(LED search), {args.repeats * 2} (channel search) and {args.repeats} (loops) runs and include scoring "
         f"and ranking the top {len(found.rows)}; the loops only compute. The single-row loop runs "
         "LED_STRING.compute(make_inputs(columns_of(...))) per candidate on inputs resolved beforehand (the results "
-        f"are checked equal to the search's); the single reviews run channel_inputs and tolerance.worst_case on "
+        f"are checked equal to the search's); the single reviews run channel_inputs and worst_case.worst_case on "
         f"{REVIEW_SAMPLE} randomly sampled combinations ({len([r for r in reviews if r is None])} of them refused, "
         "a 422 over HTTP) and agree with the search on refusal, verdict and resistor.",
         f"Search over HTTP: median of {runs} requests each, one after another, after as many uncounted ones as "

@@ -1,4 +1,10 @@
-"""Whole-channel design review: drive pin → NPN low-side switch → LED strings → shared supply ("channel-review").
+"""Whole-channel design review: drive pin → NPN or N-MOSFET low-side switch → LED strings → shared supply
+("channel-review").
+
+A MOSFET switch (its own inputs given instead of the NPN's, ``channel_mosfet``) takes the NPN's place in steps 1,
+2 and 5: the strings see its on-resistance in their return instead of a fixed Vce(sat), the switch section is
+``mosfet_switch`` at Ic_max (its heat checks left to the thermal stage), and the thermal stage uses its
+self-heated dissipation. A review takes rows of one switch kind.
 
 Circuit
     A logic pin (``drive_high_v``/``drive_low_v``, sourcing at most ``source_current_max_a``) drives an NPN
@@ -49,7 +55,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from calcsvc.core import bjt_switch, channel_thermal, duty_power, led_string
+from calcsvc.core import bjt_switch, channel_mosfet, channel_thermal, duty_power, led_string, mosfet_inputs
 from calcsvc.core.channel_front import FRONT_STAGE_FIELDS, front_stage, front_violations
 from calcsvc.core.channel_inputs import ChannelInputs
 from calcsvc.core.channel_stages import collector_currents, has_front_stage, led_inputs, supply_inputs, switch_inputs
@@ -92,6 +98,7 @@ class ChannelReview:
     ok: BoolArray  # every check passes
     warnings: list[Notice]
     cautions: list[Notice]
+    switch_kind: str = "bjt"  # or "mosfet": every row's switch is of one kind (``channel_mosfet``)
 
     def check(self, name: str) -> Check:
         return next(c for c in self.checks if c.name == name)
@@ -159,11 +166,21 @@ def _rows_of(violations: list[Violation], n: int) -> BoolArray:
 def _own_violations(i: ChannelInputs) -> list[Violation]:
     """Preconditions on inputs that no stage calculation checks (or checks under another name)."""
     v: list[Violation] = []
+    mosfet = channel_mosfet.is_mosfet(i)
     with np.errstate(invalid="ignore"):
         for name in ("hfe_typ", "channels", "current_max_a"):
             x = getattr(i, name)
-            bad = ~np.isfinite(x)
+            bad = ~np.isfinite(x) & ~(mosfet & (name == "hfe_typ"))  # a MOSFET has no gain
             require(v, bad, name, f"{name} is required and must be a finite number (got {first_bad(x, bad)})")
+        for name in channel_mosfet.BIPOLAR_ONLY:
+            bad = mosfet & ~np.isnan(getattr(i, name))
+            require(
+                v,
+                bad,
+                name,
+                f"{name} is an NPN switch's input, but this switch is a MOSFET (its own inputs, such as rds_on_1_ohm, "
+                "are given): give one switch kind's inputs",
+            )
         bad = i.hfe_typ < i.hfe_min
         if bad.any():
             k = int(np.argmax(bad))
@@ -221,7 +238,13 @@ def validate(inputs: ChannelInputs) -> list[Violation]:
     heat_found = channel_thermal.validate(i)
     found.stage(heat_found)
 
-    led_in = led_inputs(i)
+    mosfet = channel_mosfet.is_mosfet(i)
+    mosfet_ok = mosfet.copy()  # a MOSFET valid on its own: its on-resistance bounds the LED stage's drop
+    if mosfet.any():
+        own = mosfet_inputs.validate(channel_mosfet.switch_inputs(take(i, mosfet), np.ones(int(mosfet.sum()))))
+        mosfet_ok[mosfet] = ~_rows_of(own, int(mosfet.sum()))
+    rds = np.where(mosfet & ~mosfet_ok, 0.0, channel_mosfet.rds_max(i, mosfet_ok))  # refused below anyway
+    led_in = led_inputs(i, rds)
     drop = {"switch_drop_v": "vce_sat_v"}
     led_found = led_string.validate(led_in)
     found.stage(led_found, drop, drop)
@@ -239,15 +262,23 @@ def validate(inputs: ChannelInputs) -> list[Violation]:
         ic_nominal[led_ok], ic_max[led_ok] = collector_currents(
             take(i, led_ok), led_string.design(take(led_in, led_ok))
         )
-    switch_found = bjt_switch.validate(switch_inputs(i, ic_max))
+    bipolar = ~mosfet
+    switch_found = bjt_switch.validate(switch_inputs(take(i, bipolar), ic_max[bipolar])) if bipolar.any() else []
     for v in switch_found:
         if v.field == "collector_current_a":  # derived from current_a; meaningless where that was replaced
-            v = Violation(v.field, v.message, v.rows & led_ok)
+            v = Violation(v.field, v.message, v.rows & led_ok[bipolar])
         found.stage(
             [v],
             {"collector_current_a": "current_a", "driver_current_max_a": "source_current_max_a", **_SUPPLY},
             {"collector_current_a": "collector current", "driver_current_max_a": "source_current_max_a", **_SUPPLY},
+            subset=bipolar,
         )
+    if mosfet.any():
+        for v in mosfet_inputs.validate(channel_mosfet.switch_inputs(take(i, mosfet), ic_max[mosfet])):
+            if v.field == "drain_current_a":  # as collector_current_a above
+                v = Violation(v.field, v.message, v.rows & led_ok[mosfet])
+            names = {"drain_current_a": "current_a", "driver_current_max_a": "source_current_max_a", **_SUPPLY}
+            found.stage([v], names, {**names, "drain_current_a": "drain current"}, subset=mosfet)
     found.stage(
         duty_power.validate(supply_inputs(i, ic_nominal)),
         {"count": "channels", "peak_current_a": "current_a"},
@@ -275,9 +306,10 @@ def review(inputs: ChannelInputs, validated: bool = False) -> ChannelReview:
     i = inputs
     # ``validate`` checked every stage at exactly these inputs (the currents too), so none validates again.
     # The LED and switch stages without heat: the thermal stage and the corners judge it over the ambient range.
+    mosfet = channel_mosfet.all_mosfet(i)
     led = led_string.design(led_inputs(i))
     ic_nominal, ic_max = collector_currents(i, led)
-    switch = bjt_switch.design(switch_inputs(i, ic_max))
+    switch = channel_mosfet.section(i, ic_max) if mosfet else bjt_switch.design(switch_inputs(i, ic_max))
     supply = duty_power.compute(supply_inputs(i, ic_nominal), validated=True)
     front = front_stage(i, validated=True)
     heat = channel_thermal.stage(i, led, switch)
@@ -301,4 +333,5 @@ def review(inputs: ChannelInputs, validated: bool = False) -> ChannelReview:
         ok=ok,
         warnings=[note for s in sections for note in s.warnings],
         cautions=[note for s in sections for note in s.cautions],
+        switch_kind="mosfet" if mosfet else "bjt",
     )

@@ -22,6 +22,8 @@ class ChannelInputs:
     range ``opamp_supply_min_v``/``opamp_supply_max_v``, ``input_offset_v`` and the allowed
     ``output_offset_max_v`` stay optional, as do the windows, DC error, noise and stability inputs
     (``channel_front.FRONT_STAGE_FIELDS``); ``phase_margin_min_deg`` always holds a value (its default).
+    The switch is an NPN (``hfe_min`` … given) or a MOSFET (``rds_on_1_ohm`` … given, ``channel_mosfet``), one
+    kind per row; the other kind's fields are NaN there.
     ``leds_in_series``, ``strings`` and ``channels`` hold whole numbers as floats; ``e_series`` is a numpy str
     array, ``inverting`` a bool array.
     """
@@ -113,3 +115,16 @@ class ChannelInputs:
     pwm_resolution_bits: FloatArray
     modulation_depth: FloatArray
     camera_frame_rate_hz: FloatArray  # NaN: no camera
+    # A MOSFET as the switch (``channel_mosfet``): NaN on a bipolar row, which gives hfe_min … instead.
+    vds_max_v: FloatArray
+    id_max_a: FloatArray
+    vgs_1_v: FloatArray
+    rds_on_1_ohm: FloatArray
+    vgs_2_v: FloatArray  # NaN: not stated
+    rds_on_2_ohm: FloatArray
+    vgs_3_v: FloatArray
+    rds_on_3_ohm: FloatArray
+    vgs_th_max_v: FloatArray
+    qg_total_c: FloatArray
+    gate_pulldown_ohm: FloatArray  # NaN: none fitted
+    switching_time_s: FloatArray  # NaN: from the PWM

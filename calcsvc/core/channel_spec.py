@@ -4,10 +4,14 @@ page are derived from it, as the calculations' are from their ``SPEC``."""
 
 from __future__ import annotations
 
+import dataclasses
+
 from calcsvc.core import (
     bjt_drive,
     channel,
+    channel_mosfet,
     monte_carlo,
+    mosfet_switch,
     opamp_dc_error,
     opamp_noise,
     opamp_stability,
@@ -18,6 +22,14 @@ from calcsvc.core import (
 from calcsvc.core.adc import ADC_INPUTS
 from calcsvc.core.spec import E_SERIES, Input, InputSet, Role, fraction, positive
 
+_NPN = " (an NPN switch: required for one)"
+
+
+def _mosfet_input(name: str) -> Input:
+    """A MOSFET switch's input as the single calculation declares it, optional here: a row gives one kind's."""
+    spec = next(spec for spec in mosfet_switch.SPEC.inputs if spec.name == name)
+    return dataclasses.replace(spec, description=f"{spec.description} (a MOSFET switch)", optional=True)
+
 
 def _count(name: str, description: str, default: int | None = None, maximum: float = 1000) -> Input:
     return Input(name, "dimensionless", description, default, minimum=1, maximum=maximum, integer=True)
@@ -25,7 +37,7 @@ def _count(name: str, description: str, default: int | None = None, maximum: flo
 
 CHANNEL_INPUTS = InputSet(
     name=channel.NAME,
-    summary="Review a whole LED channel: string resistor, NPN switch, supply budget and front stage, "
+    summary="Review a whole LED channel: string resistor, NPN or MOSFET switch, supply budget and front stage, "
     "nominal, worst case and yield",
     version=channel.VERSION,
     inputs=(
@@ -47,12 +59,13 @@ CHANNEL_INPUTS = InputSet(
         Input("drive_low_v", "V", "driver output voltage when off", 0.0),
         positive("source_current_max_a", "A", "largest current the driver pin may source", optional=True),
         bjt_drive.DRIVE_SUPPLY_V,
-        positive("hfe_min", "dimensionless", "lowest DC current gain"),
-        positive("hfe_typ", "dimensionless", "typical DC current gain"),
-        positive("vbe_sat_v", "V", "base-emitter voltage in saturation"),
-        Input("vce_sat_v", "V", "collector-emitter voltage in saturation", minimum=0),
-        positive("ic_max_a", "A", "transistor's collector current rating"),
+        positive("hfe_min", "dimensionless", "lowest DC current gain" + _NPN, optional=True),
+        positive("hfe_typ", "dimensionless", "typical DC current gain" + _NPN, optional=True),
+        positive("vbe_sat_v", "V", "base-emitter voltage in saturation" + _NPN, optional=True),
+        Input("vce_sat_v", "V", "collector-emitter voltage in saturation" + _NPN, optional=True, minimum=0),
+        positive("ic_max_a", "A", "transistor's collector current rating" + _NPN, optional=True),
         positive("power_max_w", "W", "transistor's dissipation rating"),
+        *(_mosfet_input(name) for name in channel_mosfet.MOSFET_ONLY),
         bjt_drive.VCE_SAT_FORCED_BETA,
         bjt_drive.BASE_JUNCTIONS,
         bjt_drive.VCEO_MAX_V,
@@ -215,6 +228,12 @@ CHANNEL_INPUTS = InputSet(
         ),
     ),
 )
+# The transistor role's other kind: a review's switch is an NPN or an N-channel MOSFET, by the part named.
+MOSFET_TRANSISTOR = Role(
+    "transistor", "mosfet", tuple((p, p) for p in mosfet_switch.PART_PARAMETERS), must_have=(("channel", "n"),)
+)
+ALTERNATIVE_ROLES = (MOSFET_TRANSISTOR,)
+
 # The review's sections (``channel.ChannelReview``), in chain order.
 STAGES = ("led_string", "switch", "supply", "front_stage", "thermal")
 
@@ -230,4 +249,6 @@ CHECK_UNITS = {
     "input_common_mode_low": "V", "input_common_mode_high": "V", "output_swing_low": "V", "output_swing_high": "V",
     "output_error": "V", "noise_bits": "", "phase_margin": "deg",
     "shortest_pulse_covers_edges": "s", "flicker_low_risk": "",
+    "gate_reaches_stated_drive": "V", "edges_within_wanted_time": "s", "pin_peak_current": "A",
+    "drain_current_rating": "A", "drain_voltage_rating": "V",
 }  # fmt: skip

@@ -10,6 +10,7 @@ import numpy as np
 
 from calcsvc.core import (
     bjt_switch,
+    channel_mosfet,
     channel_thermal,
     closed_loop,
     duty_power,
@@ -34,7 +35,15 @@ def resistor_tolerance(inputs: ChannelInputs) -> FloatArray:
     return eseries.tolerance_rows(inputs.resistor_tolerance, inputs.e_series)
 
 
-def led_inputs(i: ChannelInputs) -> led_string.LedStringInputs:
+def led_inputs(i: ChannelInputs, rds_max_ohm: FloatArray | None = None) -> led_string.LedStringInputs:
+    """The LED stage's inputs; the switch drop is a bipolar row's vce_sat_v, a MOSFET row's drop at its target
+    current through ``rds_max_ohm`` (``channel_mosfet``; absent: computed here, the rows already validated)."""
+    mosfet = channel_mosfet.is_mosfet(i)
+    if mosfet.any():
+        rds = channel_mosfet.rds_max(i, mosfet) if rds_max_ohm is None else rds_max_ohm
+        drop = np.where(mosfet, channel_mosfet.design_drop(i, rds), i.vce_sat_v)
+    else:
+        drop = i.vce_sat_v
     return led_string.LedStringInputs(
         supply_v=i.supply_v,
         supply_tolerance=i.supply_tolerance,
@@ -45,7 +54,7 @@ def led_inputs(i: ChannelInputs) -> led_string.LedStringInputs:
         leds_in_series=i.leds_in_series,
         strings=i.strings,
         current_a=i.current_a,
-        switch_drop_v=i.vce_sat_v,
+        switch_drop_v=drop,
         e_series=i.e_series,
         resistor_tolerance=i.resistor_tolerance,
         **{name: getattr(i, name) for name in LED_HEAT_FIELDS},
@@ -152,7 +161,8 @@ def collector_currents(i: ChannelInputs, led: Outcome) -> tuple[FloatArray, Floa
     (the base is sized for it: ``channel``'s docstring): top of the supply band, lowest Vf, low resistor, and
     the hottest ambient, where each string's forward voltage has fallen at its coupled electro-thermal point.
     Never below the same corner at the 25 °C the forward voltages are stated at: an enclosure kept colder than
-    that still gets a base sized for the datasheet's worst case (and Ic_max ≥ the nominal Ic)."""
+    that still gets a base sized for the datasheet's worst case (and Ic_max ≥ the nominal Ic). A MOSFET's drop
+    is taken as none here (``channel_mosfet``: the current-high side)."""
     _, high = supply_band(i)
     low_resistor = led.results["resistor_ohm"] * (1.0 - resistor_tolerance(i))
     _, hottest = channel_thermal.ambient_range(i)

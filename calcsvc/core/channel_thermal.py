@@ -4,7 +4,8 @@ The LED strings are solved at their coupled electro-thermal point (``thermal.led
 string's forward voltage falls, so it draws more current than the cold design says, which heats it further.
 That point's current then sets the resistor's and the transistor's dissipation. Models (``thermal``):
 
-- transistor: Tj = Ta + P·Rθ with Rθ = Rθja as given, else (Tj,max − 25 °C)/P_rated (the rating at 25 °C
+- transistor (an NPN, or a MOSFET with P = I²·Rds(Tj)·D + switching at its self-heated junction,
+  ``channel_mosfet``): Tj = Ta + P·Rθ with Rθ = Rθja as given, else (Tj,max − 25 °C)/P_rated (the rating at 25 °C
   without a heat sink); with a heat sink Rθ = Rθjc + the sink's figure. Its derated limit (Tj,max − Ta)/Rθ,
   capped at the rating without a heat sink. P is averaged over the PWM period (the period is far shorter than
   the package's thermal time constant, common practice);
@@ -24,7 +25,7 @@ from collections.abc import Callable
 
 import numpy as np
 
-from calcsvc.core import led_heat, led_string, pwm_timing, switch_heat, thermal
+from calcsvc.core import channel_mosfet, led_heat, led_string, pwm_timing, switch_heat, thermal
 from calcsvc.core.channel_inputs import ChannelInputs
 from calcsvc.core.outcome import Check, FloatArray, Notice, Outcome, Violation, add_notice, first_bad, require
 
@@ -68,12 +69,15 @@ def led_point(
     string_vf_v: np.ndarray,
     resistor_ohm: np.ndarray,
     ambient_c: np.ndarray,
+    switch_ohm: np.ndarray | float = 0.0,
 ) -> thermal.LedPoint:
-    """The strings' coupled point; ``row`` shapes a per-row input to broadcast against the other arrays."""
+    """The strings' coupled point; ``row`` shapes a per-row input to broadcast against the other arrays.
+    ``switch_ohm``: the resistance a MOSFET adds in series with each string (``channel_mosfet``); a bipolar
+    switch drops its fixed vce_sat_v instead."""
     return thermal.led_operating_point(
-        supply_v - row(i.vce_sat_v),
+        supply_v - row(fixed_drop(i)),
         string_vf_v,
-        resistor_ohm,
+        resistor_ohm + switch_ohm,
         row(i.leds_in_series),
         row(i.vf_tempco_v_per_k),
         row(i.led_rth_jb_k_per_w + i.led_rth_ba_k_per_w),
@@ -82,20 +86,31 @@ def led_point(
     )
 
 
+def fixed_drop(i: ChannelInputs) -> FloatArray:
+    """The switch's fixed drop: a bipolar transistor's vce_sat_v; a MOSFET's drop is resistive (none fixed)."""
+    return np.where(channel_mosfet.is_mosfet(i), 0.0, i.vce_sat_v)
+
+
 def hottest_led(point: thermal.LedPoint) -> np.ndarray:
     """Each string's junction, or where it runs away, the temperature its heat at Tj,max drives it to."""
     return np.where(point.runaway, point.heating_at_max_c, point.junction_c)
 
 
 def hottest_inside_c(
-    i: ChannelInputs, row: Row, supply_v: np.ndarray, resistor_ohm: np.ndarray, ambient_c: np.ndarray
+    i: ChannelInputs,
+    row: Row,
+    supply_v: np.ndarray,
+    resistor_ohm: np.ndarray,
+    ambient_c: np.ndarray,
+    switch_ohm: np.ndarray | float = 0.0,
 ) -> np.ndarray:
     """The LED junction where the string dissipates most, when a forward voltage inside [vf_min, vf_max] puts it
     there (else -inf: the ends, which the corners solve, are the hottest). A string of voltage V behind R on a
     headroom H dissipates V·(H − V)/R, at most H²/(4R) at V = H/2 whatever its temperature (maximum power
     transfer), so each LED is then at Ta + Rθ·H²/(4·N·R); the 25 °C forward voltage that reaches V = H/2 there is
-    H/(2N) − k·(T − 25 °C)."""
-    head = supply_v - row(i.vce_sat_v)
+    H/(2N) − k·(T − 25 °C). A MOSFET's ``switch_ohm`` counts with R."""
+    head = supply_v - row(fixed_drop(i))
+    resistor_ohm = resistor_ohm + switch_ohm
     n = row(i.leds_in_series)
     rth = row(i.led_rth_jb_k_per_w + i.led_rth_ba_k_per_w)
     junction = ambient_c + rth * head**2 / (4.0 * n * resistor_ohm)
@@ -176,15 +191,25 @@ def stage(i: ChannelInputs, led: Outcome, switch: Outcome) -> Outcome:
     """Every part's temperature and derated limit at ``ambient_c`` with nominal values, and the thermal checks."""
     ta = i.ambient_c
     resistor = led.results["resistor_ohm"]
-    point = led_point(i, lambda x: x, i.supply_v, i.leds_in_series * i.vf_typ_v, resistor, ta)
+    mosfet = channel_mosfet.all_mosfet(i)
+    # A MOSFET's drop at its on-resistance bound, as the string resistor was sized (``channel_mosfet``).
+    switch_ohm = i.strings * channel_mosfet.rds_max_of(i, switch) if mosfet else 0.0
+    point = led_point(i, lambda x: x, i.supply_v, i.leds_in_series * i.vf_typ_v, resistor, ta, switch_ohm)
     collector = i.strings * point.current_a
-    transistor_power = (i.vce_sat_v * collector + i.vbe_sat_v * switch.results["base_current_a"]) * i.duty_cycle
-    transistor_power = transistor_power + switching_loss(i, i.supply_v, collector, lambda x: x)
+    rth, _ = transistor_rth(i)
+    if mosfet:
+        r = switch.results
+        switching = pwm_timing.switching_loss(
+            i.supply_v, collector, r["turn_on_s"], r["turn_off_s"], i.pwm_frequency_hz
+        )
+        transistor_power = channel_mosfet.dissipation(collector, r["rds_on_ohm"], i.duty_cycle, ta, rth, switching)
+    else:
+        transistor_power = (i.vce_sat_v * collector + i.vbe_sat_v * switch.results["base_current_a"]) * i.duty_cycle
+        transistor_power = transistor_power + switching_loss(i, i.supply_v, collector, lambda x: x)
     resistor_power = point.current_a**2 * resistor
     rating = resistor_rating(led)
     hottest = hottest_led(point)
     found = checks(i, lambda x: x, ta, hottest, point.heating_at_max_c, resistor_power, rating, transistor_power)
-    rth, _ = transistor_rth(i)
     results = {
         "ambient_c": ta,
         "led_junction_c": point.junction_c,

@@ -6,12 +6,13 @@ held fixed, exactly as the worst-case corners are (calcsvc.core.tolerance, whose
 ``np.random.default_rng(seed)`` draws, per sample: the supply uniform within its band (a battery: anywhere
 between end of discharge and fresh, as over its life); the LEDs' forward voltages by ``vf_model`` (below; each
 string's drop is the sum of its own LEDs' draws); each
-string's resistor and the base resistor independently uniform within their tolerance; the gain
-log-uniform between hfe_min and hfe_max (gain spreads are multiplicative). The other channels on the
-supply are taken as copies of the sampled one, which overstates the spread of the total supply current
-(conservative). Every build is evaluated at both ends of the ambient range (``channel_thermal``) and passes
-only if it passes at both. Each sample stays inside the corners' box, so a design that passes the worst case
-yields exactly 1. The passing fraction carries a Wilson score interval (Wilson 1927).
+string's resistor and the base (or gate) resistor independently uniform within their tolerance; an NPN's
+gain log-uniform between hfe_min and hfe_max (gain spreads are multiplicative); a MOSFET's on-resistance uniform
+from none to Rds_max (``channel_mosfet``: a part states only its largest, so a build may lie anywhere below).
+The other channels on the supply are taken as copies of the sampled one, which overstates the spread of the
+total supply current (conservative). Every build is evaluated at both ends of the ambient range
+(``channel_thermal``) and passes only if it passes at both. Each sample stays inside the corners' box, so a
+design that passes the worst case yields exactly 1. The passing fraction carries a Wilson score interval (Wilson 1927).
 
 Forward voltage (``vf_model``)
     ``one_reel`` (the default): the channel is built from one reel, and the LEDs of a reel are sorted into
@@ -36,11 +37,13 @@ from dataclasses import dataclass
 import numpy as np
 import numpy.typing as npt
 
+from calcsvc.core import channel_mosfet
 from calcsvc.core.channel import ChannelInputs, ChannelReview, review, validate
 from calcsvc.core.channel_stages import resistor_tolerance, supply_band
 from calcsvc.core.channel_thermal import ambient_range
+from calcsvc.core.corners import Point, hfe_max
 from calcsvc.core.outcome import Check, FloatArray, Violation, raise_violations, require, row_count
-from calcsvc.core.tolerance import Point, evaluate_at, hfe_max
+from calcsvc.core.tolerance import evaluate_at
 
 Z_95 = 1.959963984540054  # standard normal quantile for a two-sided 95 % interval
 DEFAULT_SAMPLES = 10_000
@@ -187,10 +190,14 @@ def _draw(
     drawn = forward_voltages(rng, i.vf_min_v[0], i.vf_max_v[0], (count, strings, leds), vf_model, vf_bin_width_v)
     vf = drawn.sum(axis=-1)[None]
     led_r = spread(nominal.led_string.results["resistor_ohm"][0], tol, (1, count, strings))
-    base_r = spread(nominal.switch.results["rb_ohm"][0], tol, (1, count))
-    hfe = np.exp(rng.uniform(np.log(i.hfe_min[0]), np.log(hfe_max(i)[0]), (1, count)))
+    if nominal.switch_kind == "mosfet":
+        drive_r = spread(nominal.switch.results["rg_ohm"][0], tol, (1, count))
+        switch_value = rng.uniform(0.0, channel_mosfet.rds_max_of(i, nominal.switch)[0], (1, count))
+    else:
+        drive_r = spread(nominal.switch.results["rb_ohm"][0], tol, (1, count))
+        switch_value = np.exp(rng.uniform(np.log(i.hfe_min[0]), np.log(hfe_max(i)[0]), (1, count)))
     cold, _ = ambient_range(i)
-    return Point((count,), supply, vf, led_r, base_r, hfe, cold.reshape(1, 1))
+    return Point((count,), supply, vf, led_r, drive_r, switch_value, cold.reshape(1, 1))
 
 
 def _over_ambient(inputs: ChannelInputs, nominal: ChannelReview, at: Point) -> list[Check]:

@@ -52,6 +52,26 @@ def _gate_resistor(i: MosfetSwitchInputs, rg_exact: FloatArray, rg_pin_min: Floa
     return np.maximum(rg, pin)
 
 
+def gate_voltage(i: MosfetSwitchInputs, rg_ohm: FloatArray, high_v: FloatArray) -> FloatArray:
+    """The gate voltage when on from a pin at ``high_v``: less the pull-down's divider share, where fitted."""
+    with np.errstate(invalid="ignore"):
+        divider = np.where(np.isnan(i.gate_pulldown_ohm), 1.0, i.gate_pulldown_ohm / (rg_ohm + i.gate_pulldown_ohm))
+    return high_v * divider
+
+
+def rds_at(i: MosfetSwitchInputs, gate_v: FloatArray) -> FloatArray:
+    """The largest on-resistance at 25 °C at ``gate_v`` from the stated points (``on_resistance``)."""
+    points_v = np.stack([getattr(i, a) for a, _ in POINTS], axis=1)
+    points_ohm = np.stack([getattr(i, b) for _, b in POINTS], axis=1)
+    return on_resistance.at_gate_voltage(gate_v, points_v, points_ohm)
+
+
+def pin_low_ohm(drive_low_v: FloatArray, driver_current_max_a: FloatArray) -> FloatArray:
+    """The pin's own resistance when low (its low level at the current it is rated for), in the turn-off path."""
+    sink_rating = np.where(np.isnan(driver_current_max_a), bjt_drive.VOL_RATED_UNKNOWN_A, driver_current_max_a)
+    return drive_low_v / sink_rating
+
+
 def compute(inputs: MosfetSwitchInputs, validated: bool = False) -> Outcome:
     """Choose the gate resistor; the switch's timing, losses, temperature and checks (module docstring).
 
@@ -68,14 +88,11 @@ def compute(inputs: MosfetSwitchInputs, validated: bool = False) -> Outcome:
     rg_pin_min = pin_high / (i.driver_current_max_a * (1.0 - tolerance))
     rg = _gate_resistor(i, rg_exact, rg_pin_min)
     pin_peak = pin_high / (rg * (1.0 - tolerance))
-    with np.errstate(invalid="ignore"):
-        divider = np.where(np.isnan(i.gate_pulldown_ohm), 1.0, i.gate_pulldown_ohm / (rg + i.gate_pulldown_ohm))
-    gate_v = i.drive_high_v * divider
-    points_v = np.stack([getattr(i, a) for a, _ in POINTS], axis=1)
-    points_ohm = np.stack([getattr(i, b) for _, b in POINTS], axis=1)
-    rds_25 = on_resistance.at_gate_voltage(gate_v, points_v, points_ohm)
-    sink_rating = np.where(np.isnan(i.driver_current_max_a), bjt_drive.VOL_RATED_UNKNOWN_A, i.driver_current_max_a)
-    turn_on, turn_off = pwm_timing.gate_times(i.qg_total_c, rg, gate_v, i.drive_low_v / sink_rating, i.vgs_th_max_v)
+    gate_v = gate_voltage(i, rg, i.drive_high_v)
+    rds_25 = rds_at(i, gate_v)
+    turn_on, turn_off = pwm_timing.gate_times(
+        i.qg_total_c, rg, gate_v, pin_low_ohm(i.drive_low_v, i.driver_current_max_a), i.vgs_th_max_v
+    )
     pwm = switch_pwm.pwm_stage(
         turn_on,
         turn_off,

@@ -17,8 +17,9 @@ import numpy as np
 
 from calcsvc.core.channel import ChannelInputs, ChannelReview
 from calcsvc.core.channel_thermal import ambient_range
+from calcsvc.core.corners import corner_points, corner_set
 from calcsvc.core.outcome import BoolArray, FloatArray
-from calcsvc.core.tolerance import QUANTITIES, corner_points, evaluate_at
+from calcsvc.core.tolerance import evaluate_at
 
 SEARCH_MAX_C = 200.0  # beyond any part's rated junction: a design passing here is reported at this bound
 GRID = 41  # ambients judged at once per round
@@ -28,13 +29,14 @@ ROUNDS = 5  # each round narrows the edge to one grid step: 200 K / 40⁵ ≈ 2 
 def _passing(inputs: ChannelInputs, nominal: ChannelReview, ambient_c: FloatArray) -> BoolArray:
     """Per row and per ambient of ``ambient_c`` (n, k): every check passes at every other corner there."""
     corners = corner_points(inputs, nominal)
-    axis = QUANTITIES.index("ambient")
+    quantities = corner_set(inputs).quantities
+    axis = quantities.index("ambient")
     points = tuple(ambient_c.shape[1] if j == axis else size for j, size in enumerate(corners.points))
-    shape = [1] * len(QUANTITIES)
+    shape = [1] * len(quantities)
     shape[axis] = ambient_c.shape[1]
     at = dataclasses.replace(corners, points=points, ambient_c=ambient_c.reshape(-1, *shape))
     ok = np.ones(ambient_c.shape, dtype=bool)
-    others = tuple(j + 1 for j in range(len(QUANTITIES)) if j != axis)
+    others = tuple(j + 1 for j in range(len(quantities)) if j != axis)
     for check in evaluate_at(inputs, nominal, at):
         ok &= np.broadcast_to(check.ok, (ambient_c.shape[0], *points)).all(axis=others)
     return ok

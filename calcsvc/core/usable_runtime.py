@@ -29,8 +29,9 @@ import numpy as np
 
 from calcsvc.core.channel import ChannelInputs, ChannelReview
 from calcsvc.core.channel_stages import supply_band
+from calcsvc.core.corners import corner_points, corner_set
 from calcsvc.core.outcome import BoolArray, FloatArray
-from calcsvc.core.tolerance import DEPENDS_ON, corner_points, evaluate_at
+from calcsvc.core.tolerance import evaluate_at
 
 _BISECTIONS = 48  # halves the band to well below a microvolt
 
@@ -49,7 +50,7 @@ def _passes(inputs: ChannelInputs, nominal: ChannelReview, supply_v: FloatArray)
     at = dataclasses.replace(corners, supply_v=supply_v.reshape(-1, *(1,) * len(corners.points)))
     ok = np.ones(supply_v.shape, dtype=bool)
     for check in evaluate_at(inputs, nominal, at):
-        if "supply" in DEPENDS_ON[check.name]:
+        if "supply" in corner_set(inputs).depends_on[check.name]:
             ok &= check.ok.reshape(check.ok.shape[0], -1).all(axis=1)
     return ok
 

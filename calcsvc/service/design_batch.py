@@ -16,8 +16,8 @@ from typing import Any
 import numpy as np
 from sqlalchemy.orm import Session
 
-from calcsvc.core import channel, tolerance
-from calcsvc.core.channel_spec import CHANNEL_INPUTS
+from calcsvc.core import channel, worst_case
+from calcsvc.core.channel_spec import ALTERNATIVE_ROLES, CHANNEL_INPUTS
 from calcsvc.core.registry import CALCULATIONS
 from calcsvc.core.spec import InputSet
 from calcsvc.data.bulk_parts import revisions_of
@@ -26,7 +26,7 @@ from calcsvc.service.design_outcome import check_entry, refused, summary
 from calcsvc.service.envelope import fingerprint, row_notices, to_json_value
 from calcsvc.service.errors import ServiceError
 from calcsvc.service.resolve import PartResolver, resolve
-from calcsvc.service.review import channel_rows, without_band
+from calcsvc.service.review import channel_rows, complete_channel, switch_kind_of, without_band
 from calcsvc.service.search.common import on_accepted, problem_of
 
 CHANNEL = "channel"  # a saved design of the whole-channel review; otherwise the calculation's name
@@ -58,9 +58,10 @@ def _identity(calculation: str) -> tuple[str, str]:
 def _resolved(request: Request, resolver: PartResolver) -> tuple[dict[str, Any], list[dict[str, Any]], list[str]]:
     """Completed values, the parts used and their standing cautions (a supply's kind)."""
     form = form_of(request.calculation)
-    found = resolve(form.roles, request.body, resolver)
     if request.calculation == CHANNEL:
-        found = without_band(request.body, found)
+        found = without_band(request.body, resolve(form.roles, request.body, resolver, ALTERNATIVE_ROLES))
+        return complete_channel(found.values), found.parts, found.cautions
+    found = resolve(form.roles, request.body, resolver)
     return complete(form, found.values), found.parts, found.cautions
 
 
@@ -83,7 +84,7 @@ def _rows_of_checks(names: list[str], applies: list[Any], numbers: list[tuple[An
 
 def _channel_summaries(rows: list[dict[str, Any]]) -> list[dict[str, Any]]:
     inputs = channel_rows(rows)
-    accepted, worst = on_accepted(inputs, tolerance.worst_case)
+    accepted, worst = on_accepted(inputs, worst_case.worst_case)
     checked: list[list[dict[str, Any]]] = []
     if worst is not None:
         # A check applies where its nominal limit is known; its numbers are those at its worst corner.
@@ -136,15 +137,17 @@ def review_many(session: Session, requests: list[Request]) -> list[dict[str, Any
     }
     resolver = PartResolver(session, dict(revisions_of(session, keys)))
     results: list[dict[str, Any] | None] = [None] * len(requests)
-    groups: dict[str, list[tuple[int, dict[str, Any], list[dict[str, Any]], list[str]]]] = {}
+    groups: dict[tuple[str, str], list[tuple[int, dict[str, Any], list[dict[str, Any]], list[str]]]] = {}
     for index, request in enumerate(requests):
         try:
             values, parts, cautions = _resolved(request, resolver)
         except ServiceError as exc:
             results[index] = refused(exc.detail, exc.errors)
             continue
-        groups.setdefault(request.calculation, []).append((index, values, parts, cautions))
-    for calculation, members in groups.items():
+        # The channel review takes one switch kind per pass (``channel_mosfet.all_mosfet``).
+        kind = switch_kind_of(values) if request.calculation == CHANNEL else ""
+        groups.setdefault((request.calculation, kind), []).append((index, values, parts, cautions))
+    for (calculation, _), members in groups.items():
         rows = [values for _, values, _, _ in members]
         found = _channel_summaries(rows) if calculation == CHANNEL else _calculation_summaries(calculation, rows)
         name, version = _identity(calculation)

@@ -65,8 +65,11 @@ def _references(roles: tuple[Role, ...], body: Mapping[str, Any]) -> list[tuple[
     return found
 
 
-def resolve(roles: tuple[Role, ...], body: Mapping[str, Any], resolver: PartResolver) -> Resolved:
-    """Explicit values win over a part's; each referenced part is checked against its role."""
+def resolve(
+    roles: tuple[Role, ...], body: Mapping[str, Any], resolver: PartResolver, alternatives: tuple[Role, ...] = ()
+) -> Resolved:
+    """Explicit values win over a part's; each referenced part is checked against its role, or against the one of
+    ``alternatives`` of the same name that takes the part's kind (the review's switch: an NPN or a MOSFET)."""
     values = {k: v for k, v in body.items() if v is not None}
     parts: list[dict[str, Any]] = []
     warnings: list[str] = []
@@ -83,8 +86,11 @@ def resolve(roles: tuple[Role, ...], body: Mapping[str, Any], resolver: PartReso
         values.pop(role.name, None)
         values.pop(f"{role.name}_revision", None)
         part = resolver.part(role.name, part_id, revision)
+        others = [other for other in alternatives if other.name == role.name]
+        role = next((other for other in (role, *others) if other.kind == part.kind), role)
         if part.kind != role.kind:
-            message = f"part '{part_id}' is a {part.kind}; {role.name} needs a {role.kind}"
+            kinds = " or a ".join(other.kind for other in (role, *others))
+            message = f"part '{part_id}' is a {part.kind}; {role.name} needs a {kinds}"
             raise WrongPartKind.on(role.name, message)
         for parameter, wanted in role.must_have:
             if part.parameters.get(parameter) != wanted:
@@ -106,9 +112,11 @@ def resolve(roles: tuple[Role, ...], body: Mapping[str, Any], resolver: PartReso
     return Resolved(values, parts, warnings, cautions)
 
 
-def resolve_parts(database: Database, roles: tuple[Role, ...], body: Mapping[str, Any]) -> Resolved:
+def resolve_parts(
+    database: Database, roles: tuple[Role, ...], body: Mapping[str, Any], alternatives: tuple[Role, ...] = ()
+) -> Resolved:
     """``resolve`` in one short read transaction, or without touching the database when no part is named."""
     if not any(role.name in body or f"{role.name}_revision" in body for role in roles):
-        return resolve(roles, body, PartResolver(None))
+        return resolve(roles, body, PartResolver(None), alternatives)
     with database.transaction() as session:
-        return resolve(roles, body, PartResolver(session))
+        return resolve(roles, body, PartResolver(session), alternatives)

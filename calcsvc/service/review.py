@@ -11,8 +11,9 @@ from typing import Any
 
 import numpy as np
 
-from calcsvc.core import channel, channel_stages, monte_carlo, thermal_limit, tolerance, usable_runtime
-from calcsvc.core.channel_spec import CHANNEL_INPUTS, CHECK_UNITS, STAGES
+from calcsvc.core import channel, channel_stages, monte_carlo, thermal_limit, usable_runtime, worst_case
+from calcsvc.core.channel_mosfet import BIPOLAR_REQUIRED, MOSFET_ONLY
+from calcsvc.core.channel_spec import ALTERNATIVE_ROLES, CHANNEL_INPUTS, CHECK_UNITS, STAGES
 from calcsvc.core.heat_curves import HeatCurves, heat_curves
 from calcsvc.core.outcome import Check, FloatArray, Outcome, raise_violations
 from calcsvc.data.database import Database
@@ -53,6 +54,25 @@ def pwm_frequency_of(values: Mapping[str, Any]) -> float:
     return implied
 
 
+def switch_kind_of(values: Mapping[str, Any]) -> str:
+    """A channel's switch by the inputs given: "mosfet" when any input only a MOSFET has is, else "bjt"."""
+    return "mosfet" if any(name in values for name in MOSFET_ONLY) else "bjt"
+
+
+def complete_channel(values: dict[str, Any]) -> dict[str, Any]:
+    """``complete`` for the review: an NPN switch's own inputs are required for one (a MOSFET has its own)."""
+    filled = complete(CHANNEL_INPUTS, values)
+    if switch_kind_of(filled) == "bjt":
+        missing = {
+            name: [f"required: give {name} or reference a part that provides it"]
+            for name in BIPOLAR_REQUIRED
+            if name not in filled
+        }
+        if missing:
+            raise InvalidInput("missing inputs: " + ", ".join(missing), missing)
+    return filled
+
+
 def channel_inputs(values: Mapping[str, Any]) -> channel.ChannelInputs:
     """The core's one-row inputs from completed values (``complete(CHANNEL_INPUTS, ...)``)."""
     return channel_rows([values])
@@ -84,7 +104,7 @@ class Reviewed:
     checks once per corner; ``found`` is the Monte Carlo run (None without samples)."""
 
     inputs: channel.ChannelInputs
-    worst: tolerance.WorstCase
+    worst: worst_case.WorstCase
     found: monte_carlo.Yield | None
 
 
@@ -99,7 +119,7 @@ def _nominal(values: Mapping[str, Any], samples: int, seed: int) -> tuple[channe
 def review_channel(values: Mapping[str, Any], samples: int, seed: int) -> Reviewed:
     """Raises DomainError naming the fields when the channel (or the run) is physically impossible."""
     inputs, nominal = _nominal(values, samples, seed)
-    worst = tolerance.worst_case(inputs, nominal)
+    worst = worst_case.worst_case(inputs, nominal)
     found = monte_carlo.monte_carlo(inputs, samples, seed, nominal, **vf_options(values)) if samples else None
     return Reviewed(inputs, worst, found)
 
@@ -116,7 +136,7 @@ def _stage_results(outcome: Outcome) -> dict[str, Any]:
 _HEATED = {"led_": "led", "transistor_": "transistor", "resistor_": "string resistor"}
 
 
-def _check_entry(nominal: Check, worst: tolerance.WorstCheck, stage: str) -> dict[str, Any] | None:
+def _check_entry(nominal: Check, worst: worst_case.WorstCheck, stage: str) -> dict[str, Any] | None:
     limit = float(nominal.limit[0])
     if math.isnan(limit):
         return None  # does not apply to this design (e.g. no front stage, pin rating unknown)
@@ -175,6 +195,8 @@ def review_document(
     stages: dict[str, Any] = {stage: _stage_results(getattr(nominal, stage)) for stage in STAGES}
     if not bool(nominal.has_front_stage[0]):
         stages["front_stage"] = None
+    if nominal.switch_kind == "mosfet":  # its section's numbers are at this current (an NPN's name it collector)
+        stages["switch"]["drain_current_max_a"] = to_json_value(float(nominal.collector_current_max_a[0]))
     stages["supply"]["max_duty_cycle"] = to_json_value(float(nominal.max_duty_cycle[0]))
     usable = usable_runtime.usable_runtime(done.inputs, nominal)
     stages["supply"]["stop_v"] = to_json_value(float(usable.stop_v[0]))
@@ -223,13 +245,13 @@ def without_band(body: Mapping[str, Any], resolved: Resolved) -> Resolved:
 
 def _resolve(database: Database, body: Mapping[str, Any]) -> Resolved:
     """The parts resolved, the band rule applied."""
-    return without_band(body, resolve_parts(database, CHANNEL_INPUTS.roles, body))
+    return without_band(body, resolve_parts(database, CHANNEL_INPUTS.roles, body, ALTERNATIVE_ROLES))
 
 
 def run_review(database: Database, body: Mapping[str, Any]) -> dict[str, Any]:
     """The review of one channel request (values in SI, part references by role name), as JSON-ready data."""
     resolved = _resolve(database, body)
-    values = complete(CHANNEL_INPUTS, resolved.values)
+    values = complete_channel(resolved.values)
     return review_document(values, resolved.parts, resolved.warnings, resolved.cautions)
 
 
@@ -250,7 +272,7 @@ def distribution(database: Database, body: Mapping[str, Any], check: str | None 
     """The Monte Carlo distribution of ``check``, else of the check that fails most often, else (every build
     passes) of the tightest check, the one whose least margin is smallest (samples 0: the default count)."""
     resolved = _resolve(database, body)
-    values = complete(CHANNEL_INPUTS, resolved.values)
+    values = complete_channel(resolved.values)
     samples = int(values["samples"]) or monte_carlo.DEFAULT_SAMPLES
     seed = int(values["seed"])
     if check is not None and check not in CHECK_UNITS:
@@ -270,6 +292,6 @@ def distribution(database: Database, body: Mapping[str, Any], check: str | None 
 
 def heat_of(database: Database, body: Mapping[str, Any]) -> HeatCurves:
     """Each heated part's temperature against the ambient for the request's design, held as reviewed."""
-    values = complete(CHANNEL_INPUTS, _resolve(database, body).values)
+    values = complete_channel(_resolve(database, body).values)
     inputs, nominal = _nominal(values, 1, int(values["seed"]))
     return heat_curves(inputs, nominal)

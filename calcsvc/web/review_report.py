@@ -152,6 +152,31 @@ def heat_line(review: dict[str, Any]) -> str:
     )
 
 
+def switch_line(review: dict[str, Any]) -> str | None:
+    """A MOSFET switch's gate, on-resistance, losses and junction at the worst-case drain current and the review's
+    ambient (its checks are in the table; an NPN's numbers are all there); None for an NPN switch."""
+    switch = review["stages"]["switch"]
+    if "rg_ohm" not in switch:
+        return None
+    pulldown = review["inputs"].get("gate_pulldown_ohm")
+    fitted = (
+        f"Gate pull-down {number(pulldown)} Ω"
+        if pulldown is not None
+        else f"Gate pull-down none fitted (recommended {number(switch['gate_pulldown_recommended_ohm'])} Ω)"
+    )
+    frequency = review["inputs"].get("pwm_frequency_hz")
+    pwm = f"PWM frequency {number(frequency)} Hz" if frequency is not None else "PWM frequency none (static switch)"
+    return (
+        f"Switch: N-channel MOSFET at {number(switch['drain_current_max_a'])} A worst-case drain current. "
+        f"Gate resistor {number(switch['rg_ohm'])} Ω (pin peak {number(switch['gate_peak_current_a'])} A); {fitted}; "
+        f"gate {number(switch['gate_v'])} V. On-resistance {number(switch['rds_on_ohm'])} Ω at that gate voltage "
+        f"(25 °C), {number(switch['rds_on_hot_ohm'])} Ω hot. Conduction loss {number(switch['conduction_loss_w'])} W, "
+        f"Switching loss {number(switch['switching_loss_w'])} W; Junction temperature "
+        f"{number(switch['junction_c'])} °C at {number(review['stages']['thermal']['ambient_c'])} °C ambient. {pwm}; "
+        f"edges {number(switch['turn_on_s'])} s on, {number(switch['turn_off_s'])} s off."
+    )
+
+
 def _markdown_table(header: list[str], rows: list[list[str]]) -> list[str]:
     return ["| " + " | ".join(header) + " |", "|" + "---|" * len(header)] + ["| " + " | ".join(r) + " |" for r in rows]
 
@@ -166,6 +191,7 @@ def render_markdown(review: dict[str, Any]) -> str:
         f"Largest duty cycle the supply allows for {review['inputs'].get('channels', 1)} channel(s): "
         f"{number(review['max_duty_cycle'])}.",
         "",
+        *([line, ""] if (line := switch_line(review)) else []),
         heat_line(review),
         "",
         _yield_line(review),
@@ -237,7 +263,8 @@ def render_html(review: dict[str, Any]) -> str:
         f"<h1>Channel review: <span class='verdict {escape(review['verdict'])}'>{escape(review['verdict'].upper())}"
         f"</span></h1>{failing}{render_cautions_html(review)}"
         f"<p>Largest duty cycle the supply allows: {escape(number(review['max_duty_cycle']))}.</p>"
-        f"<p>{escape(heat_line(review))}</p>"
+        + (f"<p>{escape(line)}</p>" if (line := switch_line(review)) else "")
+        + f"<p>{escape(heat_line(review))}</p>"
         f"<p>{escape(_yield_line(review))}</p>"
         f"<h2>Bill of materials</h2>{render_bom_html(review)}"
         f"<h2>Checks</h2>{render_table_html(review)}{front_stage_html(review, number)}{warnings}"

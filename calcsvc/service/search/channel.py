@@ -11,7 +11,7 @@ from typing import Any
 
 import numpy as np
 
-from calcsvc.core import channel, monte_carlo, tolerance
+from calcsvc.core import channel, monte_carlo, worst_case
 from calcsvc.core.channel_spec import CHANNEL_INPUTS
 from calcsvc.core.outcome import BoolArray, take
 from calcsvc.core.spec import Role
@@ -43,6 +43,13 @@ NUMBERS = {
     "transistor_junction_c": ("thermal", "transistor_junction_c"),
     "resistor_hot_spot_c": ("thermal", "resistor_hot_spot_c"),
 }
+# A MOSFET switch's own key numbers in place of the base resistor's, the pin's and the transistor's.
+MOSFET_NUMBERS = {
+    **{key: where for key, where in NUMBERS.items() if key not in ("rb_ohm", "drive_current_a")},
+    "rg_ohm": ("switch", "rg_ohm"),
+    "gate_peak_current_a": ("switch", "gate_peak_current_a"),
+    "transistor_power_w": ("switch", "mosfet_power_w"),
+}
 CHANNEL_RANKINGS = ("margin", "supply_power_w", "yield")
 
 
@@ -54,7 +61,7 @@ class ChannelSearch:
     index: tuple[IntArray, ...]  # per searched role, each combination's part
     inputs: channel.ChannelInputs
     accepted: BoolArray
-    worst: tolerance.WorstCase | None  # over the accepted rows
+    worst: worst_case.WorstCase | None  # over the accepted rows
     scores: Scores
     rows: IntArray
     yields: dict[int, monte_carlo.Yield]
@@ -88,9 +95,8 @@ class ChannelSearch:
         k = self.position(row)
         nominal = self.worst.nominal
         entry["failing"] = [c.name for c in self.worst.checks if not bool(c.check.ok[k])]
-        numbers = {
-            key: to_json_value(getattr(nominal, stage).results[name][k]) for key, (stage, name) in NUMBERS.items()
-        }
+        keys = MOSFET_NUMBERS if nominal.switch_kind == "mosfet" else NUMBERS
+        numbers = {key: to_json_value(getattr(nominal, stage).results[name][k]) for key, (stage, name) in keys.items()}
         entry["numbers"] = {**numbers, "max_duty_cycle": to_json_value(float(nominal.max_duty_cycle[k]))}
         entry["warnings"] += row_notices(nominal.warnings, k)
         entry["cautions"] = row_notices(nominal.cautions, k)
@@ -137,7 +143,7 @@ def search_channel(
         inputs,
         **{name: column[index[j]] for j, role in enumerate(roles) for name, column in provided[role.name].items()},
     )
-    accepted, worst = on_accepted(inputs, tolerance.worst_case)
+    accepted, worst = on_accepted(inputs, worst_case.worst_case)
     checks = []
     if worst is not None:
         checks = [

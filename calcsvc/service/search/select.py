@@ -11,7 +11,7 @@ from typing import Any
 from sqlalchemy.orm import Session
 
 from calcsvc.core import channel, monte_carlo
-from calcsvc.core.channel_spec import CHANNEL_INPUTS
+from calcsvc.core.channel_spec import ALTERNATIVE_ROLES, CHANNEL_INPUTS
 from calcsvc.core.registry import CALCULATIONS
 from calcsvc.core.spec import CalculationSpec, Role
 from calcsvc.data.database import Database
@@ -226,7 +226,8 @@ def run_channel_select(database: Database, body: dict[str, Any], max_combination
         raise InvalidInput.on("rank_by", "ranking by yield needs samples (Monte Carlo builds per design)")
     given = {k: v for k, v in body.items() if k not in searched}
     with database.transaction() as session:
-        fixed = resolve(tuple(r for r in CHANNEL_INPUTS.roles if r.name not in searched), given, PartResolver(session))
+        fixed_roles = tuple(r for r in CHANNEL_INPUTS.roles if r.name not in searched)
+        fixed = resolve(fixed_roles, given, PartResolver(session), ALTERNATIVE_ROLES)  # a MOSFET switch, held fixed
         found = {role.name: _load(session, role, searched[role.name]) for role in roles}
     chosen = {role.name: choose(found[role.name], searched[role.name], [role]) for role in roles}
     by_role = {name: kept for name, (kept, _) in chosen.items()}

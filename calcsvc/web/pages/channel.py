@@ -35,6 +35,7 @@ from calcsvc.web.review_report import (
     render_cautions_html,
     render_markdown,
     render_table_html,
+    switch_line,
 )
 
 # What a value of the channel form may hold: printable ASCII and the unit symbols, 80 characters at most
@@ -63,13 +64,17 @@ FRONT_CIRCUIT_FIELDS = (
     ("isolation_ohm", "Isolation resistor to that load", "in Ω; empty: none"),
 )
 FRONT_STAGE = ("gain", "signal_hz", "amplitude_v", *FRONT_CIRCUIT)
-# Selects of the channel form: role → (label, part kind, required parameter value).
-CHANNEL_ROLES: dict[str, tuple[str, str, tuple[str, str] | None]] = {
-    "supply": ("Supply", "supply", None),
-    "driver": ("Driver pin", "driver", None),
-    "transistor": ("Switch transistor", "bjt", ("polarity", "npn")),
-    "led": ("LED", "led", None),
-    "opamp": ("Front-stage op-amp", "opamp", None),
+# Selects of the channel form: role → (label, what it lists, the part kinds it takes with a required parameter value).
+CHANNEL_ROLES: dict[str, tuple[str, str, tuple[tuple[str, tuple[str, str] | None], ...]]] = {
+    "supply": ("Supply", "supply", (("supply", None),)),
+    "driver": ("Driver pin", "driver", (("driver", None),)),
+    "transistor": (
+        "Switch",
+        "npn bjt or n-channel mosfet",
+        (("bjt", ("polarity", "npn")), ("mosfet", ("channel", "n"))),
+    ),
+    "led": ("LED", "led", (("led", None),)),
+    "opamp": ("Front-stage op-amp", "opamp", (("opamp", None),)),
 }
 
 ChannelForm = Schema.from_dict(
@@ -78,6 +83,10 @@ ChannelForm = Schema.from_dict(
         "leds_in_series": Quantity("dimensionless", minimum=1, maximum=1000, integer=True),
         "strings": Quantity("dimensionless", minimum=1, maximum=10000, integer=True),
         "channels": Quantity("dimensionless", minimum=1, maximum=10000, integer=True),
+        "resistor_tolerance": Quantity("dimensionless", minimum=0, maximum=1),
+        "gate_pulldown_ohm": Quantity("ohm", minimum=0, exclusive_minimum=True),
+        "led_rth_ba_k_per_w": Quantity("K/W", minimum=0),
+        **{name: Quantity("V", minimum=0, exclusive_minimum=True) for name in ("vf_min_v", "vf_typ_v", "vf_max_v")},
         "current_a": Quantity("A", minimum=0, exclusive_minimum=True),
         "duty_cycle": Quantity("dimensionless", minimum=0, maximum=1),
         "pwm_frequency_hz": Quantity("Hz", minimum=0, exclusive_minimum=True),
@@ -111,6 +120,13 @@ CHANNEL_FIELDS: dict[str, tuple[tuple[str, str, str], ...]] = {
         ("pwm_frequency_hz", "PWM frequency", "in Hz, or with a unit: 2 kHz (no PWM timing if empty)"),
         ("pwm_resolution_bits", "PWM resolution", "in bits, a whole number (8 if empty)"),
         ("channels", "Channels on the supply", "a whole number"),
+        ("resistor_tolerance", "Resistor tolerance", "a fraction, 0.01 for 1 % parts (the series' own if empty)"),
+        ("gate_pulldown_ohm", "Gate pull-down (MOSFET switch)", "in Ω, or with a unit: 100 kohm (none if empty)"),
+    ),
+    "LED reel's forward-voltage bin (optional)": (
+        ("vf_min_v", "Lowest forward voltage", "in V, from the reel's label (the LED part's if empty)"),
+        ("vf_typ_v", "Typical forward voltage", "in V (the LED part's if empty)"),
+        ("vf_max_v", "Highest forward voltage", "in V (the LED part's if empty)"),
     ),
     "Front stage (used with an op-amp)": (
         ("gain", "Preamp gain", "V/V, non-inverting"),
@@ -121,6 +137,11 @@ CHANNEL_FIELDS: dict[str, tuple[tuple[str, str, str], ...]] = {
         ("ambient_c", "Ambient", "in °C: the enclosure's air (25 °C if empty)"),
         ("ambient_min_c", "Coldest ambient", "in °C: a cold start (the ambient if empty)"),
         ("ambient_max_c", "Hottest ambient", "in °C: the hottest expected day (the ambient if empty)"),
+        (
+            "led_rth_ba_k_per_w",
+            "LED board to air, per LED",
+            "in K/W: the board's heat sinking (the LED part's if empty)",
+        ),
     ),
     "Front-stage circuit (used with an op-amp)": FRONT_CIRCUIT_FIELDS,
     "Production yield": (
@@ -155,11 +176,13 @@ def channel_body(form: Mapping[str, str]) -> dict[str, Any]:
 
 def _options(store: PartStore) -> dict[str, list[PartView]]:
     options: dict[str, list[PartView]] = {}
-    for role, (_, kind, needs) in CHANNEL_ROLES.items():
-        parts, _ = store.list(kind, None, 0, 500)
-        options[role] = [
-            p for p in parts if p.status != "retired" and (needs is None or p.parameters.get(needs[0]) == needs[1])
-        ]
+    for role, (_, _, kinds) in CHANNEL_ROLES.items():
+        options[role] = []
+        for kind, needs in kinds:
+            parts, _ = store.list(kind, None, 0, 500)
+            options[role] += [
+                p for p in parts if p.status != "retired" and (needs is None or p.parameters.get(needs[0]) == needs[1])
+            ]
     return options
 
 
@@ -238,6 +261,7 @@ def channel() -> Response:
         front_stage=Markup(front_stage_html(review, number, level=3)) if review else None,  # escaped there too
         report=render_markdown(review) if review else None,
         heat=heat_line(review) if review else None,
+        switch=switch_line(review) if review else None,
         number=number,
         errors=errors,
         message=message,

@@ -13,6 +13,7 @@ from hypothesis import strategies as st
 from calcsvc.core import channel_thermal, eseries
 from calcsvc.core.channel import FRONT_STAGE_FIELDS, ChannelInputs, review, validate
 from calcsvc.core.channel_front import OPAMP_STAGE_FIELDS
+from calcsvc.core.channel_mosfet import MOSFET_ONLY
 from calcsvc.core.outcome import DomainError
 
 # The greenhouse grow-light demo channel. Part values are the project's demo parts (typical-class values from
@@ -91,6 +92,7 @@ DEMO: dict[str, Any] = {
     "pwm_resolution_bits": 8.0,
     "modulation_depth": 1.0,
     "camera_frame_rate_hz": math.nan,
+    **{name: math.nan for name in MOSFET_ONLY},  # an NPN switch
 }
 NO_FRONT_STAGE = {name: math.nan for name in ("gbw_hz", *FRONT_STAGE_FIELDS)}
 
@@ -444,7 +446,7 @@ def opamp_stage(draw: st.DrawFn, supply_v: float) -> dict[str, float]:
 
 
 def rows_to_inputs(rows: list[dict[str, Any]]) -> ChannelInputs:
-    return make(**{name: [row[name] for row in rows] for name in DEMO})
+    return make(**{name: [row.get(name, DEMO[name]) for row in rows] for name in DEMO})
 
 
 FRONT_CHECKS = {

@@ -15,7 +15,7 @@ from test_thermal import brentq_point
 from calcsvc.core.channel import review, validate
 from calcsvc.core.monte_carlo import monte_carlo
 from calcsvc.core.thermal_limit import SEARCH_MAX_C, max_ambient
-from calcsvc.core.tolerance import worst_case
+from calcsvc.core.worst_case import worst_case
 
 # Invented, class-typical round figures: a 1 A-class Darlington and 1 W-class deep-red LEDs on star boards.
 DARLINGTON = {

@@ -17,7 +17,7 @@ from calcsvc.core.monte_carlo import (
     monte_carlo,
     validate_monte_carlo,
 )
-from calcsvc.core.tolerance import worst_case
+from calcsvc.core.worst_case import worst_case
 
 VF_MIN, VF_MAX = 1.8, 2.4
 LEDS, STRINGS = 5, 2

@@ -15,9 +15,10 @@ from scipy.stats import binomtest
 from test_channel import DEMO, FRONT_CHECKS, NO_FRONT_STAGE, OPTIONAL_CHECKS, channel_rows, make, rows_to_inputs
 
 from calcsvc.core.channel import review
+from calcsvc.core.corners import CORNERS, DEPENDS_ON, HELD, QUANTITIES, SETTINGS
 from calcsvc.core.monte_carlo import MAX_SAMPLES, Z_95, monte_carlo, validate_monte_carlo, wilson_interval
 from calcsvc.core.outcome import DomainError
-from calcsvc.core.tolerance import CORNERS, DEPENDS_ON, HELD, QUANTITIES, SETTINGS, worst_case
+from calcsvc.core.worst_case import worst_case
 
 # ---- an independent scalar model of one built channel, for brute-force corner enumeration -------------
 

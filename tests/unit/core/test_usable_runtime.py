@@ -11,8 +11,8 @@ from test_channel import NO_FRONT_STAGE, make
 
 from calcsvc.core.channel import review, validate
 from calcsvc.core.monte_carlo import monte_carlo
-from calcsvc.core.tolerance import worst_case
 from calcsvc.core.usable_runtime import usable_runtime
+from calcsvc.core.worst_case import worst_case
 
 # Six alkaline cells: 9 V nominal, about 1.6 V per cell fresh and 1.0 V per cell at end of discharge (from memory).
 # The base is sized by the part's own rule (its Vce(sat) test ratio over 1 + resistor tolerance): a ratio forced to
