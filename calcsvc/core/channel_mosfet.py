@@ -86,7 +86,10 @@ def switch_inputs(i: ChannelInputs, drain_current_a: FloatArray) -> MosfetSwitch
         qg_total_c=i.qg_total_c,
         power_max_w=i.power_max_w,
         tj_max_c=i.tj_max_c,
-        rth_ja_k_per_w=i.rth_ja_k_per_w,
+        # The review's Rθ to air (through a heat sink where one is given), as its thermal stage takes it.
+        rth_ja_k_per_w=thermal.transistor_rth(
+            i.tj_max_c, i.power_max_w, i.rth_ja_k_per_w, i.rth_jc_k_per_w, i.heatsink_k_per_w
+        )[0],
         drain_current_a=drain_current_a,
         supply_max_v=i.supply_v,  # nominal; the worst case takes the supply's high corner
         drive_high_v=i.drive_high_v,

@@ -85,6 +85,22 @@ def test_heat_by_thermal_ohms_law_with_the_on_resistance_rising() -> None:
     assert heat["transistor_power_hot_w"][0] == pytest.approx(conduction + switching, rel=1e-9)
 
 
+def test_the_switch_section_and_the_thermal_stage_see_the_same_heat_sink() -> None:
+    # On a 20 K/W heat sink (10 K/W junction to case), both take Rθ = 30 K/W instead of the part's 150 K/W to air:
+    # the switch section's junction is thermal Ohm's law at that Rθ for its own dissipation and drain current.
+    r = review(make(**{**GROW, "rth_jc_k_per_w": 10.0, "heatsink_k_per_w": 20.0}))
+    switch = r.switch.results
+    drain = r.collector_current_max_a[0]
+    rds, switching = switch["rds_on_ohm"][0], switch["switching_loss_w"][0]
+
+    def balance(tj: float) -> float:
+        return tj - 25.0 - 30.0 * (drain**2 * rds * (1 + ALPHA * (tj - 25)) * 0.5 + switching)
+
+    assert switch["junction_c"][0] == pytest.approx(brentq(balance, 25.0, 150.0, xtol=1e-12), rel=1e-9)
+    heat = r.thermal.results
+    assert heat["transistor_junction_c"][0] == pytest.approx(25.0 + 30.0 * heat["transistor_power_hot_w"][0])
+
+
 def test_switching_loss_is_the_triangle_integral() -> None:
     # A resistive load: the voltage falls as the current rises (and back), linearly across each edge; the energy
     # of an edge is ∫ V(1 − t/T)·I·t/T dt, integrated numerically.
