@@ -114,13 +114,19 @@ def outcome(
     """The thermal results, checks and cautions of designs with string resistor ``resistor_ohm`` (its lowest
     value ``resistor_low_ohm``) of power rating ``rating_w``."""
     ta = i.ambient_c
-    nominal = _point(i, i.supply_v, i.vf_typ_v, resistor_ohm)
     high_supply = i.supply_v * (1.0 + i.supply_tolerance)
-    worst = _point(i, high_supply, worst_forward_voltages(i, high_supply, resistor_low_ohm), resistor_low_ohm)
-    hottest = np.max(_hottest(worst), axis=0)
-    heating = np.max(worst.heating_at_max_c, axis=0)
-    runaway = worst.runaway.any(axis=0)
-    current_max = np.max(worst.current_a, axis=0)
+    # One solve for the nominal point (row 0) and the four worst-case forward voltages (rows 1–4): a single
+    # call's cost is mostly per numpy operation, not per row.
+    both = _point(
+        i,
+        np.stack([i.supply_v, high_supply, high_supply, high_supply, high_supply]),
+        np.concatenate([i.vf_typ_v[None], worst_forward_voltages(i, high_supply, resistor_low_ohm)]),
+        np.stack([resistor_ohm, resistor_low_ohm, resistor_low_ohm, resistor_low_ohm, resistor_low_ohm]),
+    )
+    hottest = np.max(_hottest(both)[1:], axis=0)
+    heating = np.max(both.heating_at_max_c[1:], axis=0)
+    runaway = both.runaway[1:].any(axis=0)
+    current_max = np.max(both.current_a[1:], axis=0)
     resistor_power = current_max**2 * resistor_low_ohm
     resistor_limit = rating_w * thermal.resistor_derating(ta, i.resistor_rated_to_c, i.resistor_zero_power_c)
     current_limit = i.if_max_a * thermal.current_derating(ta, i.if_derating_knee_c, i.led_tj_max_c)
@@ -132,10 +138,10 @@ def outcome(
         "resistor_derated_power": (resistor_power, resistor_limit),
     }
     results = {
-        "current_hot_a": nominal.current_a,
-        "led_junction_c": nominal.junction_c,
-        "string_vf_hot_v": nominal.string_vf_v,
-        "thermal_iterations": nominal.iterations.astype(np.float64),
+        "current_hot_a": both.current_a[0],
+        "led_junction_c": both.junction_c[0],
+        "string_vf_hot_v": both.string_vf_v[0],
+        "thermal_iterations": both.iterations[0].astype(np.float64),
         "current_max_hot_a": current_max,
         "led_junction_max_c": np.where(runaway, np.nan, hottest),
         "led_current_limit_a": current_limit,

@@ -56,7 +56,7 @@ from calcsvc.core.outcome import (
 from calcsvc.core.spec import E_SERIES, CalculationSpec, Input, Result, Role, columns_as, positive
 
 NAME = "led-string"
-VERSION = "2"
+VERSION = "3"
 
 # Common resistor power ratings, watts (common practice).
 POWER_RATINGS_W = np.array([0.125, 0.25, 0.5, 1.0, 2.0, 3.0, 5.0])
@@ -403,7 +403,7 @@ SPEC = CalculationSpec(
         Result("current_hot_a", "A", "nominal string current at its coupled electro-thermal point at ambient_c"),
         Result("led_junction_c", "°C", "nominal LED junction temperature at that point"),
         Result("string_vf_hot_v", "V", "nominal string forward voltage at that junction temperature"),
-        Result("thermal_iterations", "", "iterations the nominal coupled point needed"),
+        Result("thermal_iterations", "", "solves the nominal coupled point needed: 1 (closed form), 0 in runaway"),
         Result("current_max_hot_a", "A", "worst-case highest string current at its coupled point"),
         Result("led_junction_max_c", "°C", "worst-case hottest LED junction (absent: thermal runaway)"),
         Result("led_current_limit_a", "A", "LED's maximum current derated to ambient_c"),
