@@ -22,7 +22,7 @@ import functools
 import numpy as np
 import numpy.typing as npt
 
-from calcsvc.core.outcome import BoolArray, FloatArray, Violation, require
+from calcsvc.core.outcome import BoolArray, FloatArray, Rules, Violation, require
 
 # fmt: off
 SERIES: dict[str, tuple[float, ...]] = {
@@ -221,13 +221,18 @@ def known_series(names: npt.ArrayLike) -> BoolArray:
     return known
 
 
-def require_known_series(violations: list[Violation], names: npt.ArrayLike) -> None:
+def require_known_series(violations: list[Violation] | Rules, names: npt.ArrayLike) -> None:
     """Record a violation of the ``e_series`` input on every row whose series name is unknown."""
-    known = known_series(names)
-    if not known.all():
-        bad_name = str(np.asarray(names)[~known][0])
-        message = f"e_series {bad_name!r} is not a known series; use one of {', '.join(SERIES_NAMES)}"
-        require(violations, ~known, "e_series", message)
+    unknown = ~known_series(names)
+
+    def message(bad: BoolArray) -> str:
+        bad_name = str(np.asarray(names)[bad][0])
+        return f"e_series {bad_name!r} is not a known series; use one of {', '.join(SERIES_NAMES)}"
+
+    if isinstance(violations, Rules):
+        violations.require(unknown, "e_series", message)
+    elif unknown.any():
+        require(violations, unknown, "e_series", message(unknown))
 
 
 def default_tolerance_rows(names: npt.ArrayLike) -> FloatArray:

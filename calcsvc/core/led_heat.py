@@ -30,7 +30,7 @@ from typing import TYPE_CHECKING
 import numpy as np
 
 from calcsvc.core import thermal
-from calcsvc.core.outcome import Check, FloatArray, Notice, Outcome, Violation, add_notice, first_bad, require
+from calcsvc.core.outcome import Check, FloatArray, Notice, Outcome, Rules, Violation, add_notice
 
 if TYPE_CHECKING:  # ``led_string`` builds on this module: its inputs type is for the annotations only
     from calcsvc.core.channel_inputs import ChannelInputs
@@ -53,34 +53,36 @@ DETAILS = {
 def validate(i: LedStringInputs | ChannelInputs) -> list[Violation]:
     """The thermal inputs' preconditions (the channel review's too: its inputs carry the same names); never
     raises."""
-    v: list[Violation] = []
+    rules = Rules()
+    require_all(rules, i)
+    return rules.violations()
+
+
+def require_all(rules: Rules, i: LedStringInputs | ChannelInputs) -> None:
+    """Add the thermal inputs' preconditions to ``rules`` (a calculation judging them with its own)."""
     with np.errstate(invalid="ignore"):
-        for name in ("ambient_c", "led_tj_max_c", "led_rth_jb_k_per_w", "led_rth_ba_k_per_w", "vf_tempco_v_per_k",
-                     "resistor_rated_to_c", "resistor_zero_power_c"):  # fmt: skip
-            x = getattr(i, name)
-            require(v, ~np.isfinite(x), name, f"{name} must be a finite number (got {first_bad(x, ~np.isfinite(x))})")
-        bad = i.ambient_c <= ABSOLUTE_ZERO_C
-        require(v, bad, "ambient_c", f"ambient_c ({first_bad(i.ambient_c, bad)} °C) must lie above absolute zero")
-        bad = i.led_tj_max_c <= np.maximum(i.ambient_c, thermal.REFERENCE_C)
-        message = "must exceed 25 °C, where ratings are stated, and ambient_c"
-        require(v, bad, "led_tj_max_c", f"led_tj_max_c ({first_bad(i.led_tj_max_c, bad)} °C) {message}")
+        names = ("ambient_c", "led_tj_max_c", "led_rth_jb_k_per_w", "led_rth_ba_k_per_w", "vf_tempco_v_per_k",
+                 "resistor_rated_to_c", "resistor_zero_power_c")  # fmt: skip
+        rules.finite({name: getattr(i, name) for name in names})
+        ta = i.ambient_c
+        rules.require(ta <= ABSOLUTE_ZERO_C, "ambient_c", "ambient_c ({} °C) must lie above absolute zero", ta)
+        tj_max = i.led_tj_max_c
+        message = "led_tj_max_c ({} °C) must exceed 25 °C, where ratings are stated, and ambient_c"
+        rules.require(tj_max <= np.maximum(ta, thermal.REFERENCE_C), "led_tj_max_c", message, tj_max)
         for name in ("led_rth_jb_k_per_w", "led_rth_ba_k_per_w"):
             x = getattr(i, name)
-            require(v, x < 0, name, f"{name} ({first_bad(x, x < 0)} K/W) must be at least 0")
+            rules.require(x < 0, name, f"{name} ({{}} K/W) must be at least 0", x)
         k = i.vf_tempco_v_per_k
-        require(v, k > 0, "vf_tempco_v_per_k", f"vf_tempco_v_per_k ({first_bad(k, k > 0)} V/K) must not be positive")
-        bad = (i.vf_min_v > 0) & (i.vf_min_v + k * (i.led_tj_max_c - thermal.REFERENCE_C) <= 0)
-        message = "takes the lowest forward voltage to 0 V or below before led_tj_max_c"
-        require(v, bad, "vf_tempco_v_per_k", f"vf_tempco_v_per_k ({first_bad(k, bad)} V/K) {message}")
-        bad = i.resistor_zero_power_c <= i.resistor_rated_to_c
-        message = "must exceed resistor_rated_to_c"
-        given = first_bad(i.resistor_zero_power_c, bad)
-        require(v, bad, "resistor_zero_power_c", f"resistor_zero_power_c ({given} °C) {message}")
-        bad = i.if_derating_knee_c >= i.led_tj_max_c
-        message = "must lie below led_tj_max_c"
-        given = first_bad(i.if_derating_knee_c, bad)
-        require(v, bad, "if_derating_knee_c", f"if_derating_knee_c ({given} °C) {message}")
-    return v
+        rules.require(k > 0, "vf_tempco_v_per_k", "vf_tempco_v_per_k ({} V/K) must not be positive", k)
+        bad = (i.vf_min_v > 0) & (i.vf_min_v + k * (tj_max - thermal.REFERENCE_C) <= 0)
+        message = "vf_tempco_v_per_k ({} V/K) takes the lowest forward voltage to 0 V or below before led_tj_max_c"
+        rules.require(bad, "vf_tempco_v_per_k", message, k)
+        zero = i.resistor_zero_power_c
+        message = "resistor_zero_power_c ({} °C) must exceed resistor_rated_to_c"
+        rules.require(zero <= i.resistor_rated_to_c, "resistor_zero_power_c", message, zero)
+        knee = i.if_derating_knee_c
+        message = "if_derating_knee_c ({} °C) must lie below led_tj_max_c"
+        rules.require(knee >= tj_max, "if_derating_knee_c", message, knee)
 
 
 def _point(i: LedStringInputs, supply_v: FloatArray, vf_v: FloatArray, resistor_ohm: FloatArray) -> thermal.LedPoint:
