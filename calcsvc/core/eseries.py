@@ -99,11 +99,11 @@ def _check_series(series: str) -> None:
 
 def _as_values(values: npt.ArrayLike) -> FloatArray:
     x = np.asarray(values, dtype=np.float64)
+    if ((x >= MIN_VALUE) & (x <= MAX_VALUE)).all():  # one pass when all is well (NaN fails it)
+        return x
     if not np.all(np.isfinite(x)) or np.any(x <= 0):
         raise ValueError("values must be finite and positive")
-    if np.any(x < MIN_VALUE) or np.any(x > MAX_VALUE):
-        raise ValueError(f"values must lie between {MIN_VALUE:g} and {MAX_VALUE:g}")
-    return x
+    raise ValueError(f"values must lie between {MIN_VALUE:g} and {MAX_VALUE:g}")
 
 
 def _pow10(exponent: npt.NDArray[np.int64]) -> FloatArray:
@@ -251,7 +251,9 @@ def tolerance_rows(given: FloatArray, names: npt.ArrayLike) -> FloatArray:
 
 def _pick_rows(values: npt.ArrayLike, names: npt.ArrayLike, above: bool) -> FloatArray:
     x = np.asarray(values, dtype=np.float64)
-    arr = np.broadcast_to(np.asarray(names, dtype=str), x.shape)
+    arr = np.asarray(names, dtype=str)
+    if arr.shape != x.shape:  # a new view only where needed: the masks are cached for the names array itself
+        arr = np.broadcast_to(arr, x.shape)
     unknown = ~known_series(arr)
     if unknown.any():
         _check_series(str(arr[unknown].flat[0]))

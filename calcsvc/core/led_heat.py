@@ -107,7 +107,7 @@ def worst_forward_voltages(i: LedStringInputs, supply_v: FloatArray, resistor_oh
     )
     at_bound = top - i.vf_tempco_v_per_k * (np.minimum(bound, i.led_tj_max_c) - thermal.REFERENCE_C)
     at_max = top - i.vf_tempco_v_per_k * (i.led_tj_max_c - thermal.REFERENCE_C)
-    return np.clip(np.stack([i.vf_min_v, i.vf_max_v, at_bound, at_max]), i.vf_min_v, i.vf_max_v)
+    return np.clip(np.array([i.vf_min_v, i.vf_max_v, at_bound, at_max]), i.vf_min_v, i.vf_max_v)
 
 
 def outcome(
@@ -121,9 +121,9 @@ def outcome(
     # call's cost is mostly per numpy operation, not per row.
     both = _point(
         i,
-        np.stack([i.supply_v, high_supply, high_supply, high_supply, high_supply]),
+        np.array([i.supply_v, high_supply, high_supply, high_supply, high_supply]),
         np.concatenate([i.vf_typ_v[None], worst_forward_voltages(i, high_supply, resistor_low_ohm)]),
-        np.stack([resistor_ohm, resistor_low_ohm, resistor_low_ohm, resistor_low_ohm, resistor_low_ohm]),
+        np.array([resistor_ohm, resistor_low_ohm, resistor_low_ohm, resistor_low_ohm, resistor_low_ohm]),
     )
     hottest = np.max(_hottest(both)[1:], axis=0)
     heating = np.max(both.heating_at_max_c[1:], axis=0)

@@ -49,7 +49,6 @@ from calcsvc.core.outcome import (
     Violation,
     add_notice,
     raise_violations,
-    rows,
 )
 from calcsvc.core.spec import E_SERIES, CalculationSpec, Input, Result, Role, columns_as, positive
 
@@ -248,7 +247,7 @@ def design(inputs: LedStringInputs) -> Outcome:
     }
 
     headroom_limit = HEADROOM_FRACTION * vs
-    max_rating = rows(n, POWER_RATINGS_W[-1])
+    max_rating = np.full(n, POWER_RATINGS_W[-1])
     checks = [
         Check(
             "led_current_rating",
