@@ -30,7 +30,7 @@ from typing import TYPE_CHECKING
 import numpy as np
 
 from calcsvc.core import thermal
-from calcsvc.core.outcome import Check, FloatArray, Notice, Outcome, Rules, Violation, add_notice
+from calcsvc.core.outcome import Check, FloatArray, Notice, Outcome, Rules, Violation, add_notices
 
 if TYPE_CHECKING:  # ``led_string`` builds on this module: its inputs type is for the annotations only
     from calcsvc.core.channel_inputs import ChannelInputs
@@ -172,16 +172,18 @@ def _cautions(i: LedStringInputs, results: dict[str, np.ndarray], runaway: np.nd
     hot |= results["led_junction_max_c"] > thermal.TOUCH_SAFE_C
     warm = i.ambient_c >= thermal.WARM_ENCLOSURE_C
     over = results["current_max_hot_a"] > results["led_current_limit_a"]
-    add_notice(
+    add_notices(
         found,
-        hot,
-        "Hot surfaces: the string resistor or the LEDs run above 60 °C at this ambient; keep them clear of fingers, "
-        "plastics, wiring and plant material.",
+        [
+            (
+                hot,
+                "Hot surfaces: the string resistor or the LEDs run above 60 °C at this ambient; keep them clear of "
+                "fingers, plastics, wiring and plant material.",
+            ),
+            (warm, thermal.WARM_CAUTION),
+            (runaway, thermal.RUNAWAY_CAUTION),
+            (over, "The hot worst-case current exceeds the LED's maximum at this ambient: the LEDs can overheat."),
+            (hot | warm | over, thermal.ASSUMPTIONS_CAUTION),  # wherever a temperature is relied upon
+        ],
     )
-    add_notice(found, warm, thermal.WARM_CAUTION)
-    add_notice(found, runaway, thermal.RUNAWAY_CAUTION)
-    add_notice(
-        found, over, "The hot worst-case current exceeds the LED's maximum at this ambient: the LEDs can overheat."
-    )
-    add_notice(found, hot | warm | over, thermal.ASSUMPTIONS_CAUTION)  # wherever a temperature is relied upon
     return found

@@ -47,7 +47,7 @@ from calcsvc.core.outcome import (
     Outcome,
     Rules,
     Violation,
-    add_notice,
+    add_notices,
     raise_violations,
 )
 from calcsvc.core.spec import E_SERIES, CalculationSpec, Input, Result, Role, columns_as, positive
@@ -280,39 +280,44 @@ def design(inputs: LedStringInputs) -> Outcome:
 
     warnings: list[Notice] = []
     cautions: list[Notice] = []
-
-    add_notice(
+    add_notices(
         warnings,
-        v_r < headroom_limit,
-        "Less than 10 % of the supply is across the resistor: the current will vary widely with supply "
-        "voltage and LED forward voltage.",
+        [
+            (
+                v_r < headroom_limit,
+                "Less than 10 % of the supply is across the resistor: the current will vary widely with supply "
+                "voltage and LED forward voltage.",
+            ),
+            (
+                current_min <= 0.0,
+                "At low supply and high forward voltage the worst-case current is zero: the string may not light.",
+            ),
+        ],
     )
-    add_notice(
-        warnings,
-        current_min <= 0.0,
-        "At low supply and high forward voltage the worst-case current is zero: the string may not light.",
-    )
-    add_notice(
+    add_notices(
         cautions,
-        power_max >= HOT_RESISTOR_W,
-        "The resistor dissipates 0.5 W or more in the worst case and runs hot: keep it clear of plastics, "
-        "wiring and fingers.",
-    )
-    add_notice(
-        cautions,
-        i.if_max_a >= HIGH_POWER_LED_A,
-        "High-power LEDs: provide heat-sinking for the LEDs, and do not look into them at close range (eye safety).",
-    )
-    add_notice(
-        cautions,
-        current_max > i.if_max_a,
-        "The worst-case current exceeds the LED's maximum forward current: the LEDs can overheat and fail early.",
-    )
-    add_notice(
-        cautions,
-        need_w > max_rating,
-        "No standard resistor rating up to 5 W is adequate: the resistor would overheat; use a different "
-        "supply voltage, more LEDs per string, or a constant-current driver.",
+        [
+            (
+                power_max >= HOT_RESISTOR_W,
+                "The resistor dissipates 0.5 W or more in the worst case and runs hot: keep it clear of plastics, "
+                "wiring and fingers.",
+            ),
+            (
+                i.if_max_a >= HIGH_POWER_LED_A,
+                "High-power LEDs: provide heat-sinking for the LEDs, and do not look into them at close range (eye "
+                "safety).",
+            ),
+            (
+                current_max > i.if_max_a,
+                "The worst-case current exceeds the LED's maximum forward current: the LEDs can overheat and fail "
+                "early.",
+            ),
+            (
+                need_w > max_rating,
+                "No standard resistor rating up to 5 W is adequate: the resistor would overheat; use a different "
+                "supply voltage, more LEDs per string, or a constant-current driver.",
+            ),
+        ],
     )
     return Outcome(results=results, checks=checks, warnings=warnings, cautions=cautions)
 

@@ -107,6 +107,16 @@ def add_notice(target: list[Notice], rows: BoolArray, message: str) -> None:
         target.append(Notice(rows, message))
 
 
+def add_notices(target: list[Notice], found: list[tuple[BoolArray, str]]) -> None:
+    """``add_notice`` for each of ``found`` in order, with one reduction for all where their masks share a shape."""
+    masks = [np.asarray(rows, dtype=bool) for rows, _message in found]
+    if len({mask.shape for mask in masks}) == 1:
+        applies = np.array(masks).any(axis=-1).tolist()
+    else:
+        applies = [bool(mask.any()) for mask in masks]
+    target += [Notice(mask, message) for mask, (_rows, message), hit in zip(masks, found, applies, strict=True) if hit]
+
+
 def first_bad(values: np.ndarray, bad: BoolArray) -> str:
     """The value on the first bad row, formatted for a message ("" when no row is bad)."""
     return f"{float(np.asarray(values)[bad][0]):g}" if bad.any() else ""
