@@ -168,6 +168,7 @@ def led_operating_point(
     vf_top, current_top = at(tmax)
     heating = ta + rth * vf_top / n * current_top
     runaway = heating > tmax
+    del vf_top, current_top  # a batch's memory peaks below: let these go first
     t = np.where(runaway, tmax, _conducting_root(head, vf25, r, n, string_k, rth, ta, tmax))
     vf, current = at(t)
     return LedPoint(
@@ -194,14 +195,33 @@ def _conducting_root(
     """The largest root of g in [Ta, Tj,max] where the string does not run away: with u = T − 25, s = Vf25 +
     N·k·u the string's drop and c = Rθ/(N·R), g = c·(N·k)²·u² + (1 − c·N·k·(H − 2·Vf25))·u + 25 − Ta −
     c·Vf25·(H − Vf25) while s < H; Ta where the string is dark at Ta and no conducting root lies below Tj,max."""
-    c = rth / (n * r)
-    a2 = c * string_k * string_k
-    a1 = 1.0 - c * string_k * (head - 2.0 * vf25)
-    a0 = REFERENCE_C - ta - c * vf25 * (head - vf25)
+    # In place where an array is not needed again: at 100,000 rows each of these is 4 MiB (five points a row).
+    shape = np.broadcast(head, vf25, r, n, string_k, rth, ta, tmax).shape
+    c = np.divide(rth, n * r, out=np.empty(shape))
+    a1 = np.subtract(head, 2.0 * vf25, out=np.empty(shape))
+    a1 *= string_k
+    a1 *= c
+    np.subtract(1.0, a1, out=a1)
+    a0 = np.subtract(head, vf25, out=np.empty(shape))
+    a0 *= vf25
+    a0 *= c
+    np.subtract(REFERENCE_C - ta, a0, out=a0)
+    a2 = c
+    a2 *= string_k
+    a2 *= string_k
     with np.errstate(divide="ignore", invalid="ignore"):
-        root_d = np.sqrt(a1 * a1 - 4.0 * a2 * a0)
+        root_d = a2 * a0
+        root_d *= -4.0
+        root_d += a1 * a1
+        np.sqrt(root_d, out=root_d)
         # Each form of the larger root where it adds numbers of one sign (no cancellation).
-        u = np.where(a1 > 0.0, -2.0 * a0 / (a1 + root_d), (root_d - a1) / (2.0 * a2))
+        u = a1 + root_d
+        np.divide(a0, u, out=u)
+        u *= -2.0
+        root_d -= a1
+        a2 *= 2.0
+        np.divide(root_d, a2, out=root_d)
+        u = np.where(a1 > 0.0, u, root_d)
     t = REFERENCE_C + u
     conducting = (vf25 + string_k * u < head) & (t >= ta) & (t <= tmax)
     return np.where(conducting, t, ta)

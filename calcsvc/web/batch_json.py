@@ -154,9 +154,7 @@ def json_columns(calc: CalculationSpec, batch: Batch) -> dict[str, Any]:
     ok = np.zeros(n, dtype=bool)
     ok[ok_rows] = True
     results: dict[str, Any] = {
-        name: lambda name=name: full(outcome.results[name])
-        for name in calc.scalar_results()
-        if name in outcome.results
+        name: lambda name=name: full(outcome.results[name]) for name in calc.scalar_results() if name in outcome.results
     }
     if "sweep_row" in outcome.results:
         # One array per row that sweeps (its own length), null for the others.
