@@ -74,7 +74,7 @@ from calcsvc.core.outcome import (
 )
 
 NAME = "channel-review"
-VERSION = "5"
+VERSION = "6"
 
 __all__ = ["FRONT_STAGE_FIELDS", "ChannelInputs", "ChannelReview", "review", "validate"]
 

@@ -22,7 +22,7 @@ import functools
 import numpy as np
 import numpy.typing as npt
 
-from calcsvc.core.outcome import BoolArray, FloatArray, Violation, require
+from calcsvc.core.outcome import BoolArray, FloatArray, Rules, Violation, require
 
 # fmt: off
 SERIES: dict[str, tuple[float, ...]] = {
@@ -99,11 +99,11 @@ def _check_series(series: str) -> None:
 
 def _as_values(values: npt.ArrayLike) -> FloatArray:
     x = np.asarray(values, dtype=np.float64)
+    if ((x >= MIN_VALUE) & (x <= MAX_VALUE)).all():  # one pass when all is well (NaN fails it)
+        return x
     if not np.all(np.isfinite(x)) or np.any(x <= 0):
         raise ValueError("values must be finite and positive")
-    if np.any(x < MIN_VALUE) or np.any(x > MAX_VALUE):
-        raise ValueError(f"values must lie between {MIN_VALUE:g} and {MAX_VALUE:g}")
-    return x
+    raise ValueError(f"values must lie between {MIN_VALUE:g} and {MAX_VALUE:g}")
 
 
 def _pow10(exponent: npt.NDArray[np.int64]) -> FloatArray:
@@ -221,13 +221,18 @@ def known_series(names: npt.ArrayLike) -> BoolArray:
     return known
 
 
-def require_known_series(violations: list[Violation], names: npt.ArrayLike) -> None:
+def require_known_series(violations: list[Violation] | Rules, names: npt.ArrayLike) -> None:
     """Record a violation of the ``e_series`` input on every row whose series name is unknown."""
-    known = known_series(names)
-    if not known.all():
-        bad_name = str(np.asarray(names)[~known][0])
-        message = f"e_series {bad_name!r} is not a known series; use one of {', '.join(SERIES_NAMES)}"
-        require(violations, ~known, "e_series", message)
+    unknown = ~known_series(names)
+
+    def message(bad: BoolArray) -> str:
+        bad_name = str(np.asarray(names)[bad][0])
+        return f"e_series {bad_name!r} is not a known series; use one of {', '.join(SERIES_NAMES)}"
+
+    if isinstance(violations, Rules):
+        violations.require(unknown, "e_series", message)
+    elif unknown.any():
+        require(violations, unknown, "e_series", message(unknown))
 
 
 def default_tolerance_rows(names: npt.ArrayLike) -> FloatArray:
@@ -246,7 +251,9 @@ def tolerance_rows(given: FloatArray, names: npt.ArrayLike) -> FloatArray:
 
 def _pick_rows(values: npt.ArrayLike, names: npt.ArrayLike, above: bool) -> FloatArray:
     x = np.asarray(values, dtype=np.float64)
-    arr = np.broadcast_to(np.asarray(names, dtype=str), x.shape)
+    arr = np.asarray(names, dtype=str)
+    if arr.shape != x.shape:  # a new view only where needed: the masks are cached for the names array itself
+        arr = np.broadcast_to(arr, x.shape)
     unknown = ~known_series(arr)
     if unknown.any():
         _check_series(str(arr[unknown].flat[0]))

@@ -30,7 +30,7 @@ from typing import TYPE_CHECKING
 import numpy as np
 
 from calcsvc.core import thermal
-from calcsvc.core.outcome import Check, FloatArray, Notice, Outcome, Violation, add_notice, first_bad, require
+from calcsvc.core.outcome import Check, FloatArray, Notice, Outcome, Rules, Violation, add_notices
 
 if TYPE_CHECKING:  # ``led_string`` builds on this module: its inputs type is for the annotations only
     from calcsvc.core.channel_inputs import ChannelInputs
@@ -53,34 +53,36 @@ DETAILS = {
 def validate(i: LedStringInputs | ChannelInputs) -> list[Violation]:
     """The thermal inputs' preconditions (the channel review's too: its inputs carry the same names); never
     raises."""
-    v: list[Violation] = []
+    rules = Rules()
+    require_all(rules, i)
+    return rules.violations()
+
+
+def require_all(rules: Rules, i: LedStringInputs | ChannelInputs) -> None:
+    """Add the thermal inputs' preconditions to ``rules`` (a calculation judging them with its own)."""
     with np.errstate(invalid="ignore"):
-        for name in ("ambient_c", "led_tj_max_c", "led_rth_jb_k_per_w", "led_rth_ba_k_per_w", "vf_tempco_v_per_k",
-                     "resistor_rated_to_c", "resistor_zero_power_c"):  # fmt: skip
-            x = getattr(i, name)
-            require(v, ~np.isfinite(x), name, f"{name} must be a finite number (got {first_bad(x, ~np.isfinite(x))})")
-        bad = i.ambient_c <= ABSOLUTE_ZERO_C
-        require(v, bad, "ambient_c", f"ambient_c ({first_bad(i.ambient_c, bad)} °C) must lie above absolute zero")
-        bad = i.led_tj_max_c <= np.maximum(i.ambient_c, thermal.REFERENCE_C)
-        message = "must exceed 25 °C, where ratings are stated, and ambient_c"
-        require(v, bad, "led_tj_max_c", f"led_tj_max_c ({first_bad(i.led_tj_max_c, bad)} °C) {message}")
+        names = ("ambient_c", "led_tj_max_c", "led_rth_jb_k_per_w", "led_rth_ba_k_per_w", "vf_tempco_v_per_k",
+                 "resistor_rated_to_c", "resistor_zero_power_c")  # fmt: skip
+        rules.finite({name: getattr(i, name) for name in names})
+        ta = i.ambient_c
+        rules.require(ta <= ABSOLUTE_ZERO_C, "ambient_c", "ambient_c ({} °C) must lie above absolute zero", ta)
+        tj_max = i.led_tj_max_c
+        message = "led_tj_max_c ({} °C) must exceed 25 °C, where ratings are stated, and ambient_c"
+        rules.require(tj_max <= np.maximum(ta, thermal.REFERENCE_C), "led_tj_max_c", message, tj_max)
         for name in ("led_rth_jb_k_per_w", "led_rth_ba_k_per_w"):
             x = getattr(i, name)
-            require(v, x < 0, name, f"{name} ({first_bad(x, x < 0)} K/W) must be at least 0")
+            rules.require(x < 0, name, f"{name} ({{}} K/W) must be at least 0", x)
         k = i.vf_tempco_v_per_k
-        require(v, k > 0, "vf_tempco_v_per_k", f"vf_tempco_v_per_k ({first_bad(k, k > 0)} V/K) must not be positive")
-        bad = (i.vf_min_v > 0) & (i.vf_min_v + k * (i.led_tj_max_c - thermal.REFERENCE_C) <= 0)
-        message = "takes the lowest forward voltage to 0 V or below before led_tj_max_c"
-        require(v, bad, "vf_tempco_v_per_k", f"vf_tempco_v_per_k ({first_bad(k, bad)} V/K) {message}")
-        bad = i.resistor_zero_power_c <= i.resistor_rated_to_c
-        message = "must exceed resistor_rated_to_c"
-        given = first_bad(i.resistor_zero_power_c, bad)
-        require(v, bad, "resistor_zero_power_c", f"resistor_zero_power_c ({given} °C) {message}")
-        bad = i.if_derating_knee_c >= i.led_tj_max_c
-        message = "must lie below led_tj_max_c"
-        given = first_bad(i.if_derating_knee_c, bad)
-        require(v, bad, "if_derating_knee_c", f"if_derating_knee_c ({given} °C) {message}")
-    return v
+        rules.require(k > 0, "vf_tempco_v_per_k", "vf_tempco_v_per_k ({} V/K) must not be positive", k)
+        bad = (i.vf_min_v > 0) & (i.vf_min_v + k * (tj_max - thermal.REFERENCE_C) <= 0)
+        message = "vf_tempco_v_per_k ({} V/K) takes the lowest forward voltage to 0 V or below before led_tj_max_c"
+        rules.require(bad, "vf_tempco_v_per_k", message, k)
+        zero = i.resistor_zero_power_c
+        message = "resistor_zero_power_c ({} °C) must exceed resistor_rated_to_c"
+        rules.require(zero <= i.resistor_rated_to_c, "resistor_zero_power_c", message, zero)
+        knee = i.if_derating_knee_c
+        message = "if_derating_knee_c ({} °C) must lie below led_tj_max_c"
+        rules.require(knee >= tj_max, "if_derating_knee_c", message, knee)
 
 
 def _point(i: LedStringInputs, supply_v: FloatArray, vf_v: FloatArray, resistor_ohm: FloatArray) -> thermal.LedPoint:
@@ -105,7 +107,7 @@ def worst_forward_voltages(i: LedStringInputs, supply_v: FloatArray, resistor_oh
     )
     at_bound = top - i.vf_tempco_v_per_k * (np.minimum(bound, i.led_tj_max_c) - thermal.REFERENCE_C)
     at_max = top - i.vf_tempco_v_per_k * (i.led_tj_max_c - thermal.REFERENCE_C)
-    return np.clip(np.stack([i.vf_min_v, i.vf_max_v, at_bound, at_max]), i.vf_min_v, i.vf_max_v)
+    return np.clip(np.array([i.vf_min_v, i.vf_max_v, at_bound, at_max]), i.vf_min_v, i.vf_max_v)
 
 
 def outcome(
@@ -114,13 +116,19 @@ def outcome(
     """The thermal results, checks and cautions of designs with string resistor ``resistor_ohm`` (its lowest
     value ``resistor_low_ohm``) of power rating ``rating_w``."""
     ta = i.ambient_c
-    nominal = _point(i, i.supply_v, i.vf_typ_v, resistor_ohm)
     high_supply = i.supply_v * (1.0 + i.supply_tolerance)
-    worst = _point(i, high_supply, worst_forward_voltages(i, high_supply, resistor_low_ohm), resistor_low_ohm)
-    hottest = np.max(_hottest(worst), axis=0)
-    heating = np.max(worst.heating_at_max_c, axis=0)
-    runaway = worst.runaway.any(axis=0)
-    current_max = np.max(worst.current_a, axis=0)
+    # One solve for the nominal point (row 0) and the four worst-case forward voltages (rows 1–4): a single
+    # call's cost is mostly per numpy operation, not per row.
+    both = _point(
+        i,
+        np.array([i.supply_v, high_supply, high_supply, high_supply, high_supply]),
+        np.concatenate([i.vf_typ_v[None], worst_forward_voltages(i, high_supply, resistor_low_ohm)]),
+        np.array([resistor_ohm, resistor_low_ohm, resistor_low_ohm, resistor_low_ohm, resistor_low_ohm]),
+    )
+    hottest = np.max(_hottest(both)[1:], axis=0)
+    heating = np.max(both.heating_at_max_c[1:], axis=0)
+    runaway = both.runaway[1:].any(axis=0)
+    current_max = np.max(both.current_a[1:], axis=0)
     resistor_power = current_max**2 * resistor_low_ohm
     resistor_limit = rating_w * thermal.resistor_derating(ta, i.resistor_rated_to_c, i.resistor_zero_power_c)
     current_limit = i.if_max_a * thermal.current_derating(ta, i.if_derating_knee_c, i.led_tj_max_c)
@@ -132,10 +140,10 @@ def outcome(
         "resistor_derated_power": (resistor_power, resistor_limit),
     }
     results = {
-        "current_hot_a": nominal.current_a,
-        "led_junction_c": nominal.junction_c,
-        "string_vf_hot_v": nominal.string_vf_v,
-        "thermal_iterations": nominal.iterations.astype(np.float64),
+        "current_hot_a": both.current_a[0],
+        "led_junction_c": both.junction_c[0],
+        "string_vf_hot_v": both.string_vf_v[0],
+        "thermal_iterations": both.iterations[0].astype(np.float64),
         "current_max_hot_a": current_max,
         "led_junction_max_c": np.where(runaway, np.nan, hottest),
         "led_current_limit_a": current_limit,
@@ -164,16 +172,18 @@ def _cautions(i: LedStringInputs, results: dict[str, np.ndarray], runaway: np.nd
     hot |= results["led_junction_max_c"] > thermal.TOUCH_SAFE_C
     warm = i.ambient_c >= thermal.WARM_ENCLOSURE_C
     over = results["current_max_hot_a"] > results["led_current_limit_a"]
-    add_notice(
+    add_notices(
         found,
-        hot,
-        "Hot surfaces: the string resistor or the LEDs run above 60 °C at this ambient; keep them clear of fingers, "
-        "plastics, wiring and plant material.",
+        [
+            (
+                hot,
+                "Hot surfaces: the string resistor or the LEDs run above 60 °C at this ambient; keep them clear of "
+                "fingers, plastics, wiring and plant material.",
+            ),
+            (warm, thermal.WARM_CAUTION),
+            (runaway, thermal.RUNAWAY_CAUTION),
+            (over, "The hot worst-case current exceeds the LED's maximum at this ambient: the LEDs can overheat."),
+            (hot | warm | over, thermal.ASSUMPTIONS_CAUTION),  # wherever a temperature is relied upon
+        ],
     )
-    add_notice(found, warm, thermal.WARM_CAUTION)
-    add_notice(found, runaway, thermal.RUNAWAY_CAUTION)
-    add_notice(
-        found, over, "The hot worst-case current exceeds the LED's maximum at this ambient: the LEDs can overheat."
-    )
-    add_notice(found, hot | warm | over, thermal.ASSUMPTIONS_CAUTION)  # wherever a temperature is relied upon
     return found

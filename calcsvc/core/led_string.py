@@ -45,18 +45,15 @@ from calcsvc.core.outcome import (
     FloatArray,
     Notice,
     Outcome,
+    Rules,
     Violation,
-    add_notice,
-    first_bad,
+    add_notices,
     raise_violations,
-    require,
-    require_practical,
-    rows,
 )
 from calcsvc.core.spec import E_SERIES, CalculationSpec, Input, Result, Role, columns_as, positive
 
 NAME = "led-string"
-VERSION = "2"
+VERSION = "3"
 
 # Common resistor power ratings, watts (common practice).
 POWER_RATINGS_W = np.array([0.125, 0.25, 0.5, 1.0, 2.0, 3.0, 5.0])
@@ -103,7 +100,7 @@ def _string_drop(inputs: LedStringInputs) -> FloatArray:
 
 def validate(inputs: LedStringInputs) -> list[Violation]:
     """Every physical precondition, per row; never raises."""
-    v: list[Violation] = []
+    rules = Rules()
     i = inputs
     with np.errstate(invalid="ignore", over="ignore", divide="ignore"):
         required = {
@@ -118,82 +115,64 @@ def validate(inputs: LedStringInputs) -> list[Violation]:
             "current_a": i.current_a,
             "switch_drop_v": i.switch_drop_v,
         }
-        for name, x in required.items():
-            bad = ~np.isfinite(x)
-            require(v, bad, name, f"{name} must be a finite number (got {first_bad(x, bad)})")
-        bad = np.isinf(i.resistor_tolerance)
-        require(v, bad, "resistor_tolerance", "resistor_tolerance must be finite when given")
-
-        bad = i.supply_v <= 0
-        require(v, bad, "supply_v", f"supply_v ({first_bad(i.supply_v, bad)} V) must be positive")
-        bad = (i.supply_tolerance < 0) | (i.supply_tolerance >= 1)
-        require(
-            v,
-            bad,
-            "supply_tolerance",
-            f"supply_tolerance ({first_bad(i.supply_tolerance, bad)}) must be a fraction in [0, 1)",
+        rules.finite(required)
+        rules.require(
+            np.isinf(i.resistor_tolerance), "resistor_tolerance", "resistor_tolerance must be finite when given"
         )
-        bad = i.vf_min_v <= 0
-        require(v, bad, "vf_min_v", f"vf_min_v ({first_bad(i.vf_min_v, bad)} V) must be positive")
-        bad = (i.vf_typ_v < i.vf_min_v) | (i.vf_typ_v > i.vf_max_v)
-        if bad.any():
-            k = int(np.argmax(bad))
-            require(
-                v,
-                bad,
-                "vf_typ_v",
-                f"vf_typ_v ({i.vf_typ_v[k]:g} V) must lie between vf_min_v ({i.vf_min_v[k]:g} V) "
-                f"and vf_max_v ({i.vf_max_v[k]:g} V)",
-            )
-        bad = i.if_max_a <= 0
-        require(v, bad, "if_max_a", f"if_max_a ({first_bad(i.if_max_a, bad)} A) must be positive")
-        bad = i.current_a <= 0
-        require(v, bad, "current_a", f"current_a ({first_bad(i.current_a, bad)} A) must be positive")
+
+        rules.require(i.supply_v <= 0, "supply_v", "supply_v ({} V) must be positive", i.supply_v)
+        ts = i.supply_tolerance
+        rules.require(
+            (ts < 0) | (ts >= 1), "supply_tolerance", "supply_tolerance ({}) must be a fraction in [0, 1)", ts
+        )
+        rules.require(i.vf_min_v <= 0, "vf_min_v", "vf_min_v ({} V) must be positive", i.vf_min_v)
+        rules.require(
+            (i.vf_typ_v < i.vf_min_v) | (i.vf_typ_v > i.vf_max_v),
+            "vf_typ_v",
+            "vf_typ_v ({} V) must lie between vf_min_v ({} V) and vf_max_v ({} V)",
+            i.vf_typ_v,
+            i.vf_min_v,
+            i.vf_max_v,
+        )
+        rules.require(i.if_max_a <= 0, "if_max_a", "if_max_a ({} A) must be positive", i.if_max_a)
+        rules.require(i.current_a <= 0, "current_a", "current_a ({} A) must be positive", i.current_a)
         for name, x in (("leds_in_series", i.leds_in_series), ("strings", i.strings)):
             bad = np.isfinite(x) & ((x < 1) | (x != np.floor(x)))
-            require(v, bad, name, f"{name} ({first_bad(x, bad)}) must be a whole number of at least 1")
-        bad = i.switch_drop_v < 0
-        require(
-            v,
-            bad,
-            "switch_drop_v",
-            f"switch_drop_v ({first_bad(i.switch_drop_v, bad)} V) must not be negative",
-        )
+            rules.require(bad, name, f"{name} ({{}}) must be a whole number of at least 1", x)
+        sw = i.switch_drop_v
+        rules.require(sw < 0, "switch_drop_v", "switch_drop_v ({} V) must not be negative", sw)
         rt = i.resistor_tolerance
         bad = ~np.isnan(rt) & ((rt < 0) | (rt >= 1))
-        require(
-            v,
-            bad,
-            "resistor_tolerance",
-            f"resistor_tolerance ({first_bad(rt, bad)}) must be a fraction in [0, 1) when given",
-        )
-        eseries.require_known_series(v, i.e_series)
+        rules.require(bad, "resistor_tolerance", "resistor_tolerance ({}) must be a fraction in [0, 1) when given", rt)
+        eseries.require_known_series(rules, i.e_series)
 
         # The key rule: with the supply at or below the string's drop there is nothing left for the resistor.
         drop = _string_drop(i)
-        bad = i.supply_v <= drop
-        if bad.any():
-            k = int(np.argmax(bad))
-            require(
-                v,
-                bad,
-                "supply_v",
-                f"supply_v ({i.supply_v[k]:g} V) must exceed the string's forward voltage plus switch drop "
-                f"({drop[k]:g} V = {i.leds_in_series[k]:g} × {i.vf_typ_v[k]:g} V + {i.switch_drop_v[k]:g} V)",
-            )
-        require_practical(v, required | {"resistor_tolerance": rt})
-        v += led_heat.validate(i)
+        rules.require(
+            i.supply_v <= drop,
+            "supply_v",
+            "supply_v ({} V) must exceed the string's forward voltage plus switch drop ({} V = {} × {} V + {} V)",
+            i.supply_v,
+            drop,
+            i.leds_in_series,
+            i.vf_typ_v,
+            sw,
+        )
+        rules.practical(required | {"resistor_tolerance": rt})
+        led_heat.require_all(rules, i)
+        v = rules.violations()
         if not v:
             # Only when everything else holds: the exact resistor must lie where standard values are defined.
             r_exact = (i.supply_v - drop) / i.current_a
-            bad = (r_exact < eseries.MIN_VALUE) | (r_exact > eseries.MAX_VALUE)  # inf counts as too large
-            require(
-                v,
-                bad,
+            rules = Rules()
+            rules.require(
+                (r_exact < eseries.MIN_VALUE) | (r_exact > eseries.MAX_VALUE),  # inf counts as too large
                 "current_a",
-                f"current_a ({first_bad(i.current_a, bad)} A) gives a resistor of {first_bad(r_exact, bad)} Ω, "
-                "outside any practical range",
+                "current_a ({} A) gives a resistor of {} Ω, outside any practical range",
+                i.current_a,
+                r_exact,
             )
+            v = rules.violations()
     return v
 
 
@@ -268,7 +247,7 @@ def design(inputs: LedStringInputs) -> Outcome:
     }
 
     headroom_limit = HEADROOM_FRACTION * vs
-    max_rating = rows(n, POWER_RATINGS_W[-1])
+    max_rating = np.full(n, POWER_RATINGS_W[-1])
     checks = [
         Check(
             "led_current_rating",
@@ -301,39 +280,44 @@ def design(inputs: LedStringInputs) -> Outcome:
 
     warnings: list[Notice] = []
     cautions: list[Notice] = []
-
-    add_notice(
+    add_notices(
         warnings,
-        v_r < headroom_limit,
-        "Less than 10 % of the supply is across the resistor: the current will vary widely with supply "
-        "voltage and LED forward voltage.",
+        [
+            (
+                v_r < headroom_limit,
+                "Less than 10 % of the supply is across the resistor: the current will vary widely with supply "
+                "voltage and LED forward voltage.",
+            ),
+            (
+                current_min <= 0.0,
+                "At low supply and high forward voltage the worst-case current is zero: the string may not light.",
+            ),
+        ],
     )
-    add_notice(
-        warnings,
-        current_min <= 0.0,
-        "At low supply and high forward voltage the worst-case current is zero: the string may not light.",
-    )
-    add_notice(
+    add_notices(
         cautions,
-        power_max >= HOT_RESISTOR_W,
-        "The resistor dissipates 0.5 W or more in the worst case and runs hot: keep it clear of plastics, "
-        "wiring and fingers.",
-    )
-    add_notice(
-        cautions,
-        i.if_max_a >= HIGH_POWER_LED_A,
-        "High-power LEDs: provide heat-sinking for the LEDs, and do not look into them at close range (eye safety).",
-    )
-    add_notice(
-        cautions,
-        current_max > i.if_max_a,
-        "The worst-case current exceeds the LED's maximum forward current: the LEDs can overheat and fail early.",
-    )
-    add_notice(
-        cautions,
-        need_w > max_rating,
-        "No standard resistor rating up to 5 W is adequate: the resistor would overheat; use a different "
-        "supply voltage, more LEDs per string, or a constant-current driver.",
+        [
+            (
+                power_max >= HOT_RESISTOR_W,
+                "The resistor dissipates 0.5 W or more in the worst case and runs hot: keep it clear of plastics, "
+                "wiring and fingers.",
+            ),
+            (
+                i.if_max_a >= HIGH_POWER_LED_A,
+                "High-power LEDs: provide heat-sinking for the LEDs, and do not look into them at close range (eye "
+                "safety).",
+            ),
+            (
+                current_max > i.if_max_a,
+                "The worst-case current exceeds the LED's maximum forward current: the LEDs can overheat and fail "
+                "early.",
+            ),
+            (
+                need_w > max_rating,
+                "No standard resistor rating up to 5 W is adequate: the resistor would overheat; use a different "
+                "supply voltage, more LEDs per string, or a constant-current driver.",
+            ),
+        ],
     )
     return Outcome(results=results, checks=checks, warnings=warnings, cautions=cautions)
 
@@ -403,7 +387,7 @@ SPEC = CalculationSpec(
         Result("current_hot_a", "A", "nominal string current at its coupled electro-thermal point at ambient_c"),
         Result("led_junction_c", "°C", "nominal LED junction temperature at that point"),
         Result("string_vf_hot_v", "V", "nominal string forward voltage at that junction temperature"),
-        Result("thermal_iterations", "", "iterations the nominal coupled point needed"),
+        Result("thermal_iterations", "", "solves the nominal coupled point needed: 1 (closed form), 0 in runaway"),
         Result("current_max_hot_a", "A", "worst-case highest string current at its coupled point"),
         Result("led_junction_max_c", "°C", "worst-case hottest LED junction (absent: thermal runaway)"),
         Result("led_current_limit_a", "A", "LED's maximum current derated to ambient_c"),

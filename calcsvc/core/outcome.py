@@ -107,6 +107,16 @@ def add_notice(target: list[Notice], rows: BoolArray, message: str) -> None:
         target.append(Notice(rows, message))
 
 
+def add_notices(target: list[Notice], found: list[tuple[BoolArray, str]]) -> None:
+    """``add_notice`` for each of ``found`` in order, with one reduction for all where their masks share a shape."""
+    masks = [np.asarray(rows, dtype=bool) for rows, _message in found]
+    if len({mask.shape for mask in masks}) == 1:
+        applies = np.array(masks).any(axis=-1).tolist()
+    else:
+        applies = [bool(mask.any()) for mask in masks]
+    target += [Notice(mask, message) for mask, (_rows, message), hit in zip(masks, found, applies, strict=True) if hit]
+
+
 def first_bad(values: np.ndarray, bad: BoolArray) -> str:
     """The value on the first bad row, formatted for a message ("" when no row is bad)."""
     return f"{float(np.asarray(values)[bad][0]):g}" if bad.any() else ""
@@ -137,20 +147,75 @@ def require_practical(
     0 and NaN (not given) pass: other rules judge them. ``rows_of`` maps bad entries to the rows they belong to,
     for inputs that are not one per row.
     """
-    with np.errstate(invalid="ignore"):
-        for name, x in values.items():
-            size = np.abs(np.asarray(x, dtype=np.float64))
-            bad = np.isfinite(size) & (size > PRACTICAL_MAX)
-            limits = f"at most {PRACTICAL_MAX:g}"
+    rules = Rules()
+    rules.practical(values, divisors, rows_of)
+    violations += rules.violations()
+
+
+class Rules:
+    """A calculation's preconditions gathered as masks of bad rows and judged together: one reduction over all
+    of them when every row is valid (the common case, and most of a one-row call's validation otherwise), and
+    messages written only for the rules some row breaks, in the order the rules were given."""
+
+    def __init__(self) -> None:
+        self._rules: list[tuple[Any, str, str | Callable[[BoolArray], str], tuple[Any, ...], Any]] = []
+
+    def require(
+        self,
+        rows_bad: npt.ArrayLike,
+        name: str,
+        message: str | Callable[[BoolArray], str],
+        *values: npt.ArrayLike,
+        rows_of: Callable[[BoolArray], BoolArray] | None = None,
+    ) -> None:
+        """A violation of ``name`` where ``rows_bad``; each ``{}`` in ``message`` is filled with the matching
+        value's entry on the first bad row (``%g``), or ``message`` is called with the mask. NaN comparisons
+        count as not bad, so test finiteness first."""
+        self._rules.append((rows_bad, name, message, values, rows_of))
+
+    def finite(self, values: dict[str, npt.ArrayLike]) -> None:
+        """Each of ``values`` must be a finite number (NaN, "not given", included)."""
+        finite = _each(np.isfinite, values)
+        for (name, x), ok in zip(values.items(), finite, strict=True):
+            self.require(~ok, name, f"{name} must be a finite number (got {{}})", x)
+
+    def practical(
+        self,
+        values: dict[str, np.ndarray],
+        divisors: tuple[str, ...] = (),
+        rows_of: Callable[[BoolArray], BoolArray] | None = None,
+    ) -> None:
+        """The magnitudes this service computes with (``require_practical``)."""
+        sizes = _each(np.abs, values)
+        big = _each(lambda x: (x > PRACTICAL_MAX) & (x < np.inf), sizes)
+        tiny = _each(lambda x: (x > 0.0) & (x < PRACTICAL_MIN), sizes) if divisors else []
+        for j, (name, x) in enumerate(values.items()):
+            bad, limits = big[j], f"at most {PRACTICAL_MAX:g}"
             if name in divisors:
-                bad |= (size != 0.0) & (size < PRACTICAL_MIN)
-                limits = f"{PRACTICAL_MIN:g} to {PRACTICAL_MAX:g}"
+                bad, limits = bad | tiny[j], f"{PRACTICAL_MIN:g} to {PRACTICAL_MAX:g}"
+            message = f"{name} ({{}}) lies outside the magnitudes this service computes with ({limits} in SI units)"
+            self.require(bad, name, message, x, rows_of=rows_of)
+
+    def violations(self) -> list[Violation]:
+        if not self._rules or not np.concatenate([rule[0] for rule in self._rules], axis=None).any():
+            return []
+        found: list[Violation] = []
+        for rows_bad, name, message, values, rows_of in self._rules:
+            bad = np.asarray(rows_bad, dtype=bool)
             if not bad.any():
-                continue  # the message is written only for an input that breaks the rule
-            require(
-                violations,
-                bad if rows_of is None or not bad.any() else rows_of(bad),
-                name,
-                f"{name} ({first_bad(x, bad)}) lies outside the magnitudes this service computes with "
-                f"({limits} in SI units)",
-            )
+                continue
+            text = message(bad) if callable(message) else message.format(*(first_bad(x, bad) for x in values))
+            found.append(Violation(name, text, bad if rows_of is None else rows_of(bad)))
+        return found
+
+
+def _each(operation: Callable[[Any], Any], values: Any) -> Any:
+    """``operation`` applied to each of ``values`` (a dict's values, a list, or a 2-D array's rows): once over all
+    of them stacked where they share one shape, since a one-row call's cost is per numpy operation."""
+    arrays = list(values.values()) if isinstance(values, dict) else values
+    if isinstance(arrays, np.ndarray):
+        return operation(arrays)
+    arrays = [np.asarray(x, dtype=np.float64) for x in arrays]
+    if len({a.shape for a in arrays}) == 1:
+        return operation(np.array(arrays))
+    return [operation(a) for a in arrays]

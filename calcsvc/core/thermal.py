@@ -22,10 +22,12 @@ LED current derating (the shape datasheets draw; common practice)
 The coupled LED point
     A string of N LEDs with series resistor R across ``headroom_v`` (supply less switch drop):
     Vf(T) = Vf25 + k·(Tj − 25) per LED (k < 0: about −2 mV/K, from memory), I(T) = max(H − N·Vf(T), 0)/R,
-    P(T) = Vf(T)·I(T) per LED and Tj = Ta + Rθ·P(Tj). The solve is a Newton iteration on
-    g(T) = T − Ta − Rθ·P(T) from Tj,max downwards, kept inside a bracket [Ta, Tj,max] by bisection, for all
-    points at once; it reports the iterations each point needed. g(Ta) ≤ 0; where g(Tj,max) < 0 there is no
-    stable point below Tj,max: the string runs away (reported, not solved).
+    P(T) = Vf(T)·I(T) per LED and Tj = Ta + Rθ·P(Tj). With g(T) = T − Ta − Rθ·P(T), g(Ta) ≤ 0; where
+    g(Tj,max) < 0 there is no stable point below Tj,max: the string runs away (reported, not solved). Where the
+    string conducts (N·Vf(T) < H), g is a convex quadratic in T (Vf is linear in T), so the point, the largest
+    root of g in [Ta, Tj,max], is its larger root in closed form (written without cancellation) for all points
+    at once; a string still dark there sits at Ta. ``iterations`` counts that one solve (0 where the string
+    runs away); the tests hold the point against scipy's brentq.
 """
 
 from __future__ import annotations
@@ -41,8 +43,6 @@ REFERENCE_C = 25.0  # the ambient at which ratings and forward voltages are stat
 JUNCTION_MARGIN_K = 20.0  # keep junctions this far below Tj,max (common practice: 20–25 K)
 RESISTOR_RATED_TO_C = 70.0  # IEC 60115-1 derating curve (from memory)
 RESISTOR_ZERO_POWER_C = 155.0  # IEC 60115-1 derating curve (from memory)
-SOLVE_TOLERANCE_K = 1e-9
-MAX_ITERATIONS = 100  # Newton with bisection needs well under 60 (bisection alone halves 100 K to 1e-9 K in 37)
 TOUCH_SAFE_C = 60.0  # surfaces above this burn on lasting contact (common practice)
 WARM_ENCLOSURE_C = 40.0  # an enclosure this warm needs its ventilation designed (common practice)
 ASSUMPTIONS_CAUTION = (
@@ -153,52 +153,75 @@ def led_operating_point(
 
     ``string_vf_v`` is the string's forward voltage at 25 °C; ``rth_k_per_w`` is one LED's junction to ambient.
     """
-    arrays = np.broadcast_arrays(
-        *(
-            np.asarray(x, dtype=np.float64)
-            for x in (headroom_v, string_vf_v, resistor_ohm, leds_in_series, vf_tempco_v_per_k, rth_k_per_w)
-        ),
-        np.asarray(ambient_c, dtype=np.float64),
-        np.asarray(tj_max_c, dtype=np.float64),
-    )
-    head, vf25, r, n, k, rth, ta, tmax = arrays
+    head, vf25, r, n, k, rth, ta, tmax = (
+        np.asarray(x, dtype=np.float64)
+        for x in (headroom_v, string_vf_v, resistor_ohm, leds_in_series, vf_tempco_v_per_k, rth_k_per_w, ambient_c,
+                  tj_max_c)
+    )  # fmt: skip
+    string_k = n * k
 
-    def balance(t: FloatArray) -> tuple[FloatArray, FloatArray, FloatArray, FloatArray]:
-        vf = vf25 + n * k * (t - REFERENCE_C)
-        lit = head > vf
-        current = np.where(lit, head - vf, 0.0) / r
-        power = vf / n * current
-        slope = k * current + np.where(lit, vf / n * (-n * k / r), 0.0)
-        return t - ta - rth * power, 1.0 - rth * slope, vf, current
+    def at(t: FloatArray) -> tuple[FloatArray, FloatArray]:
+        """The string's forward voltage and current at junction temperature ``t``."""
+        vf = vf25 + string_k * (t - REFERENCE_C)
+        return vf, np.maximum(head - vf, 0.0) / r
 
-    g_top, *_ = balance(tmax)
-    runaway = g_top < 0.0
-    low, high = ta.copy(), tmax.copy()
-    t = tmax.copy()
-    iterations = np.zeros(t.shape, dtype=np.int64)
-    active = ~runaway
-    for _ in range(MAX_ITERATIONS):
-        if not active.any():
-            break
-        g, slope, _, _ = balance(t)
-        low = np.where(active & (g < 0.0), t, low)
-        high = np.where(active & (g >= 0.0), t, high)
-        with np.errstate(divide="ignore", invalid="ignore"):
-            newton = t - g / slope
-        outside = ~np.isfinite(newton) | (newton < low) | (newton > high)
-        step = np.where(outside, 0.5 * (low + high), newton)
-        settled = (np.abs(step - t) <= SOLVE_TOLERANCE_K) | (g == 0.0)
-        iterations += active
-        t = np.where(active, step, t)
-        active &= ~settled
-    _, _, vf, current = balance(t)
-    junction = np.where(runaway, np.nan, t)
+    vf_top, current_top = at(tmax)
+    heating = ta + rth * vf_top / n * current_top
+    runaway = heating > tmax
+    del vf_top, current_top  # a batch's memory peaks below: let these go first
+    t = np.where(runaway, tmax, _conducting_root(head, vf25, r, n, string_k, rth, ta, tmax))
+    vf, current = at(t)
     return LedPoint(
-        junction_c=junction,
+        junction_c=np.where(runaway, np.nan, t),
         string_vf_v=vf,
         current_a=current,
         led_power_w=vf / n * current,
-        iterations=iterations,
+        iterations=(~runaway).astype(np.int64),
         runaway=runaway,
-        heating_at_max_c=tmax - g_top,
+        heating_at_max_c=heating,
     )
+
+
+def _conducting_root(
+    head: FloatArray,
+    vf25: FloatArray,
+    r: FloatArray,
+    n: FloatArray,
+    string_k: FloatArray,
+    rth: FloatArray,
+    ta: FloatArray,
+    tmax: FloatArray,
+) -> FloatArray:
+    """The largest root of g in [Ta, Tj,max] where the string does not run away: with u = T − 25, s = Vf25 +
+    N·k·u the string's drop and c = Rθ/(N·R), g = c·(N·k)²·u² + (1 − c·N·k·(H − 2·Vf25))·u + 25 − Ta −
+    c·Vf25·(H − Vf25) while s < H; Ta where the string is dark at Ta and no conducting root lies below Tj,max."""
+    # In place where an array is not needed again: at 100,000 rows each of these is 4 MiB (five points a row).
+    shape = np.broadcast(head, vf25, r, n, string_k, rth, ta, tmax).shape
+    c = np.divide(rth, n * r, out=np.empty(shape))
+    a1 = np.subtract(head, 2.0 * vf25, out=np.empty(shape))
+    a1 *= string_k
+    a1 *= c
+    np.subtract(1.0, a1, out=a1)
+    a0 = np.subtract(head, vf25, out=np.empty(shape))
+    a0 *= vf25
+    a0 *= c
+    np.subtract(REFERENCE_C - ta, a0, out=a0)
+    a2 = c
+    a2 *= string_k
+    a2 *= string_k
+    with np.errstate(divide="ignore", invalid="ignore"):
+        root_d = a2 * a0
+        root_d *= -4.0
+        root_d += a1 * a1
+        np.sqrt(root_d, out=root_d)
+        # Each form of the larger root where it adds numbers of one sign (no cancellation).
+        u = a1 + root_d
+        np.divide(a0, u, out=u)
+        u *= -2.0
+        root_d -= a1
+        a2 *= 2.0
+        np.divide(root_d, a2, out=root_d)
+        u = np.where(a1 > 0.0, u, root_d)
+    t = REFERENCE_C + u
+    conducting = (vf25 + string_k * u < head) & (t >= ta) & (t <= tmax)
+    return np.where(conducting, t, ta)

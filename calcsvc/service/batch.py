@@ -311,7 +311,9 @@ def evaluate(calc: CalculationSpec, parsed: ParsedRows, records: Records) -> Bat
     # computed again until none is refused.
     while True:
         try:
-            outcome = calc.compute(calc.make_inputs({name: column[ok_rows] for name, column in parsed.columns.items()}))
+            every = ok_rows.size == n  # then the parsed columns themselves, not a copy of each (the core never writes)
+            columns = {name: column if every else column[ok_rows] for name, column in parsed.columns.items()}
+            outcome = calc.compute(calc.make_inputs(columns))
         except DomainError as exc:
             for violation in exc.violations:
                 rows = np.isin(np.arange(n), ok_rows[violation.rows])

@@ -4,7 +4,6 @@ from __future__ import annotations
 
 from typing import Any
 
-import orjson
 from flask import Response, current_app, request
 from flask.views import MethodView
 from flask_smorest import Blueprint
@@ -17,7 +16,7 @@ from calcsvc.service.gc_pause import return_free_memory
 from calcsvc.service.safety import SAFETY_LINE
 from calcsvc.web.auth import database, guard_reads
 from calcsvc.web.batch_csv import csv_chunks
-from calcsvc.web.batch_json import json_columns, streamed_rows
+from calcsvc.web.batch_json import streamed_columns, streamed_rows
 from calcsvc.web.calc_schemas import request_schema
 from calcsvc.web.metrics import record_calculation
 from calcsvc.web.problems import error_response
@@ -70,8 +69,7 @@ def answer(calc: CalculationSpec) -> Response:
         "safety": SAFETY_LINE,
     }
     if request.args.get("layout") == "columns":
-        body.update(json_columns(calc, batch))
-        return _released(Response(orjson.dumps(body, option=orjson.OPT_SERIALIZE_NUMPY), mimetype="application/json"))
+        return _released(Response(streamed_columns(calc, batch, body), mimetype="application/json"))
     return _released(Response(streamed_rows(calc, batch, body), mimetype="application/json"))
 
 

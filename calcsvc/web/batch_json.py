@@ -116,8 +116,29 @@ def streamed_rows(calc: CalculationSpec, batch: Batch, head: dict[str, Any]) -> 
     yield b"]}"
 
 
+def streamed_columns(calc: CalculationSpec, batch: Batch, head: dict[str, Any]) -> Iterator[bytes]:
+    """``head`` and the columns answer (``json_columns``) as bytes, a result or a check at a time: each one's
+    full-length arrays are built as it is written and let go after, so the answer is never whole in memory."""
+    return _streamed({**head, **json_columns(calc, batch)}, depth=3)
+
+
+def _streamed(value: Any, depth: int) -> Iterator[bytes]:
+    """The bytes ``orjson.dumps(value)`` gives, a dict's members written one at a time down to ``depth`` levels; a
+    callable member is called when it is written."""
+    if callable(value):
+        value = value()
+    if depth == 0 or not isinstance(value, dict) or not value:
+        yield orjson.dumps(value, option=_NUMPY)
+        return
+    for k, (key, member) in enumerate(value.items()):
+        yield (b"," if k else b"{") + orjson.dumps(key) + b":"
+        yield from _streamed(member, depth - 1)
+    yield b"}"
+
+
 def json_columns(calc: CalculationSpec, batch: Batch) -> dict[str, Any]:
-    """The same answer as the rows, one array per result and check (element i belongs to row i).
+    """The same answer as the rows, one array per result and check (element i belongs to row i); each result
+    and check as a function building its arrays (``streamed_columns`` calls it as it writes it).
 
     Arrays go to the serializer as they are, with no object per row, which is what makes large batches fast.
     A row that was not computed has ok false, passes false, null results and null check values, and its problem.
@@ -132,7 +153,9 @@ def json_columns(calc: CalculationSpec, batch: Batch) -> dict[str, Any]:
 
     ok = np.zeros(n, dtype=bool)
     ok[ok_rows] = True
-    results = {name: full(outcome.results[name]) for name in calc.scalar_results() if name in outcome.results}
+    results: dict[str, Any] = {
+        name: lambda name=name: full(outcome.results[name]) for name in calc.scalar_results() if name in outcome.results
+    }
     if "sweep_row" in outcome.results:
         # One array per row that sweeps (its own length), null for the others.
         sweeps: list[dict[str, np.ndarray] | None] = [None] * n
@@ -140,7 +163,7 @@ def json_columns(calc: CalculationSpec, batch: Batch) -> dict[str, Any]:
             sweeps[row] = sweep
         results["sweep"] = {key: [None if s is None else s[key] for s in sweeps] for key in SWEEP_KEYS}
     checks = {
-        check.name: {
+        check.name: lambda check=check: {
             "ok": full(check.ok, False),
             "value": full(check.value),
             "limit": full(check.limit),

@@ -61,6 +61,8 @@ def first_too_long(body: bytes, limit_of: Callable[[str], int]) -> TooLong | Non
     Invalid JSON is left to the parser: the scan only has to be right for what a parser would build. Raises
     :class:`TooDeep` past :data:`MAX_DEPTH` levels.
     """
+    if b"[" not in body and body.count(b"{") <= 1 and body.count(b",") < limit_of(""):
+        return None  # one flat object (a single calculation's inputs): too few commas anywhere to be too long
     stack: list[_Container] = []
     position = 0
     while True:

@@ -56,11 +56,30 @@ def _raw(url: str, head: str, body: Iterable[bytes] = (), timeout: float = 30.0)
             pass
     assert answer, "the server closed the connection without an answer"
     status = int(answer.split(b" ", 2)[1])
-    return status, answer.split(b"\r\n\r\n", 1)[1]
+    head, body = answer.split(b"\r\n\r\n", 1)
+    return status, _dechunked(body) if _chunked_answer(head) else body
+
+
+def _chunked_answer(head: bytes) -> bool:
+    return any(line.lower().replace(b" ", b"") == b"transfer-encoding:chunked" for line in head.split(b"\r\n"))
+
+
+def _dechunked(body: bytes) -> bytes:
+    """A streamed (chunked) answer's body as the bytes it carries."""
+    out = []
+    while True:
+        size_line, _, rest = body.partition(b"\r\n")
+        size = int(size_line.split(b";")[0], 16)
+        if size == 0:
+            return b"".join(out)
+        out.append(rest[:size])
+        body = rest[size + 2 :]
 
 
 def _complete(answer: bytes) -> bool:
     head, body = answer.split(b"\r\n\r\n", 1)
+    if _chunked_answer(head):
+        return body.startswith(b"0\r\n") or body.endswith(b"\r\n0\r\n\r\n")
     for line in head.split(b"\r\n"):
         if line.lower().startswith(b"content-length:"):
             return len(body) >= int(line.split(b":")[1])

@@ -13,7 +13,7 @@ import pytest
 from flask.testing import FlaskClient
 from helpers import assert_problem
 
-from calcsvc.web import batch_csv, batch_json
+from calcsvc.web import batch_api, batch_csv, batch_json
 
 NAMES = ("supply_v", "vf_typ_v", "vf_min_v", "vf_max_v", "if_max_a", "leds_in_series", "current_a", "e_series")
 
@@ -109,6 +109,33 @@ def test_the_streamed_rows_are_the_whole_answer(
     chunked = client.post("/v1/batch/led-string", json=rows)
     assert chunked.data == whole
     assert [row["row"] for row in orjson.loads(whole)["rows"]] == list(range(60))
+
+
+def test_the_streamed_columns_are_the_whole_document(
+    client: FlaskClient, seeded: Any, monkeypatch: pytest.MonkeyPatch
+) -> None:
+    # Written a result and a check at a time, the answer is byte for byte the document serialized whole.
+    wholes: list[bytes] = []
+
+    def whole(value: Any, depth: int) -> Any:
+        resolved = value() if callable(value) else value
+        if depth and isinstance(resolved, dict):
+            resolved = {key: whole(member, depth - 1) for key, member in resolved.items()}
+        return resolved
+
+    real = batch_json.streamed_columns
+
+    def both(calc: Any, batch: Any, head: dict[str, Any]) -> Any:
+        wholes.append(
+            orjson.dumps(whole({**head, **batch_json.json_columns(calc, batch)}, 3), option=orjson.OPT_SERIALIZE_NUMPY)
+        )
+        return real(calc, batch, head)
+
+    monkeypatch.setattr(batch_api, "streamed_columns", both)
+    streamed = client.post("/v1/batch/led-string?layout=columns&labels=note", json=varied_rows(60)).data
+    assert streamed == wholes[0]
+    answer = orjson.loads(streamed)
+    assert len(answer["ok"]) == 60 and answer["problems"] and answer["checks"]["headroom"]["margin"]
 
 
 @pytest.mark.parametrize("text", ["1_0", "١٢", "nan", "1e400", " 12 ", "12 V", "+.5e1"])

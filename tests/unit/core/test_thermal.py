@@ -61,7 +61,7 @@ def test_coupled_led_point_matches_an_independent_brentq_solve_over_ambients() -
     expected = [brentq_point(11.8, 6.3, 270.0, 3.0, -0.002, 350.0, ta, 125.0) for ta in ambients]
     np.testing.assert_allclose(point.junction_c, expected, rtol=0, atol=1e-8)
     assert not point.runaway.any()
-    assert point.iterations.max() <= 12  # Newton from Tj,max: a handful of steps
+    assert np.all(point.iterations == 1)  # one closed-form solve per point
     # The current is Ohm's law at that junction's forward voltage.
     vf = 6.3 + 3 * -0.002 * (point.junction_c - 25.0)
     np.testing.assert_allclose(point.current_a, (11.8 - vf) / 270.0, rtol=1e-12)
@@ -93,6 +93,39 @@ def test_a_dark_string_sits_at_ambient() -> None:
     point = thermal.led_operating_point(5.0, 6.3, 100.0, 3.0, -0.002, 350.0, np.array([20.0]), 125.0)
     assert point.junction_c[0] == pytest.approx(20.0, abs=1e-9)
     assert point.current_a[0] == 0.0
+
+
+@settings(max_examples=300, derandomize=True, deadline=None)
+@given(
+    ta=st.floats(-40.0, 85.0),
+    head=st.floats(2.0, 40.0),
+    share=st.floats(0.3, 1.3),
+    r=st.floats(0.5, 3000.0),
+    n=st.integers(1, 8),
+    k=st.floats(-0.005, 0.0),
+    rth=st.floats(0.0, 600.0),
+)
+def test_the_closed_form_point_is_the_hottest_balance_below_tj_max_as_brentq_finds_it(
+    ta: float, head: float, share: float, r: float, n: int, k: float, rth: float
+) -> None:
+    # Strings from dark (forward voltage above the headroom at 25 °C) to strongly coupled: where it does not run
+    # away, the point balances heat and no hotter temperature up to Tj,max does (the solve's contract), and
+    # brentq on the balance written out separately from there to Tj,max finds the same junction.
+    tmax = 150.0
+    vf25 = share * head
+    point = thermal.led_operating_point(head, vf25, r, float(n), k, rth, np.array([ta]), tmax)
+    if point.runaway[0]:
+        assert point.heating_at_max_c[0] > tmax
+        return
+    tj = float(point.junction_c[0])
+    assert ta - 1e-9 <= tj <= tmax + 1e-9
+    vf = vf25 / n + k * (tj - 25.0)
+    assert tj == pytest.approx(ta + rth * vf * max(head - n * vf, 0.0) / r, abs=1e-8)
+    above = np.linspace(tj, tmax, 200)[1:] + 1e-6
+    vf_above = vf25 / n + k * (above - 25.0)
+    assert np.all(above - ta - rth * vf_above * np.maximum(head - n * vf_above, 0.0) / r > 0.0)
+    if vf25 + n * k * (ta - 25.0) < head:  # conducting at ambient: the balance crosses zero once in [Ta, Tj,max]
+        assert tj == pytest.approx(brentq_point(head, vf25, r, float(n), k, rth, ta, tmax), abs=1e-8)
 
 
 @settings(max_examples=200, derandomize=True, deadline=None)
