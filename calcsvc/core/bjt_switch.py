@@ -47,7 +47,7 @@ from calcsvc.core.outcome import (
 from calcsvc.core.spec import E_SERIES, CalculationSpec, Input, Result, Role, columns_as, fraction, positive
 
 NAME = "bjt-switch"
-VERSION = "4"
+VERSION = "5"
 
 
 def compute(inputs: BjtSwitchInputs, validated: bool = False) -> Outcome:

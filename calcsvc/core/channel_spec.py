@@ -248,7 +248,7 @@ CHECK_UNITS = {
     "resistor_derated_power": "W", "transistor_junction_temperature": "°C", "transistor_derated_power": "W",
     "input_common_mode_low": "V", "input_common_mode_high": "V", "output_swing_low": "V", "output_swing_high": "V",
     "output_error": "V", "noise_bits": "", "phase_margin": "deg",
-    "shortest_pulse_covers_edges": "s", "flicker_low_risk": "",
+    "shortest_pulse_covers_edges": "s", "flicker_low_risk": "Hz",
     "gate_reaches_stated_drive": "V", "edges_within_wanted_time": "s", "pin_peak_current": "A",
     "drain_current_rating": "A", "drain_voltage_rating": "V",
 }  # fmt: skip

@@ -48,6 +48,19 @@ def no_effect_limit(frequency_hz: npt.ArrayLike) -> FloatArray:
     return _limit(frequency_hz, NO_EFFECT_SLOPES, NO_EFFECT_FREE_HZ)
 
 
+def low_risk_frequency(modulation_depth: npt.ArrayLike) -> FloatArray:
+    """The lowest PWM frequency at which this modulation (a fraction) lies in the low-risk region: the inverse of
+    ``low_risk_limit``, so the check's margin says how far the frequency is from that boundary. Below 90 Hz the
+    region reaches 0.025 %/Hz · 90 Hz = 2.25 %; at 90 Hz it steps to 7.2 %; 100 % needs 1250 Hz."""
+    percent = 100.0 * np.asarray(modulation_depth, dtype=np.float64)
+    low, high = LOW_RISK_SLOPES
+    return np.where(
+        percent <= low * LOW_FREQUENCY_HZ,
+        percent / low,
+        np.where(percent <= high * LOW_FREQUENCY_HZ, LOW_FREQUENCY_HZ, percent / high),
+    )
+
+
 def camera_alias(frequency_hz: npt.ArrayLike, frame_rate_hz: npt.ArrayLike) -> FloatArray:
     """|f − k·fps| with k the nearest whole multiple: the rate the bands move between frames (Hz)."""
     f = np.asarray(frequency_hz, dtype=np.float64)

@@ -38,7 +38,7 @@ from calcsvc.core.outcome import Check, FloatArray, Notice, Outcome, add_notice,
 from calcsvc.core.spec import E_SERIES, CalculationSpec, Input, Result, Role, columns_as, fraction, positive
 
 NAME = "mosfet-switch"
-VERSION = "1"
+VERSION = "2"
 
 PULLDOWN_MAX_OHM = 100e3  # gate pull-downs of 10–100 kΩ (common practice)
 

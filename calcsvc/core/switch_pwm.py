@@ -65,11 +65,12 @@ def pwm_stage(
             Check(
                 "flicker_low_risk",
                 ~flickers,
-                modulation_depth,
-                low_risk,
-                "max",
-                "The light's modulation must lie within IEEE Std 1789-2015's low-risk region at the PWM "
-                "frequency (thresholds from memory); not checked without a PWM frequency.",
+                frequency_hz,
+                np.where(no_pwm, np.nan, flicker.low_risk_frequency(modulation_depth)),
+                "min",
+                "The PWM frequency must reach the lowest frequency at which the light's modulation depth lies in "
+                "IEEE Std 1789-2015's low-risk region (thresholds from memory); not checked without a PWM "
+                "frequency.",
             ),
         ]
     warnings: list[Notice] = []

@@ -470,6 +470,8 @@ FRONT_CHECKS = {
 # Front-stage checks that apply only when an optional input is given (their limit is NaN otherwise).
 OPTIONAL_CHECKS = FRONT_CHECKS - {"gain_achievable", "signal_in_band", "slew_rate", "output_swing"}
 OPTIONAL_CHECKS -= {"opamp_supply_min", "opamp_supply_max"}
+# The flicker check reads the PWM frequency itself: without one there is nothing to judge.
+OPTIONAL_CHECKS |= {"flicker_low_risk"}
 
 
 @settings(max_examples=60, deadline=None, derandomize=True)

@@ -5,6 +5,8 @@ from __future__ import annotations
 
 import numpy as np
 import pytest
+from hypothesis import given, settings
+from hypothesis import strategies as st
 
 from calcsvc.core import flicker
 
@@ -28,6 +30,23 @@ def test_full_depth_pwm_is_low_risk_only_from_1250_hz() -> None:
     # A PWM switching the light fully off modulates 100 %: below 1250 Hz it leaves the low-risk region.
     f = np.array([500.0, 1000.0, 1249.0, 1250.0, 2000.0])
     assert (1.0 <= flicker.low_risk_limit(f)).tolist() == [False, False, False, True, True]
+
+
+# The same boundary read the other way: the lowest low-risk frequency for a modulation (percent → Hz).
+LOWEST_FREQUENCY = [(0.0, 0.0), (1.25, 50.0), (2.25, 90.0), (5.0, 90.0), (7.2, 90.0), (40.0, 500.0), (100.0, 1250.0)]
+
+
+@pytest.mark.parametrize(("percent", "frequency"), LOWEST_FREQUENCY)
+def test_lowest_low_risk_frequency_of_a_modulation(percent: float, frequency: float) -> None:
+    assert float(flicker.low_risk_frequency(percent / 100.0)) == pytest.approx(frequency)
+
+
+@settings(max_examples=300, deadline=None, derandomize=True)
+@given(st.floats(0.0, 1.0), st.floats(1.0, 10_000.0))
+def test_the_lowest_frequency_is_the_boundary_of_the_region(depth: float, frequency: float) -> None:
+    # A frequency at or above the lowest one is low risk for this depth, and one below it is not.
+    lowest = float(flicker.low_risk_frequency(depth))
+    assert (frequency >= lowest) == (depth <= float(flicker.low_risk_limit(frequency)) * (1 + 1e-12))
 
 
 def test_camera_alias_and_crawling_bands() -> None:

@@ -77,6 +77,13 @@ def thermal_checks(
     }
 
 
+def lowest_low_risk_hz(depth: float) -> float:
+    """IEEE Std 1789-2015's low-risk region (from memory) solved for the frequency, by hand: Mod% / 0.025 up to
+    2.25 % (below 90 Hz), 90 Hz up to 7.2 %, Mod% / 0.08 above."""
+    percent = 100 * depth
+    return percent / 0.025 if percent <= 2.25 else 90.0 if percent <= 7.2 else percent / 0.08
+
+
 def corner_values(
     row: dict[str, Any], r_led: float, rb: float, corner: dict[str, str], resistor_rating_w: float
 ) -> dict[str, tuple]:
@@ -146,7 +153,12 @@ def corner_values(
         # Hot turn-on: 0.6 V per junction at 25 °C (common practice) less 2 mV/K over 100 K (from memory).
         "off_state": at_most(v_low + 1e-6 * r_b, 0.4 * row["base_junctions"]),
         "shortest_pulse_covers_edges": (edges, shortest, math.isnan(f) or edges <= shortest),
-        "flicker_low_risk": (row["modulation_depth"], low_risk, math.isnan(f) or row["modulation_depth"] <= low_risk),
+        # In frequency: the PWM frequency against the lowest at which its depth is low risk (the region's inverse).
+        "flicker_low_risk": (
+            f,
+            math.nan if math.isnan(f) else lowest_low_risk_hz(row["modulation_depth"]),
+            math.isnan(f) or row["modulation_depth"] <= low_risk,
+        ),
         "supply_average_current": at_most(supply_avg, row["current_max_a"]),
         "supply_peak_current": at_most(supply_peak, row["current_max_a"]),
         **thermal_checks(row, ta, heat, i_string, resistor_rating_w, r, power),
