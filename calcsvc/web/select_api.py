@@ -172,5 +172,5 @@ class SwitchSelect(MethodView):
 def _filter_components(state: Any) -> None:
     # The role fields refer to the filter objects by $ref; nothing else makes apispec register them.
     spec = state.app.extensions["calcsvc.api"].spec
-    for kind, schema in FILTERS.items():
-        spec.components.schema(f"{camel(kind)}Filter", schema=schema)
+    for name, schema in FILTERS.items():
+        spec.components.schema(f"{name}Filter", schema=schema)

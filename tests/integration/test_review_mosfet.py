@@ -230,3 +230,23 @@ def test_channel_search_ranks_mosfet_and_bipolar_switches_together(client: Flask
     refused = designs["nmos-standard-10v"]
     assert refused["failing"] == ["physically_possible"] and ranked[-1] == "nmos-standard-10v"
     assert "not a logic-level part for this pin" in refused["problem"]["drive_high_v"][0]
+
+
+def test_channel_search_filter_reads_both_switch_kinds_when_asked(client: FlaskClient, seeded: Any) -> None:
+    base = {**MOSFET_CHANNEL, "samples": 0}
+
+    def designs(transistor: Any) -> list[Any]:
+        response = client.post("/v1/select/channel", json={**base, "transistor": transistor})
+        assert response.status_code == 200, response.get_json()
+        return response.get_json()["designs"]
+
+    # Every approved switch of both kinds, as listing them all.
+    assert designs({"kind": ["bjt", "mosfet"]}) == designs(SEEDED_SWITCHES)
+    # A filter reads the bipolar parts alone by default (without the MOSFET's own gate pull-down, then).
+    base.pop("gate_pulldown_ohm")
+    assert {p["part_id"] for d in designs({}) for p in d["parts"] if p["role"] == "transistor"} == {
+        "npn-small-signal", "npn-medium-power", "npn-power-tab", "npn-darlington-1a"
+    }  # fmt: skip
+    # A bound on a parameter only MOSFETs have leaves the bipolar parts out: on-resistance stated from 2.5 V.
+    low = designs({"kind": ["bjt", "mosfet"], "where": {"vgs_1_v": {"max": "2.5 V"}}})
+    assert [next(p["part_id"] for p in d["parts"] if p["role"] == "transistor") for d in low] == ["nmos-logic-small"]

@@ -57,9 +57,9 @@ MOSFET_NUMBERS = {
 }
 CHANNEL_RANKINGS = ("margin", "supply_power_w", "yield")
 # A role's part kinds: its own, then its alternatives' (the transistor's: bjt, mosfet).
-KINDS = {role.name: {role.kind: role} for role in CHANNEL_INPUTS.roles}
+ROLE_KINDS = {role.name: {role.kind: role} for role in CHANNEL_INPUTS.roles}
 for _alternative in ALTERNATIVE_ROLES:
-    KINDS[_alternative.name][_alternative.kind] = _alternative
+    ROLE_KINDS[_alternative.name][_alternative.kind] = _alternative
 # Inputs that belong to one switch kind only: in a search over both kinds, an explicit value of one (e.g. the
 # MOSFET's gate pull-down) goes to that kind's combinations, as each one's single review would take it.
 OTHER_KINDS_ONLY = {"bjt": MOSFET_ONLY, "mosfet": BIPOLAR_ONLY}
@@ -194,8 +194,13 @@ class _Prepared:
         """What the core objects to whatever the candidates are (``refuse_shared``), if anything."""
         one = channel_inputs(self.shared)
         blank = dataclasses.replace(one, **dict.fromkeys(self.from_parts, np.full(1, np.nan)))
+        ignored = self.from_parts
+        if "mosfet" in self.kinds:
+            # With the MOSFET's inputs unknown the core takes the blank row for a bipolar one: its objections to
+            # the bipolar inputs are the blank's own (a request that gives them has each row refused instead).
+            ignored = ignored | set(BIPOLAR_ONLY)
         try:
-            refuse_shared(blank, channel.validate, self.from_parts, "")
+            refuse_shared(blank, channel.validate, ignored, "")
         except DomainError as error:
             return error
         return None
@@ -214,7 +219,7 @@ def _prepare(
     index: tuple[IntArray, ...],
 ) -> _Prepared:
     """The inputs of the combinations ``rows`` (``index``: per role, each one's part), all of part ``kinds``."""
-    own = [KINDS[role.name][kind] for role, kind in zip(roles, kinds, strict=True)]
+    own = [ROLE_KINDS[role.name][kind] for role, kind in zip(roles, kinds, strict=True)]
     provided = {role.name: part_columns(CHANNEL_INPUTS, role, chosen[role.name], values.keys()) for role in own}
     from_parts = {name for columns in provided.values() for name in columns}
     shared = shared_inputs(CHANNEL_INPUTS, values, from_parts)

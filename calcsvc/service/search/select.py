@@ -20,7 +20,7 @@ from calcsvc.service.envelope import to_json_value
 from calcsvc.service.errors import InvalidInput, ServiceError, TooLarge, UnknownPart, WrongPartKind
 from calcsvc.service.resolve import PartResolver, resolve
 from calcsvc.service.safety import supply_cautions
-from calcsvc.service.search.channel import KINDS, YIELD_SHORTLIST, combinations, own_values, search_channel
+from calcsvc.service.search.channel import ROLE_KINDS, YIELD_SHORTLIST, combinations, own_values, search_channel
 from calcsvc.service.search.common import IMPOSSIBLE, IMPOSSIBLE_DETAIL, PartFilter, choose
 from calcsvc.service.search.ranking import Ranking
 from calcsvc.service.search.role import Requirement, search_role
@@ -42,10 +42,10 @@ class Selection:
 def _load(session: Session, role: Role, chosen: PartFilter, kinds: Sequence[str] = ()) -> list[PartView]:
     """The parts a filter or list names; an unknown part_id is a 404 and a part of another kind a 422. A list
     may also name parts of the role's alternative ``kinds`` (the channel's transistor: a MOSFET); a filter
-    searches the role's own kind."""
+    reads the kinds it names, by default the role's own."""
     store = PartStore(session)
     if chosen.part_ids is None:
-        return store.all_of_kind(role.kind, chosen.statuses)
+        return [part for kind in chosen.kinds or (role.kind,) for part in store.all_of_kind(kind, chosen.statuses)]
     found = store.get_many(list(chosen.part_ids))
     missing = [part_id for part_id in chosen.part_ids if part_id not in found]
     if missing:
@@ -65,7 +65,7 @@ def _choose_kinds(parts: list[PartView], chosen: PartFilter, role: str) -> tuple
     (a MOSFET for the transistor must be N-channel); the kept ones by part_id."""
     kept: list[PartView] = []
     excluded: list[dict[str, Any]] = []
-    for kind, own in KINDS[role].items():
+    for kind, own in ROLE_KINDS[role].items():
         found = choose([p for p in parts if p.kind == kind], chosen, [own])
         kept += found[0]
         excluded += found[1]
@@ -244,7 +244,7 @@ def run_channel_select(database: Database, body: dict[str, Any], max_combination
     with database.transaction() as session:
         fixed_roles = tuple(r for r in CHANNEL_INPUTS.roles if r.name not in searched)
         fixed = resolve(fixed_roles, given, PartResolver(session), ALTERNATIVE_ROLES)  # a MOSFET switch, held fixed
-        found = {role.name: _load(session, role, searched[role.name], list(KINDS[role.name])) for role in roles}
+        found = {role.name: _load(session, role, searched[role.name], list(ROLE_KINDS[role.name])) for role in roles}
     chosen = {role.name: _choose_kinds(found[role.name], searched[role.name], role.name) for role in roles}
     by_role = {name: kept for name, (kept, _) in chosen.items()}
     _bound(combinations(by_role), "combinations", max_combinations)
