@@ -842,11 +842,12 @@ def select_section(args: argparse.Namespace) -> tuple[list[Row], list[str]]:
     for row, worst in zip(sample.tolist(), reviews, strict=True):
         if (worst is None) == bool(space.accepted[row]):
             raise RuntimeError(f"combination {row}: the single review and the search disagree on refusing it")
-        if worst is not None and space.worst is not None:
+        searched_worst = space.passes[0].worst  # every synthetic transistor is bipolar: one pass
+        if worst is not None and searched_worst is not None:
             k = int(positions[row])
-            same = bool(worst.ok[0]) == bool(space.worst.ok[k]) and math.isclose(
+            same = bool(worst.ok[0]) == bool(searched_worst.ok[k]) and math.isclose(
                 worst.nominal.led_string.results["resistor_ohm"][0],
-                space.worst.nominal.led_string.results["resistor_ohm"][k],
+                searched_worst.nominal.led_string.results["resistor_ohm"][k],
             )
             if not same:
                 raise RuntimeError(f"combination {row}: the single review and the search disagree")

@@ -108,7 +108,9 @@ for _calc in CALCULATIONS.values():
 CHANNEL_DOC = (
     "The body of POST /v1/review/channel where any role may be a list of part_ids or a filter object. Every "
     "combination of the candidates is reviewed as the single review does (string and base resistors chosen per "
-    "combination) and taken to its worst tolerance corner, in one vectorized pass. Order: passing designs by "
+    "combination) and taken to its worst tolerance corner, in one vectorized pass. The transistor's candidates "
+    "may be NPNs and N-MOSFETs together (part_ids of either kind, or a filter with kind): each design is judged "
+    "by its own switch's checks and key numbers, and all are ranked together. Order: passing designs by "
     "the least worst-case margin over the checks (descending), or rank_by supply_power_w (average supply "
     f"power, ascending) or yield (with samples: Monte Carlo for the best {YIELD_SHORTLIST} by margin, re-ranked "
     "by yield, the rest after them by margin); ties by margin descending, then by the next-least margin and so "
@@ -172,5 +174,5 @@ class SwitchSelect(MethodView):
 def _filter_components(state: Any) -> None:
     # The role fields refer to the filter objects by $ref; nothing else makes apispec register them.
     spec = state.app.extensions["calcsvc.api"].spec
-    for kind, schema in FILTERS.items():
-        spec.components.schema(f"{camel(kind)}Filter", schema=schema)
+    for name, schema in FILTERS.items():
+        spec.components.schema(f"{name}Filter", schema=schema)

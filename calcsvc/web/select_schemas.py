@@ -15,7 +15,7 @@ from calcsvc.core.spec import CalculationSpec, Role
 from calcsvc.data.kinds import KINDS, Param
 from calcsvc.data.part_ids import MAX_LENGTH, PATTERN, is_part_id
 from calcsvc.data.store import STATUSES
-from calcsvc.service.search.channel import CHANNEL_RANKINGS, YIELD_SHORTLIST
+from calcsvc.service.search.channel import CHANNEL_RANKINGS, ROLE_KINDS, YIELD_SHORTLIST
 from calcsvc.service.search.common import DEFAULT_STATUSES, PartFilter
 from calcsvc.service.search.select import DEFAULT_LIMIT
 from calcsvc.service.search.switch import RANKINGS, SWITCHES
@@ -75,43 +75,64 @@ class Bounds(fields.Field):
         return found.get("min"), found.get("max")
 
 
-def _filter_schema(kind: str) -> type[Schema]:
-    where = Schema.from_dict(
-        {param.name: Bounds(param) for param in KINDS[kind] if param.numeric}, name=f"{camel(kind)}Where"
-    )
-    return Schema.from_dict(
-        {
-            "status": fields.List(
-                fields.String(validate=validate.OneOf(STATUSES)),
-                validate=validate.Length(min=1, max=len(STATUSES)),
-                metadata={"description": f"statuses a candidate may have (default: {', '.join(DEFAULT_STATUSES)})"},
-            ),
-            "where": fields.Nested(
-                where, metadata={"description": f"bounds on the parameters of a {kind} part; all must hold"}
-            ),
-        },
-        name=f"{camel(kind)}Filter",
-    )
+def _filter_schema(kinds: Sequence[str], name: str) -> type[Schema]:
+    """The filter object of a role whose parts are of ``kinds`` (the first its default), named ``name``Filter."""
+    params: dict[str, Param] = {}
+    for kind in kinds:
+        for param in KINDS[kind]:
+            if param.numeric:
+                params.setdefault(param.name, param)  # a parameter both kinds have is declared alike
+    where = Schema.from_dict({key: Bounds(param) for key, param in params.items()}, name=f"{name}Where")
+    described = " or ".join(kinds)
+    attributes: dict[str, fields.Field] = {
+        "status": fields.List(
+            fields.String(validate=validate.OneOf(STATUSES)),
+            validate=validate.Length(min=1, max=len(STATUSES)),
+            metadata={"description": f"statuses a candidate may have (default: {', '.join(DEFAULT_STATUSES)})"},
+        ),
+        "where": fields.Nested(
+            where,
+            metadata={
+                "description": f"bounds on the parameters of a {described} part; all must hold (a part without "
+                "a bounded parameter does not match)"
+            },
+        ),
+    }
+    if len(kinds) > 1:
+        attributes["kind"] = fields.List(
+            fields.String(validate=validate.OneOf(kinds)),
+            validate=validate.Length(min=1, max=len(kinds)),
+            metadata={"description": f"part kinds to search, ranked together (default: {kinds[0]})"},
+        )
+    return Schema.from_dict(attributes, name=f"{name}Filter")
 
 
-FILTERS = {kind: _filter_schema(kind) for kind in KINDS}
+FILTERS = {camel(kind): _filter_schema((kind,), camel(kind)) for kind in KINDS}
+# A channel role that takes several part kinds (the transistor: NPN or N-MOSFET) has a filter over all of them.
+CHANNEL_FILTERS = {
+    role: _filter_schema(tuple(kinds), f"Channel{camel(role)}") for role, kinds in ROLE_KINDS.items() if len(kinds) > 1
+}
+FILTERS.update({f"Channel{camel(role)}": schema for role, schema in CHANNEL_FILTERS.items()})
 
 
 class Candidates(fields.Field):
     """A role of a search: a part_id (fixed, as in a calculation), a list of part_ids or a filter object."""
 
-    def __init__(self, role: Role) -> None:
+    def __init__(self, role: Role, kinds: Sequence[str] = (), filter_name: str = "") -> None:
+        """``kinds``: the role's part kinds when it takes several; their filter is ``filter_name``Filter."""
         self.role = role
+        self.filter = filter_name or camel(role.kind)
         part_id = {"type": "string", "pattern": PATTERN, "maxLength": MAX_LENGTH}
         given = ", ".join(name for _, name in role.provides)
+        kind = " or ".join(kinds or (role.kind,))
         super().__init__(
             metadata={
-                "description": f"a {role.kind} part_id (fixed), or the {role.kind} parts to search: a list of "
+                "description": f"a {kind} part_id (fixed), or the {kind} parts to search: a list of "
                 f"part_ids or a filter object; supplies {given} unless given explicitly",
                 "oneOf": [
                     part_id,
                     {"type": "array", "items": part_id, "minItems": 1, "maxItems": MAX_LISTED, "uniqueItems": True},
-                    {"$ref": f"#/components/schemas/{camel(role.kind)}Filter"},
+                    {"$ref": f"#/components/schemas/{self.filter}Filter"},
                 ],
             }
         )
@@ -129,9 +150,10 @@ class Candidates(fields.Field):
                 raise ValidationError(f"list 1 to {MAX_LISTED} different part_ids")
             return PartFilter(part_ids=tuple(value))
         if isinstance(value, dict):
-            found = FILTERS[self.role.kind]().load(value)
+            found = FILTERS[self.filter]().load(value)
             statuses = tuple(dict.fromkeys(found.get("status", DEFAULT_STATUSES)))
-            return PartFilter(statuses=statuses, where=found.get("where", {}))
+            kinds = tuple(dict.fromkeys(found["kind"])) if "kind" in found else None
+            return PartFilter(statuses=statuses, where=found.get("where", {}), kinds=kinds)
         raise ValidationError("must be a part_id, a list of part_ids or a filter object")
 
 
@@ -196,7 +218,9 @@ def channel_schema() -> type[Schema]:
                 description=f"Monte Carlo builds per design, for the best {YIELD_SHORTLIST} (0: no yield)",
             )
         attributes[spec.name] = input_field(spec)
-    attributes.update({role.name: Candidates(role) for role in CHANNEL_INPUTS.roles})
+    for role in CHANNEL_INPUTS.roles:
+        kinds = tuple(ROLE_KINDS[role.name]) if role.name in CHANNEL_FILTERS else ()
+        attributes[role.name] = Candidates(role, kinds, f"Channel{camel(role.name)}" if kinds else "")
     attributes.update(_options(CHANNEL_RANKINGS, order=False))
     return Schema.from_dict(attributes, name="SelectChannelRequest")
 

@@ -14,6 +14,7 @@ import pytest
 from flask.testing import FlaskClient
 from helpers import assert_problem, bearer
 
+from calcsvc.service.search.channel import MOSFET_NUMBERS, NUMBERS
 from calcsvc.web.pages.channel import ChannelForm
 
 DEMO = json.loads((Path(__file__).resolve().parents[2] / "examples" / "greenhouse-channel.json").read_text())
@@ -195,3 +196,62 @@ def test_channel_search_with_the_mosfet_held_fixed(client: FlaskClient, seeded: 
     direct = review(client, best["request"])
     assert direct["verdict"] == "pass" and direct["stages"]["switch"]["rg_ohm"] == 390
     assert {p["part_id"] for p in best["parts"]} >= {"nmos-logic-small", "led-royal-blue-grow-1w"}
+
+
+SEEDED_SWITCHES = ["npn-small-signal", "npn-medium-power", "npn-power-tab", "npn-darlington-1a", "pnp-small-signal",
+                   "nmos-logic-small", "nmos-logic-power", "nmos-standard-10v"]  # fmt: skip
+
+
+def test_channel_search_ranks_mosfet_and_bipolar_switches_together(client: FlaskClient, seeded: Any) -> None:
+    body = {**MOSFET_CHANNEL, "transistor": SEEDED_SWITCHES, "samples": 0}
+    response = client.post("/v1/select/channel", json=body)
+    assert response.status_code == 200, response.get_json()
+    data = response.get_json()
+    assert [e["part_id"] for e in data["excluded"]["transistor"]] == ["pnp-small-signal"]
+    designs = {next(p["part_id"] for p in d["parts"] if p["role"] == "transistor"): d for d in data["designs"]}
+    assert len(designs) == data["combinations"] == 7
+    ranked = list(designs)
+    best = designs["nmos-logic-small"]
+    assert best["verdict"] == "pass" and ranked[0] == "nmos-logic-small"
+    assert all(ranked.index(t) > 0 for t in ranked if t.startswith("npn-"))
+    # The outside check: every design is what the single review of its request says.
+    for switch, design in designs.items():
+        reviewed = client.post("/v1/review/channel", json=design["request"])
+        if design["failing"] == ["physically_possible"]:
+            assert reviewed.status_code == 422 and set(design["problem"]) == set(reviewed.get_json()["errors"])
+            continue
+        review = reviewed.get_json()
+        assert reviewed.status_code == 200, review
+        assert (review["verdict"], review["failing"]) == (design["verdict"], design["failing"]), switch
+        worst = min((c["worst_case"]["margin"], c["name"]) for c in review["checks"])
+        assert (worst[1], worst[0]) == (design["limiting_check"], pytest.approx(design["margin"], abs=1e-12))
+        keys = MOSFET_NUMBERS if switch.startswith("nmos-") else NUMBERS
+        stages = review["stages"]
+        expected = {key: stages[stage][name] for key, (stage, name) in keys.items()}
+        assert design["numbers"] == pytest.approx({**expected, "max_duty_cycle": review["max_duty_cycle"]}, rel=1e-12)
+        # The MOSFET's gate pull-down is its own input: a bipolar design's request leaves it out.
+        assert ("gate_pulldown_ohm" in design["request"]) == switch.startswith("nmos-")
+    # Stated only at 10 V gate drive: refused for the 2.8 V pin, as the single review refuses it.
+    refused = designs["nmos-standard-10v"]
+    assert refused["failing"] == ["physically_possible"] and ranked[-1] == "nmos-standard-10v"
+    assert "not a logic-level part for this pin" in refused["problem"]["drive_high_v"][0]
+
+
+def test_channel_search_filter_reads_both_switch_kinds_when_asked(client: FlaskClient, seeded: Any) -> None:
+    base = {**MOSFET_CHANNEL, "samples": 0}
+
+    def designs(transistor: Any) -> list[Any]:
+        response = client.post("/v1/select/channel", json={**base, "transistor": transistor})
+        assert response.status_code == 200, response.get_json()
+        return response.get_json()["designs"]
+
+    # Every approved switch of both kinds, as listing them all.
+    assert designs({"kind": ["bjt", "mosfet"]}) == designs(SEEDED_SWITCHES)
+    # A filter reads the bipolar parts alone by default (without the MOSFET's own gate pull-down, then).
+    base.pop("gate_pulldown_ohm")
+    assert {p["part_id"] for d in designs({}) for p in d["parts"] if p["role"] == "transistor"} == {
+        "npn-small-signal", "npn-medium-power", "npn-power-tab", "npn-darlington-1a"
+    }  # fmt: skip
+    # A bound on a parameter only MOSFETs have leaves the bipolar parts out: on-resistance stated from 2.5 V.
+    low = designs({"kind": ["bjt", "mosfet"], "where": {"vgs_1_v": {"max": "2.5 V"}}})
+    assert [next(p["part_id"] for p in d["parts"] if p["role"] == "transistor") for d in low] == ["nmos-logic-small"]

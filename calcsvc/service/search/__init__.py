@@ -11,7 +11,8 @@ the pseudo-check ``physically_possible`` with the core's own words; it never fai
 Ranking: passing rows first, then failing ones, then refused ones. Passing rows by the least margin over
 every check (descending) or by a chosen result; ties by that margin descending, then by the next-least
 margin and so on, then by part_id (for a channel: the parts' ids in role order). Failing and refused rows by
-margin in the same way (the nearest miss first).
+margin in the same way (the nearest miss first). A channel's transistor candidates may be of both switch kinds,
+each combination judged by its own kind's checks and all ranked together.
 
 Modules: ``common`` (filters, candidates' columns, refusals), ``ranking``, ``role`` and ``channel`` (the searches
 themselves, on in-memory ``PartView`` lists, which is also how a benchmark calls them) and ``select`` (a loaded

@@ -29,11 +29,13 @@ IMPOSSIBLE_DETAIL = (
 @dataclass(frozen=True)
 class PartFilter:
     """The parts that may fill a role: current parts of ``statuses`` whose parameters lie within ``where``
-    (inclusive SI bounds; a part without the parameter does not match), or the parts listed in ``part_ids``."""
+    (inclusive SI bounds; a part without the parameter does not match), or the parts listed in ``part_ids``.
+    ``kinds``: the part kinds a filter reads, for a role that takes several (None: the role's own kind)."""
 
     statuses: tuple[str, ...] = DEFAULT_STATUSES
     where: dict[str, tuple[float | None, float | None]] = field(default_factory=dict)
     part_ids: tuple[str, ...] | None = None
+    kinds: tuple[str, ...] | None = None
 
     def matches(self, part: PartView) -> bool:
         if self.part_ids is not None:
@@ -55,7 +57,10 @@ class PartFilter:
             name: {key: value for key, value in (("min", low), ("max", high)) if value is not None}
             for name, (low, high) in self.where.items()
         }
-        return {"status": list(self.statuses), "where": bounds}
+        found: dict[str, Any] = {"status": list(self.statuses), "where": bounds}
+        if self.kinds is not None:
+            found["kind"] = list(self.kinds)
+        return found
 
 
 def choose(

@@ -20,7 +20,7 @@ from calcsvc.service.envelope import to_json_value
 from calcsvc.service.errors import InvalidInput, ServiceError, TooLarge, UnknownPart, WrongPartKind
 from calcsvc.service.resolve import PartResolver, resolve
 from calcsvc.service.safety import supply_cautions
-from calcsvc.service.search.channel import YIELD_SHORTLIST, combinations, search_channel
+from calcsvc.service.search.channel import ROLE_KINDS, YIELD_SHORTLIST, combinations, own_values, search_channel
 from calcsvc.service.search.common import IMPOSSIBLE, IMPOSSIBLE_DETAIL, PartFilter, choose
 from calcsvc.service.search.ranking import Ranking
 from calcsvc.service.search.role import Requirement, search_role
@@ -39,21 +39,37 @@ class Selection:
     evaluated: list[tuple[str, int]]
 
 
-def _load(session: Session, role: Role, chosen: PartFilter) -> list[PartView]:
-    """The parts a filter or list names; an unknown part_id is a 404 and a part of another kind a 422."""
+def _load(session: Session, role: Role, chosen: PartFilter, kinds: Sequence[str] = ()) -> list[PartView]:
+    """The parts a filter or list names; an unknown part_id is a 404 and a part of another kind a 422. A list
+    may also name parts of the role's alternative ``kinds`` (the channel's transistor: a MOSFET); a filter
+    reads the kinds it names, by default the role's own."""
     store = PartStore(session)
     if chosen.part_ids is None:
-        return store.all_of_kind(role.kind, chosen.statuses)
+        return [part for kind in chosen.kinds or (role.kind,) for part in store.all_of_kind(kind, chosen.statuses)]
     found = store.get_many(list(chosen.part_ids))
     missing = [part_id for part_id in chosen.part_ids if part_id not in found]
     if missing:
         message = ", ".join(f"no part '{part_id}'" for part_id in missing)
         raise UnknownPart.on(role.name, message)
-    wrong = [part for part in found.values() if part.kind != role.kind]
+    allowed = (role.kind, *kinds)
+    wrong = [part for part in found.values() if part.kind not in allowed]
     if wrong:
-        message = "; ".join(f"part '{p.part_id}' is a {p.kind}; {role.name} needs a {role.kind}" for p in wrong)
+        needs = " or ".join(allowed)
+        message = "; ".join(f"part '{p.part_id}' is a {p.kind}; {role.name} needs a {needs}" for p in wrong)
         raise WrongPartKind.on(role.name, message)
     return list(found.values())
+
+
+def _choose_kinds(parts: list[PartView], chosen: PartFilter, role: str) -> tuple[list[PartView], list[dict[str, Any]]]:
+    """``choose`` for a role whose parts may be of several kinds, each kind's parts under its own role's rules
+    (a MOSFET for the transistor must be N-channel); the kept ones by part_id."""
+    kept: list[PartView] = []
+    excluded: list[dict[str, Any]] = []
+    for kind, own in ROLE_KINDS[role].items():
+        found = choose([p for p in parts if p.kind == kind], chosen, [own])
+        kept += found[0]
+        excluded += found[1]
+    return sorted(kept, key=lambda p: p.part_id), sorted(excluded, key=lambda e: e["part_id"])
 
 
 def _bound(count: int, what: str, limit: int) -> None:
@@ -228,8 +244,8 @@ def run_channel_select(database: Database, body: dict[str, Any], max_combination
     with database.transaction() as session:
         fixed_roles = tuple(r for r in CHANNEL_INPUTS.roles if r.name not in searched)
         fixed = resolve(fixed_roles, given, PartResolver(session), ALTERNATIVE_ROLES)  # a MOSFET switch, held fixed
-        found = {role.name: _load(session, role, searched[role.name]) for role in roles}
-    chosen = {role.name: choose(found[role.name], searched[role.name], [role]) for role in roles}
+        found = {role.name: _load(session, role, searched[role.name], list(ROLE_KINDS[role.name])) for role in roles}
+    chosen = {role.name: _choose_kinds(found[role.name], searched[role.name], role.name) for role in roles}
     by_role = {name: kept for name, (kept, _) in chosen.items()}
     _bound(combinations(by_role), "combinations", max_combinations)
     leds = int(fixed.values.get("strings", 1)) * int(fixed.values.get("leds_in_series", 1))
@@ -248,11 +264,12 @@ def run_channel_select(database: Database, body: dict[str, Any], max_combination
     for row in search.rows:
         entry = search.entry(int(row))
         entry["parts"] = sorted(fixed.parts + entry["parts"], key=lambda p: ROLE_ORDER[p["role"]])
-        entry["request"] = {**pinned, **_pins(entry["parts"])}
+        reviewed, _ = search.locate(int(row))  # the request as that switch kind's single review takes it
+        entry["request"] = own_values({**pinned, **_pins(entry["parts"])}, reviewed.kinds, len(search.passes) > 1)
         searched_supply = [p.parameters for p in search.parts_of(int(row)) if p.kind == "supply"]
         entry["cautions"] += fixed.cautions + [c for supply in searched_supply for c in supply_cautions(supply)]
         designs.append(entry)
-    details = {c.name: c.detail for c in search.worst.nominal.checks} if search.worst else {}
+    details = search.check_details()
     document = {
         "review": channel.NAME,
         "version": channel.VERSION,

@@ -8,11 +8,13 @@ from typing import Any
 import numpy as np
 import pytest
 
-from calcsvc.core import led_string
+from calcsvc.core import led_string, worst_case
 from calcsvc.core.channel_spec import CHANNEL_INPUTS
 from calcsvc.core.outcome import DomainError
 from calcsvc.data.store import PartView
+from calcsvc.service.calculate import complete
 from calcsvc.service.demo import demo_si
+from calcsvc.service.review import channel_inputs
 from calcsvc.service.search.channel import search_channel
 from calcsvc.service.search.common import IMPOSSIBLE, PartFilter, choose
 from calcsvc.service.search.ranking import Ranking, first_in_order
@@ -97,3 +99,41 @@ def test_channel_search_refuses_what_no_candidate_can_fix() -> None:
     with pytest.raises(DomainError) as refused:
         search_channel({**channel_values(), "gain": 0.5}, {"led": [led("led-red", 2.0)]})
     assert [v.field for v in refused.value.violations] == ["gain"]
+
+
+# A bipolar and a logic-level MOSFET switch, each with its seed part's values, for one search over both kinds.
+NPN = {"polarity": "npn", "hfe_min": 100.0, "hfe_typ": 200.0, "vbe_sat_v": 0.85, "vce_sat_v": 0.2, "ic_max_a": 0.2,
+       "power_max_w": 0.625}  # fmt: skip
+NMOS = {"channel": "n", "vds_max_v": 30.0, "id_max_a": 3.0, "vgs_1_v": 2.5, "rds_on_1_ohm": 0.1, "vgs_2_v": 4.5,
+        "rds_on_2_ohm": 0.06, "vgs_th_max_v": 1.5, "qg_total_c": 3e-9, "power_max_w": 0.8, "tj_max_c": 150.0,
+        "rth_ja_k_per_w": 150.0}  # fmt: skip
+
+
+def test_channel_search_ranks_bipolar_and_mosfet_switches_together() -> None:
+    values = {k: v for k, v in channel_values().items() if k not in NPN}
+    switches = [part("npn-1", "bjt", **NPN), part("nmos-1", "mosfet", **NMOS)]
+    found = search_channel(values, {"transistor": switches, "led": [led("led-red", 2.0)]}, ranking=Ranking(limit=5))
+    assert sorted(p.kinds for p in found.passes) == [("bjt", "led"), ("mosfet", "led")]
+    entries = {e["parts"][0]["part_id"]: e for e in (found.entry(int(row)) for row in found.rows)}
+    assert set(entries) == {"npn-1", "nmos-1"}
+    # Each combination as its own single review judges it: the core's worst case on that part's values alone.
+    for part_id, parameters in (("npn-1", NPN), ("nmos-1", NMOS)):
+        own = {k: v for k, v in parameters.items() if k not in ("polarity", "channel")}
+        led_values = {"vf_typ_v": 2.0, "vf_min_v": 1.8, "vf_max_v": 2.4, "if_max_a": 0.03}
+        single = worst_case.worst_case(channel_inputs(complete(CHANNEL_INPUTS, {**values, **own, **led_values})))
+        margins = {
+            w.name: float(w.margin()[0])
+            for w, c in zip(single.checks, single.nominal.checks, strict=True)
+            if not np.isnan(c.limit[0])  # a check applies where its limit is known
+        }
+        entry = entries[part_id]
+        assert entry["margin"] == pytest.approx(min(margins.values()))
+        assert entry["limiting_check"] == min(margins, key=margins.get)
+        assert entry["failing"] == [w.name for w in single.checks if not bool(w.check.ok[0])]
+    # Each kind's own key numbers: a base resistor for the NPN, a gate resistor for the MOSFET.
+    assert "rb_ohm" in entries["npn-1"]["numbers"] and "rg_ohm" not in entries["npn-1"]["numbers"]
+    assert "rg_ohm" in entries["nmos-1"]["numbers"] and "rb_ohm" not in entries["nmos-1"]["numbers"]
+    # One ranking over both: passing first, then by least margin.
+    ranked = [found.entry(int(row)) for row in found.rows]
+    order = [(e["verdict"] != "pass", -e["margin"]) for e in ranked]
+    assert order == sorted(order)
