@@ -50,7 +50,7 @@ class Check:
 
     def margin(self) -> FloatArray:
         """How far inside the limit the value is, as a fraction of the limit (negative when failing)."""
-        with np.errstate(divide="ignore", invalid="ignore"):
+        with np.errstate(divide="ignore", invalid="ignore", over="ignore"):  # a vanishing limit: infinite margin
             slack = self.limit - self.value if self.sense == "max" else self.value - self.limit
             return slack / np.abs(self.limit)
 
