@@ -112,6 +112,8 @@ def _plain_table(text: str, separator: str, limit: int) -> tuple[list[str], list
     """The header, columns and line numbers of a table the CSV reader would read as plain ``split`` does (no
     quote, carriage return alone or NUL; every row as wide as the header; no cell past the reader's size limit),
     read a column at a time from one flat list of cells, with no list per row; None for any other table."""
+    if text.count("\n") > limit + 2:  # more lines than the limit's rows: the reader stops one row past it
+        return None
     if "\r" in text:
         text = text.replace("\r\n", "\n")
     if any(char in text for char in ('"', "\r", "\x00")):
