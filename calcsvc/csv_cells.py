@@ -16,6 +16,8 @@ from collections.abc import Iterable
 from typing import Any, TextIO
 
 _FORMULA_LEADS = ("=", "+", "-", "@", "\t", "\r")
+_LEADS_OR_QUOTE = (*_FORMULA_LEADS, "'")
+_MAY_NEED = re.compile("\x00[" + re.escape("".join(_LEADS_OR_QUOTE)) + "]")  # a cell starting with one of them
 _NUMBER = re.compile(r"[+-]?(?:[0-9]+\.?[0-9]*|\.[0-9]+)(?:[eE][+-]?[0-9]+)?")
 
 
@@ -31,12 +33,46 @@ def safe_cell(value: Any) -> Any:
 
 
 def safe_cells(column: list[Any]) -> list[Any]:
-    """:func:`safe_cell` over a column, visiting its cells only when some text cell may need it."""
+    """:func:`safe_cell` over a column, visiting its cells only when some text cell may need it, and then only
+    the cells that start as a formula or with a quote."""
     texts = column if set(map(type, column)) <= {str} else [cell for cell in column if type(cell) is str]
-    joined = "\x00" + "\x00".join(texts)
-    if any("\x00" + lead in joined for lead in (*_FORMULA_LEADS, "'")):
-        return [safe_cell(cell) for cell in column]
-    return column
+    if _MAY_NEED.search("\x00" + "\x00".join(texts)) is None:
+        return column
+    return [safe_cell(cell) if type(cell) is str and cell.startswith(_LEADS_OR_QUOTE) else cell for cell in column]
+
+
+_QUOTED_WHEN = ('"', "\n")  # with the separator, what makes csv.writer quote a cell (line terminator "\n")
+
+
+def _written(value: Any) -> str:
+    """A cell's text as ``csv.writer`` writes it: None blank, a float by repr, anything else by str."""
+    if value is None:
+        return ""
+    return repr(value) if type(value) is float else str(value)
+
+
+def _written_column(column: list[Any], separator: str) -> list[str]:
+    """Each cell of ``column`` as ``csv.writer`` writes it, quoted where it holds the separator, a quote or a line
+    feed; the cells are visited one by one only when one may need it (or is not text)."""
+    types = set(map(type, column))
+    if types <= {str}:
+        texts = column
+    else:
+        texts = list(map(str, column)) if types <= {int} else [_written(cell) for cell in column]
+    special = re.compile("[" + re.escape(separator + "".join(_QUOTED_WHEN)) + "]")
+    if special.search("\x00".join(texts)) is None:
+        return texts
+    written = {t: '"' + t.replace('"', '""') + '"' if special.search(t) else t for t in set(texts)}  # texts repeat
+    return list(map(written.__getitem__, texts))
+
+
+def csv_text(columns: list[list[Any]], separator: str) -> str:
+    """The rows whose cells ``columns`` holds (two or more columns, one length), as ``csv.writer`` with
+    ``lineterminator="\n"`` and ``delimiter=separator`` writes them, built a column at a time: each column's cells
+    are quoted in one pass, then each line is one join."""
+    written = [_written_column(column, separator) for column in columns]
+    lines = "\n".join(map(separator.join, zip(*written, strict=True)))
+    return lines + "\n" if lines else ""
 
 
 def original_cell(text: str) -> str:

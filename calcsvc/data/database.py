@@ -10,7 +10,7 @@ from typing import Any
 from alembic import command
 from alembic.config import Config
 from alembic.runtime.migration import MigrationContext
-from sqlalchemy import Engine, create_engine, event, text
+from sqlalchemy import Connection, Engine, create_engine, event, text
 from sqlalchemy.exc import OperationalError
 from sqlalchemy.orm import Session, sessionmaker
 
@@ -62,6 +62,12 @@ class Database:
         """A session inside one transaction: committed on success, rolled back on any exception."""
         with self._sessions() as session, session.begin():
             yield session
+
+    @contextmanager
+    def reading(self) -> Iterator[Connection]:
+        """A Core connection for reads in one transaction (rolled back on close): no ORM session to set up."""
+        with self.engine.connect() as connection:
+            yield connection
 
     def ping(self) -> None:
         """Raise what connecting and asking one question raises (an OperationalError when unreachable)."""

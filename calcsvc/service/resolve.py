@@ -6,6 +6,7 @@ from collections.abc import Mapping
 from dataclasses import dataclass, field
 from typing import Any
 
+from sqlalchemy import Connection
 from sqlalchemy.orm import Session
 
 from calcsvc.core.spec import Role
@@ -22,7 +23,7 @@ class PartResolver:
     """Looks each distinct (part, revision) up once, however many rows or roles name it: the parts a request names
     are read together in one query (calcsvc.data.part_lookup, which caches revisions' content per process)."""
 
-    session: Session | None  # None when the request names no part
+    session: Session | Connection | None  # None when the request names no part; a Core connection reads without ORM
     cache: dict[tuple[str, int | None], Referenced] = field(default_factory=dict)
 
     def prefetch(self, references: list[tuple[str, int | None]]) -> None:
@@ -37,14 +38,22 @@ class PartResolver:
             self.prefetch([key])
         if key not in self.cache:
             assert self.session is not None, "a part is named, so the resolver needs a session"
-            store = PartStore(self.session)
-            try:  # the store names what is missing: the part, or the revision
-                found = store.get(part_id) if revision is None else store.get_revision(part_id, revision)
-            except PartNotFound as exc:
-                field_name = role if revision is None or "revision" not in str(exc) else f"{role}_revision"
-                raise UnknownPart.on(field_name, str(exc)) from exc
-            self.cache[key] = Referenced(found.part_id, found.kind, found.parameters, found.status, found.revision)
+            if isinstance(self.session, Session):
+                self.cache[key] = _stored(self.session, role, part_id, revision)
+            else:  # only a refusal gets here: the store, on the same connection, names what is missing
+                with Session(bind=self.session) as session:
+                    self.cache[key] = _stored(session, role, part_id, revision)
         return self.cache[key]
+
+
+def _stored(session: Session, role: str, part_id: str, revision: int | None) -> Referenced:
+    store = PartStore(session)
+    try:  # the store names what is missing: the part, or the revision
+        found = store.get(part_id) if revision is None else store.get_revision(part_id, revision)
+    except PartNotFound as exc:
+        field_name = role if revision is None or "revision" not in str(exc) else f"{role}_revision"
+        raise UnknownPart.on(field_name, str(exc)) from exc
+    return Referenced(found.part_id, found.kind, found.parameters, found.status, found.revision)
 
 
 @dataclass
@@ -115,8 +124,9 @@ def resolve(
 def resolve_parts(
     database: Database, roles: tuple[Role, ...], body: Mapping[str, Any], alternatives: tuple[Role, ...] = ()
 ) -> Resolved:
-    """``resolve`` in one short read transaction, or without touching the database when no part is named."""
+    """``resolve`` in one short read transaction on a Core connection, or without touching the database when no
+    part is named."""
     if not any(role.name in body or f"{role.name}_revision" in body for role in roles):
         return resolve(roles, body, PartResolver(None), alternatives)
-    with database.transaction() as session:
-        return resolve(roles, body, PartResolver(session), alternatives)
+    with database.reading() as connection:
+        return resolve(roles, body, PartResolver(connection), alternatives)

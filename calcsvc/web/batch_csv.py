@@ -1,10 +1,9 @@
 """A batch's CSV answer, written by columns a chunk of rows at a time: each result column formatted in bulk,
-text only where a row fails a check, has a caution or was refused, the rows joined by the CSV writer in one call
-per chunk, and each chunk sent as it is written, so memory does not grow with the batch."""
+text only where a row fails a check, has a caution or was refused, each line joined from its cells (quoted as the CSV
+writer quotes them), and each chunk sent as it is written, so memory does not grow with the batch."""
 
 from __future__ import annotations
 
-import csv
 import io
 from collections.abc import Iterator
 from typing import Any
@@ -12,7 +11,7 @@ from typing import Any
 import numpy as np
 
 from calcsvc.core.spec import CalculationSpec
-from calcsvc.csv_cells import CellWriter, safe_cells
+from calcsvc.csv_cells import CellWriter, csv_text, safe_cells
 from calcsvc.service.batch import Batch
 from calcsvc.web.batch_json import passes
 from calcsvc.web.sheet_text import column_texts, failing_check
@@ -91,6 +90,4 @@ def _chunk(
         # The problem quotes the caller's column names, the labels are the caller's text: both may start a formula.
         safe_cells(problems),
     ]
-    out = io.StringIO()
-    csv.writer(out, lineterminator="\n", delimiter=records.separator).writerows(zip(*columns, strict=True))
-    return out.getvalue()
+    return csv_text(columns, records.separator)

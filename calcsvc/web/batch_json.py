@@ -8,6 +8,7 @@ so memory stays bounded whatever the batch's size, and the bytes are the ones th
 from __future__ import annotations
 
 from collections.abc import Iterator
+from itertools import repeat
 from typing import Any
 
 import numpy as np
@@ -15,7 +16,7 @@ import orjson
 
 from calcsvc.core.outcome import Outcome
 from calcsvc.core.spec import CalculationSpec
-from calcsvc.service.batch import Batch, ParsedRows, Records
+from calcsvc.service.batch import Batch, ParsedRows
 from calcsvc.service.envelope import SWEEP_KEYS, row_sweeps, to_json_value
 from calcsvc.service.gc_pause import paused_gc
 from calcsvc.web.problems import problem_document, service_problem
@@ -37,67 +38,154 @@ def passes(outcome: Outcome, count: int) -> np.ndarray:
     return found
 
 
-def _labels(records: Records, row: int) -> dict[str, Any]:
-    return {name: values[row] for name, values in records.labels.items()}
+def _texts(values: np.ndarray) -> list[bytes]:
+    """Each element's JSON text, as orjson writes it anywhere in a document (NaN: null). Numbers and booleans
+    are serialized as one array and split at its commas, which none of their texts holds."""
+    if not values.size:
+        return []
+    if values.dtype.kind in "biuf":
+        return orjson.dumps(to_json_value(values))[1:-1].split(b",")
+    return [orjson.dumps(value, option=_NUMPY) for value in to_json_value(values)]
+
+
+def _listed(count: int, lists: dict[int, list[Any]]) -> list[bytes]:
+    """The JSON text of each of ``count`` rows' lists, ``lists`` holding the rows that have any."""
+    texts = [b"[]"] * count
+    known: dict[tuple[str, ...], bytes] = {}  # many rows carry the same messages
+    for k, found in lists.items():
+        if all(type(item) is str for item in found):
+            key = tuple(found)
+            texts[k] = known.get(key) or known.setdefault(key, orjson.dumps(found))
+        else:
+            texts[k] = orjson.dumps(found, option=_NUMPY)
+    return texts
+
+
+def _computed_rows(
+    calc: CalculationSpec, batch: Batch, rows: np.ndarray, first: int, last: int, ok_passes: np.ndarray
+) -> list[bytes]:
+    """The JSON objects of the computed rows ``first`` to ``last`` (their numbers in the body: ``rows``), each
+    joined from its values' texts and the keys between them; the rows are grouped by which checks apply to them
+    (a check whose limit is unknown on a row is left out there), so each group shares one sequence of keys."""
+    parsed, outcome = batch.parsed, batch.outcome
+    count, numbers = last - first, rows.tolist()
+    pieces: list[Any] = [b'{"row":', _texts(rows)]
+    if batch.records.labels:
+        labels = [{name: values[row] for name, values in batch.records.labels.items()} for row in numbers]
+        pieces += [b',"labels":', [orjson.dumps(found) for found in labels]]
+    pieces += [b',"ok":true,"passes":', _texts(ok_passes[first:last]), b',"results":{']
+    names = [name for name in calc.scalar_results() if name in outcome.results]
+    for j, name in enumerate(names):
+        pieces += [(b"," if j else b"") + orjson.dumps(name) + b":", _texts(outcome.results[name][first:last])]
+    if "sweep_row" in outcome.results:
+        lead = b',"sweep":' if names else b'"sweep":'
+        sweeps = row_sweeps(outcome, last)[first:]
+        pieces.append(
+            [b"" if s is None else lead + orjson.dumps({k: to_json_value(v) for k, v in s.items()}) for s in sweeps]
+        )
+    pieces.append(b'},"checks":[')
+    head = len(pieces)
+    checks = [
+        [
+            b'{"name":' + orjson.dumps(c.name) + b',"ok":',
+            _texts(c.ok[first:last]),
+            b',"value":',
+            _texts(c.value[first:last]),
+            b',"limit":',
+            _texts(c.limit[first:last]),
+            b',"margin":',
+            _texts(c.margin()[first:last]),
+            b"}",
+        ]
+        for c in outcome.checks
+    ]
+    warnings: dict[int, list[str]] = {}
+    cautions: dict[int, list[str]] = {}
+    parts: dict[int, list[dict[str, Any]]] = {}
+    for k, row in enumerate(numbers):
+        if row in parsed.warnings:
+            warnings[k] = list(parsed.warnings[row])
+        if row in parsed.parts:
+            parts[k] = parsed.parts[row]
+    for found, notices in ((warnings, outcome.warnings), (cautions, outcome.cautions)):
+        for notice in notices:
+            for k in np.flatnonzero(notice.rows[first:last]).tolist():
+                found.setdefault(k, []).append(notice.message)
+    for k, row in enumerate(numbers):
+        if row in parsed.cautions:
+            cautions.setdefault(k, []).extend(parsed.cautions[row])
+    tail = [b'],"warnings":', _listed(count, warnings), b',"cautions":', _listed(count, cautions)]
+    tail += [b',"parts":', _listed(count, parts), b"}"]
+    applies = np.array([~np.isnan(c.limit[first:last]) for c in outcome.checks], dtype=bool).reshape(-1, count)
+    if applies.all():  # the usual case, without sorting the rows' patterns
+        patterns, group = np.ones((1, len(checks)), dtype=bool), np.zeros(count, dtype=np.int64)
+    else:
+        patterns, group = np.unique(applies.T, axis=0, return_inverse=True)
+    texts: list[bytes] = [b""] * count
+    for g, pattern in enumerate(patterns):
+        chosen = [check for check, applied in zip(checks, pattern.tolist(), strict=True) if applied]
+        sequence = [*pieces[:head], *_joined(chosen), *tail]
+        if len(patterns) == 1:
+            members = range(count)
+        else:
+            members = np.flatnonzero(group.reshape(-1) == g).tolist()
+            sequence = [piece if isinstance(piece, bytes) else [piece[k] for k in members] for piece in sequence]
+        # A key's text repeats on every row; the rows' own values run out together (strict=False: repeat never does).
+        columns = [repeat(piece) if isinstance(piece, bytes) else piece for piece in _merged(sequence)]
+        for k, text in zip(members, map(b"".join, zip(*columns, strict=False)), strict=True):
+            texts[k] = text
+    return texts
+
+
+def _merged(sequence: list[Any]) -> list[Any]:
+    """``sequence`` with neighbouring fixed texts joined into one, so each row joins fewer pieces."""
+    merged: list[Any] = []
+    for piece in sequence:
+        if isinstance(piece, bytes) and merged and isinstance(merged[-1], bytes):
+            merged[-1] += piece
+        else:
+            merged.append(piece)
+    return merged
+
+
+def _joined(checks: list[list[Any]]) -> list[Any]:
+    """The pieces of the checks one after another, separated by commas."""
+    joined: list[Any] = []
+    for j, check in enumerate(checks):
+        joined += [b",", *check] if j else check
+    return joined
 
 
 def _row_chunk(
     calc: CalculationSpec, batch: Batch, low: int, high: int, position: np.ndarray, ok_passes: np.ndarray
-) -> list[dict[str, Any]]:
-    """The answer's objects of rows ``low`` to ``high`` (``position``: each row's index among the computed rows,
-    -1 for a refused row; ``ok_passes``: whether each computed row passes its checks)."""
-    parsed, outcome = batch.parsed, batch.outcome
-    computed = position[low:high]
-    computed = computed[computed >= 0]
-    first, last = (int(computed[0]), int(computed[-1]) + 1) if computed.size else (0, 0)
-    names = [name for name in calc.scalar_results() if name in outcome.results]
-    results = [to_json_value(outcome.results[name][first:last]) for name in names]
-    sweeps = row_sweeps(outcome, last)[first:] if "sweep_row" in outcome.results else [None] * (last - first)
-    checks = [
-        (
-            c.name,
-            c.ok[first:last].tolist(),
-            to_json_value(c.value[first:last]),
-            to_json_value(c.limit[first:last]),
-            to_json_value(c.margin()[first:last]),
-        )
-        for c in outcome.checks
-    ]
-    notices: dict[str, list[list[str]]] = {kind: [[] for _ in range(last - first)] for kind in ("warnings", "cautions")}
-    for kind, found in (("warnings", outcome.warnings), ("cautions", outcome.cautions)):
-        for notice in found:
-            for k in np.flatnonzero(notice.rows[first:last]):
-                notices[kind][k].append(notice.message)
-    ok = ok_passes[first:last].tolist()
-    labelled = bool(batch.records.labels)
-    rows = []
-    for row, at in zip(range(low, high), position[low:high].tolist(), strict=True):
-        labels = {"labels": _labels(batch.records, row)} if labelled else {}
-        if at < 0:
-            rows.append({"row": row, **labels, "ok": False, "passes": None, "problem": row_problem(parsed, row)})
-            continue
-        k = at - first
-        row_results = dict(zip(names, (column[k] for column in results), strict=True))
-        if sweeps[k] is not None:
-            row_results["sweep"] = {key: to_json_value(values) for key, values in sweeps[k].items()}
-        rows.append(
-            {
-                "row": row,
-                **labels,
-                "ok": True,
-                "passes": ok[k],
-                "results": row_results,
-                "checks": [
-                    {"name": name, "ok": oks[k], "value": value[k], "limit": limit[k], "margin": margin[k]}
-                    for name, oks, value, limit, margin in checks
-                    if limit[k] is not None  # a check whose limit is unknown on this row does not apply
-                ],
-                "warnings": parsed.warnings.get(row, []) + notices["warnings"][k],
-                "cautions": notices["cautions"][k] + parsed.cautions.get(row, []),
-                "parts": parsed.parts.get(row, []),
-            }
-        )
-    return rows
+) -> bytes:
+    """The answer's objects of rows ``low`` to ``high``, comma-separated (``position``: each row's index among the
+    computed rows, -1 for a refused row; ``ok_passes``: whether each computed row passes its checks)."""
+    at = position[low:high]
+    lines = np.arange(low, high)
+    computed = at >= 0
+    ks = at[computed]
+    texts = _computed_rows(calc, batch, lines[computed], int(ks[0]), int(ks[-1]) + 1, ok_passes) if ks.size else []
+    if not computed.all():
+        done = iter(texts)
+        texts = [
+            next(done) if c else _refused(batch, row) for row, c in zip(lines.tolist(), computed.tolist(), strict=True)
+        ]
+    return b",".join(texts)
+
+
+def _refused(batch: Batch, row: int) -> bytes:
+    labels = {"labels": {name: values[row] for name, values in batch.records.labels.items()}}
+    return orjson.dumps(
+        {
+            "row": row,
+            **(labels if batch.records.labels else {}),
+            "ok": False,
+            "passes": None,
+            "problem": row_problem(batch.parsed, row),
+        },
+        option=_NUMPY,
+    )
 
 
 def streamed_rows(calc: CalculationSpec, batch: Batch, head: dict[str, Any]) -> Iterator[bytes]:
@@ -109,10 +197,8 @@ def streamed_rows(calc: CalculationSpec, batch: Batch, head: dict[str, Any]) -> 
     yield orjson.dumps(head, option=_NUMPY)[:-1] + b',"rows":['
     for low in range(0, n, CHUNK_ROWS):
         with paused_gc():
-            chunk = orjson.dumps(
-                _row_chunk(calc, batch, low, min(n, low + CHUNK_ROWS), position, ok_passes), option=_NUMPY
-            )
-        yield (b"," if low else b"") + chunk[1:-1]
+            chunk = _row_chunk(calc, batch, low, min(n, low + CHUNK_ROWS), position, ok_passes)
+        yield (b"," if low else b"") + chunk
     yield b"]}"
 
 

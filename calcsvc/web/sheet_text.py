@@ -4,7 +4,6 @@ line naming each check a design fails with its value and limit (JSON keeps full 
 from __future__ import annotations
 
 import math
-import re
 from collections.abc import Iterable
 from typing import Any
 
@@ -42,29 +41,32 @@ def failing_checks(checks: Iterable[dict[str, Any]], comma: bool = False) -> dic
     return {c["name"]: failing_check(c["value"], c["limit"], comma) for c in checks if not c["ok"]}
 
 
-_ROUNDED_WHOLE = re.compile(r"^-?[0-9]+$", re.MULTILINE)
-
-
 def number_texts(values: np.ndarray, comma: bool = False) -> list[str]:
     """``cell_value`` of every element of a float column, formatted in bulk by one ``%`` over the column.
 
     ``number_text`` is repr(float("%.12g" % value)); the float nearest a decimal of at most 12 digits prints back
-    as those digits, so the texts differ only in layout: a whole number gets ".0" (written "%.0f.0" here, and added
-    where rounding to 12 digits gives one), and
-    values repr would lay out otherwise (exponents 12 to 15, subnormals, which carry fewer digits) or that do
-    not apply (NaN) are formatted one by one."""
+    as those digits, so the texts differ only in layout: a whole number gets ".0" (written "%.0f.0" here), and
+    values repr would lay out otherwise (exponents 12 to 15, subnormals, which carry fewer digits), that do not
+    apply (NaN) or that 12 digits round to a whole number (within 5e-12 of their size of one: 284.99999999999994
+    is "285.0") are formatted one by one."""
     if values.size == 0:
         return []
     size = np.abs(values)
     with np.errstate(invalid="ignore"):
         whole = np.isfinite(values) & (values == np.round(values)) & (size < 1e11)
-        odd = np.isnan(values) | ((size >= 1e11) & (size < 1e17)) | ((size > 0) & (size < np.finfo(np.float64).tiny))
-    formats = np.where(whole, "%.0f.0\n", f"%.{SIGNIFICANT_DIGITS}g\n").astype(object)
+        near_whole = ~whole & (np.abs(values - np.round(values)) < 1e-11 * size)
+        odd = (
+            np.isnan(values)
+            | near_whole
+            | ((size >= 1e11) & (size < 1e17))
+            | ((size > 0) & (size < np.finfo(np.float64).tiny))
+        )
+    layouts = (f"%.{SIGNIFICANT_DIGITS}g\n", "%.0f.0\n")
+    formats = list(map(layouts.__getitem__, whole.view(np.uint8).tolist()))
     arguments = values.tolist()
     for k in np.flatnonzero(odd).tolist():
         formats[k], arguments[k] = "%s\n", cell_value(arguments[k])
-    text = "".join(formats.tolist()) % tuple(arguments)
-    text = _ROUNDED_WHOLE.sub(lambda found: found[0] + ".0", text)  # e.g. 284.99999999999994 → "285"
+    text = "".join(formats) % tuple(arguments)
     if comma:
         text = text.replace(".", ",")
     return text.split("\n")[:-1]

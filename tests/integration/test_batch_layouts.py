@@ -159,3 +159,94 @@ def test_the_streamed_csv_is_the_whole_table(client: FlaskClient, seeded: Any, m
     chunked = client.post("/v1/batch/led-string", data=table, content_type="text/csv", headers=headers).data
     assert chunked == whole
     assert whole.count(b"\n") == 61 and b"must be greater than 0 A" in whole  # every row, refused ones too
+
+
+def rows_of_columns(answer: dict[str, Any]) -> list[dict[str, Any]]:
+    """The rows answer's objects, built one by one from the columns answer (a second writer of the same rows)."""
+    rows: list[dict[str, Any]] = []
+    notes: dict[str, dict[int, list[str]]] = {"warnings": {}, "cautions": {}}
+    for kind, found in notes.items():
+        for notice in answer[kind]:
+            for row in notice["rows"]:
+                found.setdefault(row, []).append(notice["message"])
+    for row, ok in enumerate(answer["ok"]):
+        labels = (
+            {"labels": {name: values[row] for name, values in answer["labels"].items()}} if "labels" in answer else {}
+        )
+        if not ok:
+            rows.append({"row": row, **labels, "ok": False, "passes": None, "problem": answer["problems"][str(row)]})
+            continue
+        results = {name: values[row] for name, values in answer["results"].items() if name != "sweep"}
+        sweep = answer["results"].get("sweep")
+        if sweep and sweep["frequency_hz"][row] is not None:
+            results["sweep"] = {key: values[row] for key, values in sweep.items()}
+        checks = [
+            {"name": name, **{key: check[key][row] for key in ("ok", "value", "limit", "margin")}}
+            for name, check in answer["checks"].items()
+            if check["limit"][row] is not None
+        ]
+        rows.append(
+            {
+                "row": row,
+                **labels,
+                "ok": True,
+                "passes": answer["passes"][row],
+                "results": results,
+                "checks": checks,
+                "warnings": notes["warnings"].get(row, []),
+                "cautions": notes["cautions"].get(row, []),
+                "parts": answer["parts"].get(str(row), []),
+            }
+        )
+    return rows
+
+
+@pytest.mark.parametrize(
+    ("name", "query", "body"),
+    [
+        (
+            "led-string",
+            "?labels=note",
+            [{**row, "note": f"=n{k}" if k % 3 else k} for k, row in enumerate(varied_rows(90))],
+        ),
+        (
+            "bjt-switch",  # the supply-rating check applies only where supply_max_v is given
+            "",
+            [
+                {"transistor": "npn-small-signal", "driver": "driver-mcu-3v3", "collector_current_a": current, **more}
+                for current, more in (
+                    ("40 mA", {"supply_max_v": "12.6 V"}),
+                    ("40 mA", {}),
+                    ("-1 A", {}),
+                    ("60 mA", {}),
+                    ("20 mA", {"supply_max_v": 24}),
+                )
+            ],
+        ),
+        (
+            "closed-loop-bandwidth",
+            "",
+            [
+                {"gain": 2, "gbw_hz": 1e6, "sweep_start_hz": 10, "sweep_stop_hz": 1e6, "sweep_points": 4},
+                {"gain": 10, "gbw_hz": 1e6, "signal_hz": 5e4},
+                {"gain": -1, "gbw_hz": 1e6},
+                {"gain": 5, "gbw_hz": 2e6, "sweep_start_hz": 1, "sweep_stop_hz": 1e5, "sweep_points": 3},
+            ],
+        ),
+    ],
+)
+def test_the_rows_answer_is_the_columns_answer_row_by_row_byte_for_byte(
+    client: FlaskClient, seeded: Any, monkeypatch: pytest.MonkeyPatch, name: str, query: str, body: list[Any]
+) -> None:
+    # The rows answer is joined from each value's text: it must be the bytes of its row objects serialized whole,
+    # whatever checks apply on a row (one set on every led-string row, two sets in the others), with refused rows,
+    # labels, notices, parts and sweeps among them.
+    monkeypatch.setattr(batch_json, "CHUNK_ROWS", 16)
+    rows = client.post(f"/v1/batch/{name}{query}", json=body).data
+    columns_query = f"{query}&layout=columns" if query else "?layout=columns"
+    columns = orjson.loads(client.post(f"/v1/batch/{name}{columns_query}", json=body).data)
+    head = {key: columns[key] for key in ("calculation", "version", "count", "ok_count", "check_details", "safety")}
+    assert rows == orjson.dumps({**head, "rows": rows_of_columns(columns)})
+    answer = orjson.loads(rows)
+    assert any(not row["ok"] for row in answer["rows"]) and any(row["ok"] for row in answer["rows"])
+    assert len({len(row["checks"]) for row in answer["rows"] if row["ok"]}) == (1 if name == "led-string" else 2)

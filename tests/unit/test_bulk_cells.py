@@ -2,10 +2,13 @@
 
 from __future__ import annotations
 
+import csv
+import io
+
 import numpy as np
 import pytest
 
-from calcsvc.csv_cells import safe_cell, safe_cells
+from calcsvc.csv_cells import csv_text, safe_cell, safe_cells
 from calcsvc.web.sheet_text import cell_value, column_texts, number_texts
 
 
@@ -15,7 +18,11 @@ def awkward_values() -> np.ndarray:
     signs = rng.choice([-1.0, 1.0], 2000)
     special = [284.99999999999994, -7.000000000000001, 0.0, -0.0]
     special += [np.nan, np.inf, -np.inf, 0.1 + 0.2, 300.0, 1e16, 1e-5, 123456789012.5, 5e-324, 1.7e308]
-    return np.concatenate([magnitudes * signs, np.round(rng.uniform(0, 100, 500), 3), special])
+    # Within a few parts in 1e12 of a whole number: twelve digits round some of them to it ("285.0"), not others.
+    whole = np.round(10.0 ** rng.uniform(-1, 11, 1000))
+    near = whole * (1 + rng.uniform(-2e-11, 2e-11, 1000)) * rng.choice([-1.0, 1.0], 1000)
+    special += [0.99999999999995, 0.9999999999994, 99999999999.99998, 1e-12, 4.9999999999999996e-12]
+    return np.concatenate([magnitudes * signs, np.round(rng.uniform(0, 100, 500), 3), near, special])
 
 
 @pytest.mark.parametrize("comma", [False, True])
@@ -44,3 +51,28 @@ def test_column_texts_of_flags_and_whole_numbers() -> None:
 )
 def test_safe_cells_equal_safe_cell_per_cell(column: list[object]) -> None:
     assert safe_cells(column) == [safe_cell(cell) for cell in column]
+
+
+@pytest.mark.parametrize("separator", [",", ";"])
+def test_csv_text_is_what_the_csv_writer_writes(separator: str) -> None:
+    # Lines joined a column at a time must quote exactly the cells the standard writer quotes (a separator, a
+    # quote or a line feed inside; a lone carriage return is not quoted with "\n" lines) and write non-text cells
+    # as it does (None blank, floats by repr, the rest by str).
+    rng = np.random.default_rng(8)
+    alphabet = ["a", ",", ";", '"', "\n", "\r", " ", "\t", "'", "=", "-", "1", ".", "é"]
+    others = [None, 1.5, -2e-7, 3, True, 1e22, float("nan"), [1, 2], {"a": ","}]
+    for _ in range(500):
+        columns = [
+            [
+                "".join(rng.choice(alphabet, int(rng.integers(0, 6))))
+                if rng.random() < 0.7
+                else others[int(rng.integers(len(others)))]
+                for _row in range(3)
+            ]
+            for _column in range(int(rng.integers(2, 6)))
+        ]
+        out = io.StringIO()
+        csv.writer(out, lineterminator="\n", delimiter=separator).writerows(zip(*columns, strict=True))
+        assert csv_text(columns, separator) == out.getvalue()
+    assert csv_text([[1, 2], ["a", "b,c"]], ",") == '1,a\n2,"b,c"\n'
+    assert csv_text([[], []], ",") == ""

@@ -85,3 +85,35 @@ def test_csv_numbers_read_in_bulk_as_the_unit_parser_reads_each_cell() -> None:
     whole = parse_cells(CALC, Cells(4, {**{k: v[:4] for k, v in common.items()}, "supply_v": numbers}),
                         PartResolver(None), True)  # fmt: skip
     assert whole.columns["supply_v"].tolist() == [12.0, 0.5, -3.0, 7.0]
+
+
+@pytest.mark.parametrize(
+    "table",
+    [
+        "supply_v,current_a\n12 V,20 mA\n9,0.01\n",
+        "supply_v,current_a\r\n12 V,20 mA\r\n\r\n9, 0.01\r\n",  # a sheet's line ends, a blank line, a space
+        " supply_v ; current_a\n12,5 V;20 mA\n\n\n9;0,01",  # no last line end; the names padded
+        "supply_v\n12\n   \n9\n",  # one column: a line of spaces is a blank cell, not a blank line
+        "supply_v,supply_v\n12,13\n",  # a repeated name: the later column wins
+        "supply_v,current_a\n",  # no rows
+        "supply_v,current_a\n12\n9,0.01,extra\n",  # short and long rows: the reader's path
+        'supply_v,note\n12,"a, b"\n',  # quoted: the reader's path
+        "\nsupply_v\n12\n",  # a blank first line: the reader's path
+    ],
+)
+def test_a_plain_table_is_read_as_the_csv_reader_reads_it(table: str, monkeypatch: pytest.MonkeyPatch) -> None:
+    # Plain tables are split a column at a time without the CSV reader; cells, names and line numbers must be
+    # the reader's.
+    body = table.encode()
+    fast = read_records(CALC, body, True, 10)
+    monkeypatch.setattr("calcsvc.service.batch_read._plain_table", lambda *_args: None)
+    reader = read_records(CALC, body, True, 10)
+    assert (fast.cells.n, fast.cells.values, fast.lines) == (reader.cells.n, reader.cells.values, reader.lines)
+    assert {k: v.tolist() for k, v in fast.cells.keyed.items()} == {
+        k: v.tolist() for k, v in reader.cells.keyed.items()
+    }
+
+
+def test_a_plain_table_past_the_row_limit_is_refused_as_the_reader_refuses_it() -> None:
+    with pytest.raises(TooLarge, match="more than 2"):
+        read_records(CALC, b"supply_v\n1\n2\n3\n", True, 2)
