@@ -34,16 +34,7 @@ if TYPE_CHECKING:  # ``channel`` builds on this module; the inputs type is neede
 
 # Inputs only a MOSFET has, and those only a bipolar transistor has (without defaults): a row gives one set.
 MOSFET_ONLY = (
-    "vds_max_v",
-    "id_max_a",
-    "vgs_1_v",
-    "rds_on_1_ohm",
-    "vgs_2_v",
-    "rds_on_2_ohm",
-    "vgs_3_v",
-    "rds_on_3_ohm",
-    "vgs_th_max_v",
-    "qg_total_c",
+    *(name for name in mosfet_switch.PART_PARAMETERS if name not in ("power_max_w", "tj_max_c", "rth_ja_k_per_w")),
     "gate_pulldown_ohm",
     "switching_time_s",
 )
