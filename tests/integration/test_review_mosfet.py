@@ -255,3 +255,13 @@ def test_channel_search_filter_reads_both_switch_kinds_when_asked(client: FlaskC
     # A bound on a parameter only MOSFETs have leaves the bipolar parts out: on-resistance stated from 2.5 V.
     low = designs({"kind": ["bjt", "mosfet"], "where": {"vgs_1_v": {"max": "2.5 V"}}})
     assert [next(p["part_id"] for p in d["parts"] if p["role"] == "transistor") for d in low] == ["nmos-logic-small"]
+
+
+def test_a_mosfet_input_in_a_search_over_bipolar_switches_is_refused_naming_it(
+    client: FlaskClient, seeded: Any
+) -> None:
+    # The gate pull-down belongs to a MOSFET; the filter reads bipolar parts only: the refusal names that input,
+    # not the MOSFET parameters the bipolar candidates lack.
+    response = client.post("/v1/select/channel", json={**MOSFET_CHANNEL, "samples": 0, "transistor": {}})
+    problem = assert_problem(response, 422, "gate_pulldown_ohm")
+    assert list(problem["errors"]) == ["gate_pulldown_ohm"] and "bjt parts only" in problem["detail"]

@@ -22,6 +22,7 @@ from calcsvc.core.outcome import BoolArray, DomainError, take
 from calcsvc.core.spec import Role
 from calcsvc.data.store import PartView
 from calcsvc.service.envelope import row_notices, to_json_value
+from calcsvc.service.errors import InvalidInput
 from calcsvc.service.review import channel_inputs, vf_options, yield_entry
 from calcsvc.service.search.common import (
     IMPOSSIBLE,
@@ -162,6 +163,25 @@ def own_values(values: dict[str, Any], kinds: Sequence[str], mixed: bool) -> dic
     return {k: v for k, v in values.items() if k not in other}
 
 
+def refuse_other_kinds_inputs(values: dict[str, Any], chosen: dict[str, list[PartView]]) -> None:
+    """An input only a switch kind none of the transistor candidates is has (a MOSFET's gate pull-down while
+    the transistor is searched over bipolar parts alone) is refused by its own name, rather than surfacing as
+    the parameters of that kind the candidates lack."""
+    kinds = {p.kind for p in chosen.get("transistor", [])} & OTHER_KINDS_ONLY.keys()
+    if not kinds:
+        return
+    stray = set.intersection(*(set(OTHER_KINDS_ONLY[kind]) for kind in kinds))
+    for name in sorted(stray):
+        value = values.get(name)
+        if value is not None and not (isinstance(value, float) and math.isnan(value)):
+            (kind,) = kinds
+            raise InvalidInput.on(
+                name,
+                f"{name} is an input of the other switch kind, and the transistor candidates are {kind} parts "
+                'only: leave it out, or search both kinds ("kind": ["bjt", "mosfet"], or list their part ids)',
+            )
+
+
 def _groups(
     roles: list[Role], chosen: dict[str, list[PartView]], index: tuple[IntArray, ...], n: int
 ) -> dict[tuple[str, ...], IntArray]:
@@ -255,6 +275,7 @@ def search_channel(
     shape = tuple(len(chosen[role.name]) for role in roles)
     n = math.prod(shape)
     index = np.unravel_index(np.arange(n), shape)
+    refuse_other_kinds_inputs(values, chosen)
     groups = _groups(roles, chosen, index, n)
     mixed = len(groups) > 1
     prepared = [
