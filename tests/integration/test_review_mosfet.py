@@ -265,3 +265,10 @@ def test_a_mosfet_input_in_a_search_over_bipolar_switches_is_refused_naming_it(
     response = client.post("/v1/select/channel", json={**MOSFET_CHANNEL, "samples": 0, "transistor": {}})
     problem = assert_problem(response, 422, "gate_pulldown_ohm")
     assert list(problem["errors"]) == ["gate_pulldown_ohm"] and "bjt parts only" in problem["detail"]
+
+
+def test_a_bipolar_input_in_a_search_over_mosfets_is_refused_naming_it(client: FlaskClient, seeded: Any) -> None:
+    # The reverse: a forced beta belongs to a bipolar switch, and the listed candidates are MOSFETs alone.
+    body = {**MOSFET_CHANNEL, "samples": 0, "forced_beta": 20, "transistor": ["nmos-logic-small", "nmos-logic-power"]}
+    problem = assert_problem(client.post("/v1/select/channel", json=body), 422, "forced_beta")
+    assert list(problem["errors"]) == ["forced_beta"] and "mosfet parts only" in problem["detail"]
