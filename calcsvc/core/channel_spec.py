@@ -229,8 +229,12 @@ CHANNEL_INPUTS = InputSet(
     ),
 )
 # The transistor role's other kind: a review's switch is an NPN or an N-channel MOSFET, by the part named.
+# The review mounts a switch on a heat sink (``heatsink_k_per_w``), so it also reads the junction-to-case figure.
 MOSFET_TRANSISTOR = Role(
-    "transistor", "mosfet", tuple((p, p) for p in mosfet_switch.PART_PARAMETERS), must_have=(("channel", "n"),)
+    "transistor",
+    "mosfet",
+    (*((p, p) for p in mosfet_switch.PART_PARAMETERS), ("rth_jc_k_per_w", "rth_jc_k_per_w")),
+    must_have=(("channel", "n"),),
 )
 ALTERNATIVE_ROLES = (MOSFET_TRANSISTOR,)
 

@@ -51,6 +51,18 @@ OPAMP_STAGE_PARAMS = (
     Param("output_resistance_ohm", "ohm", "open-loop output resistance", optional=True, positive=False),
 )  # fmt: skip
 
+# Every switch kind's heat data (the channel review's thermal stage reads the same three of either).
+TRANSISTOR_THERMAL_PARAMS = (
+    Param("tj_max_c", "degC", "maximum junction temperature", optional=True),
+    Param(
+        "rth_ja_k_per_w",
+        "K/W",
+        "junction-to-ambient thermal resistance without a heat sink; absent: from power_max_w at 25 °C",
+        optional=True,
+    ),
+    Param("rth_jc_k_per_w", "K/W", "junction-to-case thermal resistance, for a heat sink", optional=True),
+)
+
 KINDS: dict[str, tuple[Param, ...]] = {
     "opamp": (
         Param("gbw_hz", "Hz", "gain-bandwidth product"),
@@ -81,14 +93,7 @@ KINDS: dict[str, tuple[Param, ...]] = {
         Param(
             "base_junctions", "dimensionless", "base-emitter junctions: 2 for a Darlington", optional=True, integer=True
         ),
-        Param("tj_max_c", "degC", "maximum junction temperature", optional=True),
-        Param(
-            "rth_ja_k_per_w",
-            "K/W",
-            "junction-to-ambient thermal resistance without a heat sink; absent: from power_max_w at 25 °C",
-            optional=True,
-        ),
-        Param("rth_jc_k_per_w", "K/W", "junction-to-case thermal resistance, for a heat sink", optional=True),
+        *TRANSISTOR_THERMAL_PARAMS,
         # Resistive-load switching times as a datasheet states them at its test ratio Ic/Ib.
         Param("td_s", "s", "turn-on delay time", optional=True),
         Param("tr_s", "s", "collector current rise time", optional=True),
@@ -164,20 +169,7 @@ KINDS: dict[str, tuple[Param, ...]] = {
         Param("vgs_th_max_v", "V", "largest gate threshold voltage"),
         Param("qg_total_c", "C", "total gate charge at the datasheet's gate drive (at 4.5 V for a logic-level part)"),
         Param("power_max_w", "W", "total dissipation rating at 25 °C ambient"),
-        Param("tj_max_c", "degC", "maximum junction temperature", optional=True),
-        Param(
-            "rth_ja_k_per_w",
-            "K/W",
-            "junction-to-ambient thermal resistance without a heat sink; absent: from power_max_w at 25 °C",
-            optional=True,
-        ),
-        Param(
-            "rth_jc_k_per_w",
-            "K/W",
-            "junction-to-case thermal resistance, for a heat sink",
-            optional=True,
-            informational="no calculation mounts a MOSFET on a heat sink yet; kept for the designer",
-        ),
+        *TRANSISTOR_THERMAL_PARAMS,
     ),
     "driver": (
         Param("voh_v", "V", "output high voltage at the rated source current"),

@@ -272,3 +272,14 @@ def test_a_bipolar_input_in_a_search_over_mosfets_is_refused_naming_it(client: F
     body = {**MOSFET_CHANNEL, "samples": 0, "forced_beta": 20, "transistor": ["nmos-logic-small", "nmos-logic-power"]}
     problem = assert_problem(client.post("/v1/select/channel", json=body), 422, "forced_beta")
     assert list(problem["errors"]) == ["forced_beta"] and "mosfet parts only" in problem["detail"]
+
+
+def test_a_mosfet_part_on_a_heat_sink_brings_its_junction_to_case_resistance(client: FlaskClient, seeded: Any) -> None:
+    # nmos-logic-power states 3 K/W junction to case; on a 20 K/W sink its junction sees 23 K/W, not its 62 to air.
+    body = {**MOSFET_CHANNEL, "transistor": "nmos-logic-power", "heatsink_k_per_w": 20, "pwm_resolution_bits": 3}
+    # A 5 V gate driver: its on-resistance is stated from 4.5 V.
+    body |= {"drive_high_v": 4.8, "drive_low_v": 0.2, "source_current_max_a": 0.02, "drive_supply_v": 5.0}
+    body.pop("driver")
+    data = review(client, body)
+    heat = data["stages"]["thermal"]
+    assert heat["transistor_junction_c"] == pytest.approx(25 + heat["transistor_power_hot_w"] * 23.0)

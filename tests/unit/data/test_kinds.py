@@ -2,7 +2,7 @@
 
 from __future__ import annotations
 
-from calcsvc.core.channel_spec import CHANNEL_INPUTS
+from calcsvc.core.channel_spec import ALTERNATIVE_ROLES, CHANNEL_INPUTS
 from calcsvc.core.registry import EVERY
 from calcsvc.data.kinds import KINDS, validate_parameters
 from calcsvc.service.parts import ParametersField
@@ -10,12 +10,12 @@ from calcsvc.service.parts import ParametersField
 
 def _read_by_a_calculation() -> set[tuple[str, str]]:
     """(kind, parameter) pairs a declared calculation or the channel review takes from a part: the inputs its
-    roles provide, and the values a role requires (an npn transistor)."""
+    roles provide (the review's alternative roles too: a MOSFET as its transistor), and the values a role requires
+    (an npn transistor)."""
     used = set()
-    for spec in (*EVERY.values(), CHANNEL_INPUTS):
-        for role in spec.roles:
-            used |= {(role.kind, parameter) for parameter, _ in role.provides}
-            used |= {(role.kind, parameter) for parameter, _ in role.must_have}
+    for role in (*(r for spec in (*EVERY.values(), CHANNEL_INPUTS) for r in spec.roles), *ALTERNATIVE_ROLES):
+        used |= {(role.kind, parameter) for parameter, _ in role.provides}
+        used |= {(role.kind, parameter) for parameter, _ in role.must_have}
     return used
 
 
