@@ -229,6 +229,26 @@ def _band_violations(v: list[Violation], i: ChannelInputs) -> None:
 _SUPPLY = {"supply_max_v": "supply_v"}
 
 
+def _unstated_gate(found: _Collector, i: ChannelInputs, gate_v: FloatArray, rows: BoolArray) -> None:
+    """A pin at or over vgs_1_v whose gate, less the pull-down's share across the gate resistor, ends below it:
+    the on-resistance the strings are designed around is then unstated, so the row is refused like a pin under
+    vgs_1_v (``mosfet_inputs``), naming the pin's level rather than the LED stage's switch drop."""
+    if not rows.any():
+        return
+    v: list[Violation] = []
+    require(
+        v,
+        rows,
+        "drive_high_v",
+        f"drive_high_v ({first_bad(i.drive_high_v, rows)} V) leaves the gate at {first_bad(gate_v, rows)} V once "
+        f"the gate pull-down takes its share (gate_pulldown_ohm {first_bad(i.gate_pulldown_ohm, rows)} Ω against "
+        f"the gate resistor), below vgs_1_v ({first_bad(i.vgs_1_v, rows)} V), the lowest gate voltage at which the "
+        "part states its on-resistance: give a larger gate_pulldown_ohm, a part stated at a lower gate voltage, or "
+        "a gate driver",
+    )
+    found.stage(v)
+
+
 def validate(inputs: ChannelInputs) -> list[Violation]:
     """Every physical precondition of every stage, per row, under the flat input names; never raises."""
     i = inputs
@@ -243,7 +263,9 @@ def validate(inputs: ChannelInputs) -> list[Violation]:
     if mosfet.any():
         own = mosfet_inputs.validate(channel_mosfet.switch_inputs(take(i, mosfet), np.ones(int(mosfet.sum()))))
         mosfet_ok[mosfet] = ~_rows_of(own, int(mosfet.sum()))
-    rds = np.where(mosfet & ~mosfet_ok, 0.0, channel_mosfet.rds_max(i, mosfet_ok))  # refused below anyway
+    gate_v, rds = channel_mosfet.gate_and_rds_max(i, mosfet_ok)
+    _unstated_gate(found, i, gate_v, mosfet_ok & np.isnan(rds))
+    rds = np.where(np.isnan(rds), 0.0, rds)  # refused rows (here or below): keep the LED stage's names clean
     led_in = led_inputs(i, rds)
     drop = {"switch_drop_v": "vce_sat_v"}
     led_found = led_string.validate(led_in)

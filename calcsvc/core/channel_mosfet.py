@@ -102,11 +102,18 @@ def switch_inputs(i: ChannelInputs, drain_current_a: FloatArray) -> MosfetSwitch
 
 def rds_max(i: ChannelInputs, rows: BoolArray) -> FloatArray:
     """Rds_max (module docstring) on ``rows``, which must have passed the MOSFET's validation; NaN elsewhere."""
-    found = np.full(i.supply_v.shape, np.nan)
+    return gate_and_rds_max(i, rows)[1]
+
+
+def gate_and_rds_max(i: ChannelInputs, rows: BoolArray) -> tuple[FloatArray, FloatArray]:
+    """The gate voltage the pin gives and Rds_max on ``rows`` (validated as for ``rds_max``); NaN elsewhere.
+    Rds_max is NaN too where that gate voltage is below the lowest one the part states its on-resistance at."""
+    gate_v, found = np.full(i.supply_v.shape, np.nan), np.full(i.supply_v.shape, np.nan)
     if rows.any():
         within = take(i, rows)
-        found[rows] = rds_max_of(within, mosfet_switch.compute(switch_inputs(within, within.strings), validated=True))
-    return found
+        switch = mosfet_switch.compute(switch_inputs(within, within.strings), validated=True)
+        gate_v[rows], found[rows] = switch.results["gate_v"], rds_max_of(within, switch)
+    return gate_v, found
 
 
 def rds_max_of(i: ChannelInputs, switch: Outcome) -> FloatArray:

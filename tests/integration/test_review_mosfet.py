@@ -283,3 +283,18 @@ def test_a_mosfet_part_on_a_heat_sink_brings_its_junction_to_case_resistance(cli
     data = review(client, body)
     heat = data["stages"]["thermal"]
     assert heat["transistor_junction_c"] == pytest.approx(25 + heat["transistor_power_hot_w"] * 23.0)
+
+
+def test_a_pull_down_that_takes_the_gate_under_its_stated_drive_is_refused_naming_the_pin(
+    client: FlaskClient, seeded: Any
+) -> None:
+    # nmos-logic-power states its on-resistance from 4.5 V; a 4.5 V pin less the 100 kΩ pull-down's share across
+    # the gate resistor leaves the gate just under it, so no on-resistance is stated for the strings' design.
+    body = {k: v for k, v in MOSFET_CHANNEL.items() if k != "driver"}
+    body |= {"transistor": "nmos-logic-power", "drive_high_v": 4.5}
+    problem = assert_problem(client.post("/v1/review/channel", json=body), 422, "drive_high_v")
+    assert set(problem["errors"]) == {"drive_high_v"}
+    message = problem["errors"]["drive_high_v"][0]
+    assert "gate pull-down" in message and "vgs_1_v (4.5 V)" in message
+    gate_v = float(message.split("leaves the gate at ")[1].split(" V")[0])
+    assert 4.4 < gate_v < 4.5
