@@ -234,8 +234,9 @@ def _csv_cells(text: str, separator: str, limit: int) -> tuple[Cells, list[int]]
     return Cells(n, values, keyed), lines
 
 
-def _json_columns(data: dict[str, Any], limit: int) -> Cells:
-    """The cells of a column-shaped body: every value an array, all of one length."""
+def _json_columns(data: dict[str, Any], limit: int, accepted: Collection[str]) -> Cells:
+    """The cells of a column-shaped body: every value an array, all of one length. Which rows carry a name is
+    only needed for names not in ``accepted`` (they refuse the rows that carry them)."""
     lengths = set()
     for name, column in data.items():
         if not isinstance(column, list):
@@ -248,7 +249,11 @@ def _json_columns(data: dict[str, Any], limit: int) -> Cells:
     if n > limit:
         raise too_many_rows(n, limit)
     # A null cell does not give the name on its row, as a row object without the key does not.
-    keyed = {name: np.array([cell is not None for cell in column], dtype=bool) for name, column in data.items()}
+    keyed = {
+        name: np.array([cell is not None for cell in column], dtype=bool)
+        for name, column in data.items()
+        if name not in accepted
+    }
     return Cells(n, data, keyed)
 
 
@@ -283,7 +288,7 @@ def read_records(
             if cells.n > limit:
                 raise too_many_rows(cells.n, limit)
         elif isinstance(data, dict):
-            cells = _json_columns(data, limit)
+            cells = _json_columns(data, limit, calc.accepted())
             label_columns = {}
             for name in dict.fromkeys(labels):
                 column = cells.values.pop(name, None)
