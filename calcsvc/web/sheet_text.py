@@ -87,3 +87,14 @@ def column_texts(values: np.ndarray, comma: bool = False) -> list[str]:
     if values.dtype.kind in "iu":
         return list(map(str, values.tolist()))
     return number_texts(values.astype(np.float64), comma)
+
+
+def guard_leaves(values: np.ndarray, comma: bool = False) -> bool:
+    """Whether ``column_texts(values, comma)`` are all cells the formula guard (``csv_cells.safe_cells``) leaves
+    as they are, known from the values without visiting the texts (False where it might not): flags, blanks and
+    numbers are left, a minus sign being the only lead their texts can start with; ``-inf`` is no number, nor,
+    to the guard, is a negative number written with a decimal comma."""
+    if values.dtype.kind not in "f":
+        return True
+    with np.errstate(invalid="ignore"):
+        return not (values < (0 if comma else -np.inf)).any() and not np.isneginf(values).any()

@@ -9,7 +9,7 @@ import numpy as np
 import pytest
 
 from calcsvc.csv_cells import csv_text, safe_cell, safe_cells
-from calcsvc.web.sheet_text import cell_value, column_texts, number_texts
+from calcsvc.web.sheet_text import cell_value, column_texts, guard_leaves, number_texts
 
 
 def awkward_values() -> np.ndarray:
@@ -88,3 +88,15 @@ def test_bulk_rounding_to_twelve_digits_agrees_with_the_formatter_near_its_ties(
     edges = np.array([1e-4, 0.99999999999995e-4, 99999999999.95, 1e11, 0.5, 9.9999999999995, 999999999999.5e-12])
     values = np.concatenate([spread, halves, edges, np.nextafter(edges, 0), np.nextafter(edges, 1)])
     assert number_texts(values, comma) == [cell_value(v, comma) for v in values.tolist()]
+
+
+@pytest.mark.parametrize("comma", [False, True])
+def test_a_column_the_guard_is_said_to_leave_it_leaves(comma: bool) -> None:
+    values = awkward_values()
+    columns = [values, np.abs(values), np.abs(values[np.isfinite(values)]), values[values != -np.inf]]
+    columns += [np.array([True, False]), np.array([-3, 0, 7]), np.array([np.nan, -np.inf]), np.array([-1e-5, 2.0])]
+    said = [guard_leaves(column, comma) for column in columns]
+    assert said == [False, True, True, not comma, True, True, False, not comma]
+    for column, leaves in zip(columns, said, strict=True):
+        texts = column_texts(column, comma)
+        assert not leaves or safe_cells(texts) == texts
