@@ -151,7 +151,7 @@ def _plain_numbers(raw: list[str], blank_is_absent: bool) -> np.ndarray | None:
     each a number the unit parser would read as itself (ASCII digits, no unit), so the values are the ones it
     would give; anything else (units, "nan", "1_0", other scripts' digits) goes to the unit parser, which
     answers it as a single request would."""
-    given = [cell for cell in raw if cell] if blank_is_absent else raw
+    given = list(filter(None, raw)) if blank_is_absent else raw
     text = "\n".join(given) + "\n" if given else ""
     if max(map(len, given), default=0) > MAX_QUANTITY_LENGTH or not (
         _plain_decimals(text) or _PLAIN_NUMBERS.fullmatch(text) is not None
