@@ -243,6 +243,8 @@ def json_columns(calc: CalculationSpec, batch: Batch) -> dict[str, Any]:
     n = parsed.n
 
     def full(column: np.ndarray, fill: Any = np.nan) -> np.ndarray:
+        if ok_rows.size == n:  # every row computed: the column itself, as the serializer needs it
+            return np.ascontiguousarray(column)
         out = np.full((n, *column.shape[1:]), fill, dtype=column.dtype)
         out[ok_rows] = column
         return out
