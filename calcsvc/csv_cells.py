@@ -59,9 +59,10 @@ def _written_column(column: list[Any], separator: str) -> list[str]:
         texts = column
     else:
         texts = list(map(str, column)) if types <= {int} else [_written(cell) for cell in column]
-    special = re.compile("[" + re.escape(separator + "".join(_QUOTED_WHEN)) + "]")
-    if special.search("\x00".join(texts)) is None:
+    joined = "\x00".join(texts)
+    if not any(char in joined for char in (separator, *_QUOTED_WHEN)):  # one fast scan per character
         return texts
+    special = re.compile("[" + re.escape(separator + "".join(_QUOTED_WHEN)) + "]")
     written = {t: '"' + t.replace('"', '""') + '"' if special.search(t) else t for t in set(texts)}  # texts repeat
     return list(map(written.__getitem__, texts))
 

@@ -3,13 +3,16 @@
 layout is parsed by the same code and gives the same answers.
 
 Column-shaped bodies and CSV tables never become one object per row: a column is the list the JSON parser or
-the CSV reader produced, which keeps large batches fast and their memory small.
+the CSV reader produced, which keeps large batches fast and their memory small. A large array of row objects is
+parsed a piece at a time, each piece's rows made columns and let go before the next, so its row objects are
+never all alive at once.
 """
 
 from __future__ import annotations
 
 import csv
 import io
+import re
 from collections.abc import Collection
 from dataclasses import dataclass, field
 from operator import methodcaller
@@ -56,6 +59,61 @@ def cells_of_rows(records: list[Any], accepted: Collection[str] = ()) -> Cells:
         if name not in accepted
     }
     return Cells(len(records), values, keyed, not_objects)
+
+
+def _joined(pieces: list[Cells]) -> Cells:
+    """The cells of consecutive pieces of one body as one: a name a piece does not give is None on its rows,
+    which do not carry it."""
+    names = list(dict.fromkeys(name for piece in pieces for name in piece.values))
+    values = {name: [cell for piece in pieces for cell in piece.column(name)] for name in names}
+    keyed = {
+        name: np.concatenate([piece.keyed.get(name, np.zeros(piece.n, dtype=bool)) for piece in pieces])
+        for name in dict.fromkeys(name for piece in pieces for name in piece.keyed)
+    }
+    starts = np.cumsum([0, *(piece.n for piece in pieces)]).tolist()
+    not_objects = [start + row for piece, start in zip(pieces, starts, strict=False) for row in piece.not_objects]
+    return Cells(starts[-1], values, keyed, not_objects)
+
+
+PIECE_BYTES = 1 << 20  # of a large array of row objects, parsed at a time
+_BETWEEN_ROWS = re.compile(rb"\}[ \t\n\r]*(,)[ \t\n\r]*\{")  # the comma between two objects
+
+
+def _array_pieces(body: bytes) -> list[tuple[int, int]] | None:
+    """Where a large JSON array's text is cut, at commas between objects, into pieces of about ``PIECE_BYTES``
+    (each piece's elements run from its start to its end); None for a body too small to cut or not an array.
+    A cut may land inside a string: then a piece does not parse and the body is parsed whole, which answers any
+    fault as before. Pieces that each parse to a non-empty array are, joined by commas, the whole array, so
+    their rows are its rows."""
+    first, last = len(body) - len(body.lstrip(b" \t\n\r")), len(body.rstrip(b" \t\n\r")) - 1
+    if last - first < 2 * PIECE_BYTES or body[first : first + 1] != b"[" or body[last : last + 1] != b"]":
+        return None
+    pieces, start = [], first + 1
+    while (found := _BETWEEN_ROWS.search(body, start + PIECE_BYTES, last)) is not None:
+        pieces.append((start, found.start(1)))
+        start = found.end(1)
+    pieces.append((start, last))
+    return pieces if len(pieces) > 1 else None
+
+
+def _rows_by_piece(
+    body: bytes, pieces: list[tuple[int, int]], accepted: Collection[str], labels: tuple[str, ...]
+) -> tuple[Cells, dict[str, list[Any]]] | None:
+    """The cells and label columns of an array of rows read a piece at a time (``_array_pieces``); None when a
+    piece is not a non-empty JSON array."""
+    cells: list[Cells] = []
+    label_columns: dict[str, list[Any]] = {name: [] for name in dict.fromkeys(labels)}
+    for start, end in pieces:
+        try:
+            rows = orjson.loads(b"[" + body[start:end] + b"]")
+        except orjson.JSONDecodeError:
+            return None
+        if not isinstance(rows, list) or not rows:
+            return None
+        for name, column in label_columns.items():
+            column += [row.pop(name, "") if isinstance(row, dict) else "" for row in rows]
+        cells.append(cells_of_rows(rows, accepted))
+    return _joined(cells), label_columns
 
 
 @dataclass
@@ -176,8 +234,9 @@ def _csv_cells(text: str, separator: str, limit: int) -> tuple[Cells, list[int]]
     return Cells(n, values, keyed), lines
 
 
-def _json_columns(data: dict[str, Any], limit: int) -> Cells:
-    """The cells of a column-shaped body: every value an array, all of one length."""
+def _json_columns(data: dict[str, Any], limit: int, accepted: Collection[str]) -> Cells:
+    """The cells of a column-shaped body: every value an array, all of one length. Which rows carry a name is
+    only needed for names not in ``accepted`` (they refuse the rows that carry them)."""
     lengths = set()
     for name, column in data.items():
         if not isinstance(column, list):
@@ -190,7 +249,11 @@ def _json_columns(data: dict[str, Any], limit: int) -> Cells:
     if n > limit:
         raise too_many_rows(n, limit)
     # A null cell does not give the name on its row, as a row object without the key does not.
-    keyed = {name: np.array([cell is not None for cell in column], dtype=bool) for name, column in data.items()}
+    keyed = {
+        name: np.array([cell is not None for cell in column], dtype=bool)
+        for name, column in data.items()
+        if name not in accepted
+    }
     return Cells(n, data, keyed)
 
 
@@ -214,12 +277,18 @@ def read_records(
     else:
         separator = ","
         _refuse_more_than_rows_hold(calc, body, limit)
+        pieces = _array_pieces(body)
+        by_piece = None if pieces is None else _rows_by_piece(body, pieces, calc.accepted(), labels)
         try:
-            data = orjson.loads(body)
+            data = None if by_piece is not None else orjson.loads(body)
         except orjson.JSONDecodeError as exc:
             raise MalformedBody(f"the request body is not valid JSON: {exc}") from exc
-        if isinstance(data, dict):
-            cells = _json_columns(data, limit)
+        if by_piece is not None:
+            cells, label_columns = by_piece
+            if cells.n > limit:
+                raise too_many_rows(cells.n, limit)
+        elif isinstance(data, dict):
+            cells = _json_columns(data, limit, calc.accepted())
             label_columns = {}
             for name in dict.fromkeys(labels):
                 column = cells.values.pop(name, None)

@@ -14,7 +14,7 @@ from calcsvc.core.spec import CalculationSpec
 from calcsvc.csv_cells import CellWriter, csv_text, safe_cells
 from calcsvc.service.batch import Batch
 from calcsvc.web.batch_json import passes
-from calcsvc.web.sheet_text import column_texts, failing_check
+from calcsvc.web.sheet_text import column_texts, failing_check, guard_leaves
 
 CHUNK_ROWS = 5_000
 
@@ -57,7 +57,11 @@ def _chunk(
             out[line] = text
         return out
 
-    results = [spread(column_texts(outcome.results[name][first:last], comma)) for name in names]
+    results = []
+    for name in names:
+        values = outcome.results[name][first:last]
+        texts = spread(column_texts(values, comma))
+        results.append(texts if guard_leaves(values, comma) else safe_cells(texts))
     chunk_passing = passing[first:last]
     failing = [""] * size
     applies = [(c, ~c.ok & ~np.isnan(c.limit)) for c in outcome.checks]  # a check with no limit does not apply
@@ -84,7 +88,7 @@ def _chunk(
         *(safe_cells(records.labels[name][low : low + size]) for name in labels),
         np.where(computed, "true", "false").tolist(),
         passes_column,
-        *(safe_cells(column) for column in results),
+        *results,
         safe_cells(failing),
         safe_cells(cautions),
         # The problem quotes the caller's column names, the labels are the caller's text: both may start a formula.

@@ -8,6 +8,7 @@ so memory stays bounded whatever the batch's size, and the bytes are the ones th
 from __future__ import annotations
 
 from collections.abc import Iterator
+from dataclasses import dataclass
 from itertools import repeat
 from typing import Any
 
@@ -40,11 +41,14 @@ def passes(outcome: Outcome, count: int) -> np.ndarray:
 
 def _texts(values: np.ndarray) -> list[bytes]:
     """Each element's JSON text, as orjson writes it anywhere in a document (NaN: null). Numbers and booleans
-    are serialized as one array and split at its commas, which none of their texts holds."""
+    are serialized as one array and split at its commas, which none of their texts holds; orjson writes a
+    float64 array's elements as it writes Python floats (NaN and infinities as null), without boxing them."""
     if not values.size:
         return []
     if values.dtype.kind in "biuf":
-        return orjson.dumps(to_json_value(values))[1:-1].split(b",")
+        if values.dtype.kind == "f":
+            values = values.astype(np.float64, copy=False)
+        return orjson.dumps(np.ascontiguousarray(values), option=_NUMPY)[1:-1].split(b",")
     return [orjson.dumps(value, option=_NUMPY) for value in to_json_value(values)]
 
 
@@ -61,8 +65,18 @@ def _listed(count: int, lists: dict[int, list[Any]]) -> list[bytes]:
     return texts
 
 
+@dataclass(frozen=True)
+class _Computed:
+    """What every chunk of the rows answer reads, found once for the batch: each row's index among the computed
+    rows (-1 for a refused row), whether each computed row passes its checks, and each check's margins."""
+
+    position: np.ndarray
+    passes: np.ndarray
+    margins: list[np.ndarray]
+
+
 def _computed_rows(
-    calc: CalculationSpec, batch: Batch, rows: np.ndarray, first: int, last: int, ok_passes: np.ndarray
+    calc: CalculationSpec, batch: Batch, rows: np.ndarray, first: int, last: int, computed: _Computed
 ) -> list[bytes]:
     """The JSON objects of the computed rows ``first`` to ``last`` (their numbers in the body: ``rows``), each
     joined from its values' texts and the keys between them; the rows are grouped by which checks apply to them
@@ -73,7 +87,7 @@ def _computed_rows(
     if batch.records.labels:
         labels = [{name: values[row] for name, values in batch.records.labels.items()} for row in numbers]
         pieces += [b',"labels":', [orjson.dumps(found) for found in labels]]
-    pieces += [b',"ok":true,"passes":', _texts(ok_passes[first:last]), b',"results":{']
+    pieces += [b',"ok":true,"passes":', _texts(computed.passes[first:last]), b',"results":{']
     names = [name for name in calc.scalar_results() if name in outcome.results]
     for j, name in enumerate(names):
         pieces += [(b"," if j else b"") + orjson.dumps(name) + b":", _texts(outcome.results[name][first:last])]
@@ -94,10 +108,10 @@ def _computed_rows(
             b',"limit":',
             _texts(c.limit[first:last]),
             b',"margin":',
-            _texts(c.margin()[first:last]),
+            _texts(margin[first:last]),
             b"}",
         ]
-        for c in outcome.checks
+        for c, margin in zip(outcome.checks, computed.margins, strict=True)
     ]
     warnings: dict[int, list[str]] = {}
     cautions: dict[int, list[str]] = {}
@@ -156,21 +170,16 @@ def _joined(checks: list[list[Any]]) -> list[Any]:
     return joined
 
 
-def _row_chunk(
-    calc: CalculationSpec, batch: Batch, low: int, high: int, position: np.ndarray, ok_passes: np.ndarray
-) -> bytes:
-    """The answer's objects of rows ``low`` to ``high``, comma-separated (``position``: each row's index among the
-    computed rows, -1 for a refused row; ``ok_passes``: whether each computed row passes its checks)."""
-    at = position[low:high]
+def _row_chunk(calc: CalculationSpec, batch: Batch, low: int, high: int, computed: _Computed) -> bytes:
+    """The answer's objects of rows ``low`` to ``high``, comma-separated."""
+    at = computed.position[low:high]
     lines = np.arange(low, high)
-    computed = at >= 0
-    ks = at[computed]
-    texts = _computed_rows(calc, batch, lines[computed], int(ks[0]), int(ks[-1]) + 1, ok_passes) if ks.size else []
-    if not computed.all():
+    was = at >= 0
+    ks = at[was]
+    texts = _computed_rows(calc, batch, lines[was], int(ks[0]), int(ks[-1]) + 1, computed) if ks.size else []
+    if not was.all():
         done = iter(texts)
-        texts = [
-            next(done) if c else _refused(batch, row) for row, c in zip(lines.tolist(), computed.tolist(), strict=True)
-        ]
+        texts = [next(done) if c else _refused(batch, row) for row, c in zip(lines.tolist(), was.tolist(), strict=True)]
     return b",".join(texts)
 
 
@@ -193,11 +202,12 @@ def streamed_rows(calc: CalculationSpec, batch: Batch, head: dict[str, Any]) -> 
     n = batch.parsed.n
     position = np.full(n, -1, dtype=np.int64)
     position[batch.ok_rows] = np.arange(batch.ok_rows.size)
-    ok_passes = passes(batch.outcome, batch.ok_rows.size)
+    margins = [check.margin() for check in batch.outcome.checks]
+    computed = _Computed(position, passes(batch.outcome, batch.ok_rows.size), margins)
     yield orjson.dumps(head, option=_NUMPY)[:-1] + b',"rows":['
     for low in range(0, n, CHUNK_ROWS):
         with paused_gc():
-            chunk = _row_chunk(calc, batch, low, min(n, low + CHUNK_ROWS), position, ok_passes)
+            chunk = _row_chunk(calc, batch, low, min(n, low + CHUNK_ROWS), computed)
         yield (b"," if low else b"") + chunk
     yield b"]}"
 
@@ -233,6 +243,8 @@ def json_columns(calc: CalculationSpec, batch: Batch) -> dict[str, Any]:
     n = parsed.n
 
     def full(column: np.ndarray, fill: Any = np.nan) -> np.ndarray:
+        if ok_rows.size == n:  # every row computed: the column itself, as the serializer needs it
+            return np.ascontiguousarray(column)
         out = np.full((n, *column.shape[1:]), fill, dtype=column.dtype)
         out[ok_rows] = column
         return out

@@ -8,6 +8,7 @@ from collections.abc import Iterable
 from typing import Any
 
 import numpy as np
+import orjson
 
 # Enough for any design value; few enough that float noise (0.019500000000000003) never shows.
 SIGNIFICANT_DIGITS = 12
@@ -42,34 +43,41 @@ def failing_checks(checks: Iterable[dict[str, Any]], comma: bool = False) -> dic
 
 
 def number_texts(values: np.ndarray, comma: bool = False) -> list[str]:
-    """``cell_value`` of every element of a float column, formatted in bulk by one ``%`` over the column.
+    """``cell_value`` of every element of a float column, formatted in bulk.
 
-    ``number_text`` is repr(float("%.12g" % value)); the float nearest a decimal of at most 12 digits prints back
-    as those digits, so the texts differ only in layout: a whole number gets ".0" (written "%.0f.0" here), and
-    values repr would lay out otherwise (exponents 12 to 15, subnormals, which carry fewer digits), that do not
-    apply (NaN) or that 12 digits round to a whole number (within 5e-12 of their size of one: 284.99999999999994
-    is "285.0") are formatted one by one."""
+    ``number_text`` is repr(float("%.12g" % value)): the double nearest the value's 12-digit decimal, written
+    shortest. For sizes from 1e-4 to 1e11 that double is found with numpy: the value scaled to twelve digits
+    before the point (by an exact power of ten: one rounding, off by under 1e-4), rounded to a whole number and
+    divided back (both exact, so the quotient is the nearest double); orjson writes each as repr does there
+    (the shortest digits, positional, ".0" on whole numbers). A value whose scaled fraction lies within 1e-3
+    of one half, where the one rounding could decide the twelfth digit, and every other size or a value that
+    does not apply (NaN) are formatted one by one."""
     if values.size == 0:
         return []
     size = np.abs(values)
-    with np.errstate(invalid="ignore"):
-        whole = np.isfinite(values) & (values == np.round(values)) & (size < 1e11)
-        near_whole = ~whole & (np.abs(values - np.round(values)) < 1e-11 * size)
-        odd = (
-            np.isnan(values)
-            | near_whole
-            | ((size >= 1e11) & (size < 1e17))
-            | ((size > 0) & (size < np.finfo(np.float64).tiny))
+    with np.errstate(divide="ignore", invalid="ignore", over="ignore"):
+        bulk = ((size >= 1e-4) & (size < 1e11)) | (values == 0)
+        exponent = np.floor(np.log10(np.where(bulk & (size > 0), size, 1.0)))
+        scale = 10.0 ** (SIGNIFICANT_DIGITS - 1 - exponent)
+        scaled = size * scale
+        exponent += (scaled >= 10.0**SIGNIFICANT_DIGITS).astype(np.float64) - (
+            scaled < 10.0 ** (SIGNIFICANT_DIGITS - 1)
         )
-    layouts = (f"%.{SIGNIFICANT_DIGITS}g\n", "%.0f.0\n")
-    formats = list(map(layouts.__getitem__, whole.view(np.uint8).tolist()))
-    arguments = values.tolist()
-    for k in np.flatnonzero(odd).tolist():
-        formats[k], arguments[k] = "%s\n", cell_value(arguments[k])
-    text = "".join(formats) % tuple(arguments)
+        scale = 10.0 ** (SIGNIFICANT_DIGITS - 1 - exponent)
+        scaled = size * scale
+        fraction = scaled - np.floor(scaled)
+        rounded = np.copysign((np.floor(scaled) + (fraction > 0.5)) / scale, values)
+        bulk &= (np.abs(fraction - 0.5) >= 1e-3) & ((np.abs(rounded) >= 1e-4) | (values == 0))
+    text = orjson.dumps(rounded[bulk], option=orjson.OPT_SERIALIZE_NUMPY).decode()[1:-1]
     if comma:
-        text = text.replace(".", ",")
-    return text.split("\n")[:-1]
+        text = text.replace(",", "\n").replace(".", ",")
+    texts = text.split("\n" if comma else ",") if text else []
+    if len(texts) == values.size:
+        return texts
+    out = np.empty(values.size, dtype=object)
+    out[bulk] = texts
+    out[~bulk] = [cell_value(value, comma) for value in values[~bulk].tolist()]
+    return out.tolist()
 
 
 def column_texts(values: np.ndarray, comma: bool = False) -> list[str]:
@@ -79,3 +87,14 @@ def column_texts(values: np.ndarray, comma: bool = False) -> list[str]:
     if values.dtype.kind in "iu":
         return list(map(str, values.tolist()))
     return number_texts(values.astype(np.float64), comma)
+
+
+def guard_leaves(values: np.ndarray, comma: bool = False) -> bool:
+    """Whether ``column_texts(values, comma)`` are all cells the formula guard (``csv_cells.safe_cells``) leaves
+    as they are, known from the values without visiting the texts (False where it might not): flags, blanks and
+    numbers are left, a minus sign being the only lead their texts can start with; ``-inf`` is no number, nor,
+    to the guard, is a negative number written with a decimal comma."""
+    if values.dtype.kind not in "f":
+        return True
+    with np.errstate(invalid="ignore"):
+        return not (values < (0 if comma else -np.inf)).any() and not np.isneginf(values).any()

@@ -9,7 +9,7 @@ import numpy as np
 import pytest
 
 from calcsvc.csv_cells import csv_text, safe_cell, safe_cells
-from calcsvc.web.sheet_text import cell_value, column_texts, number_texts
+from calcsvc.web.sheet_text import cell_value, column_texts, guard_leaves, number_texts
 
 
 def awkward_values() -> np.ndarray:
@@ -76,3 +76,27 @@ def test_csv_text_is_what_the_csv_writer_writes(separator: str) -> None:
         assert csv_text(columns, separator) == out.getvalue()
     assert csv_text([[1, 2], ["a", "b,c"]], ",") == '1,a\n2,"b,c"\n'
     assert csv_text([[], []], ",") == ""
+
+
+@pytest.mark.parametrize("comma", [False, True])
+def test_bulk_rounding_to_twelve_digits_agrees_with_the_formatter_near_its_ties(comma: bool) -> None:
+    """Where the bulk path rounds in numpy: random values over its sizes, and decimals of thirteen digits ending
+    in 5 (halfway in decimal, a hair either side in binary), whose twelfth digit the rounding decides."""
+    rng = np.random.default_rng(12)
+    spread = 10.0 ** rng.uniform(-4.5, 11.5, 100_000) * rng.choice([-1.0, 1.0], 100_000)
+    halves = (rng.integers(10**11, 10**12, 50_000) * 10 + 5) * 10.0 ** rng.integers(-17, -1, 50_000)
+    edges = np.array([1e-4, 0.99999999999995e-4, 99999999999.95, 1e11, 0.5, 9.9999999999995, 999999999999.5e-12])
+    values = np.concatenate([spread, halves, edges, np.nextafter(edges, 0), np.nextafter(edges, 1)])
+    assert number_texts(values, comma) == [cell_value(v, comma) for v in values.tolist()]
+
+
+@pytest.mark.parametrize("comma", [False, True])
+def test_a_column_the_guard_is_said_to_leave_it_leaves(comma: bool) -> None:
+    values = awkward_values()
+    columns = [values, np.abs(values), np.abs(values[np.isfinite(values)]), values[values != -np.inf]]
+    columns += [np.array([True, False]), np.array([-3, 0, 7]), np.array([np.nan, -np.inf]), np.array([-1e-5, 2.0])]
+    said = [guard_leaves(column, comma) for column in columns]
+    assert said == [False, True, True, not comma, True, True, False, not comma]
+    for column, leaves in zip(columns, said, strict=True):
+        texts = column_texts(column, comma)
+        assert not leaves or safe_cells(texts) == texts

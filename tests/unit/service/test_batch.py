@@ -7,9 +7,12 @@ import json
 
 import numpy as np
 import pytest
+from hypothesis import given, settings
+from hypothesis import strategies as st
 
 from calcsvc.core import led_string
 from calcsvc.data.database import Database
+from calcsvc.service import batch
 from calcsvc.service.batch import parse_cells, parse_rows, read_records, run_batch
 from calcsvc.service.batch_read import Cells
 from calcsvc.service.errors import InvalidInput, MalformedBody, PhysicallyImpossible, TooLarge, UnknownPart
@@ -117,3 +120,13 @@ def test_a_plain_table_is_read_as_the_csv_reader_reads_it(table: str, monkeypatc
 def test_a_plain_table_past_the_row_limit_is_refused_as_the_reader_refuses_it() -> None:
     with pytest.raises(TooLarge, match="more than 2"):
         read_records(CALC, b"supply_v\n1\n2\n3\n", True, 2)
+
+
+@settings(derandomize=True, max_examples=500)
+@given(st.lists(st.text(alphabet="0123456789.+-eE _", max_size=6), max_size=5))
+def test_the_quick_proof_of_plain_decimals_never_takes_what_the_pattern_refuses(cells: list[str]) -> None:
+    text = "".join(f"{cell}\n" for cell in cells)
+    if batch._plain_decimals(text):
+        assert batch._PLAIN_NUMBERS.fullmatch(text) is not None
+    if all(cell and cell != "." and set(cell) <= set("0123456789.") and cell.count(".") <= 1 for cell in cells):
+        assert batch._plain_decimals(text)
