@@ -193,8 +193,9 @@ def parse_cells(
         errors.add(row, "row", "each row must be an object of input names and values")
     # Inputs no row mentions are filled without visiting the rows; most batches use a few columns.
     seen = set(cells.values)
-    for name in seen - allowed:
-        errors.add_rows(cells.carried_by(name), name, "Unknown field.")
+    for name in cells.values:  # in the order given, so one body always gets one answer (a set's order varies)
+        if name not in allowed:
+            errors.add_rows(cells.carried_by(name), name, "Unknown field.")
 
     columns: Columns = {}
     for spec in calc.inputs:

@@ -15,6 +15,7 @@ import io
 import re
 from collections.abc import Collection
 from dataclasses import dataclass, field
+from itertools import chain
 from operator import methodcaller
 from typing import Any
 
@@ -51,7 +52,7 @@ def cells_of_rows(records: list[Any], accepted: Collection[str] = ()) -> Cells:
     not_objects = [row for row, record in enumerate(records) if not isinstance(record, dict)]
     if not_objects:
         records = [r if isinstance(r, dict) else {} for r in records]
-    names: set[str] = set().union(*records)
+    names = dict.fromkeys(chain.from_iterable(records))  # in the order given: one body, one answer
     values = {name: list(map(methodcaller("get", name), records)) for name in names}
     keyed = {
         name: np.array(list(map(methodcaller("__contains__", name), records)), dtype=bool)

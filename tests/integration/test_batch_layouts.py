@@ -250,3 +250,14 @@ def test_the_rows_answer_is_the_columns_answer_row_by_row_byte_for_byte(
     answer = orjson.loads(rows)
     assert any(not row["ok"] for row in answer["rows"]) and any(row["ok"] for row in answer["rows"])
     assert len({len(row["checks"]) for row in answer["rows"] if row["ok"]}) == (1 if name == "led-string" else 2)
+
+
+def test_a_rows_unknown_fields_are_named_in_the_order_given(client: FlaskClient) -> None:
+    # Same body, same answer, whatever the worker's string hashing: not a set's order.
+    unknown = ["zeta", "alpha", "mu", "beta", "omega", "gamma", "kappa", "delta"]
+    row = {"supply_v": 12, "vf_typ_v": 2.1, "vf_min_v": 1.9, "vf_max_v": 2.5, "if_max_a": 0.03,
+           "leds_in_series": 3, "current_a": 0.02, **dict.fromkeys(unknown, 1)}  # fmt: skip
+    for body in ([row], {name: [value] for name, value in row.items()}):
+        sent = orjson.dumps(body)  # as given: the test client's json= would sort the keys
+        answer = client.post("/v1/batch/led-string", data=sent, content_type="application/json").get_json()
+        assert list(answer["rows"][0]["problem"]["errors"]) == unknown
