@@ -39,7 +39,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from calcsvc.core import eseries, led_heat, thermal_inputs
+from calcsvc.core import blocks, eseries, led_heat, thermal_inputs
 from calcsvc.core.outcome import (
     Check,
     FloatArray,
@@ -48,7 +48,6 @@ from calcsvc.core.outcome import (
     Rules,
     Violation,
     add_notices,
-    raise_violations,
 )
 from calcsvc.core.spec import E_SERIES, CalculationSpec, Input, Result, Role, columns_as, positive
 
@@ -188,10 +187,13 @@ def compute(inputs: LedStringInputs, validated: bool = False) -> Outcome:
     """The constant-drop design (``design``) and its heat at ``ambient_c`` (``led_heat``), whose hot worst-case
     ``led_current_rating`` replaces the constant-drop one.
 
-    Raises DomainError when any row violates ``validate``.
+    Raises DomainError when any row violates ``validate``; ``validated``: the caller has just validated these very
+    inputs.
     """
-    if not validated:  # the caller has just validated these very inputs
-        raise_violations(validate(inputs))
+    return blocks.evaluate(inputs, validate, _designed_with_heat, validated)
+
+
+def _designed_with_heat(inputs: LedStringInputs) -> Outcome:
     cold = design(inputs)
     r = cold.results["resistor_ohm"]
     tolerance = eseries.tolerance_rows(inputs.resistor_tolerance, inputs.e_series)

@@ -1,0 +1,132 @@
+"""Evaluating a calculation over many rows in blocks of rows that stay in the processor's cache.
+
+A calculation's numpy work makes tens of temporaries per row: at a million rows each is an 8 MB array that the
+allocator maps afresh (glibc maps every allocation over 128 KiB), so every temporary faults in new pages and
+streams through memory. Evaluated ``BLOCK_ROWS`` rows at a time, the temporaries are reused from the allocator's
+free lists and stay in cache; the answer is the same, because every calculation is row-wise: a row's results,
+checks, notices and violations depend on that row alone.
+
+What stays exact:
+- violations: the blocks are only tested for validity; when any block has a violation the whole input is
+  validated once more, so messages quote the same (first bad) row and rows are numbered as without blocks;
+- results and checks: each block's columns are written into whole-length columns;
+- notices: a notice belongs to the answer when some row raises it, in the calculation's own order; where the
+  blocks' lists differ, that order is read from one evaluation of a row raising each notice.
+Anything else (a result or check that is not one value per row, checks that differ between blocks) is
+evaluated without blocks.
+"""
+
+from __future__ import annotations
+
+import dataclasses
+from collections.abc import Callable
+from typing import TypeVar
+
+import numpy as np
+
+from calcsvc.core.outcome import Check, Notice, Outcome, Violation, raise_violations, row_count, take
+
+T = TypeVar("T")
+
+BLOCK_ROWS = 16_384
+"""Rows per block: measured at 1,000,000 LED-string rows (benchmarks/RESULTS.md); a block's temporaries,
+about 130 KiB each, are then reused from the allocator's free lists instead of mapped afresh."""
+
+
+def evaluate(
+    inputs: T, validate: Callable[[T], list[Violation]], outcome: Callable[[T], Outcome], validated: bool
+) -> Outcome:
+    """``outcome`` of ``inputs`` (validated inputs), evaluated in blocks when there are many rows; raises
+    DomainError with ``validate``'s violations of the whole input unless ``validated``."""
+    n = row_count(inputs)
+    if n <= BLOCK_ROWS or not _splittable(inputs, n):
+        if not validated:
+            raise_violations(validate(inputs))
+        return outcome(inputs)
+    blocks = [_rows(inputs, start, min(start + BLOCK_ROWS, n)) for start in range(0, n, BLOCK_ROWS)]
+    if not validated and any(v.rows.any() for block in blocks for v in validate(block)):
+        raise_violations(validate(inputs))  # the whole input's messages and row numbers
+    parts = [outcome(block) for block in blocks]
+    merged = _merged(parts, blocks, n, inputs, outcome)
+    return outcome(inputs) if merged is None else merged
+
+
+def _splittable(inputs: object, n: int) -> bool:
+    """Every array field holds one entry per row (nothing such as a list of sweep points shared by all)."""
+    arrays = [getattr(inputs, f.name) for f in dataclasses.fields(inputs)]  # type: ignore[arg-type]
+    return all(x.shape[0] == n for x in arrays if isinstance(x, np.ndarray) and x.ndim >= 1)
+
+
+def _rows(inputs: T, start: int, stop: int) -> T:
+    changes = {}
+    for f in dataclasses.fields(inputs):  # type: ignore[arg-type]
+        value = getattr(inputs, f.name)
+        if isinstance(value, np.ndarray) and value.ndim >= 1:
+            changes[f.name] = value[start:stop]
+    return dataclasses.replace(inputs, **changes)  # type: ignore[type-var]
+
+
+def _merged(
+    parts: list[Outcome], blocks: list[T], n: int, inputs: T, outcome: Callable[[T], Outcome]
+) -> Outcome | None:
+    """The blocks' outcomes as one; None where they do not line up one value per row."""
+    first = parts[0]
+    names = list(first.results)
+    kinds = [(c.name, c.sense, c.detail) for c in first.checks]
+    for part in parts:
+        if list(part.results) != names or [(c.name, c.sense, c.detail) for c in part.checks] != kinds:
+            return None
+    results = {name: _joined([p.results[name] for p in parts], n) for name in names}
+    checks = []
+    for j, (name, sense, detail) in enumerate(kinds):
+        columns = [_joined([getattr(p.checks[j], column) for p in parts], n) for column in ("ok", "value", "limit")]
+        checks.append(Check(name, *columns, sense, detail))  # type: ignore[arg-type]
+    if any(column is None for column in results.values()) or any(
+        column is None for c in checks for column in (c.ok, c.value, c.limit)
+    ):
+        return None
+    sizes = [row_count(block) for block in blocks]
+    warnings = _notices([p.warnings for p in parts], sizes, inputs, outcome, "warnings")
+    cautions = _notices([p.cautions for p in parts], sizes, inputs, outcome, "cautions")
+    if warnings is None or cautions is None:
+        return None
+    return Outcome(results=results, checks=checks, warnings=warnings, cautions=cautions)  # type: ignore[arg-type]
+
+
+def _joined(columns: list[np.ndarray], n: int) -> np.ndarray | None:
+    """The blocks' columns end to end; None unless each is a column of its block's rows."""
+    if not all(isinstance(c, np.ndarray) and c.ndim == 1 for c in columns):
+        return None
+    if sum(c.shape[0] for c in columns) != n or len({c.dtype for c in columns}) != 1:
+        return None
+    return np.concatenate(columns)
+
+
+def _notices(
+    parts: list[list[Notice]], sizes: list[int], inputs: T, outcome: Callable[[T], Outcome], which: str
+) -> list[Notice] | None:
+    """Each message raised by some block, with its rows over the whole input, in the calculation's order."""
+    n = sum(sizes)
+    offsets = np.cumsum([0, *sizes]).tolist()
+    rows: dict[str, np.ndarray] = {}
+    first_row: dict[str, int] = {}
+    for b, notices in enumerate(parts):
+        if len({notice.message for notice in notices}) != len(notices):
+            return None  # one message twice: its notices cannot be told apart by message
+        for notice in notices:
+            if notice.rows.shape != (sizes[b],):
+                return None
+            if notice.message not in rows:
+                rows[notice.message] = np.zeros(n, dtype=bool)
+                first_row[notice.message] = offsets[b] + int(np.argmax(notice.rows))
+            rows[notice.message][offsets[b] : offsets[b + 1]] = notice.rows
+    orders = {tuple(notice.message for notice in notices) for notices in parts if notices}
+    order = next(iter(orders)) if len(orders) == 1 else ()
+    if set(order) != set(rows):
+        # The calculation's own order, from its outcome on one row raising each message.
+        picked = np.zeros(n, dtype=bool)
+        picked[list(first_row.values())] = True
+        order = tuple(notice.message for notice in getattr(outcome(take(inputs, picked)), which))
+        if sorted(order) != sorted(rows):
+            return None
+    return [Notice(rows[message], message) for message in order]
