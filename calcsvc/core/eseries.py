@@ -221,6 +221,13 @@ def known_series(names: npt.ArrayLike) -> BoolArray:
     return known
 
 
+def all_known(names: npt.ArrayLike) -> bool:
+    """Whether every name is one of the series in ``SERIES`` (``known_series(names).all()``, from the cached masks)."""
+    arr = np.asarray(names, dtype=str)
+    masks = _series_masks(arr)
+    return all(name in SERIES for name in masks) and sum(np.count_nonzero(m) for m in masks.values()) == arr.size
+
+
 def require_known_series(violations: list[Violation] | Rules, names: npt.ArrayLike) -> None:
     """Record a violation of the ``e_series`` input on every row whose series name is unknown."""
     unknown = ~known_series(names)

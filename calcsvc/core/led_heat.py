@@ -34,7 +34,7 @@ from calcsvc.core.outcome import Check, FloatArray, Notice, Outcome, Rules, Viol
 
 if TYPE_CHECKING:  # ``led_string`` builds on this module: its inputs type is for the annotations only
     from calcsvc.core.channel_inputs import ChannelInputs
-    from calcsvc.core.led_string import LedStringInputs
+    from calcsvc.core.led_string_inputs import LedStringInputs
 
 ABSOLUTE_ZERO_C = -273.15
 DETAILS = {
@@ -83,6 +83,26 @@ def require_all(rules: Rules, i: LedStringInputs | ChannelInputs) -> None:
         knee = i.if_derating_knee_c
         message = "if_derating_knee_c ({} °C) must lie below led_tj_max_c"
         rules.require(knee >= tj_max, "if_derating_knee_c", message, knee)
+
+
+_BOUNDED = ("ambient_c", "led_tj_max_c", "led_rth_jb_k_per_w", "led_rth_ba_k_per_w", "vf_tempco_v_per_k",
+            "resistor_rated_to_c", "resistor_zero_power_c")  # fmt: skip
+_BIG = np.finfo(np.float64).max
+_LOW = np.array([np.nextafter(ABSOLUTE_ZERO_C, np.inf), -_BIG, 0.0, 0.0, -_BIG, -_BIG, -_BIG])[:, None]
+_HIGH = np.array([_BIG, _BIG, _BIG, _BIG, 0.0, _BIG, _BIG])[:, None]
+
+
+def plainly_valid(i: LedStringInputs | ChannelInputs) -> bool:
+    """True only when no rule of ``require_all`` can object: the usual call passes this in a few array operations
+    and skips judging the rules one by one (it may say False of valid inputs; the rules then decide)."""
+    x = np.array([getattr(i, name) for name in _BOUNDED])
+    ta, tj_max, k, rated_to, zero = x[0], x[1], x[4], x[5], x[6]
+    with np.errstate(invalid="ignore", over="ignore"):
+        good = (x >= _LOW) & (x <= _HIGH)  # NaN fails: these inputs must be finite numbers
+        good[0] &= tj_max > np.maximum(ta, thermal.REFERENCE_C)
+        good[1] &= i.vf_min_v + k * (tj_max - thermal.REFERENCE_C) > 0
+        good[2] &= (zero > rated_to) & ~(i.if_derating_knee_c >= tj_max)
+    return bool(good.all())
 
 
 def _point(i: LedStringInputs, supply_v: FloatArray, vf_v: FloatArray, resistor_ohm: FloatArray) -> thermal.LedPoint:
