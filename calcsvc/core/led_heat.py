@@ -145,10 +145,10 @@ def outcome(
         np.concatenate([i.vf_typ_v[None], worst_forward_voltages(i, high_supply, resistor_low_ohm)]),
         np.array([resistor_ohm, resistor_low_ohm, resistor_low_ohm, resistor_low_ohm, resistor_low_ohm]),
     )
-    hottest = np.max(_hottest(both)[1:], axis=0)
-    heating = np.max(both.heating_at_max_c[1:], axis=0)
+    hottest = _hottest(both)[1:].max(axis=0)
+    heating = both.heating_at_max_c[1:].max(axis=0)
     runaway = both.runaway[1:].any(axis=0)
-    current_max = np.max(both.current_a[1:], axis=0)
+    current_max = both.current_a[1:].max(axis=0)
     resistor_power = current_max**2 * resistor_low_ohm
     resistor_limit = rating_w * thermal.resistor_derating(ta, i.resistor_rated_to_c, i.resistor_zero_power_c)
     current_limit = i.if_max_a * thermal.current_derating(ta, i.if_derating_knee_c, i.led_tj_max_c)

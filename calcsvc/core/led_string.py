@@ -47,6 +47,7 @@ VERSION = "3"
 
 # Common resistor power ratings, watts (common practice).
 POWER_RATINGS_W = np.array([0.125, 0.25, 0.5, 1.0, 2.0, 3.0, 5.0])
+_RATING_OR_NONE = np.append(POWER_RATINGS_W, np.nan)  # past the largest: none is enough
 DERATING_FACTOR = 2.0  # choose a rating at least twice the worst-case dissipation (common practice)
 HEADROOM_FRACTION = 0.1  # at least 10 % of the supply across the resistor to regulate (common practice)
 HOT_RESISTOR_W = 0.5  # a resistor dissipating this much runs noticeably hot (common practice)
@@ -61,9 +62,8 @@ def string_current(headroom_v: np.ndarray, resistor_ohm: np.ndarray | float) -> 
 def minimum_rating_w(dissipation_w: FloatArray) -> FloatArray:
     """The smallest standard power rating that fits a resistor dissipating ``dissipation_w`` at worst: at least
     DERATING_FACTOR times it (common practice), per row; NaN when no rating up to the largest is enough."""
-    need_w = DERATING_FACTOR * dissipation_w
-    fits = POWER_RATINGS_W[None, :] >= need_w[:, None]
-    return np.where(fits.any(axis=1), POWER_RATINGS_W[np.argmax(fits, axis=1)], np.nan)
+    # The first rating at or above the need (the ratings ascend; NaN sorts after them all): one pass a row.
+    return _RATING_OR_NONE[np.searchsorted(POWER_RATINGS_W, DERATING_FACTOR * dissipation_w)]
 
 
 def compute(inputs: LedStringInputs, validated: bool = False) -> Outcome:
@@ -77,11 +77,11 @@ def compute(inputs: LedStringInputs, validated: bool = False) -> Outcome:
 
 
 def _designed_with_heat(inputs: LedStringInputs) -> Outcome:
-    cold = design(inputs)
-    r = cold.results["resistor_ohm"]
-    tolerance = eseries.tolerance_rows(inputs.resistor_tolerance, inputs.e_series)
+    cold, r_low = _design(inputs)
     rating = cold.results["resistor_rating_w"]
-    heat = led_heat.outcome(inputs, r, r * (1.0 - tolerance), np.where(np.isnan(rating), POWER_RATINGS_W[-1], rating))
+    heat = led_heat.outcome(
+        inputs, cold.results["resistor_ohm"], r_low, np.where(np.isnan(rating), POWER_RATINGS_W[-1], rating)
+    )
     hot = {c.name: c for c in heat.checks}
     return Outcome(
         results={**cold.results, **heat.results},
@@ -95,6 +95,11 @@ def design(inputs: LedStringInputs) -> Outcome:
     """Choose each string's resistor and give nominal and worst-case current and dissipation with constant
     forward voltages (the module's model); the channel review judges heat in its own stage. ``inputs`` must
     have passed ``validate``."""
+    return _design(inputs)[0]
+
+
+def _design(inputs: LedStringInputs) -> tuple[Outcome, FloatArray]:
+    """``design`` and the resistor's lowest value, which its heat is judged at."""
     i = inputs
     n = i.supply_v.shape[0]
     vs, ts, nl = i.supply_v, i.supply_tolerance, i.leds_in_series
@@ -204,7 +209,7 @@ def design(inputs: LedStringInputs) -> Outcome:
             ),
         ],
     )
-    return Outcome(results=results, checks=checks, warnings=warnings, cautions=cautions)
+    return Outcome(results=results, checks=checks, warnings=warnings, cautions=cautions), r_low
 
 
 # ---- declaration --------------------------------------------------------------------------------------------
