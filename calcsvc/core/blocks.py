@@ -76,10 +76,11 @@ def _merged(
     for part in parts:
         if list(part.results) != names or [(c.name, c.sense, c.detail) for c in part.checks] != kinds:
             return None
-    results = {name: _joined([p.results[name] for p in parts], n) for name in names}
+    join = _joiner(blocks, inputs, n)
+    results = {name: join([p.results[name] for p in parts]) for name in names}
     checks = []
     for j, (name, sense, detail) in enumerate(kinds):
-        columns = [_joined([getattr(p.checks[j], column) for p in parts], n) for column in ("ok", "value", "limit")]
+        columns = [join([getattr(p.checks[j], column) for p in parts]) for column in ("ok", "value", "limit")]
         checks.append(Check(name, *columns, sense, detail))  # type: ignore[arg-type]
     if any(column is None for column in results.values()) or any(
         column is None for c in checks for column in (c.ok, c.value, c.limit)
@@ -91,6 +92,24 @@ def _merged(
     if warnings is None or cautions is None:
         return None
     return Outcome(results=results, checks=checks, warnings=warnings, cautions=cautions)  # type: ignore[arg-type]
+
+
+def _joiner(blocks: list[T], inputs: T, n: int) -> Callable[[list[np.ndarray]], np.ndarray | None]:
+    """``_joined`` once for each distinct set of the blocks' arrays: an array a block's outcome holds twice (a
+    result that is also a check's value) or that is a block's slice of an input (a check's limit) is shared by
+    the joined outcome as by one evaluation of every row, instead of copied again."""
+    joined: dict[tuple[int, ...], np.ndarray | None] = {}
+    for f in dataclasses.fields(inputs):  # type: ignore[arg-type]
+        if isinstance(getattr(inputs, f.name), np.ndarray):
+            joined[tuple(id(getattr(block, f.name)) for block in blocks)] = getattr(inputs, f.name)
+
+    def join(columns: list[np.ndarray]) -> np.ndarray | None:
+        key = tuple(map(id, columns))  # the blocks and their outcomes are alive: no id is reused meanwhile
+        if key not in joined:
+            joined[key] = _joined(columns, n)
+        return joined[key]
+
+    return join
 
 
 def _joined(columns: list[np.ndarray], n: int) -> np.ndarray | None:

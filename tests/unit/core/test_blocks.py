@@ -117,6 +117,26 @@ def test_blocks_answer_as_one_evaluation(compute: Any, rows: Any, seed: int, mon
     assert_same(evaluated(compute, inputs, SMALL_BLOCK, monkeypatch), whole)
 
 
+def shared(outcome: Outcome, inputs: Any) -> list[set[str]]:
+    """Which of the outcome's arrays and the inputs are one and the same array."""
+    arrays = {f"input {f.name}": getattr(inputs, f.name) for f in dataclasses.fields(inputs)}
+    arrays |= {f"result {name}": column for name, column in outcome.results.items()}
+    for c in outcome.checks:
+        arrays |= {f"{c.name}.{column}": getattr(c, column) for column in ("ok", "value", "limit")}
+    groups: dict[int, set[str]] = {}
+    for label, array in arrays.items():
+        groups.setdefault(id(array), set()).add(label)
+    return sorted((group for group in groups.values() if len(group) > 1), key=sorted)
+
+
+@pytest.mark.parametrize(("compute", "rows"), CASES, ids=["led-string", "bjt-switch"])
+def test_blocks_share_arrays_as_one_evaluation_does(compute: Any, rows: Any, monkeypatch: Any) -> None:
+    inputs = rows(ROWS, 6)
+    whole = shared(evaluated(compute, inputs, 10**9, monkeypatch), inputs)
+    assert whole  # a check's value that is also a result, a limit that is an input
+    assert shared(evaluated(compute, inputs, SMALL_BLOCK, monkeypatch), inputs) == whole
+
+
 @pytest.mark.parametrize(("compute", "rows"), CASES, ids=["led-string", "bjt-switch"])
 def test_notices_keep_their_order_when_blocks_raise_different_ones(compute: Any, rows: Any, monkeypatch: Any) -> None:
     # Sorted by which notices a row raises, so the first blocks and the last raise different sets.
