@@ -78,6 +78,7 @@ def switch_rows(n: int, seed: int) -> bjt_switch.BjtSwitchInputs:
 def evaluated(compute: Callable[[Any], Outcome], inputs: Any, block_rows: int, monkeypatch: Any) -> Any:
     """The outcome, or the DomainError's violations, with ``block_rows`` rows per block."""
     monkeypatch.setattr(blocks, "BLOCK_ROWS", block_rows)
+    monkeypatch.setattr(blocks, "BLOCKED_FROM", 0)
     try:
         return compute(inputs)
     except DomainError as error:
@@ -187,4 +188,5 @@ def judged_when_high(i: Levels) -> Outcome:
 def test_blocks_that_do_not_line_up_are_evaluated_as_one(monkeypatch: Any) -> None:
     inputs = Levels(np.arange(100.0))
     monkeypatch.setattr(blocks, "BLOCK_ROWS", 8)
+    monkeypatch.setattr(blocks, "BLOCKED_FROM", 0)
     assert_same(blocks.evaluate(inputs, lambda i: [], judged_when_high, validated=False), judged_when_high(inputs))
