@@ -30,7 +30,7 @@ from typing import TYPE_CHECKING
 import numpy as np
 
 from calcsvc.core import thermal
-from calcsvc.core.outcome import Check, FloatArray, Notice, Outcome, Rules, Violation, add_notices
+from calcsvc.core.outcome import Check, FloatArray, Notice, Outcome, Rules, Violation, add_notices, stacked_rows
 
 if TYPE_CHECKING:  # ``led_string`` builds on this module: its inputs type is for the annotations only
     from calcsvc.core.channel_inputs import ChannelInputs
@@ -95,13 +95,15 @@ _HIGH = np.array([_BIG, _BIG, _BIG, _BIG, 0.0, _BIG, _BIG])[:, None]
 def plainly_valid(i: LedStringInputs | ChannelInputs) -> bool:
     """True only when no rule of ``require_all`` can object: the usual call passes this in a few array operations
     and skips judging the rules one by one (it may say False of valid inputs; the rules then decide)."""
-    x = np.array([getattr(i, name) for name in _BOUNDED])
-    ta, tj_max, k, rated_to, zero = x[0], x[1], x[4], x[5], x[6]
+    x = stacked_rows(i, (*_BOUNDED, "vf_min_v", "if_derating_knee_c"))
+    if x is None:
+        return False
+    ta, tj_max, k, rated_to, zero, vf_min, knee = x[0], x[1], x[4], x[5], x[6], x[7], x[8]
     with np.errstate(invalid="ignore", over="ignore"):
-        good = (x >= _LOW) & (x <= _HIGH)  # NaN fails: these inputs must be finite numbers
+        good = (x[:7] >= _LOW) & (x[:7] <= _HIGH)  # NaN fails: these inputs must be finite numbers
         good[0] &= tj_max > np.maximum(ta, thermal.REFERENCE_C)
-        good[1] &= i.vf_min_v + k * (tj_max - thermal.REFERENCE_C) > 0
-        good[2] &= (zero > rated_to) & ~(i.if_derating_knee_c >= tj_max)
+        good[1] &= vf_min + k * (tj_max - thermal.REFERENCE_C) > 0
+        good[2] &= (zero > rated_to) & ~(knee >= tj_max)
     return bool(good.all())
 
 

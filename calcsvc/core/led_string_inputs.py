@@ -7,7 +7,7 @@ from dataclasses import dataclass
 import numpy as np
 
 from calcsvc.core import eseries, led_heat
-from calcsvc.core.outcome import PRACTICAL_MAX, FloatArray, Rules, Violation
+from calcsvc.core.outcome import PRACTICAL_MAX, FloatArray, Rules, Violation, stacked_rows
 
 
 @dataclass(frozen=True)
@@ -55,7 +55,9 @@ def plainly_valid(i: LedStringInputs) -> bool:
     """True only when no rule of ``validate`` can object: one combined test in a few array operations, so the
     usual call skips judging the rules one by one and writing their messages (it may say False of valid inputs;
     the rules then decide)."""
-    x = np.array([getattr(i, name) for name in _BOUNDED])
+    x = stacked_rows(i, _BOUNDED)
+    if x is None:
+        return False
     with np.errstate(invalid="ignore", over="ignore", divide="ignore"):
         good = (x >= _LOW[:, None]) & (x <= _HIGH[:, None])  # NaN fails: all but the last must be given
         good[-1] |= np.isnan(x[-1])

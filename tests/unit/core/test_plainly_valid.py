@@ -97,3 +97,12 @@ def test_validate_answers_as_its_rules_alone(seed: int, monkeypatch: Any) -> Non
 def test_valid_rows_take_the_combined_test() -> None:
     rng = np.random.default_rng(3)
     assert all(led_string_inputs.plainly_valid(inputs_of([valid_row(rng) for _ in range(3)])) for _ in range(200))
+
+
+def test_inputs_of_other_shapes_are_left_to_the_rules(monkeypatch: Any) -> None:
+    rng = np.random.default_rng(4)
+    inputs = inputs_of([valid_row(rng) for _ in range(3)])
+    for name in ("supply_v", "vf_min_v", "if_derating_knee_c"):
+        scalar = dataclasses.replace(inputs, **{name: getattr(inputs, name)[:1].reshape(())})
+        assert not led_string_inputs.plainly_valid(scalar)
+        assert same(led_string.validate(scalar), by_rules(scalar, monkeypatch))
