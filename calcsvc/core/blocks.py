@@ -140,12 +140,16 @@ class _Joined:
         return True
 
     def outcome(self, outcome: Callable[[Any], Outcome]) -> Outcome:
+        """The joined outcome, once every block is added (``outcome`` evaluates rows for the notices' order)."""
         assert self.layout is not None
         names, kinds, sources = self.layout
         whole = [getattr(self.inputs, s) if isinstance(s, str) else self.columns[s] for s in sources]
         results = dict(zip(names, whole, strict=False))
-        rest = whole[len(names) :]
-        checks = [Check(name, *rest[3 * j : 3 * j + 3], sense, detail) for j, (name, sense, detail) in enumerate(kinds)]  # type: ignore[arg-type]
+        columns = iter(whole[len(names) :])
+        checks = [
+            Check(name, next(columns), next(columns), next(columns), sense, detail)  # type: ignore[arg-type]
+            for name, sense, detail in kinds
+        ]
         orders = {kind: self._order(kind) for kind in _NOTICES}
         if None in orders.values():
             # No block raised every message: the order of one evaluation of a row raising each message.
