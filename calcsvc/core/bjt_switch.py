@@ -34,14 +34,13 @@ from __future__ import annotations
 
 import numpy as np
 
-from calcsvc.core import bjt_drive, eseries, pwm_timing, switch_heat, switch_notices, switch_pwm, thermal_inputs
+from calcsvc.core import bjt_drive, blocks, eseries, pwm_timing, switch_heat, switch_notices, switch_pwm, thermal_inputs
 from calcsvc.core.bjt_switch_inputs import BjtSwitchInputs, design_beta, exact_base_resistor, rbe_current, validate
 from calcsvc.core.driver_pin import SWITCH_DRIVER
 from calcsvc.core.outcome import (
     Check,
     Outcome,
     add_notice,
-    raise_violations,
     rows,
 )
 from calcsvc.core.spec import E_SERIES, CalculationSpec, Input, Result, Role, columns_as, fraction, positive
@@ -53,10 +52,13 @@ VERSION = "5"
 def compute(inputs: BjtSwitchInputs, validated: bool = False) -> Outcome:
     """The design (``design``) and its heat at ``ambient_c`` (``switch_heat``).
 
-    Raises DomainError when any row violates ``validate``.
+    Raises DomainError when any row violates ``validate``; ``validated``: the caller has just validated these very
+    inputs.
     """
-    if not validated:  # the caller has just validated these very inputs
-        raise_violations(validate(inputs))
+    return blocks.evaluate(inputs, validate, _designed_with_heat, validated)
+
+
+def _designed_with_heat(inputs: BjtSwitchInputs) -> Outcome:
     cold = design(inputs)
     heat = switch_heat.outcome(inputs, cold.results["transistor_power_w"])
     return Outcome(

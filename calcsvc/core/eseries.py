@@ -118,6 +118,8 @@ def _scaled(integer: npt.NDArray[np.int64], exponent: npt.NDArray[np.int64]) -> 
     nearest the decimal value: 47 / 1000 == 0.047 exactly as Python parses "0.047" (multiplying by the
     inexact 1e-3 would not). Beyond that the result is within an ulp or two.
     """
+    if (exponent >= 0).all():  # the usual resistor (from 10 Ω, or 100 Ω in E48–E192): one power, no division
+        return integer * _pow10(exponent)
     up = _pow10(np.maximum(exponent, 0))
     down = _pow10(np.maximum(-exponent, 0))
     return np.where(exponent >= 0, integer * up, integer / down)
@@ -221,6 +223,13 @@ def known_series(names: npt.ArrayLike) -> BoolArray:
     return known
 
 
+def all_known(names: npt.ArrayLike) -> bool:
+    """Whether every name is one of the series in ``SERIES`` (``known_series(names).all()``, from the cached masks)."""
+    arr = np.asarray(names, dtype=str)
+    masks = _series_masks(arr)
+    return all(name in SERIES for name in masks) and sum(np.count_nonzero(m) for m in masks.values()) == arr.size
+
+
 def require_known_series(violations: list[Violation] | Rules, names: npt.ArrayLike) -> None:
     """Record a violation of the ``e_series`` input on every row whose series name is unknown."""
     unknown = ~known_series(names)
@@ -238,8 +247,11 @@ def require_known_series(violations: list[Violation] | Rules, names: npt.ArrayLi
 def default_tolerance_rows(names: npt.ArrayLike) -> FloatArray:
     """Each row's default resistor tolerance for its series name (NaN for an unknown name)."""
     arr = np.asarray(names, dtype=str)
+    masks = _series_masks(arr)
+    if len(masks) == 1 and (only := next(iter(masks.items())))[1].all():  # every row of one series
+        return np.full(arr.shape, DEFAULT_TOLERANCE.get(only[0], np.nan))
     out = np.full(arr.shape, np.nan)
-    for name, mask in _series_masks(arr).items():
+    for name, mask in masks.items():
         out[mask] = DEFAULT_TOLERANCE.get(name, np.nan)
     return out
 
@@ -254,9 +266,8 @@ def _pick_rows(values: npt.ArrayLike, names: npt.ArrayLike, above: bool) -> Floa
     arr = np.asarray(names, dtype=str)
     if arr.shape != x.shape:  # a new view only where needed: the masks are cached for the names array itself
         arr = np.broadcast_to(arr, x.shape)
-    unknown = ~known_series(arr)
-    if unknown.any():
-        _check_series(str(arr[unknown].flat[0]))
+    if not all_known(arr):
+        _check_series(str(arr[~known_series(arr)].flat[0]))
     masks = _series_masks(arr)
     if len(masks) == 1:
         return _pick(x, next(iter(masks)), above)

@@ -30,11 +30,11 @@ from typing import TYPE_CHECKING
 import numpy as np
 
 from calcsvc.core import thermal
-from calcsvc.core.outcome import Check, FloatArray, Notice, Outcome, Rules, Violation, add_notices
+from calcsvc.core.outcome import Check, FloatArray, Notice, Outcome, Rules, Violation, add_notices, stacked_rows
 
 if TYPE_CHECKING:  # ``led_string`` builds on this module: its inputs type is for the annotations only
     from calcsvc.core.channel_inputs import ChannelInputs
-    from calcsvc.core.led_string import LedStringInputs
+    from calcsvc.core.led_string_inputs import LedStringInputs
 
 ABSOLUTE_ZERO_C = -273.15
 DETAILS = {
@@ -85,6 +85,28 @@ def require_all(rules: Rules, i: LedStringInputs | ChannelInputs) -> None:
         rules.require(knee >= tj_max, "if_derating_knee_c", message, knee)
 
 
+_BOUNDED = ("ambient_c", "led_tj_max_c", "led_rth_jb_k_per_w", "led_rth_ba_k_per_w", "vf_tempco_v_per_k",
+            "resistor_rated_to_c", "resistor_zero_power_c")  # fmt: skip
+_BIG = np.finfo(np.float64).max
+_LOW = np.array([np.nextafter(ABSOLUTE_ZERO_C, np.inf), -_BIG, 0.0, 0.0, -_BIG, -_BIG, -_BIG])[:, None]
+_HIGH = np.array([_BIG, _BIG, _BIG, _BIG, 0.0, _BIG, _BIG])[:, None]
+
+
+def plainly_valid(i: LedStringInputs | ChannelInputs) -> bool:
+    """True only when no rule of ``require_all`` can object: the usual call passes this in a few array operations
+    and skips judging the rules one by one (it may say False of valid inputs; the rules then decide)."""
+    x = stacked_rows(i, (*_BOUNDED, "vf_min_v", "if_derating_knee_c"))
+    if x is None:
+        return False
+    ta, tj_max, k, rated_to, zero, vf_min, knee = x[0], x[1], x[4], x[5], x[6], x[7], x[8]
+    with np.errstate(invalid="ignore", over="ignore"):
+        good = (x[:7] >= _LOW) & (x[:7] <= _HIGH)  # NaN fails: these inputs must be finite numbers
+        good[0] &= tj_max > np.maximum(ta, thermal.REFERENCE_C)
+        good[1] &= vf_min + k * (tj_max - thermal.REFERENCE_C) > 0
+        good[2] &= (zero > rated_to) & ~(knee >= tj_max)
+    return bool(good.all())
+
+
 def _point(i: LedStringInputs, supply_v: FloatArray, vf_v: FloatArray, resistor_ohm: FloatArray) -> thermal.LedPoint:
     return thermal.led_operating_point(
         supply_v - i.switch_drop_v,
@@ -125,10 +147,10 @@ def outcome(
         np.concatenate([i.vf_typ_v[None], worst_forward_voltages(i, high_supply, resistor_low_ohm)]),
         np.array([resistor_ohm, resistor_low_ohm, resistor_low_ohm, resistor_low_ohm, resistor_low_ohm]),
     )
-    hottest = np.max(_hottest(both)[1:], axis=0)
-    heating = np.max(both.heating_at_max_c[1:], axis=0)
+    hottest = _hottest(both)[1:].max(axis=0)
+    heating = both.heating_at_max_c[1:].max(axis=0)
     runaway = both.runaway[1:].any(axis=0)
-    current_max = np.max(both.current_a[1:], axis=0)
+    current_max = both.current_a[1:].max(axis=0)
     resistor_power = current_max**2 * resistor_low_ohm
     resistor_limit = rating_w * thermal.resistor_derating(ta, i.resistor_rated_to_c, i.resistor_zero_power_c)
     current_limit = i.if_max_a * thermal.current_derating(ta, i.if_derating_knee_c, i.led_tj_max_c)

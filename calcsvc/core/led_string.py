@@ -35,21 +35,11 @@ Assumptions
 
 from __future__ import annotations
 
-from dataclasses import dataclass
-
 import numpy as np
 
-from calcsvc.core import eseries, led_heat, thermal_inputs
-from calcsvc.core.outcome import (
-    Check,
-    FloatArray,
-    Notice,
-    Outcome,
-    Rules,
-    Violation,
-    add_notices,
-    raise_violations,
-)
+from calcsvc.core import blocks, eseries, led_heat, thermal_inputs
+from calcsvc.core.led_string_inputs import LedStringInputs, string_drop, validate
+from calcsvc.core.outcome import Check, FloatArray, Notice, Outcome, add_notices
 from calcsvc.core.spec import E_SERIES, CalculationSpec, Input, Result, Role, columns_as, positive
 
 NAME = "led-string"
@@ -57,35 +47,11 @@ VERSION = "3"
 
 # Common resistor power ratings, watts (common practice).
 POWER_RATINGS_W = np.array([0.125, 0.25, 0.5, 1.0, 2.0, 3.0, 5.0])
+_RATING_OR_NONE = np.append(POWER_RATINGS_W, np.nan)  # past the largest: none is enough
 DERATING_FACTOR = 2.0  # choose a rating at least twice the worst-case dissipation (common practice)
 HEADROOM_FRACTION = 0.1  # at least 10 % of the supply across the resistor to regulate (common practice)
 HOT_RESISTOR_W = 0.5  # a resistor dissipating this much runs noticeably hot (common practice)
 HIGH_POWER_LED_A = 0.35  # LEDs rated for this much current are "high-power" parts (common practice)
-
-
-@dataclass(frozen=True)
-class LedStringInputs:
-    supply_v: FloatArray
-    supply_tolerance: FloatArray  # fraction, e.g. 0.05 for ±5 %
-    vf_typ_v: FloatArray
-    vf_min_v: FloatArray
-    vf_max_v: FloatArray
-    if_max_a: FloatArray  # LED maximum continuous forward current
-    leds_in_series: FloatArray  # integers ≥ 1 held as floats
-    strings: FloatArray  # integers ≥ 1 held as floats
-    current_a: FloatArray  # target current per string
-    switch_drop_v: FloatArray
-    e_series: np.ndarray  # numpy str array, e.g. "E24"
-    resistor_tolerance: FloatArray  # fraction; NaN → the series' default
-    # Heat (``led_heat``); NaN knee: no current derating curve.
-    ambient_c: FloatArray
-    led_tj_max_c: FloatArray
-    led_rth_jb_k_per_w: FloatArray
-    led_rth_ba_k_per_w: FloatArray
-    vf_tempco_v_per_k: FloatArray
-    if_derating_knee_c: FloatArray
-    resistor_rated_to_c: FloatArray
-    resistor_zero_power_c: FloatArray
 
 
 def string_current(headroom_v: np.ndarray, resistor_ohm: np.ndarray | float) -> np.ndarray:
@@ -93,110 +59,29 @@ def string_current(headroom_v: np.ndarray, resistor_ohm: np.ndarray | float) -> 
     return np.maximum(headroom_v, 0.0) / resistor_ohm
 
 
-def _string_drop(inputs: LedStringInputs) -> FloatArray:
-    """Nominal forward voltage of one string plus the switch drop (V)."""
-    return inputs.leds_in_series * inputs.vf_typ_v + inputs.switch_drop_v
-
-
-def validate(inputs: LedStringInputs) -> list[Violation]:
-    """Every physical precondition, per row; never raises."""
-    rules = Rules()
-    i = inputs
-    with np.errstate(invalid="ignore", over="ignore", divide="ignore"):
-        required = {
-            "supply_v": i.supply_v,
-            "supply_tolerance": i.supply_tolerance,
-            "vf_typ_v": i.vf_typ_v,
-            "vf_min_v": i.vf_min_v,
-            "vf_max_v": i.vf_max_v,
-            "if_max_a": i.if_max_a,
-            "leds_in_series": i.leds_in_series,
-            "strings": i.strings,
-            "current_a": i.current_a,
-            "switch_drop_v": i.switch_drop_v,
-        }
-        rules.finite(required)
-        rules.require(
-            np.isinf(i.resistor_tolerance), "resistor_tolerance", "resistor_tolerance must be finite when given"
-        )
-
-        rules.require(i.supply_v <= 0, "supply_v", "supply_v ({} V) must be positive", i.supply_v)
-        ts = i.supply_tolerance
-        rules.require(
-            (ts < 0) | (ts >= 1), "supply_tolerance", "supply_tolerance ({}) must be a fraction in [0, 1)", ts
-        )
-        rules.require(i.vf_min_v <= 0, "vf_min_v", "vf_min_v ({} V) must be positive", i.vf_min_v)
-        rules.require(
-            (i.vf_typ_v < i.vf_min_v) | (i.vf_typ_v > i.vf_max_v),
-            "vf_typ_v",
-            "vf_typ_v ({} V) must lie between vf_min_v ({} V) and vf_max_v ({} V)",
-            i.vf_typ_v,
-            i.vf_min_v,
-            i.vf_max_v,
-        )
-        rules.require(i.if_max_a <= 0, "if_max_a", "if_max_a ({} A) must be positive", i.if_max_a)
-        rules.require(i.current_a <= 0, "current_a", "current_a ({} A) must be positive", i.current_a)
-        for name, x in (("leds_in_series", i.leds_in_series), ("strings", i.strings)):
-            bad = np.isfinite(x) & ((x < 1) | (x != np.floor(x)))
-            rules.require(bad, name, f"{name} ({{}}) must be a whole number of at least 1", x)
-        sw = i.switch_drop_v
-        rules.require(sw < 0, "switch_drop_v", "switch_drop_v ({} V) must not be negative", sw)
-        rt = i.resistor_tolerance
-        bad = ~np.isnan(rt) & ((rt < 0) | (rt >= 1))
-        rules.require(bad, "resistor_tolerance", "resistor_tolerance ({}) must be a fraction in [0, 1) when given", rt)
-        eseries.require_known_series(rules, i.e_series)
-
-        # The key rule: with the supply at or below the string's drop there is nothing left for the resistor.
-        drop = _string_drop(i)
-        rules.require(
-            i.supply_v <= drop,
-            "supply_v",
-            "supply_v ({} V) must exceed the string's forward voltage plus switch drop ({} V = {} × {} V + {} V)",
-            i.supply_v,
-            drop,
-            i.leds_in_series,
-            i.vf_typ_v,
-            sw,
-        )
-        rules.practical(required | {"resistor_tolerance": rt})
-        led_heat.require_all(rules, i)
-        v = rules.violations()
-        if not v:
-            # Only when everything else holds: the exact resistor must lie where standard values are defined.
-            r_exact = (i.supply_v - drop) / i.current_a
-            rules = Rules()
-            rules.require(
-                (r_exact < eseries.MIN_VALUE) | (r_exact > eseries.MAX_VALUE),  # inf counts as too large
-                "current_a",
-                "current_a ({} A) gives a resistor of {} Ω, outside any practical range",
-                i.current_a,
-                r_exact,
-            )
-            v = rules.violations()
-    return v
-
-
 def minimum_rating_w(dissipation_w: FloatArray) -> FloatArray:
     """The smallest standard power rating that fits a resistor dissipating ``dissipation_w`` at worst: at least
     DERATING_FACTOR times it (common practice), per row; NaN when no rating up to the largest is enough."""
-    need_w = DERATING_FACTOR * dissipation_w
-    fits = POWER_RATINGS_W[None, :] >= need_w[:, None]
-    return np.where(fits.any(axis=1), POWER_RATINGS_W[np.argmax(fits, axis=1)], np.nan)
+    # The first rating at or above the need (the ratings ascend; NaN sorts after them all): one pass a row.
+    return _RATING_OR_NONE[np.searchsorted(POWER_RATINGS_W, DERATING_FACTOR * dissipation_w)]
 
 
 def compute(inputs: LedStringInputs, validated: bool = False) -> Outcome:
     """The constant-drop design (``design``) and its heat at ``ambient_c`` (``led_heat``), whose hot worst-case
     ``led_current_rating`` replaces the constant-drop one.
 
-    Raises DomainError when any row violates ``validate``.
+    Raises DomainError when any row violates ``validate``; ``validated``: the caller has just validated these very
+    inputs.
     """
-    if not validated:  # the caller has just validated these very inputs
-        raise_violations(validate(inputs))
-    cold = design(inputs)
-    r = cold.results["resistor_ohm"]
-    tolerance = eseries.tolerance_rows(inputs.resistor_tolerance, inputs.e_series)
+    return blocks.evaluate(inputs, validate, _designed_with_heat, validated)
+
+
+def _designed_with_heat(inputs: LedStringInputs) -> Outcome:
+    cold, r_low = _design(inputs)
     rating = cold.results["resistor_rating_w"]
-    heat = led_heat.outcome(inputs, r, r * (1.0 - tolerance), np.where(np.isnan(rating), POWER_RATINGS_W[-1], rating))
+    heat = led_heat.outcome(
+        inputs, cold.results["resistor_ohm"], r_low, np.where(np.isnan(rating), POWER_RATINGS_W[-1], rating)
+    )
     hot = {c.name: c for c in heat.checks}
     return Outcome(
         results={**cold.results, **heat.results},
@@ -210,12 +95,17 @@ def design(inputs: LedStringInputs) -> Outcome:
     """Choose each string's resistor and give nominal and worst-case current and dissipation with constant
     forward voltages (the module's model); the channel review judges heat in its own stage. ``inputs`` must
     have passed ``validate``."""
+    return _design(inputs)[0]
+
+
+def _design(inputs: LedStringInputs) -> tuple[Outcome, FloatArray]:
+    """``design`` and the resistor's lowest value, which its heat is judged at."""
     i = inputs
     n = i.supply_v.shape[0]
     vs, ts, nl = i.supply_v, i.supply_tolerance, i.leds_in_series
     tr = np.where(np.isnan(i.resistor_tolerance), eseries.default_tolerance_rows(i.e_series), i.resistor_tolerance)
 
-    v_r = vs - _string_drop(i)
+    v_r = vs - string_drop(i)
     r_exact = v_r / i.current_a
     r = eseries.pick_at_or_above_rows(r_exact, i.e_series)
     current = string_current(v_r, r)
@@ -319,7 +209,7 @@ def design(inputs: LedStringInputs) -> Outcome:
             ),
         ],
     )
-    return Outcome(results=results, checks=checks, warnings=warnings, cautions=cautions)
+    return Outcome(results=results, checks=checks, warnings=warnings, cautions=cautions), r_low
 
 
 # ---- declaration --------------------------------------------------------------------------------------------

@@ -209,6 +209,16 @@ class Rules:
         return found
 
 
+def stacked_rows(inputs: object, names: tuple[str, ...]) -> FloatArray | None:
+    """The named row arrays of ``inputs`` as one array of shape ``(len(names), n)``, for a test over all of them
+    in one operation; None unless each is a row array of the same length (rules then judge them one by one)."""
+    arrays = [getattr(inputs, name) for name in names]
+    n = arrays[0].shape
+    if len(n) != 1 or any(a.shape != n for a in arrays):
+        return None
+    return np.array(arrays, dtype=np.float64)
+
+
 def _each(operation: Callable[[Any], Any], values: Any) -> Any:
     """``operation`` applied to each of ``values`` (a dict's values, a list, or a 2-D array's rows): once over all
     of them stacked where they share one shape, since a one-row call's cost is per numpy operation."""

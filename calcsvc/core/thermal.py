@@ -121,6 +121,8 @@ def current_derating(ambient_c: npt.ArrayLike, knee_c: npt.ArrayLike, tj_max_c: 
     """The fraction of an LED's maximum current allowed at this ambient: 1 up to the knee, linear to 0 at
     Tj,max; 1 where no knee is given (NaN)."""
     knee = np.asarray(knee_c, dtype=np.float64)
+    if np.isnan(knee).all():  # no part gives a knee (the usual case): no curve to evaluate
+        return np.ones(np.broadcast_shapes(np.shape(ambient_c), knee.shape, np.shape(tj_max_c)))
     with np.errstate(divide="ignore", invalid="ignore"):
         share = np.clip((np.asarray(tj_max_c) - np.asarray(ambient_c)) / (np.asarray(tj_max_c) - knee), 0.0, 1.0)
     return np.where(np.isnan(knee), 1.0, share)

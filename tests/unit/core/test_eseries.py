@@ -244,6 +244,11 @@ def test_per_row_helpers() -> None:
     assert eseries.default_tolerance_rows(names).tolist() == [0.2, 0.05, 0.005, 0.05]
     assert eseries.known_series(np.array(["E12", "E13", ""])).tolist() == [True, False, False]
     assert np.isnan(eseries.default_tolerance_rows(np.array(["X"])))[0]
+    # One series on every row, on some rows only, or mixed: each row its own series' tolerance.
+    for rows in (["E96"] * 3, ["E96", "E97", "E96"], ["E12", "E96", "E12"], ["X", "X"]):
+        expected = [eseries.DEFAULT_TOLERANCE.get(name, math.nan) for name in rows]
+        np.testing.assert_array_equal(eseries.default_tolerance_rows(np.array(rows)), expected)
+        assert eseries.all_known(np.array(rows)) == all(name in eseries.SERIES for name in rows)
     with pytest.raises(ValueError, match="E13"):
         pick_at_or_above_rows(x, np.array(["E6", "E13", "E6", "E6"]))
 
@@ -315,3 +320,6 @@ def test_property_noisy_standard_value_picks_itself(case: tuple[float, str]) -> 
 def test_property_vectorized_equals_scalar(xs: list[float], series: str) -> None:
     batch = pick_at_or_above(np.array(xs), series)
     assert batch.tolist() == [float(pick_at_or_above(x, series)) for x in xs]
+    # Values at and above 10 take one power of ten, below it a division: both hold when mixed in one call.
+    both = pick_at_or_below(np.array([*xs, 4.7e-9, 4.7e3]), series)
+    assert both.tolist() == [float(pick_at_or_below(x, series)) for x in [*xs, 4.7e-9, 4.7e3]]

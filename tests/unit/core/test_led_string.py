@@ -459,3 +459,11 @@ def test_property_current_falls_as_resistance_rises(base: LedStringInputs, targe
     for name in ("current_a", "current_min_a", "current_max_a"):
         currents = out.results[name][order]
         assert np.all(np.diff(currents)[np.diff(resistances) > 0] <= 0), name
+
+
+def test_minimum_rating_is_the_first_standard_rating_of_twice_the_dissipation() -> None:
+    ratings = led_string.POWER_RATINGS_W.tolist()
+    edges = [r / 2.0 for r in ratings] + [math.nextafter(r / 2.0, math.inf) for r in ratings]
+    dissipation = np.array([*edges, 0.0, -0.0, 1e-300, 2.5000001, math.inf, math.nan, *np.linspace(0.0, 3.0, 301)])
+    expected = [min((r for r in ratings if r >= 2.0 * d), default=math.nan) for d in dissipation.tolist()]
+    np.testing.assert_array_equal(led_string.minimum_rating_w(dissipation), expected)

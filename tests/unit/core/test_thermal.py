@@ -41,6 +41,13 @@ def test_led_current_derating_is_linear_from_the_knee_to_tj_max() -> None:
     share = thermal.current_derating(np.array([25.0, 60.0, 80.0, 100.0, 120.0]), 60.0, 100.0)
     np.testing.assert_allclose(share, [1.0, 1.0, 0.5, 0.0, 0.0])
     assert thermal.current_derating(90.0, np.nan, 100.0) == 1.0  # no knee given: no curve
+    # Without any knee, a share of 1 in the shape the inputs broadcast to, as where some row gives one.
+    ambient = np.array([[25.0], [60.0], [90.0]])
+    knees = np.array([np.nan, np.nan])
+    without = thermal.current_derating(ambient, knees, 100.0)
+    with_one = thermal.current_derating(ambient, np.array([np.nan, 60.0]), 100.0)
+    assert without.shape == with_one.shape == (3, 2) and without.dtype == with_one.dtype == np.float64
+    np.testing.assert_array_equal(with_one[:, 0], without[:, 0])  # the row without a knee alike
 
 
 def brentq_point(head: float, vf25: float, r: float, n: float, k: float, rth: float, ta: float, tmax: float) -> float:
