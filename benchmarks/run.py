@@ -181,6 +181,23 @@ def best_of(repeats: int, run: Callable[[], Any]) -> tuple[float, Any]:
     return min(times), value
 
 
+def side_by_side(repeats: int, first: Callable[[], Any], second: Callable[[], Any]) -> tuple[float, float, Any]:
+    """Shortest wall times of ``repeats`` runs of each of two, alternated with the order swapped every round (what
+    ran just before leaves the allocator and caches in a state that favours or slows the next), and what the
+    first returned."""
+    times: tuple[list[float], list[float]] = ([], [])
+    value = None
+    for k in range(repeats * 2):
+        order = (0, 1) if k % 2 == 0 else (1, 0)
+        for which in order:
+            began = time.perf_counter()
+            returned = (first, second)[which]()
+            times[which].append(time.perf_counter() - began)
+            if which == 0:
+                value = returned
+    return min(times[0]), min(times[1]), value
+
+
 # ---- the rows --------------------------------------------------------------------------------------------
 
 
@@ -416,7 +433,9 @@ def core_section(repeats: int) -> tuple[list[Row], list[str]]:
     )
 
     inputs = led_inputs(designs(CORE_ROWS, seed=2))
-    vectorized, outcome = best_of(repeats, lambda: led_string.compute(inputs))
+    vectorized, minimal, outcome = side_by_side(
+        repeats, lambda: led_string.compute(inputs), lambda: led_string_minimal(inputs)
+    )
     subset = loop_rows(inputs, LOOP_ROWS)
     plain, looped = best_of(repeats, lambda: led_string_loop(subset))
     plain *= CORE_ROWS / LOOP_ROWS
@@ -433,7 +452,6 @@ def core_section(repeats: int) -> tuple[list[Row], list[str]]:
         )
     )
 
-    minimal, _ = best_of(repeats, lambda: led_string_minimal(inputs))
     rows.append(
         Row(
             "core",
