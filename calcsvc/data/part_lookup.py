@@ -23,7 +23,7 @@ from sqlalchemy.orm import Session
 from calcsvc.data.database import Database
 from calcsvc.data.models import Part, PartRevision
 
-MAX_CACHED_REFERENCES = 4096  # a few hundred bytes each; far more than the parts a deployment references
+MAX_CACHED_REFERENCES = 4096  # per database; a few hundred bytes each, far more than a deployment references
 GENERATION = "SELECT generation FROM parts_generation"
 _GENERATION = select(column("generation")).select_from(table("parts_generation")).scalar_subquery()
 _REVISION = tuple_(PartRevision.part_id, PartRevision.revision)
@@ -91,13 +91,13 @@ class ReferenceCache:
 
     def __init__(self, size: int = MAX_CACHED_REFERENCES) -> None:
         self.size = size
-        # Replaced whole, never changed in place, so a thread reading it needs no lock.
+        # Each database's entry is replaced whole, never changed in place, so a thread reading one needs no lock.
         self._kept: dict[str, tuple[int, dict[Reference, Referenced]]] = {}
         self._lock = threading.Lock()
 
     def look_up(self, database: Database, references: Iterable[Reference]) -> dict[Reference, Referenced]:
-        """The references that exist: one statement reading the generation, and one query more only for what was
-        not read at that generation."""
+        """The references that exist: one statement reading the generation, and one query more only when one of
+        them was not read at that generation."""
         wanted = set(references)
         generation = database.read_value(GENERATION)
         kept_generation, kept = self._kept.get(database.url, (None, {}))
@@ -106,15 +106,18 @@ class ReferenceCache:
         if not wanted.issubset(kept):
             with database.reading() as connection:  # all of them: the generation may have changed meanwhile
                 generation, found = read(connection, wanted)
-            if generation is not None and generation == kept_generation:
+            if generation is None:  # none of them exists: nothing to keep, and what is kept stays
+                return {}
+            if generation == kept_generation:
                 found = {**kept, **found}
             with self._lock:
                 self._kept[database.url] = (generation, found if len(found) <= self.size else {})
             kept = found
         return {reference: kept[reference] for reference in wanted if reference in kept}
 
-    def __len__(self) -> int:
-        return sum(len(kept) for _generation, kept in self._kept.values())
+    def count(self, database: Database) -> int:
+        """How many references of ``database`` are kept (at most ``size``)."""
+        return len(self._kept.get(database.url, (None, {}))[1])
 
 
 REFERENCES = ReferenceCache()
