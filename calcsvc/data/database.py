@@ -90,6 +90,9 @@ class Database:
             raw.invalidate()  # in an unknown state: the pool opens a new one
             # As SQLAlchemy raises it (OperationalError and so on), which the service's error mapping reads.
             raise DBAPIError.instance(statement, None, exc, self.engine.dialect.loaded_dbapi.Error) from exc
+        except BaseException:
+            raw.invalidate()  # interrupted, perhaps still in autocommit: never handed to a transaction
+            raise
         finally:
             raw.close()
         return None if row is None else row[0]
