@@ -17,6 +17,11 @@ from calcsvc.service.safety import SAFETY_LINE
 
 def to_json_value(value: Any) -> Any:
     """JSON-ready: numpy scalars to Python, NaN (does not apply) to null, arrays to lists."""
+    kind = type(value)
+    if kind is float:  # most values of an answer: tested first, as the general path would answer
+        return value if math.isfinite(value) else None
+    if kind is int or kind is str or kind is bool:
+        return value
     if isinstance(value, np.ndarray):
         if value.dtype.kind == "f":
             # Object arrays hold Python floats; NaN becomes None in one vectorized step.
@@ -48,8 +53,14 @@ def fingerprint(calculation: str, version: str, inputs: dict[str, Any], parts: l
     return hashlib.sha256(canonical.encode()).hexdigest()
 
 
+def row_value(column: np.ndarray, row: int) -> Any:
+    """``column[row]`` as Python: ``item`` converts a plain column's value without a numpy scalar in between."""
+    return column.item(row) if column.ndim == 1 else column[row]
+
+
 def row_results(outcome: Outcome, row: int, names: list[str]) -> dict[str, Any]:
-    return {name: to_json_value(outcome.results[name][row]) for name in names if name in outcome.results}
+    results = outcome.results
+    return {name: to_json_value(row_value(results[name], row)) for name in names if name in results}
 
 
 SWEEP_KEYS = ("frequency_hz", "gain_db", "phase_deg")
@@ -71,17 +82,17 @@ def row_checks(outcome: Outcome, row: int) -> list[dict[str, Any]]:
     """The checks that apply on ``row`` (a check whose limit is unknown there is left out)."""
     checks = []
     for check in outcome.checks:
-        limit = float(check.limit[row])
+        limit = float(check.limit.item(row))
         if math.isnan(limit):
             continue
         checks.append(
             {
                 "name": check.name,
                 "unit": CHECK_UNITS.get(check.name, ""),
-                "ok": bool(check.ok[row]),
-                "value": to_json_value(float(check.value[row])),
+                "ok": bool(check.ok.item(row)),
+                "value": to_json_value(float(check.value.item(row))),
                 "limit": limit,
-                "margin": to_json_value(float(check.margin()[row])),
+                "margin": to_json_value(float(check.margin().item(row))),
                 "detail": check.detail,
             }
         )

@@ -6,12 +6,11 @@ from collections.abc import Mapping
 from dataclasses import dataclass, field
 from typing import Any
 
-from sqlalchemy import Connection
 from sqlalchemy.orm import Session
 
 from calcsvc.core.spec import Role
 from calcsvc.data.database import Database
-from calcsvc.data.part_lookup import Referenced, look_up
+from calcsvc.data.part_lookup import REFERENCES, Referenced, look_up
 from calcsvc.data.store import PartStore
 from calcsvc.data.store_errors import PartNotFound
 from calcsvc.service.errors import InvalidInput, RetiredPartReference, UnknownPart, WrongPartKind
@@ -21,15 +20,20 @@ from calcsvc.service.safety import supply_cautions
 @dataclass
 class PartResolver:
     """Looks each distinct (part, revision) up once, however many rows or roles name it: the parts a request names
-    are read together in one query (calcsvc.data.part_lookup, which caches revisions' content per process)."""
+    are read together in one query, in the caller's transaction, or, given the database, from the process's cache
+    after one check that nothing changed (calcsvc.data.part_lookup)."""
 
-    session: Session | Connection | None  # None when the request names no part; a Core connection reads without ORM
+    session: Session | Database | None  # None when the request names no part
     cache: dict[tuple[str, int | None], Referenced] = field(default_factory=dict)
 
     def prefetch(self, references: list[tuple[str, int | None]]) -> None:
         """Read every part in ``references`` in one go; one that does not exist is refused later, by ``part``."""
         wanted = [reference for reference in references if reference not in self.cache]
-        if wanted and self.session is not None:
+        if not wanted or self.session is None:
+            return
+        if isinstance(self.session, Database):
+            self.cache.update(REFERENCES.look_up(self.session, wanted))
+        else:
             self.cache.update(look_up(self.session, wanted))
 
     def part(self, role: str, part_id: str, revision: int | None) -> Referenced:
@@ -40,8 +44,8 @@ class PartResolver:
             assert self.session is not None, "a part is named, so the resolver needs a session"
             if isinstance(self.session, Session):
                 self.cache[key] = _stored(self.session, role, part_id, revision)
-            else:  # only a refusal gets here: the store, on the same connection, names what is missing
-                with Session(bind=self.session) as session:
+            else:  # only a refusal gets here: the store names what is missing
+                with self.session.transaction() as session:
                     self.cache[key] = _stored(session, role, part_id, revision)
         return self.cache[key]
 
@@ -124,9 +128,7 @@ def resolve(
 def resolve_parts(
     database: Database, roles: tuple[Role, ...], body: Mapping[str, Any], alternatives: tuple[Role, ...] = ()
 ) -> Resolved:
-    """``resolve`` in one short read transaction on a Core connection, or without touching the database when no
-    part is named."""
-    if not any(role.name in body or f"{role.name}_revision" in body for role in roles):
-        return resolve(roles, body, PartResolver(None), alternatives)
-    with database.reading() as connection:
-        return resolve(roles, body, PartResolver(connection), alternatives)
+    """``resolve`` from the process's cache of part references, or without touching the database when no part is
+    named."""
+    named = any(role.name in body or f"{role.name}_revision" in body for role in roles)
+    return resolve(roles, body, PartResolver(database if named else None), alternatives)

@@ -7,6 +7,7 @@ Under gunicorn every worker is a process of its own: ``PROMETHEUS_MULTIPROC_DIR`
 
 from __future__ import annotations
 
+import functools
 import os
 from typing import Literal
 
@@ -38,8 +39,14 @@ def record_calculation(name: str, rows: int) -> None:
 
     ``name`` becomes a label: pass a fixed identifier of the calculation, never something a caller sent.
     """
-    CALCULATIONS.labels(name).inc()
-    CALCULATION_ROWS.labels(name).inc(rows)
+    calculations, calculation_rows = _calculation_counters(name)
+    calculations.inc()
+    calculation_rows.inc(rows)
+
+
+@functools.cache  # the calculations are a fixed few; finding a labelled series costs more than counting it
+def _calculation_counters(name: str) -> tuple[Counter, Counter]:
+    return CALCULATIONS.labels(name), CALCULATION_ROWS.labels(name)
 
 
 def record_parts_write(action: PartsWrite) -> None:
@@ -51,8 +58,14 @@ def observe_request(status: int, seconds: float) -> None:
     """Count the current request, labelled by its URL rule so part ids and typos don't multiply series."""
     method = request.method if request.method in _METHODS else "other"
     endpoint = request.url_rule.rule if request.url_rule is not None else UNMATCHED
-    REQUESTS.labels(method, endpoint, str(status)).inc()
-    REQUEST_DURATION.labels(method, endpoint).observe(seconds)
+    requests, duration = _request_series(method, endpoint, status)
+    requests.inc()
+    duration.observe(seconds)
+
+
+@functools.cache  # bounded: the methods above, the URL rules and the status codes
+def _request_series(method: str, endpoint: str, status: int) -> tuple[Counter, Histogram]:
+    return REQUESTS.labels(method, endpoint, str(status)), REQUEST_DURATION.labels(method, endpoint)
 
 
 def _exposition() -> Response:

@@ -64,7 +64,8 @@ class JsonFormatter(logging.Formatter):
         if record.stack_info:
             entry["stack"] = self.formatStack(record.stack_info)
         if has_request_context():
-            entry.setdefault("request_id", request_id())
+            if "request_id" not in entry:
+                entry["request_id"] = request_id()
             secret = _credential()
             if secret:
                 # An exception message or a mistyped URL may quote the token; it must not reach log storage.
@@ -96,17 +97,25 @@ def configure_logging() -> None:
 
 def log_request(status: int, seconds: float) -> None:
     """The request's one log line: what was asked and how it ended, never a value the caller sent."""
-    level = logging.DEBUG if request.path in _PROBES and status < 400 else logging.INFO
+    current = request._get_current_object()  # type: ignore[attr-defined]  # once, not through the proxy each time
+    method, path = current.method, current.path
+    level = logging.DEBUG if path in _PROBES and status < 400 else logging.INFO
     if status >= 500:
         level = logging.WARNING
+    if not log.isEnabledFor(level):
+        return
     fields = {
-        "method": request.method,
-        "path": request.path,
+        "method": method,
+        "path": path,
         # Query values may be secret or personal; the keys alone say what kind of request it was.
-        "query_keys": sorted(request.args.keys()),
+        "query_keys": sorted(current.args.keys()) if current.query_string else [],
         "status": status,
         "duration_ms": round(seconds * 1000, 2),
         "request_id": request_id(),
-        "remote_addr": request.remote_addr,
+        "remote_addr": current.remote_addr,
     }
-    log.log(level, "%s %s %d", request.method, request.path, status, extra={"fields": fields})
+    # The record made directly: Logger.log would also walk the stack for a caller this JSON line never names.
+    record = log.makeRecord(
+        log.name, level, __file__, 0, "%s %s %d", (method, path, status), None, "log_request", {"fields": fields}
+    )
+    log.handle(record)

@@ -1,5 +1,6 @@
-"""Referenced parts are read in one query and their revisions' content cached per process, and every change to
-the parts table, made through any connection, is seen by the next request that does not pin a revision."""
+"""Referenced parts are kept per process under the database's parts generation: a request reads the generation
+alone while nothing changed, the parts in one query when something did, and every change to the parts tables,
+made through any connection, is seen by the next request."""
 
 from __future__ import annotations
 
@@ -8,11 +9,11 @@ from contextlib import contextmanager
 from typing import Any
 
 import pytest
-from sqlalchemy import event
+from sqlalchemy import event, text
 
 from calcsvc.core import led_string
 from calcsvc.data.database import Database
-from calcsvc.data.part_lookup import REVISIONS
+from calcsvc.data.part_lookup import GENERATION, REFERENCES
 from calcsvc.data.store import PartStore
 from calcsvc.service.errors import RetiredPartReference, UnknownPart
 from calcsvc.service.resolve import resolve_parts
@@ -49,13 +50,57 @@ def edit(database: Database, part_id: str, **changes: float) -> int:
         return store.update(part_id, part.revision, part.description, {**part.parameters, **changes}, "edna").revision
 
 
-def test_three_references_take_one_query_once_their_revisions_are_cached(database: Database) -> None:
-    resolve_parts(database, ROLES, THREE)  # warms the cache
+@contextmanager
+def counted_generation_reads(database: Database, monkeypatch: pytest.MonkeyPatch) -> Iterator[list[str]]:
+    """The statements read through ``Database.read_value`` (on a DBAPI connection, which no engine event sees)."""
+    statements: list[str] = []
+    read_value = database.read_value
+
+    def counted(statement: str) -> Any:
+        statements.append(statement)
+        return read_value(statement)
+
+    with monkeypatch.context() as patch:
+        patch.setattr(database, "read_value", counted)
+        yield statements
+
+
+def test_three_cached_references_take_one_generation_read_and_no_query(
+    database: Database, monkeypatch: pytest.MonkeyPatch
+) -> None:
     with counted_selects(database) as selects:
-        resolved = resolve_parts(database, ROLES, THREE)
+        resolve_parts(database, ROLES, THREE)  # fills the cache
     assert len(selects) == 1
+    with counted_selects(database) as selects, counted_generation_reads(database, monkeypatch) as reads:
+        resolved = resolve_parts(database, ROLES, THREE)
+    assert selects == [] and reads == [GENERATION]
     assert [p["part_id"] for p in resolved.parts] == list(THREE.values())
     assert resolved.values["supply_v"] == 12.0 and resolved.values["vf_typ_v"] == 2.1
+
+
+def test_every_write_to_the_parts_tables_gives_a_new_generation(database: Database) -> None:
+    """Triggers, so a writer outside this service (the parts tool, an administrator's SQL) is seen too."""
+    seen = [database.read_value(GENERATION)]
+    with database.transaction() as session:
+        session.execute(text("UPDATE parts SET description = 'as edited by hand' WHERE part_id = :p"), {"p": LED})
+    seen.append(database.read_value(GENERATION))
+    with database.transaction() as session:
+        session.execute(text("UPDATE part_revisions SET author = 'someone' WHERE part_id = :p"), {"p": LED})
+    seen.append(database.read_value(GENERATION))
+    edit(database, LED, vf_typ_v=2.2)
+    seen.append(database.read_value(GENERATION))
+    assert None not in seen and len(set(seen)) == len(seen)
+
+
+def test_a_status_set_by_hand_elsewhere_is_seen_by_the_next_request(database: Database) -> None:
+    assert resolve_parts(database, ROLES, {"led": LED}).warnings == []
+    writer = other_worker(database)
+    try:
+        with writer.transaction() as session:
+            session.execute(text("UPDATE parts SET status = 'draft' WHERE part_id = :p"), {"p": LED})
+    finally:
+        writer.dispose()
+    assert resolve_parts(database, ROLES, {"led": LED}).warnings == [f"led '{LED}' revision 1 is draft, not approved"]
 
 
 def test_an_edit_through_another_worker_is_seen_by_the_next_unpinned_request(database: Database) -> None:
@@ -111,7 +156,17 @@ def test_missing_parts_and_revisions_are_refused_as_without_the_cache(database: 
 
 
 def test_a_full_cache_empties_and_refills(database: Database, monkeypatch: pytest.MonkeyPatch) -> None:
-    monkeypatch.setattr(REVISIONS, "size", 2)
+    monkeypatch.setattr(REFERENCES, "size", 2)
     resolved = resolve_parts(database, ROLES, THREE)
-    assert len(REVISIONS) <= 2
+    assert REFERENCES.count(database) <= 2
     assert resolved.values["vf_typ_v"] == 2.1 and resolved.values["supply_v"] == 12.0
+
+
+def test_a_reference_to_no_stored_part_leaves_what_is_kept(database: Database) -> None:
+    """A caller naming parts that do not exist cannot make every other request read the parts again."""
+    resolve_parts(database, ROLES, THREE)
+    with pytest.raises(UnknownPart):
+        resolve_parts(database, ROLES, {"led": "led-not-stored"})
+    with counted_selects(database) as selects:
+        resolve_parts(database, ROLES, THREE)
+    assert selects == []
