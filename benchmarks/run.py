@@ -1020,6 +1020,9 @@ def report(info: dict[str, str], rows: list[Row], notes: list[str]) -> str:
     return "\n".join(lines)
 
 
+SECTIONS = ("endpoint", "batch", "select", "core", "impact")
+
+
 def main(argv: list[str] | None = None) -> int:
     parser = argparse.ArgumentParser(description=__doc__.splitlines()[0] if __doc__ else None)
     parser.add_argument("--seconds", type=float, default=5.0, help="counted seconds per endpoint (default 5)")
@@ -1032,9 +1035,17 @@ def main(argv: list[str] | None = None) -> int:
     parser.add_argument("--rows", type=int, default=100_000, help="rows in the batch (default 100,000)")
     parser.add_argument("--repeats", type=int, default=3, help="runs per batch and core figure (default 3)")
     parser.add_argument("--write-results", action="store_true", help=f"also write {RESULTS.relative_to(REPO)}")
+    parser.add_argument(
+        "--only",
+        choices=SECTIONS,
+        action="append",
+        help="measure only this section (may be repeated; not with --write-results, which records the whole run)",
+    )
     args = parser.parse_args(argv)
     if not 1 <= args.rows <= 100_000 or args.seconds <= 0 or args.repeats < 1:
         parser.error("--rows must be 1..100000 (the server's batch limit), --seconds positive, --repeats ≥ 1")
+    if args.only and args.write_results:
+        parser.error("--write-results records a whole run: leave out --only")
 
     began = time.monotonic()
     info = machine()
@@ -1042,13 +1053,15 @@ def main(argv: list[str] | None = None) -> int:
         print(f"{key}: {value}", flush=True)
     rows: list[Row] = []
     notes: list[str] = []
-    for title, section in (
-        ("endpoint overhead", lambda: endpoint_section(args)),
-        ("batch and memory", lambda: batch_section(args)),
-        ("candidate search", lambda: select_section(args)),
-        ("core", lambda: core_section(args.repeats)),
-        ("impact of a part edit", lambda: impact_section(args.repeats)),
+    for name, title, section in (
+        ("endpoint", "endpoint overhead", lambda: endpoint_section(args)),
+        ("batch", "batch and memory", lambda: batch_section(args)),
+        ("select", "candidate search", lambda: select_section(args)),
+        ("core", "core", lambda: core_section(args.repeats)),
+        ("impact", "impact of a part edit", lambda: impact_section(args.repeats)),
     ):
+        if args.only and name not in args.only:
+            continue
         print(f"measuring {title} …", flush=True)
         found, said = section()
         rows += found
