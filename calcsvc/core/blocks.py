@@ -37,11 +37,13 @@ BLOCK_ROWS = 16_384
 """Rows per block, the fastest measured at 1,000,000 LED-string rows (4k to 64k tried, alternated in one process:
 8k 0.64 s, 16k 0.51 s, 32k 0.54 s, 64k 0.75 s)."""
 
-BLOCKED_FROM = 150_000
+BLOCKED_FROM = 100_000
 """Inputs of fewer rows are evaluated whole: there the blocks' own costs (a call's fixed cost per block, the
 copies into the whole columns) ate what they saved. Measured, whole against blocks: 20,000 rows NPN switch 8.8 /
-11.5 ms; 100,000 rows within noise either way; 150,000 rows LED string 98 / 85 ms and NPN switch 86 / 81 ms
-(two runs alike); 250,000 rows 190 / 142 and 147 / 136 ms."""
+11.5 ms; 60,000 rows LED string 42 / 42 ms; 100,000 rows LED string 65 / 55, 68 / 54 and 66 / 54 ms, NPN switch
+58 / 54 and 49 / 54 ms (CPU time, medians of 15 alternated calls in one process, runs in other orders);
+150,000 rows LED string 98 / 85 ms and NPN switch 86 / 81 ms (two runs alike); 250,000 rows 190 / 142 and 147 /
+136 ms."""
 
 
 def evaluate(

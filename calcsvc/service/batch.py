@@ -11,6 +11,7 @@ from __future__ import annotations
 
 import math
 import re
+from array import array
 from dataclasses import dataclass, field
 from typing import Any
 
@@ -75,23 +76,34 @@ class ParsedRows:
     errors: RowErrors
 
 
+def _json_numbers(raw: list[Any]) -> np.ndarray | None:
+    """The cells as floats when every one is a JSON number (an int or a float, not a boolean), else None, in one
+    C-level pass for the usual column. The cells are as a JSON or CSV parser gives them: ``array("d")`` takes
+    exactly ints, floats and booleans of those (null, text, arrays and objects raise; so does an int beyond
+    float64, which the slow path names), converting each as ``float()`` does. A boolean becomes 0.0 or 1.0, so
+    only a column holding one of those values needs its cells' types read."""
+    try:
+        column = np.frombuffer(array("d", raw), dtype=np.float64)
+    except (TypeError, OverflowError):
+        return None
+    if ((column == 0.0) | (column == 1.0)).any() and not set(map(type, raw)) <= _NUMBERS:
+        return None
+    return column
+
+
 def _number_column(
     spec: Input, raw: list[Any], errors: RowErrors, blank_is_absent: bool, decimal_comma: bool
 ) -> np.ndarray:
+    column = _json_numbers(raw)
+    if column is not None:
+        # Every cell a JSON number, so a NaN here was written as NaN by the caller, which is an error, not
+        # "absent". A list or null cell takes the slow path: numpy would turn [1] into a second axis and null
+        # into NaN.
+        errors.add_rows(np.isnan(column), spec.name, "must be a finite number")
+        return column
     types = set(map(type, raw))  # one C-level pass over the cells
-    if types <= _NUMBERS:
-        try:
-            # Fast path: every cell a JSON number, so a NaN here was written as NaN by the caller, which is an
-            # error, not "absent". A list or null cell takes the slow path: numpy would turn [1] into a second
-            # axis and null into NaN.
-            column = np.array(raw, dtype=np.float64)
-        except (TypeError, ValueError, OverflowError):
-            pass
-        else:
-            errors.add_rows(np.isnan(column), spec.name, "must be a finite number")
-            return column
     # With a decimal comma "1.5" must be refused, so numeric strings go to the unit parser.
-    elif types == {str} and not decimal_comma:
+    if types == {str} and not decimal_comma:
         column = _plain_numbers(raw, blank_is_absent)
         if column is not None:
             return column

@@ -215,21 +215,62 @@ def streamed_rows(calc: CalculationSpec, batch: Batch, head: dict[str, Any]) -> 
 def streamed_columns(calc: CalculationSpec, batch: Batch, head: dict[str, Any]) -> Iterator[bytes]:
     """``head`` and the columns answer (``json_columns``) as bytes, a result or a check at a time: each one's
     full-length arrays are built as it is written and let go after, so the answer is never whole in memory."""
-    return _streamed({**head, **json_columns(calc, batch)}, depth=3)
+    outcome = batch.outcome
+    held = [*outcome.results.values(), *(a for c in outcome.checks for a in (c.ok, c.value, c.limit))]
+    return _ArrayTexts(held).streamed({**head, **json_columns(calc, batch)}, depth=3)
 
 
-def _streamed(value: Any, depth: int) -> Iterator[bytes]:
-    """The bytes ``orjson.dumps(value)`` gives, a dict's members written one at a time down to ``depth`` levels; a
-    callable member is called when it is written."""
-    if callable(value):
-        value = value()
-    if depth == 0 or not isinstance(value, dict) or not value:
-        yield orjson.dumps(value, option=_NUMPY)
-        return
-    for k, (key, member) in enumerate(value.items()):
-        yield (b"," if k else b"{") + orjson.dumps(key) + b":"
-        yield from _streamed(member, depth - 1)
-    yield b"}"
+class _ArrayTexts:
+    """Writes the arrays of one answer. An array of one repeated value is written as that value's text repeated,
+    and the text of an array the answer holds more than once (a check's value that is also a result) is kept
+    until its last use: serializing a float is most of the answer's cost. ``held`` are the arrays that live as
+    long as the answer (the outcome's own), so their ids name them; an array built for one member is never
+    kept, as its id may be reused once it is freed."""
+
+    def __init__(self, held: list[np.ndarray]) -> None:
+        uses: dict[int, int] = {}
+        for array in held:
+            uses[id(array)] = uses.get(id(array), 0) + 1
+        self.uses = {key: count for key, count in uses.items() if count > 1}
+        self.texts: dict[int, bytes] = {}
+
+    def streamed(self, value: Any, depth: int) -> Iterator[bytes]:
+        """The bytes ``orjson.dumps(value)`` gives, a dict's members written one at a time down to ``depth``
+        levels; a callable member is called when it is written."""
+        if callable(value):
+            value = value()
+        if isinstance(value, np.ndarray):
+            yield self.text(value)
+        elif depth == 0 or not isinstance(value, dict) or not value:
+            yield orjson.dumps(value, option=_NUMPY)
+        else:
+            for k, (key, member) in enumerate(value.items()):
+                yield (b"," if k else b"{") + orjson.dumps(key) + b":"
+                yield from self.streamed(member, depth - 1)
+            yield b"}"
+
+    def text(self, array: np.ndarray) -> bytes:
+        key = id(array)
+        if key not in self.uses:
+            return _array_text(array)
+        found = self.texts.get(key) or self.texts.setdefault(key, _array_text(array))
+        self.uses[key] -= 1
+        if not self.uses[key]:
+            del self.uses[key], self.texts[key]
+        return found
+
+
+def _array_text(array: np.ndarray) -> bytes:
+    """``orjson.dumps(array)``; a one-dimensional float array whose elements are all the same bits is written as
+    its first element's text repeated (equal bits, equal text: -0.0 and 0.0 differ, and so they do here; a NaN
+    is null either way). Booleans are not worth it: orjson writes them about as fast as it copies."""
+    if array.ndim == 1 and array.size > 1 and array.dtype == np.float64:
+        bits = array.view(np.uint64)
+        # Ends and middle first: a column that varies is almost always told by them without a full scan.
+        if bits[0] == bits[-1] == bits[array.size // 2] and (bits == bits[0]).all():
+            text = orjson.dumps(array[:1], option=_NUMPY)[1:-1]
+            return b"[" + (text + b",") * (array.size - 1) + text + b"]"
+    return orjson.dumps(array, option=_NUMPY)
 
 
 def json_columns(calc: CalculationSpec, batch: Batch) -> dict[str, Any]:

@@ -13,6 +13,7 @@ import pytest
 from flask.testing import FlaskClient
 from helpers import assert_problem
 
+from calcsvc.core import blocks
 from calcsvc.web import batch_api, batch_csv, batch_json
 
 NAMES = ("supply_v", "vf_typ_v", "vf_min_v", "vf_max_v", "if_max_a", "leds_in_series", "current_a", "e_series")
@@ -111,10 +112,17 @@ def test_the_streamed_rows_are_the_whole_answer(
     assert [row["row"] for row in orjson.loads(whole)["rows"]] == list(range(60))
 
 
+@pytest.mark.parametrize("every_row_computes", [False, True], ids=["refused-rows", "every-row-computes"])
 def test_the_streamed_columns_are_the_whole_document(
-    client: FlaskClient, seeded: Any, monkeypatch: pytest.MonkeyPatch
+    client: FlaskClient, seeded: Any, monkeypatch: pytest.MonkeyPatch, every_row_computes: bool
 ) -> None:
-    # Written a result and a check at a time, the answer is byte for byte the document serialized whole.
+    # Written a result and a check at a time, the answer is byte for byte the document serialized whole. When
+    # every row computes, the outcome's own arrays are written, shared ones (in blocks too) and constant ones.
+    rows = varied_rows(60)
+    if every_row_computes:
+        rows = [row for row in rows if 8 < float(str(row["supply_v"]).removesuffix(" V")) and row["current_a"] != -1]
+        monkeypatch.setattr(blocks, "BLOCKED_FROM", 0)
+        monkeypatch.setattr(blocks, "BLOCK_ROWS", 16)
     wholes: list[bytes] = []
 
     def whole(value: Any, depth: int) -> Any:
@@ -132,10 +140,11 @@ def test_the_streamed_columns_are_the_whole_document(
         return real(calc, batch, head)
 
     monkeypatch.setattr(batch_api, "streamed_columns", both)
-    streamed = client.post("/v1/batch/led-string?layout=columns&labels=note", json=varied_rows(60)).data
+    streamed = client.post("/v1/batch/led-string?layout=columns&labels=note", json=rows).data
     assert streamed == wholes[0]
     answer = orjson.loads(streamed)
-    assert len(answer["ok"]) == 60 and answer["problems"] and answer["checks"]["headroom"]["margin"]
+    assert len(answer["ok"]) == len(rows) and answer["checks"]["headroom"]["margin"]
+    assert all(answer["ok"]) == every_row_computes and bool(answer["problems"]) != every_row_computes
 
 
 @pytest.mark.parametrize("text", ["1_0", "١٢", "nan", "1e400", " 12 ", "12 V", "+.5e1"])

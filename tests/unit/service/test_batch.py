@@ -130,3 +130,38 @@ def test_the_quick_proof_of_plain_decimals_never_takes_what_the_pattern_refuses(
         assert batch._PLAIN_NUMBERS.fullmatch(text) is not None
     if all(cell and cell != "." and set(cell) <= set("0123456789.") and cell.count(".") <= 1 for cell in cells):
         assert batch._plain_decimals(text)
+
+
+def _old_fast_path(raw: list[object]) -> np.ndarray | None:
+    """The numbers fast path as it was: every cell's exact type int or float, then numpy's conversion."""
+    if not set(map(type, raw)) <= {int, float}:
+        return None
+    try:
+        return np.array(raw, dtype=np.float64)
+    except OverflowError:
+        return None
+
+
+_JSON_CELLS = st.one_of(
+    st.integers(min_value=-(2**70), max_value=2**70),
+    st.sampled_from([0, 1, 0.0, 1.0, -0.0, True, False, None, "1.5", "2 V", [1], {"a": 1}, 10**400]),
+    st.floats(allow_nan=False, allow_infinity=False),
+)
+
+
+@settings(max_examples=300, derandomize=True, deadline=None)
+@given(st.lists(_JSON_CELLS, max_size=12))
+def test_a_column_of_json_numbers_is_converted_as_before(raw: list[object]) -> None:
+    found, expected = batch._json_numbers(raw), _old_fast_path(raw)
+    if expected is None:
+        assert found is None
+    else:
+        assert found is not None and found.tobytes() == expected.tobytes()
+
+
+@pytest.mark.parametrize("others", [[12.0, 15.5], [1, 0.0]], ids=["no-zero-or-one", "zero-and-one"])
+def test_a_boolean_among_numbers_refuses_its_row_only(others: list[float]) -> None:
+    rows = [{**LED, "current_a": 0.02, "supply_v": value} for value in [True, *others, False]]
+    parsed = parse_rows(CALC, rows, PartResolver(None))
+    assert parsed.errors.by_row[0] == parsed.errors.by_row[3] == {"supply_v": ["must be a number, not a boolean"]}
+    assert 1 not in parsed.errors.by_row and parsed.columns["supply_v"][1] == others[0]
