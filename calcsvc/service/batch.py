@@ -212,12 +212,14 @@ def parse_cells(
     columns: Columns = {}
     for spec in calc.inputs:
         if spec.name not in seen:
-            columns[spec.name] = np.full(n, "", dtype=object) if spec.choices else np.full(n, math.nan)
+            columns[spec.name] = np.full(n, "", dtype="U1") if spec.choices else np.full(n, math.nan)
             continue
         raw = cells.values[spec.name]
         if spec.choices:
-            if set(map(type, raw)) <= {str} and set(raw) <= {"", *spec.choices}:  # the usual column, in two passes
-                values, bad = np.array(raw, dtype=object), np.zeros(n, dtype=bool)
+            if set(map(type, raw)) <= {str} and (given := set(raw)) <= {"", *spec.choices}:  # the usual column
+                # Straight to the str array the objects would become, as wide as its longest value (about 4 ms
+                # less at 100,000 rows than through objects); a default longer than that widens it below.
+                values, bad = np.array(raw, dtype=f"U{max([1, *map(len, given)])}"), np.zeros(n, dtype=bool)
             else:
                 values = np.array([("" if v is None else str(v)) for v in raw], dtype=object)
                 bad = np.array([v not in spec.choices and v not in ("", None) for v in raw], dtype=bool)
@@ -237,7 +239,7 @@ def parse_cells(
             _resolve_role(role, cells, columns, parts, (warnings, cautions), errors, resolver, blank_is_absent)
 
     present = {
-        name: (column != "") if column.dtype == object else ~np.isnan(column) for name, column in columns.items()
+        name: (column != "") if column.dtype.kind in "OU" else ~np.isnan(column) for name, column in columns.items()
     }
     for spec in calc.inputs:
         missing = ~present[spec.name]
@@ -246,7 +248,10 @@ def parse_cells(
             missing &= ~errors.rows_of(spec.name, n)
             errors.add_rows(missing, spec.name, f"required: give {spec.name} or reference a part that provides it")
         elif spec.default is not None:
-            columns[spec.name][missing] = spec.default
+            column = columns[spec.name]
+            if column.dtype.kind == "U" and missing.any():  # a str array holds texts up to its width
+                column = columns[spec.name] = column.astype(np.promote_types(column.dtype, f"U{len(spec.default)}"))
+            column[missing] = spec.default
     for spec in calc.inputs:
         if spec.choices:
             columns[spec.name] = columns[spec.name].astype(str)

@@ -165,3 +165,24 @@ def test_a_boolean_among_numbers_refuses_its_row_only(others: list[float]) -> No
     parsed = parse_rows(CALC, rows, PartResolver(None))
     assert parsed.errors.by_row[0] == parsed.errors.by_row[3] == {"supply_v": ["must be a number, not a boolean"]}
     assert 1 not in parsed.errors.by_row and parsed.columns["supply_v"][1] == others[0]
+
+
+def _choices_as_objects(raw: list[object] | None, n: int, default: str) -> np.ndarray:
+    """A choice column as it was made before: objects ("" for null), the default where blank, then str."""
+    values = np.array(["" if v is None else str(v) for v in (raw or [""] * n)], dtype=object)
+    values[values == ""] = default
+    return values.astype(str)
+
+
+_CHOICE_CELLS = st.sampled_from(["E12", "E24", "E96", "E6", "", None, "E192", 24, "e24", "E24 "])
+
+
+@settings(max_examples=300, derandomize=True, deadline=None)
+@given(st.one_of(st.none(), st.lists(_CHOICE_CELLS, max_size=8)), st.integers(min_value=0, max_value=4))
+def test_a_choice_column_is_the_str_array_it_was(raw: list[object] | None, n: int) -> None:
+    n = n if raw is None else len(raw)
+    cells = Cells(n, {"supply_v": [12.0] * n} | ({} if raw is None else {"e_series": raw}))
+    parsed = parse_cells(CALC, cells, PartResolver(None))
+    found, expected = parsed.columns["e_series"], _choices_as_objects(raw, n, "E24")
+    assert found.dtype == expected.dtype and found.tolist() == expected.tolist()
+    assert parsed.present["e_series"].tolist() == [v not in ("", None) for v in (raw or [None] * n)]
