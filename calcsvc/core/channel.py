@@ -264,7 +264,7 @@ def validate(inputs: ChannelInputs) -> list[Violation]:
         own = mosfet_inputs.validate(channel_mosfet.switch_inputs(take(i, mosfet), np.ones(int(mosfet.sum()))))
         mosfet_ok[mosfet] = ~_rows_of(own, int(mosfet.sum()))
     gate_v, rds = channel_mosfet.gate_and_rds_max(i, mosfet_ok)
-    _unstated_gate(found, i, gate_v, mosfet_ok & np.isnan(rds))
+    _unstated_gate(found, i, gate_v, mosfet_ok & (gate_v < i.vgs_1_v))
     rds = np.where(np.isnan(rds), 0.0, rds)  # refused rows (here or below): keep the LED stage's names clean
     led_in = led_inputs(i, rds)
     drop = {"switch_drop_v": "vce_sat_v"}
