@@ -103,7 +103,7 @@ def _design(inputs: LedStringInputs) -> tuple[Outcome, FloatArray]:
     i = inputs
     n = i.supply_v.shape[0]
     vs, ts, nl = i.supply_v, i.supply_tolerance, i.leds_in_series
-    tr = np.where(np.isnan(i.resistor_tolerance), eseries.default_tolerance_rows(i.e_series), i.resistor_tolerance)
+    tr = eseries.tolerance_rows(i.resistor_tolerance, i.e_series)
 
     v_r = vs - string_drop(i)
     r_exact = v_r / i.current_a
